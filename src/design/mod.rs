@@ -1,0 +1,55 @@
+//! The design stage: a design file's text in, a validated [`Design`] out.
+//!
+//! Owns the YAML layer, quantities with units, the format's keys, and every check that can
+//! be made without solving the circuit. In: the file's name and text (the caller reads the
+//! file). Out: [`Loaded`], the design when it has no errors plus every finding located in
+//! the file. Must not solve anything or print anything.
+
+pub mod diagnostic;
+pub mod fields;
+pub mod quantity;
+pub mod reader;
+pub mod schema;
+pub mod suggest;
+pub mod topology;
+pub mod types;
+pub mod yaml;
+
+pub use diagnostic::{Diagnostic, Severity, Span};
+pub use types::*;
+
+/// The outcome of reading one design file.
+#[derive(Debug)]
+pub struct Loaded {
+    /// The design, when no error was found.
+    pub design: Option<Design>,
+    /// Every finding, errors and warnings, ordered by place in the file.
+    pub diagnostics: Vec<Diagnostic>,
+}
+
+impl Loaded {
+    /// Number of errors.
+    pub fn errors(&self) -> usize {
+        self.diagnostics.iter().filter(|d| d.is_error()).count()
+    }
+
+    /// Number of warnings.
+    pub fn warnings(&self) -> usize {
+        self.diagnostics.len() - self.errors()
+    }
+}
+
+/// Reads and checks a design from its text.
+pub fn load(text: &str) -> Loaded {
+    let root = match yaml::parse(text) {
+        Ok(root) => root,
+        Err(d) => return Loaded { design: None, diagnostics: vec![d] },
+    };
+    let (design, mut diagnostics) = reader::read(text, &root);
+    let design = design.and_then(|d| {
+        diagnostics.extend(topology::check(&d));
+        if diagnostics.iter().any(Diagnostic::is_error) { None } else { Some(d) }
+    });
+    diagnostics.sort_by_key(|d| (d.span.line, d.span.column));
+    Loaded { design, diagnostics }
+}

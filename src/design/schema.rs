@@ -1,0 +1,216 @@
+//! A JSON Schema (draft 2020-12) of the design format, for editors that complete and check
+//! YAML files against a schema.
+//!
+//! Built from the same key lists the reader accepts, so the two cannot drift apart. A
+//! quantity is a number or a string (its unit and range are checked by `tauweave check`,
+//! which knows far more than a schema can say). No I/O.
+
+use serde_json::{Map, Value, json};
+
+use crate::design::reader::*;
+
+fn quantity(description: &str) -> Value {
+    json!({
+        "description": description,
+        "anyOf": [{"type": "number"}, {"type": "string", "minLength": 1}]
+    })
+}
+
+fn text(description: &str) -> Value {
+    json!({"type": "string", "description": description})
+}
+
+fn node(description: &str) -> Value {
+    json!({"description": description, "anyOf": [
+        {"type": "string", "pattern": "^[A-Za-z0-9_]+$"},
+        {"type": "integer", "minimum": 0}
+    ]})
+}
+
+fn node_pair(description: &str) -> Value {
+    json!({"description": description, "type": "array", "items": node("a node"), "minItems": 2, "maxItems": 2})
+}
+
+fn node_or_pair(description: &str) -> Value {
+    json!({"description": description, "anyOf": [node("a node"), node_pair("[p, n]")]})
+}
+
+fn enumeration(description: &str, values: &[&str]) -> Value {
+    json!({"description": description, "enum": values})
+}
+
+fn object(keys: &[&str], required: &[&str], property: impl Fn(&str) -> Value) -> Value {
+    let mut props = Map::new();
+    for &k in keys {
+        props.insert(k.to_string(), property(k));
+    }
+    json!({"type": "object", "properties": props, "required": required, "additionalProperties": false})
+}
+
+fn toleranced(description: &str) -> Value {
+    json!({"description": description, "anyOf": [
+        {"type": "number"},
+        {"type": "string", "minLength": 1},
+        object(TOLERANCED_KEYS, &["value"], |k| match k {
+            "distribution" => enumeration("uniform, or gaussian with σ = tolerance/3", DISTRIBUTIONS),
+            "tolerance" => quantity("5 % or an absolute amount"),
+            _ => quantity("nominal value"),
+        })
+    ]})
+}
+
+fn part(kind: &str) -> Value {
+    let (keys, required): (&[&str], Vec<&str>) = match kind {
+        "resistor" | "inductor" => (TWO_TERMINAL_KEYS, vec!["kind", "value", "between"]),
+        "capacitor" => (CAPACITOR_KEYS, vec!["kind", "value", "between"]),
+        "transconductance" | "voltage_amplifier" => {
+            (CONTROLLED_KEYS, vec!["kind", "value", "between", "control"])
+        }
+        "bjt" => (BJT_KEYS, vec!["kind", "model", "c", "b", "e"]),
+        _ => (MOSFET_KEYS, vec!["kind", "model", "d", "g", "s"]),
+    };
+    let mut schema = object(keys, &required, |k| match k {
+        "kind" => json!({"const": kind}),
+        "value" => quantity("the part's value (Ω, F, H, S or V/V)"),
+        "between" => node_pair("the two terminals"),
+        "control" => node_pair("controlling node pair [p, n]"),
+        "role" => enumeration("which time-constant set the capacitor joins", ROLES),
+        "tolerance" => quantity("5 % or an absolute amount"),
+        "distribution" => enumeration("uniform, or gaussian with σ = tolerance/3", DISTRIBUTIONS),
+        "model" => text("name of an entry in `models`"),
+        "note" => text("free text for the part list"),
+        _ => node("terminal node"),
+    });
+    schema["description"] = json!(format!("a {kind}"));
+    schema
+}
+
+fn junction() -> Value {
+    object(JUNCTION_KEYS, &["capacitance"], |k| match k {
+        "capacitance" => toleranced("zero-bias capacitance"),
+        "potential" => quantity("built-in potential (V), default 0.75 V"),
+        _ => quantity("grading exponent m, default 0.33"),
+    })
+}
+
+fn model(types: &[&str]) -> Value {
+    let bipolar = types.contains(&"npn");
+    let keys = if bipolar { BIPOLAR_KEYS } else { MOS_KEYS };
+    let required: &[&str] = if bipolar {
+        &["type", "beta", "saturation_current"]
+    } else {
+        &["type", "process_transconductance", "width", "length", "threshold"]
+    };
+    object(keys, required, |k| match k {
+        "type" => enumeration("polarity", types),
+        "emitter_junction" | "collector_junction" => junction(),
+        "transition_frequency" => object(FT_KEYS, FT_KEYS, |k| match k {
+            "frequency" => toleranced("f_T"),
+            _ => quantity("the collector current f_T was measured at"),
+        }),
+        _ => toleranced(k),
+    })
+}
+
+fn limits(description: &str) -> Value {
+    let mut v = object(LIMIT_KEYS, &[], |k| {
+        quantity(if k == "min" { "lowest allowed" } else { "highest allowed" })
+    });
+    v["description"] = json!(description);
+    v["minProperties"] = json!(1);
+    v
+}
+
+/// The schema as a JSON value.
+pub fn design_schema() -> Value {
+    let tolerance_default = json!({"anyOf": [
+        quantity("a percentage, e.g. 5 %"),
+        object(DEFAULT_TOLERANCE_KEYS, &["tolerance"], |k| match k {
+            "tolerance" => quantity("a percentage"),
+            _ => enumeration("uniform, or gaussian with σ = tolerance/3", DISTRIBUTIONS),
+        })
+    ]});
+    let supply = json!({"anyOf": [
+        quantity("DC voltage to gnd"),
+        object(SUPPLY_KEYS, &["voltage"], |k| match k {
+            "voltage" => quantity("DC voltage to gnd"),
+            "tolerance" => quantity("5 % or an absolute amount"),
+            _ => enumeration("uniform, or gaussian with σ = tolerance/3", DISTRIBUTIONS),
+        })
+    ]});
+    let parts = json!({
+        "type": "object",
+        "description": "the circuit, keyed by reference designator",
+        "propertyNames": {"pattern": "^[A-Za-z][A-Za-z0-9_]*$"},
+        "additionalProperties": {"oneOf": PART_KINDS.iter().map(|k| part(k)).collect::<Vec<_>>()}
+    });
+    let models = json!({
+        "type": "object",
+        "description": "device models shared by name",
+        "additionalProperties": {"oneOf": [model(&["npn", "pnp"]), model(&["nmos", "pmos"])]}
+    });
+    let mut schema = object(TOP_KEYS, &["tauweave", "design", "signal", "output", "parts"], |k| {
+        match k {
+            "tauweave" => json!({"const": 1, "description": "format version"}),
+            "design" => object(META_KEYS, &["id", "title", "revision", "date"], |k| match k {
+                "id" => json!({"type": "string", "pattern": "^[A-Za-z0-9][A-Za-z0-9._-]*$"}),
+                "date" => json!({"type": "string", "pattern": "^[0-9]{4}-[0-9]{2}-[0-9]{2}$"}),
+                "revision" => json!({"anyOf": [{"type": "string"}, {"type": "number"}]}),
+                _ => text(k),
+            }),
+            "environment" => {
+                object(ENVIRONMENT_KEYS, &[], |_| quantity("junction temperature, K or °C"))
+            }
+            "params" => {
+                json!({"type": "object", "additionalProperties": quantity("a quantity or an expression over params"),
+                               "propertyNames": {"pattern": "^[A-Za-z][A-Za-z0-9_]*$"}})
+            }
+            "supplies" => json!({"type": "object", "additionalProperties": supply}),
+            "signal" => object(SIGNAL_KEYS, SIGNAL_KEYS, |k| match k {
+                "at" => node_or_pair("node the source drives"),
+                _ => quantity("series resistance of the source"),
+            }),
+            "output" => object(OUTPUT_KEYS, &["at"], |k| match k {
+                "at" => node_or_pair("output node, or [p, n]"),
+                _ => quantity(k),
+            }),
+            "tolerances" => object(TOLERANCE_KINDS, &[], |_| tolerance_default.clone()),
+            "parts" => parts.clone(),
+            "models" => models.clone(),
+            "requirements" => object(REQUIREMENT_KEYS, &[], limits),
+            "analysis" => object(ANALYSIS_KEYS, &[], |k| match k {
+                "sweep" => object(SWEEP_KEYS, &[], |k| match k {
+                    "points_per_decade" => {
+                        json!({"type": "integer", "minimum": 1, "maximum": 1000})
+                    }
+                    _ => quantity(k),
+                }),
+                _ => object(MONTE_CARLO_KEYS, &[], |_| json!({"type": "integer", "minimum": 0})),
+            }),
+            _ => json!({}),
+        }
+    });
+    let obj = schema.as_object_mut().expect("object");
+    obj.insert("$schema".into(), json!("https://json-schema.org/draft/2020-12/schema"));
+    obj.insert("$id".into(), json!("https://tauweave.invalid/design-format-1.json"));
+    obj.insert("title".into(), json!("tauweave design file, format 1"));
+    schema
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn every_reader_key_is_in_the_schema() {
+        let s = design_schema();
+        let top = s["properties"].as_object().unwrap();
+        assert_eq!(top.len(), TOP_KEYS.len());
+        let parts = &s["properties"]["parts"]["additionalProperties"]["oneOf"];
+        assert_eq!(parts.as_array().unwrap().len(), PART_KINDS.len());
+        let cap = &parts[1]["properties"];
+        for k in CAPACITOR_KEYS {
+            assert!(cap.get(*k).is_some(), "{k}");
+        }
+    }
+}

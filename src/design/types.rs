@@ -1,0 +1,464 @@
+//! The validated design: what the rest of tauweave trusts.
+//!
+//! Every value is in SI units and finite, every reference resolves (a part's model is an
+//! index into `models`), every node name is known. Built only by the reader after the
+//! checks pass; later stages never re-validate it. No I/O.
+
+use std::collections::BTreeMap;
+
+use serde::Serialize;
+
+use crate::design::diagnostic::Span;
+
+/// Name of the reference node.
+pub const GROUND: &str = "gnd";
+
+/// A validated design file.
+#[derive(Clone, Debug, Serialize)]
+pub struct Design {
+    /// Format version (1).
+    pub format: u32,
+    /// Identification and purpose.
+    pub meta: Meta,
+    /// Junction temperature of the analysis, K.
+    pub temperature_k: f64,
+    /// Named params in file order, evaluated.
+    pub params: Vec<Param>,
+    /// DC supplies, in file order.
+    pub supplies: Vec<Supply>,
+    /// The signal source.
+    pub signal: Signal,
+    /// Where the response is taken.
+    pub output: Output,
+    /// The parts, in file order (loads from `output` come last as `load.r`, `load.c`).
+    pub parts: Vec<Part>,
+    /// Device models, in file order.
+    pub models: Vec<Model>,
+    /// Limits the design must meet.
+    pub requirements: Requirements,
+    /// Sweep and Monte Carlo settings.
+    pub analysis: AnalysisSettings,
+    /// Where each key was written, by dotted path (`parts.R1.value`), for later messages.
+    #[serde(skip)]
+    pub places: BTreeMap<String, Span>,
+}
+
+/// Identification of a design.
+#[derive(Clone, Debug, Serialize)]
+pub struct Meta {
+    /// Short identifier; names the output folder.
+    pub id: String,
+    /// One-line title.
+    pub title: String,
+    /// Revision label.
+    pub revision: String,
+    /// The report's date, `YYYY-MM-DD`.
+    pub date: String,
+    /// Who is responsible.
+    pub author: Option<String>,
+    /// What the stage is for.
+    pub purpose: Option<String>,
+}
+
+/// A named param.
+#[derive(Clone, Debug, Serialize)]
+pub struct Param {
+    /// Its name.
+    pub name: String,
+    /// Its value in SI units.
+    pub value: f64,
+    /// Its unit symbol ("F", "m", "" for a pure number).
+    pub unit: String,
+    /// The text it was written as.
+    pub written: String,
+}
+
+/// How a toleranced value is spread.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Distribution {
+    /// Every value within ±tolerance equally likely.
+    Uniform,
+    /// Normal, with the tolerance at three standard deviations.
+    Gaussian,
+}
+
+/// A tolerance, as a fraction of the nominal value.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Tolerance {
+    /// Half-width as a fraction of |nominal| (5 % → 0.05).
+    pub fraction: f64,
+    /// How values spread within it.
+    pub distribution: Distribution,
+    /// True when it was written as an absolute amount (`0.25 pF`).
+    pub absolute: bool,
+}
+
+/// A value with an optional tolerance.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Toleranced {
+    /// Nominal value, SI units.
+    pub nominal: f64,
+    /// Spread, when the value has one.
+    pub tolerance: Option<Tolerance>,
+}
+
+impl Toleranced {
+    /// A value known exactly.
+    pub fn exact(nominal: f64) -> Toleranced {
+        Toleranced { nominal, tolerance: None }
+    }
+}
+
+/// An ideal DC supply from a node to ground.
+#[derive(Clone, Debug, Serialize)]
+pub struct Supply {
+    /// The node it holds.
+    pub node: String,
+    /// Its voltage, V.
+    pub voltage: Toleranced,
+}
+
+/// The small-signal source: 0 V DC in series with its resistance.
+#[derive(Clone, Debug, Serialize)]
+pub struct Signal {
+    /// Node it drives.
+    pub positive: String,
+    /// Node it returns to.
+    pub negative: String,
+    /// Series resistance, Ω.
+    pub resistance: Toleranced,
+}
+
+/// Where the response is taken.
+#[derive(Clone, Debug, Serialize)]
+pub struct Output {
+    /// Output node.
+    pub positive: String,
+    /// Reference node of the output.
+    pub negative: String,
+}
+
+/// Which time-constant set a capacitor joins.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum CapacitorRole {
+    /// Couples a signal between stages; sets the low cut-off.
+    Coupling,
+    /// Bypasses a bias resistor; sets the low cut-off.
+    Bypass,
+    /// An unwanted capacitance; sets the high cut-off.
+    Parasitic,
+    /// The load's capacitance; sets the high cut-off.
+    Load,
+}
+
+/// One part of the circuit.
+#[derive(Clone, Debug, Serialize)]
+pub struct Part {
+    /// Reference designator.
+    pub name: String,
+    /// What it is and how it connects.
+    pub kind: PartKind,
+    /// Free text for the part list.
+    pub note: Option<String>,
+}
+
+/// A part's kind, value and connections.
+#[derive(Clone, Debug, Serialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub enum PartKind {
+    /// A resistor, Ω.
+    Resistor {
+        /// Terminals.
+        between: [String; 2],
+        /// Resistance, Ω.
+        value: Toleranced,
+    },
+    /// A capacitor, F.
+    Capacitor {
+        /// Terminals.
+        between: [String; 2],
+        /// Capacitance, F.
+        value: Toleranced,
+        /// Role, when given.
+        role: Option<CapacitorRole>,
+    },
+    /// An inductor, H.
+    Inductor {
+        /// Terminals.
+        between: [String; 2],
+        /// Inductance, H.
+        value: Toleranced,
+    },
+    /// A voltage-controlled current source: `value·v(control)` flows from `between[0]` to
+    /// `between[1]` through it.
+    Transconductance {
+        /// Output terminals.
+        between: [String; 2],
+        /// Controlling node pair.
+        control: [String; 2],
+        /// Transconductance, S.
+        value: Toleranced,
+    },
+    /// A voltage-controlled voltage source: v(between) = value·v(control).
+    VoltageAmplifier {
+        /// Output terminals.
+        between: [String; 2],
+        /// Controlling node pair.
+        control: [String; 2],
+        /// Voltage gain, V/V.
+        value: Toleranced,
+    },
+    /// A bipolar transistor.
+    Bjt {
+        /// Collector node.
+        c: String,
+        /// Base node.
+        b: String,
+        /// Emitter node.
+        e: String,
+        /// Index into `Design::models`.
+        model: usize,
+    },
+    /// A MOSFET with its body tied to its source.
+    Mosfet {
+        /// Drain node.
+        d: String,
+        /// Gate node.
+        g: String,
+        /// Source node.
+        s: String,
+        /// Index into `Design::models`.
+        model: usize,
+    },
+}
+
+impl PartKind {
+    /// The kind's name as written in the design file.
+    pub fn name(&self) -> &'static str {
+        match self {
+            PartKind::Resistor { .. } => "resistor",
+            PartKind::Capacitor { .. } => "capacitor",
+            PartKind::Inductor { .. } => "inductor",
+            PartKind::Transconductance { .. } => "transconductance",
+            PartKind::VoltageAmplifier { .. } => "voltage_amplifier",
+            PartKind::Bjt { .. } => "bjt",
+            PartKind::Mosfet { .. } => "mosfet",
+        }
+    }
+
+    /// Every node the part touches, in terminal order.
+    pub fn nodes(&self) -> Vec<&str> {
+        match self {
+            PartKind::Resistor { between, .. }
+            | PartKind::Capacitor { between, .. }
+            | PartKind::Inductor { between, .. } => vec![&between[0], &between[1]],
+            PartKind::Transconductance { between, control, .. }
+            | PartKind::VoltageAmplifier { between, control, .. } => {
+                vec![&between[0], &between[1], &control[0], &control[1]]
+            }
+            PartKind::Bjt { c, b, e, .. } => vec![c, b, e],
+            PartKind::Mosfet { d, g, s, .. } => vec![d, g, s],
+        }
+    }
+}
+
+/// A device model shared by name.
+#[derive(Clone, Debug, Serialize)]
+pub struct Model {
+    /// Its name.
+    pub name: String,
+    /// Its parameters.
+    pub device: DeviceModel,
+}
+
+/// Bipolar or MOSFET parameters.
+#[derive(Clone, Debug, Serialize)]
+#[serde(tag = "family", rename_all = "snake_case")]
+pub enum DeviceModel {
+    /// A bipolar transistor model.
+    Bipolar(BipolarModel),
+    /// A MOSFET model.
+    Mos(MosModel),
+}
+
+/// Polarity of a bipolar transistor.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum BipolarType {
+    /// NPN.
+    Npn,
+    /// PNP.
+    Pnp,
+}
+
+/// Polarity of a MOSFET.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum MosType {
+    /// n-channel.
+    Nmos,
+    /// p-channel.
+    Pmos,
+}
+
+/// A depletion capacitance C(V) = C0 / (1 + V_R/φ)^m.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Junction {
+    /// Zero-bias capacitance, F.
+    pub capacitance: Toleranced,
+    /// Built-in potential φ, V.
+    pub potential: f64,
+    /// Grading exponent m.
+    pub grading: f64,
+}
+
+/// How the forward transit time is given.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum TransitSpec {
+    /// τ_F directly, s.
+    TransitTime(Toleranced),
+    /// f_T measured at a collector current.
+    TransitionFrequency {
+        /// f_T, Hz.
+        frequency: Toleranced,
+        /// I_C at which it holds, A.
+        collector_current: f64,
+    },
+}
+
+/// Bipolar transistor parameters (transport Ebers–Moll with Early effect, hybrid-π).
+#[derive(Clone, Debug, Serialize)]
+pub struct BipolarModel {
+    /// NPN or PNP.
+    pub polarity: BipolarType,
+    /// Forward current gain β_F.
+    pub beta: Toleranced,
+    /// Reverse current gain β_R.
+    pub beta_reverse: f64,
+    /// Forward Early voltage, V (None: no Early effect).
+    pub early_voltage: Option<Toleranced>,
+    /// Transport saturation current, A.
+    pub saturation_current: Toleranced,
+    /// Ohmic base resistance, Ω.
+    pub base_resistance: Toleranced,
+    /// Transit time or f_T.
+    pub transit: Option<TransitSpec>,
+    /// Base–emitter depletion capacitance.
+    pub emitter_junction: Option<Junction>,
+    /// Base–collector depletion capacitance.
+    pub collector_junction: Option<Junction>,
+    /// Dissipation rating, W.
+    pub max_power: Option<f64>,
+}
+
+/// MOSFET parameters (square law with channel-length modulation).
+#[derive(Clone, Debug, Serialize)]
+pub struct MosModel {
+    /// n- or p-channel.
+    pub polarity: MosType,
+    /// k′ = µC_ox, A/V².
+    pub process_transconductance: Toleranced,
+    /// Channel width, m.
+    pub width: f64,
+    /// Channel length, m.
+    pub length: f64,
+    /// Threshold voltage, V.
+    pub threshold: Toleranced,
+    /// λ, 1/V.
+    pub channel_length_modulation: Toleranced,
+    /// C_ox, F/m².
+    pub oxide_capacitance: Option<Toleranced>,
+    /// Overlap capacitance per width, F/m.
+    pub overlap_capacitance: Option<Toleranced>,
+    /// Direct C_gs, F.
+    pub gate_source_capacitance: Option<Toleranced>,
+    /// Direct C_gd, F.
+    pub gate_drain_capacitance: Option<Toleranced>,
+    /// C_db, F.
+    pub drain_body_capacitance: Option<Toleranced>,
+    /// Dissipation rating, W.
+    pub max_power: Option<f64>,
+}
+
+/// A min and/or max.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Limits {
+    /// Lowest allowed value.
+    pub min: Option<f64>,
+    /// Highest allowed value.
+    pub max: Option<f64>,
+}
+
+/// What the design must meet.
+#[derive(Clone, Debug, Default, Serialize)]
+pub struct Requirements {
+    /// |A| at mid-band, V/V.
+    pub midband_gain: Option<Limits>,
+    /// Upper −3 dB frequency, Hz.
+    pub upper_cutoff: Option<Limits>,
+    /// Lower −3 dB frequency, Hz.
+    pub lower_cutoff: Option<Limits>,
+    /// Input resistance at mid-band, Ω.
+    pub input_resistance: Option<Limits>,
+    /// Output resistance at mid-band, Ω.
+    pub output_resistance: Option<Limits>,
+}
+
+impl Requirements {
+    /// How many limits are set.
+    pub fn count(&self) -> usize {
+        [
+            self.midband_gain,
+            self.upper_cutoff,
+            self.lower_cutoff,
+            self.input_resistance,
+            self.output_resistance,
+        ]
+        .iter()
+        .flatten()
+        .count()
+    }
+}
+
+/// Sweep and Monte Carlo settings.
+#[derive(Clone, Debug, Serialize)]
+pub struct AnalysisSettings {
+    /// Lowest sweep frequency, Hz.
+    pub sweep_start_hz: f64,
+    /// Highest sweep frequency, Hz.
+    pub sweep_stop_hz: f64,
+    /// Log-spaced points per decade.
+    pub points_per_decade: u32,
+    /// Monte Carlo runs.
+    pub monte_carlo_runs: u32,
+    /// Monte Carlo seed.
+    pub seed: u64,
+}
+
+impl Design {
+    /// Every node name, ground first, then in order of first use.
+    pub fn nodes(&self) -> Vec<String> {
+        let mut seen: Vec<String> = vec![GROUND.to_string()];
+        let mut add = |n: &str| {
+            if !seen.iter().any(|s| s == n) {
+                seen.push(n.to_string());
+            }
+        };
+        for s in &self.supplies {
+            add(&s.node);
+        }
+        add(&self.signal.positive);
+        add(&self.signal.negative);
+        for p in &self.parts {
+            for n in p.kind.nodes() {
+                add(n);
+            }
+        }
+        add(&self.output.positive);
+        add(&self.output.negative);
+        seen
+    }
+}

@@ -1,0 +1,9 @@
+//! tauweave: amplifier design-review documents from a YAML design file.
+//!
+//! The pipeline runs one way: [`design`] (YAML → validated design) → circuit → analysis →
+//! report, with the command line on top in [`cli`]. Each stage is a module that owns one
+//! step and never reaches back up. [`notation`] is the one place numbers become text.
+
+pub mod cli;
+pub mod design;
+pub mod notation;

@@ -1,0 +1,99 @@
+//! Engineering notation: SI-prefixed numbers for people to read.
+//!
+//! The one place floats become text outside results.json. In: a value in SI units and its
+//! unit symbol. Out: `4.7 kΩ`, `12.5 MHz`, `250 pF`; a value that is not finite prints as
+//! `—`, never `NaN`. No I/O.
+
+/// Formats `value` with an SI prefix and `digits` significant digits, trailing zeros
+/// dropped: `si(47e3, "Ω", 3)` → `47 kΩ`.
+pub fn si(value: f64, unit: &str, digits: usize) -> String {
+    if !value.is_finite() {
+        return "—".to_string();
+    }
+    if value == 0.0 {
+        let space = if unit.is_empty() { "" } else { " " };
+        return format!("0{space}{unit}");
+    }
+    let digits = digits.clamp(1, 15);
+    // Round first, then choose the prefix, so 999.96 k becomes 1 M and not 1000 k.
+    let magnitude = value.abs().log10().floor() as i32;
+    let rounded = round_significant(value, digits, magnitude);
+    let magnitude = rounded.abs().log10().floor() as i32;
+    let exponent = (magnitude.div_euclid(3) * 3).clamp(-15, 12);
+    let prefix = match exponent {
+        -15 => "f",
+        -12 => "p",
+        -9 => "n",
+        -6 => "µ",
+        -3 => "m",
+        3 => "k",
+        6 => "M",
+        9 => "G",
+        12 => "T",
+        _ => "",
+    };
+    let mantissa = rounded / 10f64.powi(exponent);
+    let decimals = (digits as i32 - 1 - (magnitude - exponent)).max(0) as usize;
+    let mut text = format!("{mantissa:.decimals$}");
+    if text.contains('.') {
+        text = text.trim_end_matches('0').trim_end_matches('.').to_string();
+    }
+    if text == "-0" {
+        text = "0".to_string();
+    }
+    let text = text.replacen('-', "−", 1);
+    if prefix.is_empty() && unit.is_empty() { text } else { format!("{text} {prefix}{unit}") }
+}
+
+fn round_significant(value: f64, digits: usize, magnitude: i32) -> f64 {
+    let scale = 10f64.powi(digits as i32 - 1 - magnitude);
+    let r = (value * scale).round() / scale;
+    if r.is_finite() { r } else { value }
+}
+
+/// Formats a plain number with `digits` significant digits, no prefix (`3.14`, `120`).
+pub fn plain(value: f64, digits: usize) -> String {
+    if !value.is_finite() {
+        return "—".to_string();
+    }
+    if value == 0.0 {
+        return "0".to_string();
+    }
+    let magnitude = value.abs().log10().floor() as i32;
+    let decimals = (digits as i32 - 1 - magnitude).max(0) as usize;
+    let mut text = format!("{:.decimals$}", round_significant(value, digits, magnitude));
+    if text.contains('.') {
+        text = text.trim_end_matches('0').trim_end_matches('.').to_string();
+    }
+    text.replacen('-', "−", 1)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn prefixes_and_rounding() {
+        assert_eq!(si(47e3, "Ω", 3), "47 kΩ");
+        assert_eq!(si(4.7e-12, "F", 3), "4.7 pF");
+        assert_eq!(si(12.5e6, "Hz", 3), "12.5 MHz");
+        assert_eq!(si(999.96e3, "Hz", 3), "1 MHz");
+        assert_eq!(si(0.25, "W", 3), "250 mW");
+        assert_eq!(si(12.0, "V", 3), "12 V");
+        assert_eq!(si(-5.0, "V", 3), "−5 V");
+        assert_eq!(si(1.0e-6, "A", 3), "1 µA");
+        assert_eq!(si(123456.0, "Ω", 4), "123.5 kΩ");
+        assert_eq!(si(0.0, "V", 3), "0 V");
+        assert_eq!(si(f64::NAN, "V", 3), "—");
+        assert_eq!(si(f64::INFINITY, "Ω", 3), "—");
+        assert_eq!(si(1500.0, "", 3), "1.5 k");
+    }
+
+    #[test]
+    fn plain_numbers() {
+        assert_eq!(plain(120.0, 3), "120");
+        assert_eq!(plain(0.3333333, 3), "0.333");
+        assert_eq!(plain(-2.5, 3), "−2.5");
+        assert_eq!(plain(f64::NAN, 3), "—");
+    }
+}
