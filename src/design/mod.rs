@@ -43,13 +43,13 @@ impl Loaded {
 pub fn load(text: &str) -> Loaded {
     let root = match yaml::parse(text) {
         Ok(root) => root,
-        Err(d) => return Loaded { design: None, diagnostics: vec![d] },
+        Err(d) => return Loaded { design: None, diagnostics: vec![*d] },
     };
-    let (design, mut diagnostics) = reader::read(text, &root);
-    let design = design.and_then(|d| {
-        diagnostics.extend(topology::check(&d));
-        if diagnostics.iter().any(Diagnostic::is_error) { None } else { Some(d) }
-    });
+    let reader::Read { design, mut diagnostics } = reader::read(text, &root);
+    if let Some(d) = &design {
+        diagnostics.extend(topology::check(d));
+    }
+    let design = design.filter(|_| !diagnostics.iter().any(Diagnostic::is_error));
     diagnostics.sort_by_key(|d| (d.span.line, d.span.column));
     Loaded { design, diagnostics }
 }

@@ -39,7 +39,7 @@ impl Dim {
     pub const WATT: Dim = Dim([1, 2, -3, 0, 0]);
 
     /// The product dimension.
-    pub fn mul(self, other: Dim) -> Dim {
+    pub fn times(self, other: Dim) -> Dim {
         let mut out = self.0;
         for (o, b) in out.iter_mut().zip(other.0) {
             *o += b;
@@ -48,8 +48,8 @@ impl Dim {
     }
 
     /// The quotient dimension.
-    pub fn div(self, other: Dim) -> Dim {
-        self.mul(other.powi(-1))
+    pub fn per(self, other: Dim) -> Dim {
+        self.times(other.powi(-1))
     }
 
     /// The dimension raised to an integer power.
@@ -327,7 +327,7 @@ impl Parser<'_> {
                 (a, b) => {
                     let a = a.unwrap_or(Dim::NONE);
                     let b = b.unwrap_or(Dim::NONE);
-                    Some(if op == '/' { a.div(b) } else { a.mul(b) })
+                    Some(if op == '/' { a.per(b) } else { a.times(b) })
                 }
             };
             if op == '/' && right.si == 0.0 {
@@ -609,10 +609,10 @@ impl Parser<'_> {
             let (s, d) = (s.powi(power as i32), d.powi(power));
             if divide {
                 scale /= s;
-                dim = dim.div(d);
+                dim = dim.per(d);
             } else {
                 scale *= s;
-                dim = dim.mul(d);
+                dim = dim.times(d);
             }
             match self.peek() {
                 Some('/') if matches!(self.chars.get(self.pos + 1), Some(c) if is_symbol_char(*c)) =>
@@ -830,9 +830,9 @@ mod tests {
         assert_eq!(q("10 pF").dim, Some(Dim::FARAD));
         assert!(close(q("10 pF").si, 10e-12));
         assert!(close(q("100 pF/m").si, 100e-12));
-        assert_eq!(q("100 pF/m").dim, Some(Dim::FARAD.div(Dim::METRE)));
+        assert_eq!(q("100 pF/m").dim, Some(Dim::FARAD.per(Dim::METRE)));
         assert!(close(q("200 µA/V²").si, 200e-6));
-        assert_eq!(q("200 uA/V^2").dim, Some(Dim::AMPERE.div(Dim::VOLT.powi(2))));
+        assert_eq!(q("200 uA/V^2").dim, Some(Dim::AMPERE.per(Dim::VOLT.powi(2))));
         assert!(close(q("4.6 fF/µm²").si, 4.6e-15 / 1e-12));
         assert_eq!(q("0.04 /V").dim, Some(Dim::VOLT.powi(-1)));
         assert_eq!(q("0.04 1/V").dim, Some(Dim::VOLT.powi(-1)));

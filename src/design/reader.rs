@@ -162,19 +162,30 @@ fn per_volt() -> Dim {
     Dim::VOLT.powi(-1)
 }
 
-/// Reads a design from its tree. Returns the design (when no error was found) and every
-/// finding, errors and warnings, in file order of discovery.
-pub fn read(text: &str, root: &Node) -> (Option<Design>, Vec<Diagnostic>) {
+/// What [`read`] found.
+pub struct Read {
+    /// The design, when its circuit read without errors. Sections outside the circuit
+    /// (metadata, requirements, analysis) may still have errors: check `diagnostics`.
+    pub design: Option<Design>,
+    /// Every finding, errors and warnings, in order of discovery.
+    pub diagnostics: Vec<Diagnostic>,
+}
+
+/// Reads a design from its tree. The design comes back whenever the circuit itself (parts,
+/// models, supplies, signal, output, params) read cleanly, so circuit checks can run on it
+/// even when, say, the date is malformed; it is usable only when `diagnostics` holds no
+/// error.
+pub fn read(text: &str, root: &Node) -> Read {
     let mut r = Reader {
         text,
         diagnostics: Vec::new(),
         params: BTreeMap::new(),
         params_used: BTreeSet::new(),
+        failed_names: BTreeSet::new(),
         places: BTreeMap::new(),
     };
     let design = r.document(root);
-    let design = if r.diagnostics.iter().any(Diagnostic::is_error) { None } else { design };
-    (design, r.diagnostics)
+    Read { design, diagnostics: r.diagnostics }
 }
 
 struct Reader<'t> {
@@ -182,6 +193,9 @@ struct Reader<'t> {
     diagnostics: Vec<Diagnostic>,
     params: BTreeMap<String, Value>,
     params_used: BTreeSet<String>,
+    /// Params and models that are defined but failed to read: uses of them stay quiet, so
+    /// one mistake gives one message.
+    failed_names: BTreeSet<String>,
     places: BTreeMap<String, Span>,
 }
 
@@ -220,6 +234,7 @@ impl Reader<'_> {
             }
         };
         let temperature_k = self.environment(top.get_entry("environment"));
+        let before_circuit = self.error_count();
         if let Some((_, node)) = top.get_entry("params") {
             self.read_params(node);
         }
@@ -263,16 +278,30 @@ impl Reader<'_> {
             }
         };
         parts.extend(loads);
+        let circuit_ok = self.error_count() == before_circuit;
         let requirements = self.requirements(top.get_entry("requirements"));
         let analysis = self.analysis(top.get_entry("analysis"));
         top.finish(&mut self.diagnostics);
         self.unused_models(root, &models, &parts);
         self.unused_params(root);
 
+        if !circuit_ok {
+            return None;
+        }
+        // Sections outside the circuit fall back to placeholders when they failed; the
+        // errors already reported keep such a design from being used.
+        let placeholder = Meta {
+            id: String::new(),
+            title: String::new(),
+            revision: String::new(),
+            date: String::new(),
+            author: None,
+            purpose: None,
+        };
         Some(Design {
-            format: format?,
-            meta: meta?,
-            temperature_k: temperature_k?,
+            format: format.unwrap_or(1),
+            meta: meta.unwrap_or(placeholder),
+            temperature_k: temperature_k.unwrap_or(300.15),
             params: self.param_list(root),
             supplies,
             signal: signal?,
@@ -280,9 +309,13 @@ impl Reader<'_> {
             parts,
             models,
             requirements,
-            analysis: analysis?,
+            analysis: analysis.unwrap_or_else(AnalysisSettings::defaults),
             places: std::mem::take(&mut self.places),
         })
+    }
+
+    fn error_count(&self) -> usize {
+        self.diagnostics.iter().filter(|d| d.is_error()).count()
     }
 
     /// A second `signal:` at the top level is a second source, not just a repeated key.
@@ -505,6 +538,7 @@ impl Reader<'_> {
             let mut stack = Vec::new();
             self.visit_param(&name, &texts, &mut state, &mut failed, &mut stack);
         }
+        self.failed_names.extend(failed);
     }
 
     fn visit_param(
@@ -661,8 +695,13 @@ impl Reader<'_> {
                 return None;
             }
         };
+        let mut uses_failed = false;
         for (name, _) in quantity::referenced_names(&text) {
+            uses_failed |= self.failed_names.contains(&name);
             self.params_used.insert(name);
+        }
+        if uses_failed {
+            return None; // the param's own error says it all
         }
         let v = match quantity::evaluate(&text, &self.params) {
             Ok(v) => v,
@@ -864,7 +903,7 @@ impl Reader<'_> {
                     None => "write `uniform` or `gaussian` (σ = tolerance / 3)".to_string(),
                 };
                 self.push(
-                    Diagnostic::error("unknown_key", format!("`{written}` is not a distribution"))
+                    Diagnostic::error("unknown_kind", format!("`{written}` is not a distribution"))
                         .at(node.span, "uniform or gaussian")
                         .help(help),
                 );
@@ -1169,8 +1208,11 @@ impl Reader<'_> {
                 continue;
             }
             self.places.insert(format!("models.{}", key.name), key.span);
-            if let Some(device) = self.model(key, value) {
-                out.push(Model { name: key.name.clone(), device });
+            match self.model(key, value) {
+                Some(device) => out.push(Model { name: key.name.clone(), device }),
+                None => {
+                    self.failed_names.insert(key.name.clone());
+                }
             }
         }
         out
@@ -1410,7 +1452,7 @@ impl Reader<'_> {
     }
 
     fn mos(&mut self, f: &mut Fields, name: &str, key: &Key, nmos: bool) -> Option<MosModel> {
-        let kp_dim = Dim::AMPERE.div(Dim::VOLT.powi(2));
+        let kp_dim = Dim::AMPERE.per(Dim::VOLT.powi(2));
         let kp = self.required_param(
             f,
             name,
@@ -1449,7 +1491,7 @@ impl Reader<'_> {
             "oxide_capacitance",
             Place {
                 what: "an oxide capacitance per area",
-                dim: Dim::FARAD.div(Dim::METRE.powi(2)),
+                dim: Dim::FARAD.per(Dim::METRE.powi(2)),
                 positive: true,
                 decibels: false,
             },
@@ -1461,7 +1503,7 @@ impl Reader<'_> {
             "overlap_capacitance",
             Place {
                 what: "an overlap capacitance per width",
-                dim: Dim::FARAD.div(Dim::METRE),
+                dim: Dim::FARAD.per(Dim::METRE),
                 positive: false,
                 decibels: false,
             },
@@ -1776,6 +1818,9 @@ impl Reader<'_> {
 
     fn model_ref(&mut self, node: &Node, kind: &str, models: &[Model]) -> Option<usize> {
         let wanted = node.scalar().unwrap_or("");
+        if self.failed_names.contains(wanted) && !models.iter().any(|m| m.name == wanted) {
+            return None; // the model's own error says it all
+        }
         let Some(i) = models.iter().position(|m| m.name == wanted) else {
             let fitting: Vec<&str> = models
                 .iter()
@@ -1945,13 +1990,7 @@ impl Reader<'_> {
     }
 
     fn analysis(&mut self, entry: Option<(&Key, &Node)>) -> Option<AnalysisSettings> {
-        let mut out = AnalysisSettings {
-            sweep_start_hz: 1.0,
-            sweep_stop_hz: 10e9,
-            points_per_decade: 40,
-            monte_carlo_runs: 1000,
-            seed: 1,
-        };
+        let mut out = AnalysisSettings::defaults();
         let Some((key, node)) = entry else { return Some(out) };
         let mut f = Fields::open(
             node,
@@ -1979,7 +2018,7 @@ impl Reader<'_> {
                     }
                 }
                 if let Some(n) = s.get("points_per_decade") {
-                    match self.integer(n, 1, 1000, "points per decade") {
+                    match self.integer(n, 1, 1000, "`points_per_decade`") {
                         Some(v) => out.points_per_decade = v as u32,
                         None => ok = false,
                     }
@@ -2004,13 +2043,13 @@ impl Reader<'_> {
                 &mut self.diagnostics,
             ) {
                 if let Some(n) = m.get("runs") {
-                    match self.integer(n, 0, 1_000_000, "Monte Carlo runs") {
+                    match self.integer(n, 0, 1_000_000, "`runs`") {
                         Some(v) => out.monte_carlo_runs = v as u32,
                         None => ok = false,
                     }
                 }
                 if let Some(n) = m.get("seed") {
-                    match self.integer(n, 0, u64::MAX, "the seed") {
+                    match self.integer(n, 0, u64::MAX, "`seed`") {
                         Some(v) => out.seed = v,
                         None => ok = false,
                     }
@@ -2024,8 +2063,8 @@ impl Reader<'_> {
 
     fn integer(&mut self, node: &Node, lo: u64, hi: u64, what: &str) -> Option<u64> {
         let text = node.scalar().unwrap_or("").replace('_', "");
-        match text.parse::<u64>() {
-            Ok(v) if (lo..=hi).contains(&v) => Some(v),
+        match text.parse::<i128>() {
+            Ok(v) if (lo as i128..=hi as i128).contains(&v) => Some(v as u64),
             Ok(_) => {
                 self.push(
                     Diagnostic::error(

@@ -188,19 +188,21 @@ fn lonely_nodes(
 
 fn shorted_parts(design: &Design, out: &mut Vec<Diagnostic>) {
     for part in &design.parts {
-        let shorted = match &part.kind {
+        let node = match &part.kind {
             PartKind::Resistor { between, .. }
             | PartKind::Capacitor { between, .. }
             | PartKind::Inductor { between, .. }
             | PartKind::Transconductance { between, .. }
-            | PartKind::VoltageAmplifier { between, .. } => between[0] == between[1],
-            _ => false,
+            | PartKind::VoltageAmplifier { between, .. } => {
+                Some(&between[0]).filter(|_| between[0] == between[1])
+            }
+            _ => None,
         };
-        if shorted {
+        if let Some(node) = node {
             out.push(
                 Diagnostic::warning(
                     "shorted_part",
-                    format!("both ends of `{}` are on one node", part.name),
+                    format!("both ends of `{}` are on node `{node}`", part.name),
                 )
                 .at(part_span(design, &part.name), "shorted")
                 .help("it carries no signal; check the node names in `between`"),

@@ -438,6 +438,19 @@ pub struct AnalysisSettings {
     pub seed: u64,
 }
 
+impl AnalysisSettings {
+    /// The settings used when a design gives none.
+    pub fn defaults() -> AnalysisSettings {
+        AnalysisSettings {
+            sweep_start_hz: 1.0,
+            sweep_stop_hz: 10e9,
+            points_per_decade: 40,
+            monte_carlo_runs: 1000,
+            seed: 1,
+        }
+    }
+}
+
 impl Design {
     /// Every node name, ground first, then in order of first use.
     pub fn nodes(&self) -> Vec<String> {

@@ -62,12 +62,12 @@ impl Node {
 }
 
 /// Parses `text` into a located tree.
-pub fn parse(text: &str) -> Result<Node, Diagnostic> {
+pub fn parse(text: &str) -> Result<Node, Box<Diagnostic>> {
     let mut options = serde_saphyr::options::Options::default();
     options.duplicate_keys = serde_saphyr::options::DuplicateKeyPolicy::PassThrough;
     options.with_snippet = false;
     let raw: Spanned<Raw> = serde_saphyr::from_str_with_options(text, options)
-        .map_err(|e| yaml_diagnostic(text, &e))?;
+        .map_err(|e| Box::new(yaml_diagnostic(text, &e)))?;
     Ok(convert(text, raw))
 }
 

@@ -1,0 +1,34 @@
+//! The example designs under designs/ all check cleanly and print their summary.
+
+use tauweave::design;
+
+use crate::support::{files, root, run_in, scratch};
+
+#[test]
+fn every_example_design_checks_with_exit_0() {
+    let designs = files(&root().join("designs"), "yaml");
+    assert!(designs.len() >= 4, "expected at least four example designs");
+    for path in designs {
+        let cwd = scratch("examples");
+        let out = run_in(&cwd, &["check", path.to_str().unwrap()]);
+        let stdout = String::from_utf8_lossy(&out.stdout);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(0), "{}: {stderr}", path.display());
+        for row in ["parts", "nodes", "models", "supplies", "signal", "output", "requirements"] {
+            assert!(stdout.contains(row), "{}: summary lacks `{row}`\n{stdout}", path.display());
+        }
+        assert!(stdout.contains("0 errors"), "{stdout}");
+        let loaded = design::load(&std::fs::read_to_string(&path).unwrap());
+        assert!(loaded.diagnostics.is_empty(), "{}: {:?}", path.display(), loaded.diagnostics);
+    }
+}
+
+#[test]
+fn the_cable_capacitance_comes_from_params() {
+    // The receive preamplifier's cable load is 2.5 m × 100 pF/m = 250 pF, computed from params.
+    let text = std::fs::read_to_string(root().join("designs/rx-preamp-ce.yaml")).unwrap();
+    let d = design::load(&text).design.expect("valid");
+    let load = d.parts.iter().find(|p| p.name == "load.c").expect("load capacitance");
+    let design::PartKind::Capacitor { value, .. } = &load.kind else { panic!("not a capacitor") };
+    assert!((value.nominal - 250e-12).abs() < 1e-24, "{}", value.nominal);
+}

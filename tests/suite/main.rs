@@ -1,0 +1,6 @@
+//! The integration suite: one binary, a module per feature, fixtures under tests/.
+
+mod bad_input;
+mod examples;
+mod schema;
+mod support;

@@ -1,0 +1,44 @@
+//! Helpers shared by the integration tests: running the real binary, reading fixtures.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+/// The repository root.
+pub fn root() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+}
+
+/// The built `tauweave` binary.
+pub fn binary() -> PathBuf {
+    PathBuf::from(env!("CARGO_BIN_EXE_tauweave"))
+}
+
+/// Runs `tauweave` with `args` in the working directory `cwd`.
+pub fn run_in(cwd: &Path, args: &[&str]) -> Output {
+    Command::new(binary())
+        .args(args)
+        .current_dir(cwd)
+        .env("NO_COLOR", "1")
+        .env_remove("RUST_BACKTRACE")
+        .output()
+        .expect("the tauweave binary runs")
+}
+
+/// The files in `dir` with extension `ext`, sorted.
+pub fn files(dir: &Path, ext: &str) -> Vec<PathBuf> {
+    let mut out: Vec<PathBuf> = std::fs::read_dir(dir)
+        .unwrap_or_else(|e| panic!("{}: {e}", dir.display()))
+        .map(|e| e.expect("dir entry").path())
+        .filter(|p| p.extension().is_some_and(|x| x == ext))
+        .collect();
+    out.sort();
+    out
+}
+
+/// A fresh empty directory under the target folder, for runs that must write nothing.
+pub fn scratch(name: &str) -> PathBuf {
+    let dir = root().join("target").join("test-scratch").join(name);
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).expect("scratch dir");
+    dir
+}
