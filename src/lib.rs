@@ -4,6 +4,9 @@
 //! report, with the command line on top in [`cli`]. Each stage is a module that owns one
 //! step and never reaches back up. [`notation`] is the one place numbers become text.
 
+pub mod analysis;
+pub mod circuit;
 pub mod cli;
 pub mod design;
 pub mod notation;
+pub mod report;

@@ -5,6 +5,7 @@
 //! that reads files given by the user and prints to the terminal.
 
 pub mod check;
+pub mod render;
 pub mod schema;
 pub mod source;
 
@@ -44,6 +45,8 @@ pub struct Cli {
 pub enum Command {
     /// Validate a design file and print a summary of it.
     Check(check::CheckArgs),
+    /// Analyse a design and write its results into a folder.
+    Render(render::RenderArgs),
     /// Print the JSON Schema of the design format (for editors).
     Schema(schema::SchemaArgs),
 }
@@ -53,6 +56,7 @@ pub fn run() -> Result<Outcome, Failure> {
     let cli = Cli::try_parse().map_err(Failure::Usage)?;
     match cli.command {
         Command::Check(args) => check::run(&args),
+        Command::Render(args) => render::run(&args),
         Command::Schema(args) => schema::run(&args),
     }
 }

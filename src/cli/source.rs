@@ -6,7 +6,9 @@
 use std::io::IsTerminal;
 use std::path::Path;
 
+use crate::analysis::AnalysisError;
 use crate::cli::Failure;
+use crate::design::Diagnostic;
 use crate::design::{self, Design, Loaded};
 
 /// A design read from a file, with its findings rendered for the terminal.
@@ -66,4 +68,21 @@ impl LoadedFile {
 /// "s" unless one.
 pub fn plural(n: usize) -> &'static str {
     if n == 1 { "" } else { "s" }
+}
+
+/// An analysis failure as a located report when the design key at fault is known.
+pub fn analysis_failure(file: &LoadedFile, e: &AnalysisError) -> Failure {
+    let color = std::io::stderr().is_terminal() && std::env::var_os("NO_COLOR").is_none();
+    let span = e
+        .place
+        .as_ref()
+        .and_then(|p| file.loaded.design.as_ref().and_then(|d| d.places.get(p)).copied());
+    let text = match span {
+        Some(span) => Diagnostic::error("analysis", e.message.clone())
+            .at(span, "here")
+            .help(e.help.clone())
+            .render(&file.name, &file.text, color),
+        None => format!("error: {}\n  help: {}\n", e.message, e.help),
+    };
+    Failure::Input(format!("{text}{}: the analysis failed; nothing was written\n", file.name))
 }

@@ -1,0 +1,166 @@
+//! Dense factorisations used by the analysis: real LU of G (one per network, reused for
+//! every solve) and complex LU of G + jωC for the frequency response.
+//!
+//! In: faer matrices. Out: solutions, or [`Singular`] when a pivot vanishes. No netlist.
+
+use faer::linalg::solvers::{PartialPivLu, Solve};
+use faer::{Mat, c64};
+
+/// The matrix is singular (to working precision).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Singular {
+    /// The first unknown whose pivot vanished.
+    pub unknown: usize,
+}
+
+/// A factorised real matrix.
+pub struct Factor {
+    lu: PartialPivLu<f64>,
+    n: usize,
+}
+
+/// Relative size below which a pivot counts as zero.
+const PIVOT_TOLERANCE: f64 = 1e-13;
+
+impl Factor {
+    /// Factorises `a`, refusing a singular one.
+    pub fn new(a: &Mat<f64>) -> Result<Factor, Singular> {
+        let n = a.nrows();
+        let scale = (0..n)
+            .flat_map(|i| (0..n).map(move |j| (i, j)))
+            .fold(0.0f64, |m, (i, j)| m.max(a[(i, j)].abs()));
+        let lu = a.partial_piv_lu();
+        let u = lu.U();
+        for i in 0..n {
+            if u[(i, i)].abs().partial_cmp(&(PIVOT_TOLERANCE * scale))
+                != Some(std::cmp::Ordering::Greater)
+            {
+                return Err(Singular { unknown: i });
+            }
+        }
+        Ok(Factor { lu, n })
+    }
+
+    /// Solves a x = rhs.
+    pub fn solve(&self, rhs: &[f64]) -> Vec<f64> {
+        let r = Mat::<f64>::from_fn(self.n, 1, |i, _| rhs[i]);
+        let x = self.lu.solve(&r);
+        (0..self.n).map(|i| x[(i, 0)]).collect()
+    }
+
+    /// Solves a X = R for every column of R at once.
+    pub fn solve_columns(&self, rhs: &Mat<f64>) -> Mat<f64> {
+        self.lu.solve(rhs)
+    }
+}
+
+/// y = outᵀ (G + sC)⁻¹ b at complex frequency `s`, or None when singular there.
+pub fn transfer(g: &Mat<f64>, c: &Mat<f64>, b: &[f64], out: &[f64], s: c64) -> Option<c64> {
+    let n = g.nrows();
+    let a = Mat::<c64>::from_fn(n, n, |i, j| c64::new(g[(i, j)], 0.0) + s * c[(i, j)]);
+    let scale = (0..n)
+        .flat_map(|i| (0..n).map(move |j| (i, j)))
+        .fold(0.0f64, |m, (i, j)| m.max(a[(i, j)].norm()));
+    let lu = a.partial_piv_lu();
+    let u = lu.U();
+    if (0..n).any(|i| {
+        u[(i, i)].norm().partial_cmp(&(PIVOT_TOLERANCE * scale))
+            != Some(std::cmp::Ordering::Greater)
+    }) {
+        return None;
+    }
+    let rhs = Mat::<c64>::from_fn(n, 1, |i, _| c64::new(b[i], 0.0));
+    let x = lu.solve(&rhs);
+    let y = (0..n).map(|i| x[(i, 0)] * out[i]).fold(c64::new(0.0, 0.0), |acc, v| acc + v);
+    y.is_finite().then_some(y)
+}
+
+/// Brent's method for a root of `f` in [a, b] with f(a), f(b) of opposite sign
+/// (Brent, Algorithms for Minimization without Derivatives, 1973, ch. 4).
+pub fn brent(mut f: impl FnMut(f64) -> f64, mut a: f64, mut b: f64, tol: f64) -> f64 {
+    let (mut fa, mut fb) = (f(a), f(b));
+    if fa == 0.0 {
+        return a;
+    }
+    if fb == 0.0 {
+        return b;
+    }
+    let (mut c, mut fc) = (a, fa);
+    let (mut d, mut e) = (b - a, b - a);
+    for _ in 0..200 {
+        if fb.signum() == fc.signum() {
+            c = a;
+            fc = fa;
+            d = b - a;
+            e = d;
+        }
+        if fc.abs() < fb.abs() {
+            a = b;
+            b = c;
+            c = a;
+            fa = fb;
+            fb = fc;
+            fc = fa;
+        }
+        let tol1 = 2.0 * f64::EPSILON * b.abs() + 0.5 * tol;
+        let m = 0.5 * (c - b);
+        if m.abs() <= tol1 || fb == 0.0 {
+            return b;
+        }
+        if e.abs() >= tol1 && fa.abs() > fb.abs() {
+            let s = fb / fa;
+            let (mut p, mut q);
+            if a == c {
+                p = 2.0 * m * s;
+                q = 1.0 - s;
+            } else {
+                let qa = fa / fc;
+                let r = fb / fc;
+                p = s * (2.0 * m * qa * (qa - r) - (b - a) * (r - 1.0));
+                q = (qa - 1.0) * (r - 1.0) * (s - 1.0);
+            }
+            if p > 0.0 {
+                q = -q;
+            } else {
+                p = -p;
+            }
+            if 2.0 * p < (3.0 * m * q - (tol1 * q).abs()).min((e * q).abs()) {
+                e = d;
+                d = p / q;
+            } else {
+                d = m;
+                e = m;
+            }
+        } else {
+            d = m;
+            e = m;
+        }
+        a = b;
+        fa = fb;
+        b += if d.abs() > tol1 { d } else { tol1 * m.signum() };
+        fb = f(b);
+    }
+    b
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn brent_finds_roots() {
+        let r = brent(|x| x * x - 2.0, 0.0, 2.0, 1e-15);
+        assert!((r - std::f64::consts::SQRT_2).abs() < 1e-14);
+        let r = brent(|x| x.cos() - x, 0.0, 1.0, 1e-15);
+        assert!((r - 0.739_085_133_215_160_6).abs() < 1e-14); // Dottie number (common knowledge)
+    }
+
+    #[test]
+    fn singular_is_refused() {
+        let a = Mat::<f64>::from_fn(2, 2, |i, j| [[1.0, 2.0], [2.0, 4.0]][i][j]);
+        assert!(Factor::new(&a).is_err());
+        let a = Mat::<f64>::from_fn(2, 2, |i, j| [[2.0, 1.0], [1.0, 3.0]][i][j]);
+        let x = Factor::new(&a).unwrap().solve(&[3.0, 4.0]);
+        assert!((x[0] - 1.0).abs() < 1e-15 && (x[1] - 1.0).abs() < 1e-15);
+    }
+}

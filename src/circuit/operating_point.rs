@@ -1,0 +1,582 @@
+//! The DC operating point by Newton–Raphson on the nonlinear nodal equations.
+//!
+//! In: a [`Netlist`]. Out: node voltages, each device's region, currents, voltages and
+//! dissipation, or a [`BiasError`] naming the device and node that would not settle.
+//! Junction steps are limited each iteration; when plain Newton fails, gmin stepping and
+//! then source stepping take over (Pillage, Rohrer & Visweswariah, from memory).
+//! Capacitors are open and inductors short at DC; the signal source is 0 V behind its
+//! resistance.
+
+use faer::Mat;
+use faer::linalg::solvers::Solve;
+
+use crate::circuit::devices::{self, BjtEval, BjtRegion, MosEval, MosRegion};
+use crate::circuit::netlist::{Element, Netlist};
+
+/// Newton iterations allowed per solve.
+const MAX_ITERATIONS: usize = 200;
+/// Voltage step below which an iteration counts as settled, V (plus the same relative).
+const VOLTAGE_TOLERANCE: f64 = 1e-9;
+
+/// How the operating point was reached.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Method {
+    /// Plain Newton from the initial guess.
+    Newton,
+    /// Newton with a shunt conductance on every node, stepped down to zero.
+    GminStepping,
+    /// Newton with the supplies ramped up from zero.
+    SourceStepping,
+}
+
+/// The bias of one transistor.
+#[derive(Clone, Debug, serde::Serialize)]
+pub struct DeviceBias {
+    /// Designator.
+    pub part: String,
+    /// Region and currents.
+    #[serde(flatten)]
+    pub state: DeviceState,
+    /// Dissipation, W.
+    pub power_w: f64,
+    /// The model's dissipation rating, W.
+    pub max_power_w: Option<f64>,
+}
+
+/// Per-kind bias detail. Voltages and currents carry their real signs (a pnp has negative
+/// V_CE and I_C).
+#[derive(Clone, Debug, serde::Serialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub enum DeviceState {
+    /// A bipolar transistor.
+    Bjt {
+        /// Region.
+        region: BjtRegion,
+        /// Collector current, A.
+        ic_a: f64,
+        /// Base current, A.
+        ib_a: f64,
+        /// V_BE, V.
+        vbe_v: f64,
+        /// V_CE, V.
+        vce_v: f64,
+        /// V_CB, V.
+        vcb_v: f64,
+        /// Currents and derivatives at the normalised (npn) voltages.
+        #[serde(skip)]
+        eval: BjtEval,
+    },
+    /// A MOSFET.
+    Mosfet {
+        /// Region.
+        region: MosRegion,
+        /// Drain current, A.
+        id_a: f64,
+        /// V_GS, V.
+        vgs_v: f64,
+        /// V_DS, V.
+        vds_v: f64,
+        /// Overdrive |V_GS| − |V_th|, V.
+        overdrive_v: f64,
+        /// Current and derivatives at the normalised (n-channel) voltages.
+        #[serde(skip)]
+        eval: MosEval,
+    },
+}
+
+/// The solved operating point.
+#[derive(Clone, Debug, serde::Serialize)]
+pub struct OperatingPoint {
+    /// True when Newton settled.
+    pub converged: bool,
+    /// How it was reached.
+    pub method: Method,
+    /// Newton iterations in all.
+    pub iterations: usize,
+    /// Node voltages by netlist index (ground is 0 V).
+    pub node_voltages: Vec<f64>,
+    /// Transistor biases, in netlist order.
+    pub devices: Vec<DeviceBias>,
+    /// Largest KCL imbalance at any node with the exact device equations, A.
+    pub kcl_residual_a: f64,
+    /// The thermal voltage used, V.
+    pub thermal_voltage_v: f64,
+}
+
+/// Why the operating point could not be found.
+#[derive(Clone, Debug, PartialEq)]
+pub struct BiasError {
+    /// The device that moved most in the last attempt, if any.
+    pub device: Option<String>,
+    /// The node that moved most.
+    pub node: String,
+    /// What happened.
+    pub message: String,
+}
+
+impl std::fmt::Display for BiasError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&self.message)
+    }
+}
+
+/// Unknown layout of the DC system: node voltages (ground excluded), then branch currents
+/// of supplies, voltage amplifiers and inductors.
+struct Layout {
+    nodes: usize,
+    size: usize,
+    /// Branch index of each element that has one (by element index).
+    branch: Vec<Option<usize>>,
+    /// Branch index of each supply.
+    supply_branch: Vec<usize>,
+}
+
+impl Layout {
+    fn new(net: &Netlist) -> Layout {
+        let nodes = net.nodes.len() - 1;
+        let mut next = nodes;
+        let supply_branch: Vec<usize> = (0..net.supplies.len())
+            .map(|_| {
+                next += 1;
+                next - 1
+            })
+            .collect();
+        let branch = net
+            .elements
+            .iter()
+            .map(|e| match e {
+                Element::VoltageAmplifier { .. } | Element::Inductor { .. } => {
+                    next += 1;
+                    Some(next - 1)
+                }
+                _ => None,
+            })
+            .collect();
+        Layout { nodes, size: next, branch, supply_branch }
+    }
+}
+
+/// The row/column of a node (None for ground).
+fn at(node: usize) -> Option<usize> {
+    node.checked_sub(1)
+}
+
+fn add(a: &mut Mat<f64>, r: Option<usize>, c: Option<usize>, v: f64) {
+    if let (Some(r), Some(c)) = (r, c) {
+        a[(r, c)] += v;
+    }
+}
+
+fn add_rhs(rhs: &mut [f64], r: Option<usize>, v: f64) {
+    if let Some(r) = r {
+        rhs[r] += v;
+    }
+}
+
+fn conductance(a: &mut Mat<f64>, x: usize, y: usize, g: f64) {
+    add(a, at(x), at(x), g);
+    add(a, at(y), at(y), g);
+    add(a, at(x), at(y), -g);
+    add(a, at(y), at(x), -g);
+}
+
+/// Stamps the linear elements and supplies (scaled by `ramp`) and a shunt `gmin` per node.
+fn linear_system(net: &Netlist, layout: &Layout, ramp: f64, gmin: f64) -> (Mat<f64>, Vec<f64>) {
+    let mut a = Mat::<f64>::zeros(layout.size, layout.size);
+    let mut rhs = vec![0.0; layout.size];
+    for i in 0..layout.nodes {
+        a[(i, i)] += gmin;
+    }
+    let (sp, sn, rs) = net.signal;
+    conductance(&mut a, sp, sn, 1.0 / rs);
+    for (k, &(node, volts)) in net.supplies.iter().enumerate() {
+        let br = layout.supply_branch[k];
+        add(&mut a, at(node), Some(br), 1.0);
+        add(&mut a, Some(br), at(node), 1.0);
+        rhs[br] = volts * ramp;
+    }
+    for (i, el) in net.elements.iter().enumerate() {
+        match *el {
+            Element::Resistor { a: x, b: y, r, .. } => conductance(&mut a, x, y, 1.0 / r),
+            Element::Transconductance { a: x, b: y, p, n, gm, .. } => {
+                add(&mut a, at(x), at(p), gm);
+                add(&mut a, at(x), at(n), -gm);
+                add(&mut a, at(y), at(p), -gm);
+                add(&mut a, at(y), at(n), gm);
+            }
+            Element::VoltageAmplifier { a: x, b: y, p, n, gain, .. } => {
+                let br = layout.branch[i];
+                add(&mut a, at(x), br, 1.0);
+                add(&mut a, at(y), br, -1.0);
+                add(&mut a, br, at(x), 1.0);
+                add(&mut a, br, at(y), -1.0);
+                add(&mut a, br, at(p), -gain);
+                add(&mut a, br, at(n), gain);
+            }
+            Element::Inductor { a: x, b: y, .. } => {
+                let br = layout.branch[i];
+                add(&mut a, at(x), br, 1.0);
+                add(&mut a, at(y), br, -1.0);
+                add(&mut a, br, at(x), 1.0);
+                add(&mut a, br, at(y), -1.0);
+            }
+            Element::Capacitor { .. } | Element::Bjt { .. } | Element::Mosfet { .. } => {}
+        }
+    }
+    (a, rhs)
+}
+
+fn voltage(x: &[f64], node: usize) -> f64 {
+    at(node).map_or(0.0, |i| x[i])
+}
+
+/// Normalised controlling voltages of device `el` at node voltages `x`.
+fn controls(el: &Element, x: &[f64]) -> Option<[f64; 2]> {
+    match el {
+        Element::Bjt { c, b, e, params, .. } => {
+            let (vc, vb, ve) = (voltage(x, *c), voltage(x, *b), voltage(x, *e));
+            Some([params.sign * (vb - ve), params.sign * (vb - vc)])
+        }
+        Element::Mosfet { d, g, s, params, .. } => {
+            let (vd, vg, vs) = (voltage(x, *d), voltage(x, *g), voltage(x, *s));
+            Some([params.sign * (vg - vs), params.sign * (vd - vs)])
+        }
+        _ => None,
+    }
+}
+
+/// Adds device `el`, linearised at normalised controls `v`, to the system.
+fn stamp_device(a: &mut Mat<f64>, rhs: &mut [f64], el: &Element, v: [f64; 2], vt: f64) {
+    match el {
+        Element::Bjt { c, b, e, params, .. } => {
+            let s = params.sign;
+            let ev = devices::bjt(params, v[0], v[1], vt);
+            let (c, b, e) = (at(*c), at(*b), at(*e));
+            // I_c ≈ gcbe (Vb − Ve) + gcbc (Vb − Vc) + s (ic0 − gcbe vbe0 − gcbc vbc0)
+            let rows = [
+                (c, ev.dic_dvbe, ev.dic_dvbc, ev.ic),
+                (b, ev.dib_dvbe, ev.dib_dvbc, ev.ib),
+                (e, -(ev.dic_dvbe + ev.dib_dvbe), -(ev.dic_dvbc + ev.dib_dvbc), -(ev.ic + ev.ib)),
+            ];
+            for (row, g_be, g_bc, i0) in rows {
+                add(a, row, b, g_be + g_bc);
+                add(a, row, e, -g_be);
+                add(a, row, c, -g_bc);
+                add_rhs(rhs, row, -s * (i0 - g_be * v[0] - g_bc * v[1]));
+            }
+        }
+        Element::Mosfet { d, g, s: src, params, .. } => {
+            let sign = params.sign;
+            let ev = devices::mosfet(params, v[0], v[1]);
+            let (d, g, src) = (at(*d), at(*g), at(*src));
+            for (row, k) in [(d, 1.0), (src, -1.0)] {
+                add(a, row, g, k * ev.gm);
+                add(a, row, d, k * ev.gds);
+                add(a, row, src, -k * (ev.gm + ev.gds));
+                add_rhs(rhs, row, -k * sign * (ev.id - ev.gm * v[0] - ev.gds * v[1]));
+            }
+        }
+        _ => {}
+    }
+}
+
+/// Limits the step of device controls from `old` to `new`.
+fn limit(el: &Element, new: [f64; 2], old: [f64; 2], vt: f64) -> ([f64; 2], bool) {
+    match el {
+        Element::Bjt { params, .. } => {
+            let vcrit = devices::critical_voltage(params.is, vt);
+            let (be, l1) = devices::limit_junction(new[0], old[0], vt, vcrit);
+            let (bc, l2) = devices::limit_junction(new[1], old[1], vt, vcrit);
+            ([be, bc], l1 || l2)
+        }
+        Element::Mosfet { .. } => {
+            let clamp = |n: f64, o: f64, step: f64| {
+                let d = n - o;
+                if d.abs() > step { (o + step * d.signum(), true) } else { (n, false) }
+            };
+            let (gs, l1) = clamp(new[0], old[0], 0.5);
+            let (ds, l2) = clamp(new[1], old[1], 2.0);
+            ([gs, ds], l1 || l2)
+        }
+        _ => (new, false),
+    }
+}
+
+fn initial_controls(el: &Element) -> [f64; 2] {
+    match el {
+        Element::Bjt { .. } => [0.6, 0.0],
+        Element::Mosfet { params, .. } => [params.sign * params.vth + 0.5, 1.0],
+        _ => [0.0, 0.0],
+    }
+}
+
+struct Attempt {
+    x: Vec<f64>,
+    controls: Vec<[f64; 2]>,
+    iterations: usize,
+}
+
+struct Diverged {
+    node: usize,
+    device: Option<usize>,
+    iterations: usize,
+}
+
+/// Newton iterations from `start` with supplies × `ramp` and shunt `gmin`.
+fn newton(
+    net: &Netlist,
+    layout: &Layout,
+    vt: f64,
+    ramp: f64,
+    gmin: f64,
+    start: &Attempt,
+) -> Result<Attempt, Diverged> {
+    let mut x = start.x.clone();
+    let mut controls = start.controls.clone();
+    let (base, base_rhs) = linear_system(net, layout, ramp, gmin);
+    let mut worst = (0usize, None);
+    for it in 0..MAX_ITERATIONS {
+        let mut a = base.clone();
+        let mut rhs = base_rhs.clone();
+        let mut limited = false;
+        let mut biggest_device_step = 0.0;
+        for (i, el) in net.elements.iter().enumerate() {
+            let Some(raw) = controls_of(el, &x) else { continue };
+            let (v, l) =
+                if it == 0 { (controls[i], false) } else { limit(el, raw, controls[i], vt) };
+            let step = (v[0] - controls[i][0]).abs().max((v[1] - controls[i][1]).abs());
+            if step > biggest_device_step {
+                biggest_device_step = step;
+                worst.1 = Some(i);
+            }
+            limited |= l;
+            controls[i] = v;
+            stamp_device(&mut a, &mut rhs, el, v, vt);
+        }
+        let rhs_mat = Mat::<f64>::from_fn(layout.size, 1, |r, _| rhs[r]);
+        let sol = a.partial_piv_lu().solve(&rhs_mat);
+        let new: Vec<f64> = (0..layout.size).map(|r| sol[(r, 0)]).collect();
+        if new.iter().any(|v| !v.is_finite()) {
+            return Err(Diverged { node: worst.0, device: worst.1, iterations: it + 1 });
+        }
+        let mut dx = 0.0;
+        let mut scale = 0.0f64;
+        for r in 0..layout.nodes {
+            let d = (new[r] - x[r]).abs();
+            if d > dx {
+                dx = d;
+                worst.0 = r + 1;
+            }
+            scale = scale.max(new[r].abs());
+        }
+        x = new;
+        if it > 0 && !limited && dx <= VOLTAGE_TOLERANCE * (1.0 + scale) {
+            return Ok(Attempt { x, controls, iterations: start.iterations + it + 1 });
+        }
+    }
+    Err(Diverged { node: worst.0, device: worst.1, iterations: start.iterations + MAX_ITERATIONS })
+}
+
+fn controls_of(el: &Element, x: &[f64]) -> Option<[f64; 2]> {
+    controls(el, x)
+}
+
+/// Solves the operating point of `net`.
+pub fn solve(net: &Netlist) -> Result<OperatingPoint, BiasError> {
+    let vt = devices::thermal_voltage(net.temperature_k);
+    let layout = Layout::new(net);
+    let fresh = Attempt {
+        x: vec![0.0; layout.size],
+        controls: net.elements.iter().map(initial_controls).collect(),
+        iterations: 0,
+    };
+    let mut iterations = 0;
+    let mut last_failure = None;
+    // 1. Plain Newton.
+    let mut found = match newton(net, &layout, vt, 1.0, 0.0, &fresh) {
+        Ok(a) => Some((a, Method::Newton)),
+        Err(d) => {
+            iterations += d.iterations;
+            last_failure = Some(d);
+            None
+        }
+    };
+    // 2. Gmin stepping: a shunt on every node, from 10 mS down to none.
+    if found.is_none() {
+        let mut state = Attempt { iterations, ..fresh_clone(&fresh) };
+        let mut ok = true;
+        let mut gmin = 1e-2;
+        loop {
+            match newton(net, &layout, vt, 1.0, gmin, &state) {
+                Ok(a) => state = a,
+                Err(d) => {
+                    iterations = d.iterations;
+                    last_failure = Some(d);
+                    ok = false;
+                    break;
+                }
+            }
+            if gmin == 0.0 {
+                break;
+            }
+            gmin = if gmin > 1e-12 { gmin / 10.0 } else { 0.0 };
+        }
+        if ok {
+            found = Some((state, Method::GminStepping));
+        }
+    }
+    // 3. Source stepping: ramp the supplies, halving the step on trouble.
+    if found.is_none() {
+        let mut state = Attempt { iterations, ..fresh_clone(&fresh) };
+        let (mut ramp, mut step) = (0.0f64, 0.1f64);
+        let mut ok = true;
+        while ramp < 1.0 {
+            let next = (ramp + step).min(1.0);
+            match newton(net, &layout, vt, next, 0.0, &state) {
+                Ok(a) => {
+                    state = a;
+                    ramp = next;
+                    step = (step * 1.5).min(0.2);
+                }
+                Err(d) => {
+                    state.iterations = d.iterations;
+                    last_failure = Some(d);
+                    step /= 4.0;
+                    if step < 1e-4 {
+                        ok = false;
+                        break;
+                    }
+                }
+            }
+        }
+        if ok {
+            found = Some((state, Method::SourceStepping));
+        }
+    }
+    let Some((attempt, method)) = found else {
+        let d = last_failure.expect("a failed attempt is recorded");
+        let node = net.nodes.get(d.node).cloned().unwrap_or_else(|| "gnd".into());
+        let device = d.device.and_then(|i| element_name(&net.elements[i]).map(str::to_string));
+        let about = device.as_ref().map_or(String::new(), |dv| format!(" around `{dv}`"));
+        return Err(BiasError {
+            message: format!(
+                "the operating point did not converge{about}: node `{node}` kept moving \
+                 after Newton, gmin stepping and source stepping"
+            ),
+            device,
+            node,
+        });
+    };
+    Ok(finish(net, &layout, vt, attempt, method))
+}
+
+fn fresh_clone(a: &Attempt) -> Attempt {
+    Attempt { x: a.x.clone(), controls: a.controls.clone(), iterations: a.iterations }
+}
+
+fn element_name(el: &Element) -> Option<&str> {
+    match el {
+        Element::Bjt { name, .. } | Element::Mosfet { name, .. } => Some(name),
+        Element::Resistor { name, .. }
+        | Element::Capacitor { name, .. }
+        | Element::Inductor { name, .. }
+        | Element::Transconductance { name, .. }
+        | Element::VoltageAmplifier { name, .. } => Some(name),
+    }
+}
+
+/// Polishes the solution with two unlimited Newton steps, then reports it.
+fn finish(
+    net: &Netlist,
+    layout: &Layout,
+    vt: f64,
+    mut attempt: Attempt,
+    method: Method,
+) -> OperatingPoint {
+    let (base, base_rhs) = linear_system(net, layout, 1.0, 0.0);
+    for _ in 0..2 {
+        let mut a = base.clone();
+        let mut rhs = base_rhs.clone();
+        for el in &net.elements {
+            if let Some(v) = controls(el, &attempt.x) {
+                stamp_device(&mut a, &mut rhs, el, v, vt);
+            }
+        }
+        let rhs_mat = Mat::<f64>::from_fn(layout.size, 1, |r, _| rhs[r]);
+        let sol = a.partial_piv_lu().solve(&rhs_mat);
+        let new: Vec<f64> = (0..layout.size).map(|r| sol[(r, 0)]).collect();
+        if new.iter().all(|v| v.is_finite()) {
+            attempt.x = new;
+        }
+    }
+    let x = &attempt.x;
+    // KCL with the exact device currents.
+    let mut residual = vec![0.0; layout.size];
+    for r in 0..layout.size {
+        residual[r] = (0..layout.size).map(|c| base[(r, c)] * x[c]).sum::<f64>() - base_rhs[r];
+    }
+    let mut devices_out = Vec::new();
+    for el in &net.elements {
+        match el {
+            Element::Bjt { name, c, b, e, params } => {
+                let v = controls(el, x).unwrap_or([0.0; 2]);
+                let ev = devices::bjt(params, v[0], v[1], vt);
+                let s = params.sign;
+                let (ic, ib) = (s * ev.ic, s * ev.ib);
+                add_rhs(&mut residual, at(*c), ic);
+                add_rhs(&mut residual, at(*b), ib);
+                add_rhs(&mut residual, at(*e), -(ic + ib));
+                let (vc, vb, ve) = (voltage(x, *c), voltage(x, *b), voltage(x, *e));
+                devices_out.push(DeviceBias {
+                    part: name.clone(),
+                    power_w: ic * (vc - ve) + ib * (vb - ve),
+                    max_power_w: params.max_power,
+                    state: DeviceState::Bjt {
+                        region: devices::bjt_region(v[0], v[1]),
+                        ic_a: ic,
+                        ib_a: ib,
+                        vbe_v: vb - ve,
+                        vce_v: vc - ve,
+                        vcb_v: vc - vb,
+                        eval: ev,
+                    },
+                });
+            }
+            Element::Mosfet { name, d, g, s: src, params } => {
+                let v = controls(el, x).unwrap_or([0.0; 2]);
+                let ev = devices::mosfet(params, v[0], v[1]);
+                let id = params.sign * ev.id;
+                add_rhs(&mut residual, at(*d), id);
+                add_rhs(&mut residual, at(*src), -id);
+                let (vd, vg, vs) = (voltage(x, *d), voltage(x, *g), voltage(x, *src));
+                devices_out.push(DeviceBias {
+                    part: name.clone(),
+                    power_w: id * (vd - vs),
+                    max_power_w: params.max_power,
+                    state: DeviceState::Mosfet {
+                        region: devices::mos_region(params, v[0], v[1]),
+                        id_a: id,
+                        vgs_v: vg - vs,
+                        vds_v: vd - vs,
+                        overdrive_v: v[0] - params.sign * params.vth,
+                        eval: ev,
+                    },
+                });
+            }
+            _ => {}
+        }
+    }
+    let kcl = residual[..layout.nodes].iter().fold(0.0f64, |m, r| m.max(r.abs()));
+    let mut node_voltages = vec![0.0];
+    node_voltages.extend_from_slice(&x[..layout.nodes]);
+    OperatingPoint {
+        converged: true,
+        method,
+        iterations: attempt.iterations,
+        node_voltages,
+        devices: devices_out,
+        kcl_residual_a: kcl,
+        thermal_voltage_v: vt,
+    }
+}

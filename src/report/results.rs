@@ -1,0 +1,95 @@
+//! results.json: the machine-readable results contract (keys snake_case, SI units in the
+//! name; a value that does not exist is null, never NaN).
+
+use serde::Serialize;
+
+use crate::analysis::Analysis;
+use crate::design::Design;
+
+/// The tool that wrote the results.
+#[derive(Clone, Debug, Serialize)]
+pub struct Tool {
+    /// `tauweave`.
+    pub name: &'static str,
+    /// Its version.
+    pub version: &'static str,
+}
+
+/// Which design the results are for.
+#[derive(Clone, Debug, Serialize)]
+pub struct DesignId {
+    /// Design id.
+    pub id: String,
+    /// Title.
+    pub title: String,
+    /// Revision.
+    pub revision: String,
+    /// The design's date.
+    pub date: String,
+}
+
+/// Where the results came from.
+#[derive(Clone, Debug, Serialize)]
+pub struct Provenance {
+    /// SHA-256 of the design file's bytes, hex.
+    pub design_sha256: String,
+    /// SHA-256 of the template, hex (null until templates render).
+    pub template_sha256: Option<String>,
+    /// The Monte Carlo seed.
+    pub seed: u64,
+    /// The command that rebuilds these results.
+    pub rebuild_command: String,
+}
+
+/// The whole results document.
+#[derive(Clone, Debug, Serialize)]
+pub struct ResultsDocument<'a> {
+    /// The tool.
+    pub tool: Tool,
+    /// The design.
+    pub design: DesignId,
+    /// Provenance.
+    pub provenance: Provenance,
+    /// Everything computed.
+    #[serde(flatten)]
+    pub analysis: &'a Analysis,
+}
+
+/// The tool's identity.
+pub fn tool() -> Tool {
+    Tool { name: "tauweave", version: env!("CARGO_PKG_VERSION") }
+}
+
+/// Builds the document for `design` whose file bytes hash to `design_sha256`.
+pub fn document<'a>(
+    design: &Design,
+    analysis: &'a Analysis,
+    design_sha256: String,
+    design_name: &str,
+) -> ResultsDocument<'a> {
+    let m = &design.meta;
+    ResultsDocument {
+        tool: tool(),
+        design: DesignId {
+            id: m.id.clone(),
+            title: m.title.clone(),
+            revision: m.revision.clone(),
+            date: m.date.clone(),
+        },
+        provenance: Provenance {
+            design_sha256,
+            template_sha256: None,
+            seed: design.analysis.seed,
+            rebuild_command: format!("tauweave render {design_name} --format json"),
+        },
+        analysis,
+    }
+}
+
+/// The document as pretty JSON with a final newline.
+pub fn to_json(doc: &ResultsDocument) -> String {
+    let mut s =
+        serde_json::to_string_pretty(doc).unwrap_or_else(|e| format!("{{\"error\": \"{e}\"}}"));
+    s.push('\n');
+    s
+}
