@@ -406,11 +406,12 @@ pub fn analyze_network(lin: &LinearNetwork, design: &Design) -> Result<Analysis,
         place: None,
     };
     let poles = poles::poles(&full).ok_or_else(qz_failed)?;
-    let zeros = poles::zeros(&full).ok_or_else(qz_failed)?;
+    let zeros = poles::snap_origin(poles::zeros(&full).ok_or_else(qz_failed)?, &poles);
     let high_poles = poles::poles(&high_net).ok_or_else(qz_failed)?;
-    let high_zeros = poles::zeros(&high_net).ok_or_else(qz_failed)?;
+    let high_zeros =
+        poles::snap_origin(poles::zeros(&high_net).ok_or_else(qz_failed)?, &high_poles);
     let low_poles = poles::poles(&low_net).ok_or_else(qz_failed)?;
-    let low_zeros = poles::zeros(&low_net).ok_or_else(qz_failed)?;
+    let low_zeros = poles::snap_origin(poles::zeros(&low_net).ok_or_else(qz_failed)?, &low_poles);
 
     // Mid-band frequency from the estimates.
     let settings = &design.analysis;

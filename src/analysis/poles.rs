@@ -60,9 +60,40 @@ pub fn pencil_roots(a: &Mat<f64>, b: &Mat<f64>) -> Option<Vec<Root>> {
     Some(roots)
 }
 
-/// Cleans rounding: an imaginary part below 1e-9 of the magnitude is zero, and complex
-/// roots come in exact conjugate pairs. Sorted by |s|, then imaginary part.
+/// Relative distance within which eigenvalues are taken as one multiple root.
+const CLUSTER: f64 = 1e-3;
+
+/// Cleans rounding. A multiple root (n identical isolated sections, say) comes out of QZ
+/// as a ring of roots about ε^(1/k) apart; the ring's mean is well-conditioned, so roots
+/// within [`CLUSTER`] of each other are replaced by their mean (Wilkinson, The Algebraic
+/// Eigenvalue Problem, 1965: the mean of a cluster is insensitive, from memory). Then an
+/// imaginary part below 1e-9 of the magnitude is zero, complex roots come in exact
+/// conjugate pairs, and the list is sorted by |s|, then imaginary part.
 fn tidy(roots: &mut [Root]) {
+    let n = roots.len();
+    let mut group: Vec<usize> = (0..n).collect();
+    for i in 0..n {
+        for j in 0..i {
+            if (roots[i] - roots[j]).norm() <= CLUSTER * roots[i].norm().max(roots[j].norm()) {
+                let (gi, gj) = (group[i], group[j]);
+                for g in group.iter_mut() {
+                    if *g == gi {
+                        *g = gj;
+                    }
+                }
+            }
+        }
+    }
+    for g in 0..n {
+        let members: Vec<usize> = (0..n).filter(|&k| group[k] == g).collect();
+        if members.len() > 1 {
+            let sum = members.iter().fold(c64::new(0.0, 0.0), |acc, &k| acc + roots[k]);
+            let mean = sum / members.len() as f64;
+            for &k in &members {
+                roots[k] = mean;
+            }
+        }
+    }
     for r in roots.iter_mut() {
         if r.im.abs() <= 1e-9 * r.norm() {
             r.im = 0.0;
@@ -89,6 +120,20 @@ fn tidy(roots: &mut [Root]) {
             i += 1;
         }
     }
+}
+
+/// Zeros within 1e-7 of the smallest pole's magnitude of the origin are at the origin
+/// (coupling capacitors put exact zeros there; QZ returns them as rounding noise).
+pub fn snap_origin(mut zeros: Vec<Root>, poles: &[Root]) -> Vec<Root> {
+    let smallest = poles.iter().map(|p| p.norm()).fold(f64::INFINITY, f64::min);
+    if smallest.is_finite() {
+        for z in zeros.iter_mut() {
+            if z.norm() <= 1e-7 * smallest {
+                *z = c64::new(0.0, 0.0);
+            }
+        }
+    }
+    zeros
 }
 
 /// The poles of a network, rad/s.

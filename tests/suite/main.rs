@@ -2,5 +2,6 @@
 
 mod bad_input;
 mod examples;
+mod reference;
 mod schema;
 mod support;
