@@ -1,6 +1,7 @@
 //! The integration suite: one binary, a module per feature, fixtures under tests/.
 
 mod bad_input;
+mod closed_forms;
 mod examples;
 mod reference;
 mod schema;

@@ -1,0 +1,169 @@
+//! The general netlist code against published closed forms (METHODS §4): common emitter
+//! with and without degeneration, common source, emitter follower, and a published
+//! common-source problem. Linear equivalents (transconductances, resistors, capacitors)
+//! stand for the transistors, so the closed forms hold exactly; r_o is left out as the
+//! closed forms assume. Agreement to 1e-9 relative.
+
+use tauweave::analysis::{self, Analysis};
+use tauweave::design;
+
+fn design(parts: &str, signal: &str, output: &str) -> String {
+    format!(
+        "tauweave: 1\ndesign: {{id: t, title: closed form, revision: A, date: 2026-11-30}}\n\
+         signal: {signal}\noutput: {output}\nparts:\n{parts}"
+    )
+}
+
+fn analyse(text: &str) -> Analysis {
+    let loaded = design::load(text);
+    let d = loaded.design.unwrap_or_else(|| panic!("{:?}", loaded.diagnostics));
+    analysis::analyze(&d).expect("analysis")
+}
+
+fn close(a: f64, b: f64, what: &str) {
+    assert!((a - b).abs() <= 1e-9 * a.abs().max(b.abs()), "{what}: {a} vs {b}");
+}
+
+fn cap_r(a: &Analysis, part: &str) -> f64 {
+    a.high.octc.caps.iter().find(|c| c.part == part).unwrap_or_else(|| panic!("{part}")).r_ohm
+}
+
+fn par(a: f64, b: f64) -> f64 {
+    a * b / (a + b)
+}
+
+#[test]
+fn common_emitter_without_degeneration() {
+    // Gray & Meyer, ch. 7 (zero-value time constants of the CE stage):
+    // R_π0 = R_s'' = R_s ∥ rπ; R_μ0 = R_s''(1 + gm R_L') + R_L'; R_CL0 = R_L';
+    // b1 = R_s''(Cπ + Cμ(1 + gm R_L')) + R_L'(Cμ + C_L); b2 = R_s'' R_L'(CπCμ + CπC_L + CμC_L);
+    // zero at +gm/Cμ.
+    let (rs, rpi, gm, rl, cpi, cmu, cl) = (1e3, 2.5e3, 40e-3, 2e3, 10e-12, 0.5e-12, 2e-12);
+    let text = design(
+        "  RPI: {kind: resistor, value: 2.5k, between: [b, gnd]}\n\
+         \x20 GM: {kind: transconductance, value: 40 mS, between: [c, gnd], control: [b, gnd]}\n\
+         \x20 RL: {kind: resistor, value: 2k, between: [c, gnd]}\n\
+         \x20 CPI: {kind: capacitor, value: 10 pF, between: [b, gnd], role: parasitic}\n\
+         \x20 CMU: {kind: capacitor, value: 0.5 pF, between: [b, c], role: parasitic}\n\
+         \x20 CL: {kind: capacitor, value: 2 pF, between: [c, gnd], role: load}\n",
+        "{at: b, resistance: 1k}",
+        "{at: c}",
+    );
+    let a = analyse(&text);
+    let rs2 = par(rs, rpi);
+    close(cap_r(&a, "CPI"), rs2, "R_pi0");
+    close(cap_r(&a, "CMU"), rs2 * (1.0 + gm * rl) + rl, "R_mu0");
+    close(cap_r(&a, "CL"), rl, "R_CL0");
+    let b1 = rs2 * (cpi + cmu * (1.0 + gm * rl)) + rl * (cmu + cl);
+    let b2 = rs2 * rl * (cpi * cmu + cpi * cl + cmu * cl);
+    close(a.high.b1_s, b1, "b1");
+    close(a.high.b2_s2, b2, "b2");
+    close(a.midband.gain, -gm * rl * rpi / (rpi + rs), "mid-band gain");
+    // The right-half-plane zero at +gm/Cμ.
+    assert_eq!(a.zeros.len(), 1);
+    close(a.zeros[0].re_hz, gm / cmu / (2.0 * std::f64::consts::PI), "zero");
+    // Two poles (the three capacitors form a loop): b1 = −Σ 1/p, b2 = 1/(p1 p2) [derived].
+    assert_eq!(a.poles.len(), 2);
+    let w = |p: &analysis::RootHz| 2.0 * std::f64::consts::PI * p.re_hz;
+    close(-(1.0 / w(&a.poles[0]) + 1.0 / w(&a.poles[1])), b1, "b1 from poles");
+    close(1.0 / (w(&a.poles[0]) * w(&a.poles[1])), b2, "b2 from poles");
+}
+
+#[test]
+fn common_emitter_with_emitter_resistance() {
+    // Sedra & Smith (degenerated CE; METHODS §4, derived exact):
+    // R_π0 = rπ ∥ (R_s' + R_E)/(1 + gm R_E); R_μ0 = R_B(1 + G_m R_L') + R_L',
+    // R_B = R_s' ∥ (rπ + (β+1)R_E), G_m = β/(rπ + (β+1)R_E), β = gm rπ.
+    let (rs, rpi, gm, re, rl) = (600.0, 3e3, 50e-3, 100.0, 1.5e3);
+    let text = design(
+        "  RPI: {kind: resistor, value: 3k, between: [b, e]}\n\
+         \x20 GM: {kind: transconductance, value: 50 mS, between: [c, e], control: [b, e]}\n\
+         \x20 RE: {kind: resistor, value: 100, between: [e, gnd]}\n\
+         \x20 RL: {kind: resistor, value: 1k5, between: [c, gnd]}\n\
+         \x20 CPI: {kind: capacitor, value: 8 pF, between: [b, e], role: parasitic}\n\
+         \x20 CMU: {kind: capacitor, value: 0.6 pF, between: [b, c], role: parasitic}\n",
+        "{at: b, resistance: 600}",
+        "{at: c}",
+    );
+    let a = analyse(&text);
+    let beta = gm * rpi;
+    close(cap_r(&a, "CPI"), par(rpi, (rs + re) / (1.0 + gm * re)), "R_pi0");
+    let rb = par(rs, rpi + (beta + 1.0) * re);
+    let big_gm = beta / (rpi + (beta + 1.0) * re);
+    close(cap_r(&a, "CMU"), rb * (1.0 + big_gm * rl) + rl, "R_mu0");
+}
+
+#[test]
+fn common_source() {
+    // Razavi, ch. 6 (CS stage): R_gs0 = R_S, R_gd0 = R_S + R_D + gm R_D R_S; denominator
+    // 1 + [R_S(1 + gm R_D)Cgd + R_S Cgs + R_D(Cgd + Cdb)] s + R_S R_D(CgsCgd + CgsCdb + CgdCdb) s²;
+    // zero at +gm/Cgd.
+    let (rs, rd, gm, cgs, cgd, cdb) = (5e3, 4e3, 8e-3, 2e-12, 0.3e-12, 0.8e-12);
+    let text = design(
+        "  RG: {kind: resistor, value: 10M, between: [g, gnd]}\n\
+         \x20 GM: {kind: transconductance, value: 8 mS, between: [d, gnd], control: [g, gnd]}\n\
+         \x20 RD: {kind: resistor, value: 4k, between: [d, gnd]}\n\
+         \x20 CGS: {kind: capacitor, value: 2 pF, between: [g, gnd], role: parasitic}\n\
+         \x20 CGD: {kind: capacitor, value: 0.3 pF, between: [g, d], role: parasitic}\n\
+         \x20 CDB: {kind: capacitor, value: 0.8 pF, between: [d, gnd], role: parasitic}\n",
+        "{at: g, resistance: 5k}",
+        "{at: d}",
+    );
+    let a = analyse(&text);
+    // The 10 MΩ gate resistor is in parallel with R_S in every formula.
+    let rs = par(rs, 10e6);
+    close(cap_r(&a, "CGS"), rs, "R_gs0");
+    close(cap_r(&a, "CGD"), rs + rd + gm * rd * rs, "R_gd0");
+    close(a.high.b1_s, rs * (1.0 + gm * rd) * cgd + rs * cgs + rd * (cgd + cdb), "b1");
+    close(a.high.b2_s2, rs * rd * (cgs * cgd + cgs * cdb + cgd * cdb), "b2");
+    close(a.zeros[0].re_hz, gm / cgd / (2.0 * std::f64::consts::PI), "zero");
+}
+
+#[test]
+fn emitter_follower() {
+    // Sedra & Smith (emitter follower; METHODS §4, derived):
+    // R_π0 = rπ ∥ (R_s' + R_L)/(1 + gm R_L); R_μ0 = R_s' ∥ (rπ + (β+1)R_L).
+    let (rs, rpi, gm, rl) = (2.2e3, 2.5e3, 40e-3, 500.0);
+    let text = design(
+        "  RPI: {kind: resistor, value: 2k5, between: [b, e]}\n\
+         \x20 GM: {kind: transconductance, value: 40 mS, between: [gnd, e], control: [b, e]}\n\
+         \x20 RL: {kind: resistor, value: 500, between: [e, gnd]}\n\
+         \x20 CPI: {kind: capacitor, value: 12 pF, between: [b, e], role: parasitic}\n\
+         \x20 CMU: {kind: capacitor, value: 1 pF, between: [b, gnd], role: parasitic}\n",
+        "{at: b, resistance: 2k2}",
+        "{at: e}",
+    );
+    let a = analyse(&text);
+    let beta = gm * rpi;
+    close(cap_r(&a, "CPI"), par(rpi, (rs + rl) / (1.0 + gm * rl)), "R_pi0");
+    close(cap_r(&a, "CMU"), par(rs, rpi + (beta + 1.0) * rl), "R_mu0");
+}
+
+#[test]
+fn published_common_source_problem() {
+    // Sedra & Smith, CS amplifier problem (book answer): R_sig = 100 kΩ, R_in = 100 kΩ,
+    // Cgs = 1 pF, Cgd = 0.2 pF, gm = 5 mA/V, r_o = 25 kΩ, R_L = 20 kΩ →
+    // A_M = −27.8 V/V, f_H ≈ 259 kHz (Miller estimate).
+    let text = design(
+        "  RIN: {kind: resistor, value: 100k, between: [g, gnd]}\n\
+         \x20 GM: {kind: transconductance, value: 5 mS, between: [d, gnd], control: [g, gnd]}\n\
+         \x20 RO: {kind: resistor, value: 25k, between: [d, gnd]}\n\
+         \x20 RL: {kind: resistor, value: 20k, between: [d, gnd]}\n\
+         \x20 CGS: {kind: capacitor, value: 1 pF, between: [g, gnd], role: parasitic}\n\
+         \x20 CGD: {kind: capacitor, value: 0.2 pF, between: [g, d], role: parasitic}\n",
+        "{at: g, resistance: 100k}",
+        "{at: d}",
+    );
+    let a = analyse(&text);
+    assert!((a.midband.gain - -27.8).abs() < 0.05, "A_M = {}", a.midband.gain);
+    // The Miller estimate from the same resistances: C_in = Cgs + Cgd(1 + gm R_L'),
+    // f_H = 1/(2π R_sig' C_in), R_sig' = R_sig ∥ R_in, R_L' = r_o ∥ R_L.
+    let (rsig, rl) = (par(100e3, 100e3), par(25e3, 20e3));
+    close(cap_r(&a, "CGS"), rsig, "R_gs0 = R_sig'");
+    let miller = 1.0 / (2.0 * std::f64::consts::PI * rsig * (1e-12 + 0.2e-12 * (1.0 + 5e-3 * rl)));
+    assert!((miller / 259e3 - 1.0).abs() < 0.002, "Miller estimate {miller}");
+    // The time-constant sum adds C_gd's R_L' term the Miller estimate leaves out: within 1 %.
+    let octc = a.high.octc.f_estimate_hz.unwrap();
+    assert!((octc / 259e3 - 1.0).abs() < 0.01, "OCTC estimate {octc}");
+    assert!(octc < miller);
+}
