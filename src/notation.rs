@@ -68,9 +68,58 @@ pub fn plain(value: f64, digits: usize) -> String {
     text.replacen('-', "−", 1)
 }
 
+/// Scientific notation for values whose unit takes no prefix (s², 1/V²): `1.083×10⁻¹⁴ s²`.
+pub fn scientific(value: f64, unit: &str, digits: usize) -> String {
+    if !value.is_finite() {
+        return "—".to_string();
+    }
+    if value == 0.0 {
+        return format!("0 {unit}").trim_end().to_string();
+    }
+    let exponent = value.abs().log10().floor() as i32;
+    let mut mantissa = value / 10f64.powi(exponent);
+    let mut exponent = exponent;
+    let rounded = plain(mantissa, digits);
+    if rounded.trim_start_matches('−') == "10" {
+        mantissa /= 10.0;
+        exponent += 1;
+    }
+    let superscript: String = exponent
+        .to_string()
+        .chars()
+        .map(|c| match c {
+            '-' => '⁻',
+            '0' => '⁰',
+            '1' => '¹',
+            '2' => '²',
+            '3' => '³',
+            '4' => '⁴',
+            '5' => '⁵',
+            '6' => '⁶',
+            '7' => '⁷',
+            '8' => '⁸',
+            _ => '⁹',
+        })
+        .collect();
+    let body = if exponent == 0 {
+        plain(mantissa, digits)
+    } else {
+        format!("{}×10{superscript}", plain(mantissa, digits))
+    };
+    if unit.is_empty() { body } else { format!("{body} {unit}") }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn scientific_form() {
+        assert_eq!(scientific(1.0834e-14, "s²", 4), "1.083×10⁻¹⁴ s²");
+        assert_eq!(scientific(-2.5e6, "", 3), "−2.5×10⁶");
+        assert_eq!(scientific(9.9999e-3, "s²", 3), "1×10⁻² s²");
+        assert_eq!(scientific(f64::NAN, "s²", 3), "—");
+    }
 
     #[test]
     fn prefixes_and_rounding() {

@@ -1,18 +1,22 @@
 //! `tauweave check DESIGN`: validates a design file and prints a compact summary of it.
 //!
-//! Problems go to standard error with their place in the file; the summary goes to
-//! standard output. Exit 0 when the design reads cleanly (warnings allowed), 2 when it has
-//! errors.
+//! Problems go to standard error with their place in the file; the summary and the
+//! analysis (operating point, mid-band, both cut-offs with their estimates, the time-constant
+//! tables, poles and zeros) go to standard output. Exit 0 when the design reads cleanly
+//! (warnings allowed) and its analysis succeeds, 2 when it has errors.
 
 use std::fmt::Write as _;
 use std::path::PathBuf;
 
 use clap::Args;
 
-use crate::cli::source::{load_file, plural};
+use crate::analysis::{Analysis, RootHz};
+use crate::circuit::operating_point::DeviceState;
+use crate::cli::source::{analysis_failure, load_file, plural};
+use crate::cli::table::{Align, render};
 use crate::cli::{Failure, Outcome};
 use crate::design::{Design, DeviceModel, Limits, PartKind};
-use crate::notation::si;
+use crate::notation::{plain, scientific, si};
 
 /// Flags of `tauweave check`.
 #[derive(Debug, Args)]
@@ -27,7 +31,249 @@ pub fn run(args: &CheckArgs) -> Result<Outcome, Failure> {
     let design = file.design()?;
     eprint!("{}", file.report());
     print!("{}", summary(design, file.loaded.warnings()));
+    let analysis = crate::analysis::analyze(design).map_err(|e| analysis_failure(&file, &e))?;
+    print!("{}", analysis_text(&analysis));
     Ok(Outcome::Done)
+}
+
+fn percent(error: Option<f64>) -> String {
+    error.map_or(String::new(), |e| {
+        let p = e * 100.0;
+        let text = if p.abs() < 0.01 { "0".to_string() } else { plain(p, 2) };
+        let sign = if p > 0.0 && text != "0" { "+" } else { "" };
+        format!("{sign}{text} %")
+    })
+}
+
+fn opt_si(v: Option<f64>, unit: &str) -> String {
+    v.map_or("—".to_string(), |v| si(v, unit, 4))
+}
+
+fn roots(list: &[RootHz]) -> String {
+    if list.is_empty() {
+        return "none".to_string();
+    }
+    list.iter()
+        .map(|r| {
+            if r.im_hz == 0.0 {
+                si(r.re_hz, "Hz", 4)
+            } else {
+                let sign = if r.im_hz < 0.0 { "−" } else { "+" };
+                format!("{} {sign} j{}", si(r.re_hz, "", 4), si(r.im_hz.abs(), "Hz", 4))
+            }
+        })
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// The analysis as aligned terminal text.
+pub fn analysis_text(a: &Analysis) -> String {
+    let mut out = String::new();
+    if let Some(op) = &a.operating_point {
+        let method = match op.method {
+            Some(crate::circuit::operating_point::Method::Newton) | None => "Newton",
+            Some(crate::circuit::operating_point::Method::GminStepping) => {
+                "Newton with gmin stepping"
+            }
+            Some(crate::circuit::operating_point::Method::SourceStepping) => {
+                "Newton with source stepping"
+            }
+        };
+        let _ = writeln!(
+            out,
+            "\noperating point  ({method}, {} iterations, KCL residual {}, V_T {})",
+            op.iterations,
+            si(op.kcl_residual_a, "A", 2),
+            si(op.thermal_voltage_v, "V", 5)
+        );
+        let nodes: Vec<Vec<String>> = op
+            .nodes
+            .iter()
+            .filter(|(n, _)| !n.contains('.') && *n != "source")
+            .map(|(n, v)| vec![n.clone(), si(*v, "V", 4)])
+            .collect();
+        out.push_str(&render(2, &[("node", Align::Left), ("voltage", Align::Right)], &nodes));
+        let mut rows = Vec::new();
+        for d in &op.devices {
+            let ss = &d.small_signal;
+            let (region, current, voltage, c1, c2) = match &d.bias.state {
+                DeviceState::Bjt { region, ic_a, vce_v, .. } => (
+                    format!("{region:?}").to_lowercase(),
+                    format!("I_C {}", si(*ic_a, "A", 3)),
+                    format!("V_CE {}", si(*vce_v, "V", 3)),
+                    format!("Cπ {}", opt_si(ss.cpi_f, "F")),
+                    format!("Cμ {}", opt_si(ss.cmu_f, "F")),
+                ),
+                DeviceState::Mosfet { region, id_a, vds_v, .. } => (
+                    format!("{region:?}").to_lowercase().replace("cutoff", "cut-off"),
+                    format!("I_D {}", si(*id_a, "A", 3)),
+                    format!("V_DS {}", si(*vds_v, "V", 3)),
+                    format!("Cgs {}", opt_si(ss.cgs_f, "F")),
+                    format!("Cgd {}", opt_si(ss.cgd_f, "F")),
+                ),
+            };
+            let region = region.replace("cutoff", "cut-off");
+            let power = match d.bias.max_power_w {
+                Some(max) => format!("{} of {}", si(d.bias.power_w, "W", 3), si(max, "W", 3)),
+                None => si(d.bias.power_w, "W", 3),
+            };
+            rows.push(vec![
+                d.bias.part.clone(),
+                region,
+                current,
+                voltage,
+                power,
+                si(ss.gm_s, "S", 3),
+                ss.rpi_ohm.map_or("—".into(), |r| si(r, "Ω", 3)),
+                ss.ro_ohm.map_or("∞".into(), |r| si(r, "Ω", 3)),
+                c1,
+                c2,
+            ]);
+        }
+        let _ = writeln!(out);
+        out.push_str(&render(
+            2,
+            &[
+                ("device", Align::Left),
+                ("region", Align::Left),
+                ("current", Align::Left),
+                ("voltage", Align::Left),
+                ("dissipation", Align::Left),
+                ("gm", Align::Right),
+                ("rπ", Align::Right),
+                ("ro", Align::Right),
+                ("", Align::Left),
+                ("", Align::Left),
+            ],
+            &rows,
+        ));
+    }
+    let m = &a.midband;
+    let _ = writeln!(out, "\nmid-band  (taken at {})", si(m.frequency_hz, "Hz", 3));
+    let gain_db = m.gain_db.map_or(String::new(), |g| format!("  ({} dB)", plain(g, 4)));
+    let _ = writeln!(out, "  gain    {} V/V{gain_db}", plain(m.gain, 4));
+    let _ = writeln!(out, "  R_in    {}", opt_si(m.input_resistance_ohm, "Ω"));
+    let _ = writeln!(out, "  R_out   {}", opt_si(m.output_resistance_ohm, "Ω"));
+
+    let h = &a.high;
+    let _ = writeln!(out, "\nupper cut-off");
+    let est = vec![
+        vec!["exact".to_string(), opt_si(h.f3db_hz, "Hz"), String::new()],
+        vec![
+            "time-constant sum".into(),
+            opt_si(h.octc.f_estimate_hz, "Hz"),
+            percent(h.estimate_errors.time_constant),
+        ],
+        vec![
+            "second order (b1, b2)".into(),
+            opt_si(h.second_order_f_estimate_hz, "Hz"),
+            percent(h.estimate_errors.second_order),
+        ],
+        vec![
+            "root-sum-square".into(),
+            opt_si(h.rss_f_estimate_hz, "Hz"),
+            percent(h.estimate_errors.root_sum_square),
+        ],
+    ];
+    out.push_str(&render(
+        2,
+        &[("", Align::Left), ("f_high", Align::Right), ("error", Align::Right)],
+        &est,
+    ));
+    if let Some(d) = h.dominance_ratio {
+        let _ = writeln!(
+            out,
+            "  |p2/p1| = {}   b1 = {}   b2 = {}",
+            plain(d, 3),
+            si(h.b1_s, "s", 4),
+            scientific(h.b2_s2, "s²", 4)
+        );
+    }
+    if let Some(p) = &h.peaking {
+        let _ = writeln!(out, "  peaking {} dB at {}", plain(p.peak_db, 3), si(p.at_hz, "Hz", 3));
+    }
+    let rows: Vec<Vec<String>> = h
+        .octc
+        .caps
+        .iter()
+        .map(|c| {
+            vec![
+                c.part.clone(),
+                si(c.c_f, "F", 3),
+                si(c.r_ohm, "Ω", 4),
+                si(c.tau_s, "s", 3),
+                format!("{} %", plain(c.share * 100.0, 3)),
+                c.miller_factor.map_or("—".into(), |m| plain(m, 3)),
+            ]
+        })
+        .collect();
+    if !rows.is_empty() {
+        let _ = writeln!(out);
+        out.push_str(&render(
+            2,
+            &[
+                ("open-circuit", Align::Left),
+                ("C", Align::Right),
+                ("R seen", Align::Right),
+                ("τ", Align::Right),
+                ("share", Align::Right),
+                ("Miller", Align::Right),
+            ],
+            &rows,
+        ));
+    }
+
+    let l = &a.low;
+    let _ = writeln!(out, "\nlower cut-off");
+    let est = vec![
+        vec!["exact".to_string(), opt_si(l.f3db_hz, "Hz"), String::new()],
+        vec![
+            "time-constant sum".into(),
+            opt_si(l.sctc.f_estimate_hz, "Hz"),
+            percent(l.estimate_errors.time_constant),
+        ],
+        vec![
+            "root-sum-square".into(),
+            opt_si(l.rss_f_estimate_hz, "Hz"),
+            percent(l.estimate_errors.root_sum_square),
+        ],
+    ];
+    out.push_str(&render(
+        2,
+        &[("", Align::Left), ("f_low", Align::Right), ("error", Align::Right)],
+        &est,
+    ));
+    let rows: Vec<Vec<String>> = l
+        .sctc
+        .caps
+        .iter()
+        .map(|c| {
+            vec![
+                c.part.clone(),
+                si(c.c_f, "F", 3),
+                si(c.r_ohm, "Ω", 4),
+                si(c.tau_s, "s", 3),
+                format!("{} %", plain(c.share * 100.0, 3)),
+            ]
+        })
+        .collect();
+    if !rows.is_empty() {
+        let _ = writeln!(out);
+        out.push_str(&render(
+            2,
+            &[
+                ("short-circuit", Align::Left),
+                ("C", Align::Right),
+                ("R seen", Align::Right),
+                ("τ", Align::Right),
+                ("share", Align::Right),
+            ],
+            &rows,
+        ));
+    }
+    let _ = writeln!(out, "\npoles  {}", roots(&a.poles));
+    let _ = writeln!(out, "zeros  {}", roots(&a.zeros));
+    out
 }
 
 /// The summary block: identity, then one aligned row per aspect of the design.

@@ -8,6 +8,7 @@ pub mod check;
 pub mod render;
 pub mod schema;
 pub mod source;
+pub mod table;
 
 use clap::{Parser, Subcommand};
 

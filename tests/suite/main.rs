@@ -3,6 +3,7 @@
 mod bad_input;
 mod closed_forms;
 mod examples;
+mod identities;
 mod reference;
 mod schema;
 mod support;

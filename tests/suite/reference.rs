@@ -11,9 +11,11 @@ use serde_json::Value;
 use crate::support::{files, root, run_in, scratch};
 
 fn python(args: &[&str]) -> std::process::Output {
-    Command::new("python3").args(args).current_dir(root()).output().expect(
-        "python3 runs; run scripts/test, which installs numpy, scipy and PyYAML",
-    )
+    Command::new("python3")
+        .args(args)
+        .current_dir(root())
+        .output()
+        .expect("python3 runs; run scripts/test, which installs numpy, scipy and PyYAML")
 }
 
 fn compare(reference: &Value, ours: &Value, path: &str, out: &mut Vec<String>) {
@@ -32,7 +34,10 @@ fn compare(reference: &Value, ours: &Value, path: &str, out: &mut Vec<String>) {
                     compare(a, b, &format!("{path}[{i}]"), out);
                 }
             }
-            _ => out.push(format!("{path}: {} items in the reference, results.json has {ours}", items.len())),
+            _ => out.push(format!(
+                "{path}: {} items in the reference, results.json has {ours}",
+                items.len()
+            )),
         },
         Value::Number(n) => {
             let a = n.as_f64().unwrap();
@@ -68,17 +73,23 @@ fn results_json_agrees_with_the_independent_reference() {
     for design in designs {
         let name = design.file_stem().unwrap().to_string_lossy().to_string();
         let dir = scratch(&format!("reference-{name}"));
-        let render = run_in(&dir, &["render", design.to_str().unwrap(), "--format", "json", "--out", "."]);
+        let render =
+            run_in(&dir, &["render", design.to_str().unwrap(), "--format", "json", "--out", "."]);
         assert!(render.status.success(), "{name}: {}", String::from_utf8_lossy(&render.stderr));
         let ours: Value =
-            serde_json::from_str(&std::fs::read_to_string(dir.join("results.json")).unwrap()).unwrap();
+            serde_json::from_str(&std::fs::read_to_string(dir.join("results.json")).unwrap())
+                .unwrap();
         let out = python(&["tests/reference/mna_reference.py", design.to_str().unwrap()]);
         assert!(out.status.success(), "{name}: {}", String::from_utf8_lossy(&out.stderr));
         let reference: Value = serde_json::from_slice(&out.stdout).unwrap();
         let mut diffs = Vec::new();
         compare(&reference, &ours, "", &mut diffs);
         // The reference must actually have compared something substantial.
-        assert!(reference["high"]["b1_s"].is_number() || reference["low"]["sctc"]["f_estimate_hz"].is_number(), "{name}");
+        assert!(
+            reference["high"]["b1_s"].is_number()
+                || reference["low"]["sctc"]["f_estimate_hz"].is_number(),
+            "{name}"
+        );
         mismatches.extend(diffs.into_iter().map(|d| format!("{name}: {d}")));
         assert!(Path::new(&dir).exists());
     }
