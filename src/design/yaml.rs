@@ -66,6 +66,8 @@ pub fn parse(text: &str) -> Result<Node, Box<Diagnostic>> {
     let mut options = serde_saphyr::options::Options::default();
     options.duplicate_keys = serde_saphyr::options::DuplicateKeyPolicy::PassThrough;
     options.with_snippet = false;
+    // `N`, `y`, `on`, `no` are names (a model, a node), not booleans.
+    options.strict_booleans = true;
     let raw: Spanned<Raw> = serde_saphyr::from_str_with_options(text, options)
         .map_err(|e| Box::new(yaml_diagnostic(text, &e)))?;
     Ok(convert(text, raw))
@@ -121,8 +123,17 @@ fn convert(text: &str, raw: Spanned<Raw>) -> Node {
             entries
                 .into_iter()
                 .map(|(k, v)| {
-                    let key = Key { span: location_span(text, &k.referenced), name: k.value };
-                    (key, convert(text, v))
+                    let span = location_span(text, &k.referenced);
+                    // A key that read as a number or boolean keeps its spelling from the file.
+                    let name = match k.value {
+                        Some(name) => name,
+                        None => text
+                            .get(span.offset..(span.offset + span.len).min(text.len()))
+                            .unwrap_or("")
+                            .trim()
+                            .to_string(),
+                    };
+                    (Key { span, name }, convert(text, v))
                 })
                 .collect(),
         ),
@@ -136,7 +147,7 @@ enum Raw {
     Str(String),
     Other,
     Seq(Vec<Spanned<Raw>>),
-    Map(Vec<(Spanned<String>, Spanned<Raw>)>),
+    Map(Vec<(Spanned<Option<String>>, Spanned<Raw>)>),
 }
 
 impl<'de> Deserialize<'de> for Raw {
@@ -198,8 +209,9 @@ impl<'de> Deserialize<'de> for Raw {
     }
 }
 
-/// A mapping key: any scalar, kept as text (so `1:` or `true:` still reads as a key).
-struct KeyText(String);
+/// A mapping key: a string, or `None` for a number or boolean (its text is taken from the
+/// file, so `1:` or `true:` still reads as a key, spelled as written).
+struct KeyText(Option<String>);
 
 impl<'de> Deserialize<'de> for KeyText {
     fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
@@ -210,22 +222,22 @@ impl<'de> Deserialize<'de> for KeyText {
                 f.write_str("a plain key")
             }
             fn visit_str<E>(self, v: &str) -> Result<KeyText, E> {
-                Ok(KeyText(v.to_string()))
+                Ok(KeyText(Some(v.to_string())))
             }
-            fn visit_bool<E>(self, v: bool) -> Result<KeyText, E> {
-                Ok(KeyText(v.to_string()))
+            fn visit_bool<E>(self, _: bool) -> Result<KeyText, E> {
+                Ok(KeyText(None))
             }
-            fn visit_i64<E>(self, v: i64) -> Result<KeyText, E> {
-                Ok(KeyText(v.to_string()))
+            fn visit_i64<E>(self, _: i64) -> Result<KeyText, E> {
+                Ok(KeyText(None))
             }
-            fn visit_u64<E>(self, v: u64) -> Result<KeyText, E> {
-                Ok(KeyText(v.to_string()))
+            fn visit_u64<E>(self, _: u64) -> Result<KeyText, E> {
+                Ok(KeyText(None))
             }
-            fn visit_f64<E>(self, v: f64) -> Result<KeyText, E> {
-                Ok(KeyText(v.to_string()))
+            fn visit_f64<E>(self, _: f64) -> Result<KeyText, E> {
+                Ok(KeyText(None))
             }
             fn visit_unit<E>(self) -> Result<KeyText, E> {
-                Ok(KeyText("~".to_string()))
+                Ok(KeyText(None))
             }
         }
         deserializer.deserialize_any(KeyVisitor)
@@ -235,6 +247,16 @@ impl<'de> Deserialize<'de> for KeyText {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn yes_no_and_single_letters_are_names() {
+        let root = parse("N: {type: npn}\non: 1\n2: x\n").unwrap();
+        let NodeKind::Map(entries) = &root.kind else { panic!("not a map") };
+        let names: Vec<&str> = entries.iter().map(|(k, _)| k.name.as_str()).collect();
+        assert_eq!(names, ["N", "on", "2"]);
+        let NodeKind::Map(inner) = &entries[0].1.kind else { panic!() };
+        assert_eq!(inner[0].1.scalar(), Some("npn"));
+    }
 
     #[test]
     fn keeps_spelling_places_and_repeated_keys() {

@@ -4,6 +4,7 @@ mod bad_input;
 mod closed_forms;
 mod examples;
 mod identities;
+mod properties;
 mod reference;
 mod schema;
 mod support;
