@@ -233,6 +233,9 @@ pub struct Analysis {
 
 /// Runs the whole analysis of a design at its nominal values.
 pub fn analyze(design: &Design) -> Result<Analysis, AnalysisError> {
+    // One thread inside faer: the same bytes out on any machine, and no thread start-up
+    // for matrices this small.
+    faer::set_global_parallelism(faer::Par::Seq);
     let net = Netlist::from_design(design);
     let op = if net.has_devices() {
         Some(operating_point::solve(&net).map_err(|e| AnalysisError {

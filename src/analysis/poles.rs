@@ -28,10 +28,45 @@ fn frobenius(m: &Mat<f64>) -> f64 {
 }
 
 /// Finite eigenvalues s of det(A + sB) = 0, sorted by |s| then by imaginary part.
+///
+/// Unknowns whose row and column of B are empty (no capacitor or inductor touches them)
+/// are eliminated first by a Schur complement, A_DD − A_DS A_SS⁻¹ A_SD: they carry only
+/// infinite eigenvalues, and QZ on the smaller pencil is both faster and cleaner.
 pub fn pencil_roots(a: &Mat<f64>, b: &Mat<f64>) -> Option<Vec<Root>> {
+    let n = a.nrows();
+    let dynamic: Vec<usize> =
+        (0..n).filter(|&i| (0..n).any(|j| b[(i, j)] != 0.0 || b[(j, i)] != 0.0)).collect();
+    if dynamic.len() < n && !dynamic.is_empty() {
+        let fixed: Vec<usize> = (0..n).filter(|i| !dynamic.contains(i)).collect();
+        let a_ss = Mat::<f64>::from_fn(fixed.len(), fixed.len(), |i, j| a[(fixed[i], fixed[j])]);
+        if let Ok(f) = crate::analysis::linear::Factor::new(&a_ss) {
+            let a_sd =
+                Mat::<f64>::from_fn(fixed.len(), dynamic.len(), |i, j| a[(fixed[i], dynamic[j])]);
+            let x = f.solve_columns(&a_sd);
+            let reduced = Mat::<f64>::from_fn(dynamic.len(), dynamic.len(), |i, j| {
+                let correction: f64 =
+                    (0..fixed.len()).map(|k| a[(dynamic[i], fixed[k])] * x[(k, j)]).sum();
+                a[(dynamic[i], dynamic[j])] - correction
+            });
+            let b_dd = Mat::<f64>::from_fn(dynamic.len(), dynamic.len(), |i, j| {
+                b[(dynamic[i], dynamic[j])]
+            });
+            return qz_roots(&reduced, &b_dd);
+        }
+    }
+    qz_roots(a, b)
+}
+
+fn qz_roots(a: &Mat<f64>, b: &Mat<f64>) -> Option<Vec<Root>> {
     let n = a.nrows();
     if n == 0 {
         return Some(Vec::new());
+    }
+    if n == 1 {
+        // faer's QZ does not take a 1×1 pencil; a + s·b = 0 is solved directly.
+        let (x, y) = (a[(0, 0)], b[(0, 0)]);
+        let finite = y != 0.0 && y.abs() > INFINITE_RATIO * x.abs();
+        return Some(if finite { vec![c64::new(-x / y, 0.0)] } else { Vec::new() });
     }
     let (na, nb) = (frobenius(a), frobenius(b));
     if nb == 0.0 {
@@ -42,13 +77,11 @@ pub fn pencil_roots(a: &Mat<f64>, b: &Mat<f64>) -> Option<Vec<Root>> {
     }
     let an = Mat::<f64>::from_fn(n, n, |i, j| a[(i, j)] / na);
     let bn = Mat::<f64>::from_fn(n, n, |i, j| -b[(i, j)] / nb);
-    let evd = an.generalized_eigen(&bn).ok()?;
-    let (sa, sb) = (evd.S_a(), evd.S_b());
+    let (alpha, beta) = generalized_eigenvalues(an, bn)?;
     let mut roots = Vec::new();
     for k in 0..n {
-        let alpha = sa[k];
-        let beta = sb[k];
-        if beta.norm() <= INFINITE_RATIO * alpha.norm() || beta.norm() == 0.0 {
+        let (alpha, beta) = (alpha[k], beta[k]);
+        if beta.abs() <= INFINITE_RATIO * alpha.norm() || beta == 0.0 {
             continue;
         }
         let s = alpha / beta * (na / nb);
@@ -62,6 +95,52 @@ pub fn pencil_roots(a: &Mat<f64>, b: &Mat<f64>) -> Option<Vec<Root>> {
 
 /// Relative distance within which eigenvalues are taken as one multiple root.
 const CLUSTER: f64 = 1e-3;
+
+/// QZ eigenvalues (α_k, β_k) of the pencil (A, B), without eigenvectors, sequentially.
+fn generalized_eigenvalues(mut a: Mat<f64>, mut b: Mat<f64>) -> Option<(Vec<c64>, Vec<f64>)> {
+    use faer::dyn_stack::{MemBuffer, MemStack};
+    use faer::linalg::evd::ComputeEigenvectors;
+    let n = a.nrows();
+    let mut re = faer::diag::Diag::<f64>::zeros(n);
+    let mut im = faer::diag::Diag::<f64>::zeros(n);
+    let mut beta = faer::diag::Diag::<f64>::zeros(n);
+    let scratch = faer::linalg::gevd::gevd_scratch::<f64>(
+        n,
+        ComputeEigenvectors::No,
+        ComputeEigenvectors::No,
+        faer::Par::Seq,
+        Default::default(),
+    );
+    let mut buffer = MemBuffer::new(scratch);
+    faer::linalg::gevd::gevd_real(
+        a.as_mut(),
+        b.as_mut(),
+        re.as_mut(),
+        im.as_mut(),
+        beta.as_mut(),
+        None,
+        None,
+        faer::Par::Seq,
+        MemStack::new(&mut buffer),
+        Default::default(),
+    )
+    .ok()?;
+    // A complex pair is stored once, at its first index (as faer's own conversion reads it).
+    let mut alpha = vec![c64::new(0.0, 0.0); n];
+    let mut k = 0;
+    while k < n {
+        if im[k] == 0.0 || k + 1 == n {
+            alpha[k] = c64::new(re[k], 0.0);
+            k += 1;
+        } else {
+            alpha[k] = c64::new(re[k], im[k]);
+            alpha[k + 1] = c64::new(re[k], -im[k]);
+            k += 2;
+        }
+    }
+    let beta = (0..n).map(|k| beta[k]).collect();
+    Some((alpha, beta))
+}
 
 /// Cleans rounding. A multiple root (n identical isolated sections, say) comes out of QZ
 /// as a ring of roots about ε^(1/k) apart; the ring's mean is well-conditioned, so roots

@@ -1,0 +1,117 @@
+//! Benchmarks of the analysis (run with `cargo bench --bench analysis`): the whole analysis
+//! of each example design, and an RC ladder of 100, 1,000 and 3,000 nodes (time constants
+//! from one factorisation, and poles by QZ where that is affordable). Prints medians; it
+//! asserts nothing, it measures.
+
+use std::hint::black_box;
+use std::time::{Duration, Instant};
+
+use tauweave::analysis::linear::Factor;
+use tauweave::analysis::mna::{self, Assembly, CapState};
+use tauweave::analysis::{self, poles, time_constants};
+use tauweave::circuit::netlist::{CapReason, CapSet};
+use tauweave::circuit::small_signal::{Linear, LinearNetwork};
+use tauweave::design;
+
+fn median(mut f: impl FnMut(), budget: Duration, max_runs: usize) -> (Duration, usize) {
+    let mut times = Vec::new();
+    let start = Instant::now();
+    while times.len() < max_runs && (times.len() < 3 || start.elapsed() < budget) {
+        let t = Instant::now();
+        f();
+        times.push(t.elapsed());
+    }
+    times.sort();
+    (times[times.len() / 2], times.len())
+}
+
+/// An RC ladder: R from each node to the next, C from each node to ground.
+fn ladder(n: usize) -> LinearNetwork {
+    let mut nodes = vec!["gnd".to_string()];
+    nodes.extend((1..=n).map(|i| format!("n{i}")));
+    nodes.push("source".into());
+    let emf = n + 1;
+    let mut elements = vec![Linear::Conductance { name: "source.r".into(), a: emf, b: 1, g: 1e-3 }];
+    for i in 1..=n {
+        if i < n {
+            elements.push(Linear::Conductance { name: format!("R{i}"), a: i, b: i + 1, g: 1e-3 });
+        }
+        elements.push(Linear::Capacitor {
+            name: format!("C{i}"),
+            a: i,
+            b: 0,
+            c: 1e-12,
+            set: CapSet::High,
+            reason: CapReason::Role,
+        });
+    }
+    elements.push(Linear::Conductance { name: "RT".into(), a: n, b: 0, g: 1e-4 });
+    LinearNetwork {
+        nodes,
+        elements,
+        source: (emf, 0),
+        source_terminal: (1, 1e3),
+        output: (n, 0),
+        load_resistance: None,
+    }
+}
+
+fn main() {
+    println!(
+        "whole analysis of each example design (operating point, sweep, cut-offs, QZ, time constants)"
+    );
+    let root = env!("CARGO_MANIFEST_DIR");
+    let mut names: Vec<_> =
+        std::fs::read_dir(format!("{root}/designs")).unwrap().map(|e| e.unwrap().path()).collect();
+    names.sort();
+    for path in names {
+        let text = std::fs::read_to_string(&path).unwrap();
+        let d = design::load(&text).design.expect("valid design");
+        let (t, runs) = median(
+            || drop(black_box(analysis::analyze(&d).unwrap())),
+            Duration::from_secs(2),
+            2000,
+        );
+        println!(
+            "  {:<28} {:>10.3} ms  ({runs} runs)",
+            path.file_name().unwrap().to_string_lossy(),
+            t.as_secs_f64() * 1e3
+        );
+    }
+    println!("\nRC ladder: factorise the mid-band G once, then every open-circuit time constant");
+    for n in [100usize, 1000, 3000] {
+        let net = ladder(n);
+        let m = mna::assemble(&net, |_| CapState::Open, Assembly::default());
+        let (t_lu, _) =
+            median(|| drop(black_box(Factor::new(&m.g).unwrap())), Duration::from_secs(3), 50);
+        let caps: Vec<time_constants::CapRef> = (1..=n)
+            .map(|i| time_constants::CapRef {
+                name: format!("C{i}"),
+                c: 1e-12,
+                a: i,
+                b: 0,
+                branch: None,
+            })
+            .collect();
+        let g = Factor::new(&m.g).unwrap();
+        let (t_tc, _) = median(
+            || drop(black_box(time_constants::open_circuit(&m, &g, &caps))),
+            Duration::from_secs(3),
+            50,
+        );
+        println!(
+            "  {n:>5} nodes: factorisation {:>10.3} ms, time constants (all {n}) {:>10.3} ms",
+            t_lu.as_secs_f64() * 1e3,
+            t_tc.as_secs_f64() * 1e3
+        );
+        if n <= 1000 {
+            let full = mna::assemble(&net, |_| CapState::Present, Assembly::default());
+            let (t_qz, _) = median(
+                || drop(black_box(poles::poles(&full).unwrap())),
+                Duration::from_secs(3),
+                10,
+            );
+            println!("  {n:>5} nodes: poles by QZ {:>10.3} ms", t_qz.as_secs_f64() * 1e3);
+        }
+    }
+}
