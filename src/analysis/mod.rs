@@ -428,9 +428,10 @@ pub fn analyze_network(lin: &LinearNetwork, design: &Design) -> Result<Analysis,
     // Exact response and cut-offs.
     let frequencies =
         response::grid(settings.sweep_start_hz, settings.sweep_stop_hz, settings.points_per_decade);
-    let sweep = response::sweep(&full, &frequencies);
+    let transfer = response::Transfer::new(&full);
+    let sweep = response::sweep(&transfer, &frequencies);
     let level = gain.abs() / std::f64::consts::SQRT_2;
-    let start = match response::at(&full, frequency_hz) {
+    let start = match transfer.at(frequency_hz) {
         Some(h) if h.norm() >= level => frequency_hz,
         _ => sweep
             .iter()
@@ -441,12 +442,19 @@ pub fn analyze_network(lin: &LinearNetwork, design: &Design) -> Result<Analysis,
     let f_high = if high_caps.is_empty() && high_poles.is_empty() {
         None
     } else {
-        response::crossing(&full, start, level, true, per_decade, settings.sweep_stop_hz * 1e3)
+        response::crossing(&transfer, start, level, true, per_decade, settings.sweep_stop_hz * 1e3)
     };
     let f_low = if low_caps.is_empty() {
         None
     } else {
-        response::crossing(&full, start, level, false, per_decade, settings.sweep_start_hz / 1e3)
+        response::crossing(
+            &transfer,
+            start,
+            level,
+            false,
+            per_decade,
+            settings.sweep_start_hz / 1e3,
+        )
     };
     let peaking = peaking(&sweep, gain.abs());
 

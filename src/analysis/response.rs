@@ -8,7 +8,9 @@ use std::f64::consts::PI;
 use faer::c64;
 use serde::Serialize;
 
-use crate::analysis::linear::{brent, transfer};
+use faer::Mat;
+
+use crate::analysis::linear::{Factor, brent, transfer};
 use crate::analysis::mna::Mna;
 
 /// One sweep point.
@@ -22,7 +24,68 @@ pub struct SweepPoint {
     pub phase_deg: f64,
 }
 
-/// H(j2πf).
+/// The transfer function with the static unknowns (those no capacitor or inductor
+/// touches) eliminated once: H(s) = y0 + c′ᵀ(G′ + sC′)⁻¹ b′, where G′ is the Schur
+/// complement. Exact; each frequency then costs a factorisation of the small dynamic part.
+pub struct Transfer {
+    g: Mat<f64>,
+    c: Mat<f64>,
+    b: Vec<f64>,
+    out: Vec<f64>,
+    direct: f64,
+}
+
+impl Transfer {
+    /// Reduces `m` (or keeps it whole when its static part is singular).
+    pub fn new(m: &Mna) -> Transfer {
+        let n = m.size();
+        let whole = || Transfer {
+            g: m.g.clone(),
+            c: m.c.clone(),
+            b: m.b.clone(),
+            out: m.out.clone(),
+            direct: 0.0,
+        };
+        let dynamic: Vec<usize> =
+            (0..n).filter(|&i| (0..n).any(|j| m.c[(i, j)] != 0.0 || m.c[(j, i)] != 0.0)).collect();
+        let fixed: Vec<usize> = (0..n).filter(|i| !dynamic.contains(i)).collect();
+        if fixed.is_empty() || dynamic.is_empty() {
+            return whole();
+        }
+        let (d, f) = (dynamic.len(), fixed.len());
+        let g_ss = Mat::<f64>::from_fn(f, f, |i, j| m.g[(fixed[i], fixed[j])]);
+        let Ok(lu) = Factor::new(&g_ss) else { return whole() };
+        // X = G_SS⁻¹ [G_SD | b_S]
+        let rhs = Mat::<f64>::from_fn(f, d + 1, |i, j| {
+            if j < d { m.g[(fixed[i], dynamic[j])] } else { m.b[fixed[i]] }
+        });
+        let x = lu.solve_columns(&rhs);
+        let g = Mat::<f64>::from_fn(d, d, |i, j| {
+            m.g[(dynamic[i], dynamic[j])]
+                - (0..f).map(|k| m.g[(dynamic[i], fixed[k])] * x[(k, j)]).sum::<f64>()
+        });
+        let c = Mat::<f64>::from_fn(d, d, |i, j| m.c[(dynamic[i], dynamic[j])]);
+        let b = (0..d)
+            .map(|i| {
+                m.b[dynamic[i]]
+                    - (0..f).map(|k| m.g[(dynamic[i], fixed[k])] * x[(k, d)]).sum::<f64>()
+            })
+            .collect();
+        let out = (0..d)
+            .map(|j| m.out[dynamic[j]] - (0..f).map(|k| m.out[fixed[k]] * x[(k, j)]).sum::<f64>())
+            .collect();
+        let direct = (0..f).map(|k| m.out[fixed[k]] * x[(k, d)]).sum();
+        Transfer { g, c, b, out, direct }
+    }
+
+    /// H(j2πf).
+    pub fn at(&self, f: f64) -> Option<c64> {
+        transfer(&self.g, &self.c, &self.b, &self.out, c64::new(0.0, 2.0 * PI * f))
+            .map(|h| h + self.direct)
+    }
+}
+
+/// H(j2πf) of the whole system (no reduction).
 pub fn at(m: &Mna, f: f64) -> Option<c64> {
     transfer(&m.g, &m.c, &m.b, &m.out, c64::new(0.0, 2.0 * PI * f))
 }
@@ -35,11 +98,11 @@ pub fn grid(start: f64, stop: f64, per_decade: u32) -> Vec<f64> {
 }
 
 /// The sweep over `frequencies`, phase unwrapped.
-pub fn sweep(m: &Mna, frequencies: &[f64]) -> Vec<SweepPoint> {
+pub fn sweep(m: &Transfer, frequencies: &[f64]) -> Vec<SweepPoint> {
     let mut out: Vec<SweepPoint> = Vec::with_capacity(frequencies.len());
     let mut last_phase: Option<f64> = None;
     for &f in frequencies {
-        let Some(h) = at(m, f) else { continue };
+        let Some(h) = m.at(f) else { continue };
         let mut phase = h.im.atan2(h.re).to_degrees();
         if let Some(prev) = last_phase {
             while phase - prev > 180.0 {
@@ -64,7 +127,7 @@ pub fn sweep(m: &Mna, frequencies: &[f64]) -> Vec<SweepPoint> {
 /// then refines the crossing by Brent's method in log frequency. `up` picks the direction;
 /// the search ends at `limit`.
 pub fn crossing(
-    m: &Mna,
+    m: &Transfer,
     from: f64,
     level: f64,
     up: bool,
@@ -72,7 +135,7 @@ pub fn crossing(
     limit: f64,
 ) -> Option<f64> {
     let ratio = 10f64.powf(1.0 / per_decade.max(10) as f64);
-    let below = |f: f64| at(m, f).map(|h| h.norm() - level);
+    let below = |f: f64| m.at(f).map(|h| h.norm() - level);
     let mut f_prev = from;
     let mut g_prev = below(from)?;
     if g_prev < 0.0 {
