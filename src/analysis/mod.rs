@@ -280,14 +280,22 @@ fn singular(lin: &LinearNetwork, m: &Mna, unknown: usize, what: &str) -> Analysi
     let node = if unknown < m.nodes { Some(lin.nodes[unknown + 1].clone()) } else { None };
     let floating = floating_nodes(lin, m);
     let named = if floating.is_empty() { node.into_iter().collect() } else { floating };
+    if named.is_empty() {
+        return AnalysisError {
+            message: format!(
+                "the {what} network is singular: voltage-defined elements (voltage amplifiers, \
+                 supplies, shorted coupling capacitors) form a loop or drive one node pair twice"
+            ),
+            help: "check that no two voltage amplifiers or supplies set the same nodes, and that \
+                   coupling and bypass capacitors do not close a loop with them"
+                .into(),
+            place: None,
+        };
+    }
     AnalysisError {
         message: format!(
             "the {what} network is singular: {} has no path to ground there",
-            if named.is_empty() {
-                "a loop of voltage-defined elements".to_string()
-            } else {
-                named.iter().map(|n| format!("`{n}`")).collect::<Vec<_>>().join(", ")
-            }
+            named.iter().map(|n| format!("`{n}`")).collect::<Vec<_>>().join(", ")
         ),
         help: "a node reached only through open capacitors or current sources floats; give it \
                a resistive path, or check the capacitor roles"

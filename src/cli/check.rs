@@ -53,13 +53,14 @@ fn roots(list: &[RootHz]) -> String {
     if list.is_empty() {
         return "none".to_string();
     }
+    // A conjugate pair prints once, as re ± j·im.
     list.iter()
+        .filter(|r| r.im_hz >= 0.0)
         .map(|r| {
             if r.im_hz == 0.0 {
                 si(r.re_hz, "Hz", 4)
             } else {
-                let sign = if r.im_hz < 0.0 { "−" } else { "+" };
-                format!("{} {sign} j{}", si(r.re_hz, "", 4), si(r.im_hz.abs(), "Hz", 4))
+                format!("{} ± j{}", si(r.re_hz, "Hz", 4), si(r.im_hz, "Hz", 4))
             }
         })
         .collect::<Vec<_>>()

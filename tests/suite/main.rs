@@ -3,6 +3,7 @@
 mod bad_input;
 mod closed_forms;
 mod examples;
+mod failures;
 mod identities;
 mod properties;
 mod reference;

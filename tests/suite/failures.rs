@@ -1,0 +1,94 @@
+//! Analysis failures are messages, never panics: a singular network names what floats,
+//! and the render writes nothing.
+
+use crate::support::{run_in, scratch};
+
+#[test]
+fn a_singular_network_is_a_message_and_writes_nothing() {
+    // Two voltage amplifiers drive the same node pair: a loop of voltage-defined elements.
+    let text = "tauweave: 1\ndesign: {id: loop, title: two drivers, revision: A, date: 2026-11-30}\n\
+                signal: {at: a, resistance: 50}\noutput: {at: o}\nparts:\n\
+                \x20 R1: {kind: resistor, value: 1k, between: [a, gnd]}\n\
+                \x20 E1: {kind: voltage_amplifier, value: 2, between: [o, gnd], control: [a, gnd]}\n\
+                \x20 E2: {kind: voltage_amplifier, value: 3, between: [o, gnd], control: [a, gnd]}\n\
+                \x20 RL: {kind: resistor, value: 1k, between: [o, gnd]}\n";
+    let dir = scratch("singular");
+    std::fs::write(dir.join("loop.yaml"), text).unwrap();
+    let out = run_in(&dir, &["render", "loop.yaml", "--out", "result"]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{stderr}");
+    assert!(stderr.contains("singular"), "{stderr}");
+    assert!(stderr.contains("nothing was written"), "{stderr}");
+    assert!(!stderr.contains("panicked"), "{stderr}");
+    assert!(!dir.join("result").exists());
+}
+
+#[test]
+fn render_writes_results_json_with_the_contract_keys() {
+    let dir = scratch("render-contract");
+    let design = crate::support::root().join("designs/rx-preamp-ce.yaml");
+    let out = run_in(&dir, &["render", design.to_str().unwrap(), "--format", "json"]);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    // Default folder: out/<design id>/.
+    let text = std::fs::read_to_string(dir.join("out/rx-preamp-ce/results.json")).unwrap();
+    assert!(!text.contains("NaN"));
+    let v: serde_json::Value = serde_json::from_str(&text).unwrap();
+    for key in [
+        "/tool/name",
+        "/tool/version",
+        "/design/id",
+        "/design/revision",
+        "/design/date",
+        "/provenance/design_sha256",
+        "/provenance/seed",
+        "/operating_point/converged",
+        "/operating_point/nodes/coll",
+        "/operating_point/devices/0/ic_a",
+        "/operating_point/devices/0/vce_v",
+        "/operating_point/devices/0/power_w",
+        "/operating_point/devices/0/region",
+        "/operating_point/devices/0/small_signal/gm_s",
+        "/operating_point/devices/0/small_signal/rpi_ohm",
+        "/operating_point/devices/0/small_signal/cpi_f",
+        "/operating_point/devices/0/small_signal/cmu_f",
+        "/midband/frequency_hz",
+        "/midband/gain",
+        "/midband/gain_db",
+        "/midband/input_resistance_ohm",
+        "/midband/output_resistance_ohm",
+        "/high/f3db_hz",
+        "/high/b1_s",
+        "/high/b2_s2",
+        "/high/dominance_ratio",
+        "/high/octc/caps/0/miller_factor",
+        "/high/octc/sum_tau_s",
+        "/high/octc/f_estimate_hz",
+        "/high/second_order_f_estimate_hz",
+        "/high/rss_f_estimate_hz",
+        "/low/f3db_hz",
+        "/low/sctc/caps/0/r_ohm",
+        "/low/sctc/f_estimate_hz",
+        "/poles/0/re_hz",
+        "/zeros/0/im_hz",
+        "/capacitors/0/set",
+    ] {
+        assert!(v.pointer(key).is_some(), "results.json lacks {key}");
+    }
+    assert_eq!(v.pointer("/operating_point/devices/0/region").unwrap(), "active");
+    // Device capacitances are addressed as <part>.<name>.
+    let parts: Vec<&str> = v["high"]["octc"]["caps"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c["part"].as_str().unwrap())
+        .collect();
+    assert!(
+        parts.contains(&"Q1.cpi") && parts.contains(&"Q1.cmu") && parts.contains(&"load.c"),
+        "{parts:?}"
+    );
+    // The same inputs give the same bytes.
+    let again =
+        run_in(&dir, &["render", design.to_str().unwrap(), "--format", "json", "--out", "again"]);
+    assert!(again.status.success());
+    assert_eq!(text, std::fs::read_to_string(dir.join("again/results.json")).unwrap());
+}
