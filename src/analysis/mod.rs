@@ -9,6 +9,7 @@
 pub mod linear;
 pub mod mna;
 pub mod poles;
+pub mod requirements;
 pub mod response;
 pub mod time_constants;
 

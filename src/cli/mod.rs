@@ -9,6 +9,7 @@ pub mod render;
 pub mod schema;
 pub mod source;
 pub mod table;
+pub mod template;
 
 use clap::{Parser, Subcommand};
 
@@ -46,8 +47,10 @@ pub struct Cli {
 pub enum Command {
     /// Validate a design file and print a summary of it.
     Check(check::CheckArgs),
-    /// Analyse a design and write its results into a folder.
+    /// Analyse a design and write its review (HTML, Markdown, plots, JSON) into a folder.
     Render(render::RenderArgs),
+    /// Work with report templates.
+    Template(template::TemplateArgs),
     /// Print the JSON Schema of the design format (for editors).
     Schema(schema::SchemaArgs),
 }
@@ -59,5 +62,6 @@ pub fn run() -> Result<Outcome, Failure> {
         Command::Check(args) => check::run(&args),
         Command::Render(args) => render::run(&args),
         Command::Schema(args) => schema::run(&args),
+        Command::Template(args) => template::run(&args),
     }
 }

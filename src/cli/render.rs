@@ -1,22 +1,28 @@
-//! `tauweave render DESIGN`: analyses a design and writes its outputs into a folder.
+//! `tauweave render DESIGN`: analyses a design and writes its review into a folder:
+//! report.html, report.md with plots/*.svg, results.json and sweep.csv.
 //!
-//! For now the output is results.json (the results contract); the review document formats
-//! join it as they land. Files are written atomically; nothing is written when the design
-//! or its analysis fails.
+//! Every file is written atomically (temporary file in the same folder, then rename);
+//! nothing is written when the design, its analysis or the template fails.
 
 use std::path::PathBuf;
 
 use clap::{Args, ValueEnum};
-use sha2::{Digest, Sha256};
 
 use crate::cli::source::{analysis_failure, load_file};
 use crate::cli::{Failure, Outcome};
-use crate::report::{results, write};
+use crate::report::template::{BUILT_IN, BUILT_IN_NAME, TemplateSource};
+use crate::report::{self, Formats, Inputs, write};
 
 /// Output formats.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
 pub enum Format {
-    /// results.json: every computed value, machine-readable.
+    /// Everything: HTML, Markdown with plots, results.json and sweep.csv.
+    All,
+    /// report.html, self-contained (and results.json, sweep.csv).
+    Html,
+    /// report.md with plots/*.svg (and results.json, sweep.csv).
+    Md,
+    /// results.json and sweep.csv only.
     Json,
 }
 
@@ -26,11 +32,30 @@ pub struct RenderArgs {
     /// The design file (YAML).
     pub design: PathBuf,
     /// What to write.
-    #[arg(long, value_enum, default_value_t = Format::Json)]
+    #[arg(long, value_enum, default_value_t = Format::All)]
     pub format: Format,
     /// Output folder (default: out/<design id>/).
     #[arg(long)]
     pub out: Option<PathBuf>,
+    /// A Markdown template of your own (start from `tauweave template show`).
+    #[arg(long)]
+    pub template: Option<PathBuf>,
+}
+
+/// Reads the template named on the command line, or the built-in one.
+pub fn template_source(path: &Option<PathBuf>) -> Result<(TemplateSource, bool), Failure> {
+    match path {
+        None => Ok((TemplateSource { name: BUILT_IN_NAME.into(), text: BUILT_IN.into() }, true)),
+        Some(p) => {
+            let text = std::fs::read_to_string(p).map_err(|e| {
+                Failure::Input(format!(
+                    "error: cannot read template `{}`: {e}\n  help: check the path\n",
+                    p.display()
+                ))
+            })?;
+            Ok((TemplateSource { name: p.display().to_string(), text }, false))
+        }
+    }
 }
 
 /// Runs the render.
@@ -38,18 +63,30 @@ pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
     let file = load_file(&args.design)?;
     let design = file.design()?;
     eprint!("{}", file.report());
+    let (template, built_in) = template_source(&args.template)?;
     let analysis = crate::analysis::analyze(design).map_err(|e| analysis_failure(&file, &e))?;
-    let hash = hex(&Sha256::digest(file.text.as_bytes()));
-    let doc = results::document(design, &analysis, hash, &file.name);
+    let formats = match args.format {
+        Format::All => Formats { html: true, markdown: true, json: true },
+        Format::Html => Formats { html: true, markdown: false, json: true },
+        Format::Md => Formats { html: false, markdown: true, json: true },
+        Format::Json => Formats { html: false, markdown: false, json: true },
+    };
+    let inputs = Inputs {
+        design_name: &file.name,
+        design_text: &file.text,
+        template: &template,
+        built_in_template: built_in,
+    };
+    let files = report::render(design, &analysis, &inputs, formats)
+        .map_err(|e| Failure::Input(format!("{}nothing was written\n", e.message)))?;
     let dir = args.out.clone().unwrap_or_else(|| PathBuf::from("out").join(&design.meta.id));
-    let path = dir.join("results.json");
-    write::atomic(&path, results::to_json(&doc).as_bytes())
-        .map_err(|e| Failure::Input(format!("error: cannot write `{}`: {e}\n", path.display())))?;
-    eprintln!("wrote {}", path.display());
+    for f in &files {
+        let path = dir.join(&f.path);
+        write::atomic(&path, &f.bytes).map_err(|e| {
+            Failure::Input(format!("error: cannot write `{}`: {e}\n", path.display()))
+        })?;
+    }
+    let names: Vec<&str> = files.iter().map(|f| f.path.as_str()).collect();
+    eprintln!("wrote {} into {}/", names.join(", "), dir.display());
     Ok(Outcome::Done)
-}
-
-/// Lower-case hex of bytes.
-pub fn hex(bytes: &[u8]) -> String {
-    bytes.iter().map(|b| format!("{b:02x}")).collect()
 }

@@ -4,7 +4,9 @@
 use serde::Serialize;
 
 use crate::analysis::Analysis;
+use crate::analysis::requirements::RequirementCheck;
 use crate::design::Design;
+use crate::report::cautions::Caution;
 
 /// The tool that wrote the results.
 #[derive(Clone, Debug, Serialize)]
@@ -41,6 +43,17 @@ pub struct Provenance {
     pub rebuild_command: String,
 }
 
+/// SHA-256 of the inputs, hex.
+#[derive(Clone, Debug)]
+pub struct Hashes {
+    /// Of the design file's bytes.
+    pub design: String,
+    /// Of the template's bytes.
+    pub template: Option<String>,
+    /// The user's template file, when not the built-in one.
+    pub template_name: Option<String>,
+}
+
 /// The whole results document.
 #[derive(Clone, Debug, Serialize)]
 pub struct ResultsDocument<'a> {
@@ -53,6 +66,10 @@ pub struct ResultsDocument<'a> {
     /// Everything computed.
     #[serde(flatten)]
     pub analysis: &'a Analysis,
+    /// Each requirement at nominal values.
+    pub requirements: &'a [RequirementCheck],
+    /// The cautions that apply.
+    pub cautions: &'a [Caution],
 }
 
 /// The tool's identity.
@@ -64,7 +81,9 @@ pub fn tool() -> Tool {
 pub fn document<'a>(
     design: &Design,
     analysis: &'a Analysis,
-    design_sha256: String,
+    requirements: &'a [RequirementCheck],
+    cautions: &'a [Caution],
+    hashes: Hashes,
     design_name: &str,
 ) -> ResultsDocument<'a> {
     let m = &design.meta;
@@ -77,12 +96,17 @@ pub fn document<'a>(
             date: m.date.clone(),
         },
         provenance: Provenance {
-            design_sha256,
-            template_sha256: None,
+            design_sha256: hashes.design,
+            template_sha256: hashes.template,
             seed: design.analysis.seed,
-            rebuild_command: format!("tauweave render {design_name} --format json"),
+            rebuild_command: match &hashes.template_name {
+                Some(t) => format!("tauweave render {design_name} --template {t}"),
+                None => format!("tauweave render {design_name}"),
+            },
         },
         analysis,
+        requirements,
+        cautions,
     }
 }
 

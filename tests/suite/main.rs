@@ -7,5 +7,6 @@ mod failures;
 mod identities;
 mod properties;
 mod reference;
+mod report;
 mod schema;
 mod support;

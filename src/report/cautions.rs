@@ -1,0 +1,186 @@
+//! The cautions a review states: computed ones, shown only when they apply and with their
+//! numbers, and the standard notes of the trade.
+//!
+//! In: the design and its [`Analysis`]. Out: a list of [`Caution`]s in a fixed order.
+
+use serde::Serialize;
+
+use crate::analysis::Analysis;
+use crate::circuit::devices::{BjtRegion, MosRegion};
+use crate::circuit::operating_point::DeviceState;
+use crate::design::Design;
+use crate::notation::{plain, si};
+use crate::report::explain::DOMINANT_RATIO;
+
+/// Supply magnitude from which the hazard caution is raised, V. 60 V DC is the usual
+/// safety-extra-low-voltage limit for dry locations (IEC 61140 / IEC 62368-1 ES1 — from
+/// memory; local codes decide).
+pub const HAZARDOUS_SUPPLY_V: f64 = 60.0;
+/// Fraction of the dissipation rating from which a device is flagged (common practice
+/// derating).
+pub const DISSIPATION_FLAG: f64 = 0.5;
+/// V_CE below which a bipolar transistor is near saturation, V (common practice).
+pub const VCE_EDGE_V: f64 = 0.5;
+/// V_DS − V_ov below which a MOSFET is near the triode edge, V (common practice).
+pub const VDS_EDGE_V: f64 = 0.2;
+
+/// One caution.
+#[derive(Clone, Debug, Serialize)]
+pub struct Caution {
+    /// Stable key, e.g. `close_poles`, `hazardous_voltage`.
+    pub key: &'static str,
+    /// `computed` (from this design's numbers) or `standard`.
+    pub kind: &'static str,
+    /// The caution, one or two sentences.
+    pub text: String,
+}
+
+fn computed(key: &'static str, text: String) -> Caution {
+    Caution { key, kind: "computed", text }
+}
+
+fn standard(key: &'static str, text: &str) -> Caution {
+    Caution { key, kind: "standard", text: text.to_string() }
+}
+
+/// Every caution that applies to `design`.
+pub fn cautions(design: &Design, a: &Analysis) -> Vec<Caution> {
+    let mut out = Vec::new();
+    let h = &a.high;
+    if let Some(k) = h.dominance_ratio.filter(|k| *k < DOMINANT_RATIO) {
+        if h.poles_hz.first().is_some_and(|p| p.im_hz == 0.0) {
+            out.push(computed(
+                "close_poles",
+                format!(
+                    "The two lowest high-frequency poles are {}× apart (under {}×): the time-constant \
+                     estimate of f_H is off by {}; use the exact value or the second-order estimate.",
+                    plain(k, 3),
+                    plain(DOMINANT_RATIO, 2),
+                    h.estimate_errors.time_constant.map_or("—".into(), |e| format!("{} %", plain(e * 100.0, 2)))
+                ),
+            ));
+        }
+    }
+    if let Some(p) = h.poles_hz.iter().find(|p| p.im_hz != 0.0) {
+        let q = p.magnitude_hz() / (2.0 * p.re_hz.abs());
+        out.push(computed(
+            "complex_poles",
+            format!(
+                "The high-frequency poles include a complex pair at {} ± j{} (Q = {}). The \
+                 time-constant sum can be optimistic or pessimistic here, and the step response \
+                 can overshoot.",
+                si(p.re_hz, "Hz", 4),
+                si(p.im_hz.abs(), "Hz", 4),
+                plain(q, 3)
+            ),
+        ));
+    }
+    if let Some(pk) = &h.peaking {
+        out.push(computed(
+            "peaking",
+            format!(
+                "The response peaks {} dB above mid-band at {}.",
+                plain(pk.peak_db, 3),
+                si(pk.at_hz, "Hz", 3)
+            ),
+        ));
+    }
+    if let (Some(f), Some(z)) = (
+        h.f3db_hz,
+        h.zeros_hz.iter().filter(|z| z.re_hz > 0.0).map(|z| z.magnitude_hz()).reduce(f64::min),
+    ) {
+        if z < 10.0 * f {
+            out.push(computed(
+                "rhp_zero",
+                format!(
+                    "A right-half-plane zero at {} is within a decade of the upper cut-off ({}): it \
+                     adds phase lag that matters inside a feedback loop.",
+                    si(z, "Hz", 4),
+                    si(f, "Hz", 4)
+                ),
+            ));
+        }
+    }
+    if let Some(op) = &a.operating_point {
+        for d in &op.devices {
+            let part = &d.bias.part;
+            match &d.bias.state {
+                DeviceState::Bjt { region, vce_v, .. } => match region {
+                    BjtRegion::Active if vce_v.abs() < VCE_EDGE_V => out.push(computed(
+                        "bias_edge",
+                        format!("{part} has V_CE = {}: close to saturation, its gain and Cμ will move with signal swing.", si(*vce_v, "V", 3)),
+                    )),
+                    BjtRegion::Active => {}
+                    other => out.push(computed(
+                        "bias_region",
+                        format!("{part} is not in the active region ({}); the small-signal figures do not describe an amplifier.", format!("{other:?}").to_lowercase().replace("cutoff", "cut-off")),
+                    )),
+                },
+                DeviceState::Mosfet { region, vds_v, overdrive_v, .. } => match region {
+                    MosRegion::Saturation if vds_v.abs() - overdrive_v < VDS_EDGE_V => out.push(computed(
+                        "bias_edge",
+                        format!("{part} has V_DS = {} against an overdrive of {}: close to the triode edge.", si(*vds_v, "V", 3), si(*overdrive_v, "V", 3)),
+                    )),
+                    MosRegion::Saturation => {}
+                    other => out.push(computed(
+                        "bias_region",
+                        format!("{part} is not in saturation ({}); the small-signal figures do not describe an amplifier.", format!("{other:?}").to_lowercase().replace("cutoff", "cut-off")),
+                    )),
+                },
+            }
+            if let Some(max) = d.bias.max_power_w {
+                if d.bias.power_w > DISSIPATION_FLAG * max {
+                    out.push(computed(
+                        "dissipation",
+                        format!(
+                            "{part} dissipates {} of its {} rating ({} %); check the derating at \
+                             the highest ambient temperature.",
+                            si(d.bias.power_w, "W", 3),
+                            si(max, "W", 3),
+                            plain(d.bias.power_w / max * 100.0, 3)
+                        ),
+                    ));
+                }
+            }
+        }
+        if !op.devices.is_empty() {
+            out.push(computed(
+                "bias_dependent_capacitance",
+                format!(
+                    "Device capacitances and gm hold at this operating point and {} °C only; a bias \
+                     or temperature change moves them.",
+                    plain(design.temperature_k - 273.15, 4)
+                ),
+            ));
+        }
+    }
+    out.push(standard(
+        "small_signal",
+        "These are small-signal results for the stated models; confirm gain and bandwidth by \
+         measurement on the built stage.",
+    ));
+    out.push(standard(
+        "fixtures",
+        "Cable, probe and fixture capacitance add to any load modelled here; include them in the \
+         design when they are known.",
+    ));
+    let highest = design.supplies.iter().map(|s| s.voltage.nominal.abs()).fold(0.0, f64::max);
+    if highest >= HAZARDOUS_SUPPLY_V {
+        out.push(computed(
+            "hazardous_voltage",
+            format!(
+                "A supply of {} is at a hazardous voltage. Work on it needs qualified hands; local \
+                 electrical codes and licensed practice take precedence over this document.",
+                si(highest, "V", 3)
+            ),
+        ));
+    } else {
+        out.push(standard(
+            "hazardous_voltage",
+            "If this stage is built into mains-powered equipment or runs from hazardous voltages, \
+             the work needs qualified hands; local electrical codes and licensed practice take \
+             precedence over this document.",
+        ));
+    }
+    out
+}

@@ -1,0 +1,211 @@
+//! The computed explanation: which capacitor sets each cut-off and why, which estimate to
+//! trust and by how much, where a right-half-plane zero sits, and what would move the
+//! cut-off. Every sentence is chosen by the numbers and carries them.
+//!
+//! In: the [`Analysis`]. Out: paragraphs of Markdown. Formatting of numbers goes through
+//! [`crate::notation`].
+
+use serde::Serialize;
+
+use crate::analysis::{Analysis, RootHz};
+use crate::notation::{plain, si};
+
+/// Pole separation at or above which one pole dominates (common practice: the nearest
+/// other pole or zero at least 4× away; METHODS §4).
+pub const DOMINANT_RATIO: f64 = 4.0;
+/// Relative error within which an estimate is called trustworthy in the explanation.
+pub const TRUSTED_ERROR: f64 = 0.05;
+
+/// The explanation of both cut-offs.
+#[derive(Clone, Debug, Serialize)]
+pub struct Explanation {
+    /// Paragraphs about the upper cut-off.
+    pub high: Vec<String>,
+    /// Paragraphs about the lower cut-off.
+    pub low: Vec<String>,
+}
+
+fn pct(x: f64) -> String {
+    format!("{} %", plain(x * 100.0, 3))
+}
+
+fn signed_pct(x: f64) -> String {
+    let s = plain(x * 100.0, 2);
+    if x > 0.0 { format!("+{s} %") } else { format!("{s} %") }
+}
+
+/// The explanation for `a`.
+pub fn explain(a: &Analysis) -> Explanation {
+    Explanation { high: high(a), low: low(a) }
+}
+
+fn high(a: &Analysis) -> Vec<String> {
+    let h = &a.high;
+    let mut out = Vec::new();
+    let mut caps: Vec<_> = h.octc.caps.iter().collect();
+    if caps.is_empty() {
+        out.push("No capacitor limits the bandwidth at the high end: the design has no high-frequency capacitances.".to_string());
+        return out;
+    }
+    caps.sort_by(|x, y| y.share.total_cmp(&x.share));
+    let top = caps[0];
+    let mut lead = format!(
+        "The upper cut-off is set mainly by **{}**: it holds {} of the time-constant sum Στ = {} \
+         (f_H ≈ {} from the sum), with {} seeing {}.",
+        top.part,
+        pct(top.share),
+        si(h.b1_s, "s", 4),
+        h.octc.f_estimate_hz.map_or("—".into(), |f| si(f, "Hz", 4)),
+        si(top.c_f, "F", 3),
+        si(top.r_ohm, "Ω", 4),
+    );
+    if let Some(m) = top.miller_factor {
+        if m >= 2.0 {
+            lead.push_str(&format!(
+                " That resistance is {}× the sum of the resistances from its terminals to ground \
+                 ({} + {}): the capacitor bridges a gain, and Miller multiplication makes it look \
+                 {}× larger.",
+                plain(m, 3),
+                si(top.r_a_ohm, "Ω", 3),
+                si(top.r_b_ohm, "Ω", 3),
+                plain(m, 3)
+            ));
+        }
+    }
+    if caps.len() > 1 && caps[1].share >= 0.2 {
+        lead.push_str(&format!(" **{}** follows with {}.", caps[1].part, pct(caps[1].share)));
+    }
+    out.push(lead);
+
+    // Which estimate to trust.
+    let exact = h.f3db_hz;
+    let complex = h.poles_hz.first().is_some_and(|p| p.im_hz != 0.0);
+    let e = &h.estimate_errors;
+    let exact_text = exact.map_or("—".into(), |f| si(f, "Hz", 4));
+    match h.dominance_ratio {
+        _ if complex => {
+            let q = quality(&h.poles_hz[0]);
+            out.push(format!(
+                "The two lowest high-frequency poles form a complex pair (Q = {}), so no single pole \
+                 dominates and the time-constant sum is off by {}; the second-order estimate from \
+                 b1 and b2 is within {} of the exact {}. Trust the second-order figure, and check \
+                 the response for peaking.",
+                plain(q, 3),
+                e.time_constant.map_or("—".into(), signed_pct),
+                e.second_order.map_or("—".into(), signed_pct),
+                exact_text
+            ));
+        }
+        Some(k) if k >= DOMINANT_RATIO && e.time_constant.is_some_and(|x| x.abs() <= TRUSTED_ERROR) => out.push(format!(
+            "The next pole is {}× higher, so the single-pole estimate holds: the time-constant sum \
+             is within {} of the exact {}.",
+            plain(k, 3),
+            e.time_constant.map_or("—".into(), signed_pct),
+            exact_text
+        )),
+        Some(k) => out.push(format!(
+            "Warning: the two lowest poles are {}× apart and the zeros sit where they do, so the \
+             time-constant sum misses the bandwidth by {} against the exact {}; the second-order \
+             estimate from b1 and b2 is within {}.",
+            plain(k, 3),
+            e.time_constant.map_or("—".into(), signed_pct),
+            exact_text,
+            e.second_order.map_or("—".into(), signed_pct)
+        )),
+        None => out.push(format!(
+            "There is one high-frequency pole; the time-constant estimate is exact to rounding ({}).",
+            e.time_constant.map_or("—".into(), signed_pct)
+        )),
+    }
+
+    // Right-half-plane zeros.
+    if let Some(z) = h
+        .zeros_hz
+        .iter()
+        .filter(|z| z.re_hz > 0.0 && z.im_hz == 0.0)
+        .min_by(|x, y| x.re_hz.total_cmp(&y.re_hz))
+    {
+        let ratio = exact.map(|f| z.re_hz / f);
+        let place = match ratio {
+            Some(r) if r < 10.0 => format!(
+                "only {}× above the cut-off, close enough to shape the band edge",
+                plain(r, 3)
+            ),
+            Some(r) => format!("{}× above the cut-off, well clear of the band", plain(r, 3)),
+            None => "beyond the band".to_string(),
+        };
+        out.push(format!(
+            "A right-half-plane zero sits at {}, {place}; above it the stage stops inverting and the \
+             phase keeps falling.",
+            si(z.re_hz, "Hz", 4)
+        ));
+    }
+
+    // What would move it.
+    let lever = if top.miller_factor.is_some_and(|m| m >= 2.0) {
+        format!(
+            "lower the gain across {} or the resistance driving its input side, or shrink the \
+             capacitance itself",
+            top.part
+        )
+    } else {
+        format!("lower the {} that {} sees, or its capacitance", si(top.r_ohm, "Ω", 3), top.part)
+    };
+    out.push(format!("To raise f_H, {lever}: f_H moves almost in proportion to its time constant while it holds {}.", pct(top.share)));
+    out
+}
+
+fn quality(p: &RootHz) -> f64 {
+    let w = p.magnitude_hz();
+    w / (2.0 * p.re_hz.abs())
+}
+
+fn low(a: &Analysis) -> Vec<String> {
+    let l = &a.low;
+    let mut out = Vec::new();
+    let mut caps: Vec<_> = l.sctc.caps.iter().collect();
+    if caps.is_empty() {
+        out.push("No coupling or bypass capacitor: the response extends to DC.".to_string());
+        return out;
+    }
+    caps.sort_by(|x, y| y.share.total_cmp(&x.share));
+    let top = caps[0];
+    out.push(format!(
+        "The lower cut-off is set mainly by **{}** ({}, seeing {}): it holds {} of Σ 1/τ, which \
+         gives f_L ≈ {}.",
+        top.part,
+        si(top.c_f, "F", 3),
+        si(top.r_ohm, "Ω", 4),
+        pct(top.share),
+        l.sctc.f_estimate_hz.map_or("—".into(), |f| si(f, "Hz", 4))
+    ));
+    let exact = l.f3db_hz.map_or("—".into(), |f| si(f, "Hz", 4));
+    let err = l.estimate_errors.time_constant.map_or("—".into(), signed_pct);
+    match l.dominance_ratio {
+        Some(k)
+            if k >= DOMINANT_RATIO
+                && l.estimate_errors.time_constant.is_some_and(|x| x.abs() <= TRUSTED_ERROR) =>
+        {
+            out.push(format!(
+                "The highest low-frequency pole stands {}× above the next, so the short-circuit sum \
+                 holds: {err} from the exact {exact}.",
+                plain(k, 3)
+            ))
+        }
+        Some(k) => out.push(format!(
+            "Warning: the short-circuit sum is {err} off the exact {exact}: the highest \
+             low-frequency pole is only {}× above the next, and the zeros of the coupling and \
+             bypass networks sit close to the poles. The root-sum-square of the poles and zeros \
+             is within {}.",
+            plain(k, 3),
+            l.estimate_errors.root_sum_square.map_or("—".into(), signed_pct)
+        )),
+        None => out.push(format!("One low-frequency pole: the short-circuit estimate is exact ({err}).")),
+    }
+    out.push(format!(
+        "To lower f_L, enlarge {} or raise the {} it sees.",
+        top.part,
+        si(top.r_ohm, "Ω", 3)
+    ));
+    out
+}

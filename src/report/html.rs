@@ -1,0 +1,178 @@
+//! The HTML exporter: Markdown through pulldown-cmark (tables, footnotes, heading ids),
+//! sanitised by ammonia, plots spliced in afterwards as inline SVG, wrapped in one
+//! self-contained page with inline CSS, a print stylesheet and a table of contents.
+
+use pulldown_cmark::{Event, HeadingLevel, Options, Parser, Tag, TagEnd, html};
+
+use crate::report::plots::Plot;
+use crate::report::template::plot_marker;
+
+/// The Markdown options, set in this one place.
+pub fn markdown_options() -> Options {
+    Options::ENABLE_TABLES
+        | Options::ENABLE_FOOTNOTES
+        | Options::ENABLE_HEADING_ATTRIBUTES
+        | Options::ENABLE_STRIKETHROUGH
+}
+
+fn slug(text: &str) -> String {
+    let mut s = String::new();
+    for c in text.chars() {
+        if c.is_alphanumeric() {
+            s.extend(c.to_lowercase());
+        } else if !s.ends_with('-') && !s.is_empty() {
+            s.push('-');
+        }
+    }
+    s.trim_end_matches('-').to_string()
+}
+
+/// Markdown → HTML body and the table of contents (level, id, text).
+fn body(markdown: &str) -> (String, Vec<(u8, String, String)>) {
+    let events: Vec<Event> = Parser::new_ext(markdown, markdown_options()).collect();
+    let mut toc = Vec::new();
+    let mut out_events = Vec::with_capacity(events.len());
+    let mut used: Vec<String> = Vec::new();
+    let mut i = 0;
+    while i < events.len() {
+        if let Event::Start(Tag::Heading { level, id, classes, attrs }) = &events[i] {
+            let mut text = String::new();
+            let mut j = i + 1;
+            while j < events.len() && !matches!(events[j], Event::End(TagEnd::Heading(_))) {
+                if let Event::Text(t) | Event::Code(t) = &events[j] {
+                    text.push_str(t);
+                }
+                j += 1;
+            }
+            let mut anchor = id.as_ref().map_or_else(|| slug(&text), |s| s.to_string());
+            let base = anchor.clone();
+            let mut n = 2;
+            while used.contains(&anchor) {
+                anchor = format!("{base}-{n}");
+                n += 1;
+            }
+            used.push(anchor.clone());
+            let lvl = match level {
+                HeadingLevel::H1 => 1,
+                HeadingLevel::H2 => 2,
+                HeadingLevel::H3 => 3,
+                _ => 4,
+            };
+            toc.push((lvl, anchor.clone(), text));
+            out_events.push(Event::Start(Tag::Heading {
+                level: *level,
+                id: Some(anchor.into()),
+                classes: classes.clone(),
+                attrs: attrs.clone(),
+            }));
+        } else {
+            out_events.push(events[i].clone());
+        }
+        i += 1;
+    }
+    let mut html_out = String::new();
+    html::push_html(&mut html_out, out_events.into_iter());
+    (html_out, toc)
+}
+
+fn sanitise(html: &str) -> String {
+    ammonia::Builder::default()
+        .add_generic_attributes(&["id", "class"])
+        .add_tag_attributes("td", &["style"])
+        .add_tag_attributes("th", &["style"])
+        .url_schemes(["https", "http", "mailto"].into_iter().collect())
+        .link_rel(Some("noopener noreferrer"))
+        .clean(html)
+        .to_string()
+}
+
+fn escape(text: &str) -> String {
+    text.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;").replace('"', "&quot;")
+}
+
+/// The whole page. `title` is plain text (escaped here).
+pub fn page(title: &str, markdown: &str, plots: &[Plot]) -> String {
+    let (raw, toc) = body(markdown);
+    let mut main = sanitise(&raw);
+    for p in plots {
+        let figure = format!(
+            "<figure class=\"plot\" id=\"plot-{}\">{}<figcaption>{}</figcaption></figure>",
+            p.name,
+            p.svg.trim_start_matches("<?xml version=\"1.0\" encoding=\"UTF-8\"?>").trim(),
+            escape(&p.caption)
+        );
+        main = main.replace(&format!("<p>{}</p>", plot_marker(p.name)), &figure);
+    }
+    let mut nav = String::from("<nav class=\"toc\"><h2>Contents</h2><ol>");
+    for (level, id, text) in toc.iter().filter(|(l, _, _)| *l == 2 || *l == 3) {
+        nav.push_str(&format!(
+            "<li class=\"l{level}\"><a href=\"#{id}\">{}</a></li>",
+            escape(text)
+        ));
+    }
+    nav.push_str("</ol></nav>");
+    format!(
+        "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n\
+         <meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n\
+         <meta name=\"generator\" content=\"tauweave {}\">\n<title>{}</title>\n<style>\n{}</style>\n</head>\n\
+         <body>\n{nav}\n<main>\n{main}</main>\n</body>\n</html>\n",
+        env!("CARGO_PKG_VERSION"),
+        escape(title),
+        CSS
+    )
+}
+
+const CSS: &str = r#"
+:root { --ink: #1a1a1a; --mid: #555; --rule: #c8c8c8; --pale: #f3f3f1; }
+* { box-sizing: border-box; }
+body { margin: 0; color: var(--ink); background: #fff;
+  font: 15px/1.5 "DejaVu Sans", "Helvetica Neue", Arial, sans-serif;
+  display: grid; grid-template-columns: 15rem minmax(0, 54rem); gap: 2.5rem; padding: 2rem; }
+nav.toc { position: sticky; top: 1.5rem; align-self: start; font-size: 13px;
+  border-left: 3px solid var(--ink); padding-left: 0.9rem; }
+nav.toc h2 { font-size: 12px; letter-spacing: 0.08em; text-transform: uppercase; margin: 0 0 0.5rem; }
+nav.toc ol { list-style: none; margin: 0; padding: 0; }
+nav.toc li.l3 { padding-left: 0.9rem; }
+nav.toc a { color: var(--ink); text-decoration: none; }
+nav.toc a:hover { text-decoration: underline; }
+h1 { font-size: 1.7rem; margin: 0 0 0.3rem; border-bottom: 3px solid var(--ink); padding-bottom: 0.3rem; }
+h2 { font-size: 1.25rem; margin: 2.2rem 0 0.6rem; border-bottom: 1px solid var(--rule); padding-bottom: 0.2rem; }
+h3 { font-size: 1.05rem; margin: 1.5rem 0 0.4rem; }
+table { border-collapse: collapse; margin: 0.8rem 0; font-size: 13.5px; font-variant-numeric: tabular-nums; }
+th, td { padding: 0.25rem 0.7rem; border-bottom: 1px solid var(--rule); vertical-align: top; }
+th { border-bottom: 2px solid var(--ink); text-align: left; font-weight: 600; }
+tbody tr:nth-child(even) { background: var(--pale); }
+figure.plot { margin: 1.2rem 0; }
+figure.plot svg { width: 100%; height: auto; border: 1px solid var(--rule); }
+figcaption { font-size: 12.5px; color: var(--mid); margin-top: 0.3rem; }
+code { font-family: "DejaVu Sans Mono", monospace; font-size: 0.92em; }
+strong { font-weight: 700; }
+@media (max-width: 60rem) { body { display: block; } nav.toc { position: static; margin-bottom: 1.5rem; } }
+@media print {
+  body { display: block; padding: 0; font-size: 10.5pt; }
+  nav.toc { position: static; border: none; padding: 0; break-after: page; }
+  h2 { break-after: avoid; }
+  figure, table { break-inside: avoid; }
+  tbody tr:nth-child(even) { background: none; }
+  a { color: inherit; text-decoration: none; }
+}
+"#;
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn headings_get_ids_and_scripts_are_inert() {
+        let md = "# T\n\n## Upper cut-off\n\n## Upper cut-off\n\n&lt;script&gt;alert(1)&lt;/script&gt; <script>x()</script> [a](javascript:alert(1))\n";
+        let html = page("t <b>", md, &[]);
+        assert!(
+            html.contains("id=\"upper-cut-off\"") && html.contains("id=\"upper-cut-off-2\""),
+            "{html}"
+        );
+        assert!(!html.contains("<script>"), "{html}");
+        assert!(!html.contains("javascript:"), "{html}");
+        assert!(html.contains("&lt;script&gt;alert(1)"), "{html}");
+        assert!(html.contains("<title>t &lt;b&gt;</title>"));
+    }
+}

@@ -1,0 +1,348 @@
+//! Plots as SVG, drawn with plotters (no system font libraries): the Bode magnitude and
+//! phase with the exact −3 dB points, the estimates and the requirement limits marked; the
+//! pole–zero map; the time-constant shares.
+//!
+//! Our style: black and greys only, told apart by line weight and dash so a grey printout
+//! reads the same; axis labels carry SI prefixes (1 k, 10 M), never raw exponents. Text
+//! uses the font family [`FONT`], which the PDF route embeds.
+
+use plotters::prelude::*;
+
+use crate::analysis::requirements::RequirementCheck;
+use crate::analysis::{Analysis, RootHz};
+use crate::notation::si;
+
+/// The font family of plot text.
+pub const FONT: &str = "DejaVu Sans Mono";
+
+const INK: RGBColor = RGBColor(20, 20, 20);
+const MID: RGBColor = RGBColor(110, 110, 110);
+const PALE: RGBColor = RGBColor(200, 200, 200);
+
+/// A named plot.
+pub struct Plot {
+    /// File stem and directive name: `bode`, `pole_zero`, `shares`.
+    pub name: &'static str,
+    /// Caption.
+    pub caption: String,
+    /// The SVG document.
+    pub svg: String,
+}
+
+fn finish(svg: String) -> String {
+    // Name a fallback so a browser without the font still draws monospace text.
+    svg.replace(&format!("font-family=\"{FONT}\""), &format!("font-family=\"{FONT}, monospace\""))
+}
+
+fn style(size: u32) -> TextStyle<'static> {
+    (FONT, size).into_font().color(&INK)
+}
+
+/// Every plot of the review.
+pub fn all(a: &Analysis, requirements: &[RequirementCheck]) -> Vec<Plot> {
+    let mut out = Vec::new();
+    if let Some(svg) = bode(a, requirements) {
+        out.push(Plot { name: "bode", caption: "Bode plot: magnitude and phase of the exact response, with the −3 dB points (solid), the time-constant estimates (dashed) and the requirement limits (dotted).".into(), svg });
+    }
+    if let Some(svg) = pole_zero(a) {
+        out.push(Plot {
+            name: "pole_zero",
+            caption: "Pole–zero map (s/2π): poles ×, zeros ○, on signed logarithmic axes.".into(),
+            svg,
+        });
+    }
+    if let Some(svg) = shares(a) {
+        out.push(Plot { name: "shares", caption: "Share of each capacitor in the open-circuit time-constant sum (upper cut-off) and in Σ 1/τ of the short-circuit constants (lower cut-off).".into(), svg });
+    }
+    out
+}
+
+fn decade_label(v: f64, unit: &str) -> String {
+    si(v, unit, 3)
+}
+
+fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
+    let sweep = &a.sweep;
+    if sweep.len() < 2 {
+        return None;
+    }
+    let f0 = sweep.first()?.frequency_hz;
+    let f1 = sweep.last()?.frequency_hz;
+    let mag_max = sweep.iter().map(|p| p.magnitude_db).fold(f64::MIN, f64::max);
+    let top = (mag_max / 10.0).ceil() * 10.0 + 5.0;
+    let bottom = (top - 80.0)
+        .max(sweep.iter().map(|p| p.magnitude_db).fold(f64::MAX, f64::min).floor() - 5.0);
+    let ph_min = sweep.iter().map(|p| p.phase_deg).fold(f64::MAX, f64::min);
+    let ph_max = sweep.iter().map(|p| p.phase_deg).fold(f64::MIN, f64::max);
+    let (ph_lo, ph_hi) = ((ph_min / 45.0).floor() * 45.0, (ph_max / 45.0).ceil() * 45.0 + 1.0);
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (860, 560)).into_drawing_area();
+        root.fill(&WHITE).ok()?;
+        let (upper, lower) = root.split_vertically(340);
+        let mut mag = ChartBuilder::on(&upper)
+            .margin(14)
+            .x_label_area_size(28)
+            .y_label_area_size(64)
+            .build_cartesian_2d((f0..f1).log_scale(), bottom..top)
+            .ok()?;
+        mag.configure_mesh()
+            .light_line_style(PALE.mix(0.5))
+            .bold_line_style(PALE)
+            .axis_style(MID)
+            .x_label_formatter(&|v| decade_label(*v, "Hz"))
+            .y_label_formatter(&|v| format!("{v:.0} dB"))
+            .label_style(style(12))
+            .y_desc("|H|")
+            .axis_desc_style(style(13))
+            .draw()
+            .ok()?;
+        mag.draw_series(LineSeries::new(
+            sweep.iter().map(|p| (p.frequency_hz, p.magnitude_db)),
+            INK.stroke_width(2),
+        ))
+        .ok()?;
+        let mid_db = 20.0 * a.midband.gain.abs().log10();
+        let level = mid_db - 3.0103;
+        mag.draw_series(DashedLineSeries::new(
+            [(f0, level), (f1, level)],
+            3,
+            5,
+            MID.stroke_width(1),
+        ))
+        .ok()?;
+        let row_height = (top - bottom) * 0.055;
+        let mut mark = |f: f64, label: &str, dash: u32, weight: u32, row: u32| {
+            if f > f0 && f < f1 {
+                let _ = mag.draw_series(DashedLineSeries::new(
+                    [(f, bottom), (f, top)],
+                    if dash == 0 { 1000 } else { dash },
+                    if dash == 0 { 0 } else { dash },
+                    INK.stroke_width(weight),
+                ));
+                let y = top - row_height * (1.0 + row as f64);
+                let _ = mag.draw_series(std::iter::once(Text::new(
+                    label.to_string(),
+                    (f * 1.08, y),
+                    style(11),
+                )));
+            }
+        };
+        if let Some(f) = a.high.f3db_hz {
+            mark(f, &format!("f_H {}", si(f, "Hz", 3)), 0, 1, 0);
+        }
+        if let Some(f) = a.low.f3db_hz {
+            mark(f, &format!("f_L {}", si(f, "Hz", 3)), 0, 1, 0);
+        }
+        if let Some(f) = a.high.octc.f_estimate_hz {
+            mark(f, "Στ", 6, 1, 1);
+        }
+        if let Some(f) = a.low.sctc.f_estimate_hz {
+            mark(f, "Σ1/τ", 6, 1, 1);
+        }
+        for r in requirements.iter().filter(|r| r.unit == "Hz") {
+            for (limit, word) in [(r.min, "min"), (r.max, "max")] {
+                if let Some(f) = limit {
+                    let tag = if r.name == "upper_cutoff" { "f_H" } else { "f_L" };
+                    mark(f, &format!("{tag} {word}"), 2, 1, 2);
+                }
+            }
+        }
+        let mut phase = ChartBuilder::on(&lower)
+            .margin(14)
+            .x_label_area_size(30)
+            .y_label_area_size(64)
+            .build_cartesian_2d((f0..f1).log_scale(), ph_lo..ph_hi)
+            .ok()?;
+        phase
+            .configure_mesh()
+            .light_line_style(PALE.mix(0.5))
+            .bold_line_style(PALE)
+            .axis_style(MID)
+            .x_label_formatter(&|v| decade_label(*v, "Hz"))
+            .y_label_formatter(&|v| format!("{v:.0}°"))
+            .label_style(style(12))
+            .y_desc("phase")
+            .x_desc("frequency")
+            .axis_desc_style(style(13))
+            .draw()
+            .ok()?;
+        phase
+            .draw_series(LineSeries::new(
+                sweep.iter().map(|p| (p.frequency_hz, p.phase_deg)),
+                INK.stroke_width(2),
+            ))
+            .ok()?;
+        root.present().ok()?;
+    }
+    Some(finish(svg))
+}
+
+/// Signed logarithm for the pole–zero map: linear inside ±`unit`, then one axis unit per
+/// decade, so the ticks fall on 0, ±unit, ±10·unit, … exactly.
+fn slog(x: f64, unit: f64) -> f64 {
+    let m = x.abs() / unit;
+    if m <= 1.0 { x / unit } else { x.signum() * (1.0 + m.log10()) }
+}
+
+fn unslog(v: f64, unit: f64) -> f64 {
+    if v.abs() <= 1.0 { v * unit } else { v.signum() * unit * 10f64.powf(v.abs() - 1.0) }
+}
+
+fn pole_zero(a: &Analysis) -> Option<String> {
+    let all: Vec<&RootHz> = a.poles.iter().chain(a.zeros.iter()).collect();
+    if all.is_empty() {
+        return None;
+    }
+    // Unit: the power of ten a decade below the smallest non-zero magnitude.
+    let smallest =
+        all.iter().map(|r| r.magnitude_hz()).filter(|m| *m > 0.0).fold(f64::MAX, f64::min);
+    let unit = if smallest < f64::MAX { 10f64.powf(smallest.log10().floor() - 1.0) } else { 1.0 };
+    let reach_x = all.iter().map(|r| slog(r.re_hz.abs(), unit)).fold(2.0, f64::max).ceil() + 0.5;
+    let reach_y = all.iter().map(|r| slog(r.im_hz.abs(), unit)).fold(2.0, f64::max).ceil() + 0.5;
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (860, 420)).into_drawing_area();
+        root.fill(&WHITE).ok()?;
+        let mut chart = ChartBuilder::on(&root)
+            .margin(14)
+            .x_label_area_size(34)
+            .y_label_area_size(80)
+            .build_cartesian_2d(-reach_x..reach_x, -reach_y..reach_y)
+            .ok()?;
+        // Every decade when they fit, every other one on wide maps.
+        let step = if reach_x > 7.0 { 2 } else { 1 };
+        let tick = move |v: f64| -> String {
+            if v.abs() < 1e-9 {
+                return "0".into();
+            }
+            if (v - v.round()).abs() > 1e-9 || (v.round() as i64).abs() % step != 0 {
+                return String::new();
+            }
+            si(unslog(v, unit), "Hz", 2)
+        };
+        chart
+            .configure_mesh()
+            .light_line_style(WHITE)
+            .bold_line_style(PALE)
+            .axis_style(MID)
+            .x_labels((2.0 * reach_x) as usize + 1)
+            .y_labels((2.0 * reach_y) as usize + 1)
+            .x_label_formatter(&|v| tick(*v))
+            .y_label_formatter(&|v| {
+                let t = tick(*v);
+                if t.is_empty() || t == "0" {
+                    t
+                } else if *v < 0.0 {
+                    format!("−j{}", t.trim_start_matches('−'))
+                } else {
+                    format!("j{t}")
+                }
+            })
+            .label_style(style(11))
+            .x_desc("real part, s/2π (left half-plane: stable)")
+            .axis_desc_style(style(12))
+            .draw()
+            .ok()?;
+        chart
+            .draw_series(LineSeries::new([(0.0, -reach_y), (0.0, reach_y)], MID.stroke_width(1)))
+            .ok()?;
+        chart
+            .draw_series(LineSeries::new([(-reach_x, 0.0), (reach_x, 0.0)], MID.stroke_width(1)))
+            .ok()?;
+        let xy = |r: &RootHz| (slog(r.re_hz, unit), slog(r.im_hz, unit));
+        chart
+            .draw_series(a.poles.iter().map(|p| Cross::new(xy(p), 7, INK.stroke_width(2))))
+            .ok()?;
+        chart
+            .draw_series(a.zeros.iter().map(|z| Circle::new(xy(z), 6, INK.stroke_width(2))))
+            .ok()?;
+        // Multiplicity of coincident roots.
+        for list in [&a.poles, &a.zeros] {
+            let mut seen: Vec<(RootHz, usize)> = Vec::new();
+            for r in list.iter() {
+                match seen.iter_mut().find(|(s, _)| s == r) {
+                    Some((_, n)) => *n += 1,
+                    None => seen.push((*r, 1)),
+                }
+            }
+            for (r, n) in seen.into_iter().filter(|(_, n)| *n > 1) {
+                let (x, y) = xy(&r);
+                chart
+                    .draw_series(std::iter::once(Text::new(
+                        format!("×{n}"),
+                        (x + 0.08, y + 0.25),
+                        style(11),
+                    )))
+                    .ok()?;
+            }
+        }
+        root.present().ok()?;
+    }
+    Some(finish(svg))
+}
+
+fn shares(a: &Analysis) -> Option<String> {
+    let mut rows: Vec<(String, f64, bool)> = Vec::new();
+    for c in &a.high.octc.caps {
+        rows.push((c.part.clone(), c.share, true));
+    }
+    for c in &a.low.sctc.caps {
+        rows.push((c.part.clone(), c.share, false));
+    }
+    if rows.is_empty() {
+        return None;
+    }
+    let n = rows.len();
+    let height = 60 + 26 * n as u32;
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (860, height)).into_drawing_area();
+        root.fill(&WHITE).ok()?;
+        let mut chart = ChartBuilder::on(&root)
+            .margin(14)
+            .x_label_area_size(0)
+            .y_label_area_size(0)
+            .build_cartesian_2d(-45.0..112.0, -0.7..n as f64)
+            .ok()?;
+        for k in 0..=5 {
+            let x = k as f64 * 20.0;
+            chart
+                .draw_series(LineSeries::new([(x, 0.0), (x, n as f64)], PALE.stroke_width(1)))
+                .ok()?;
+            chart
+                .draw_series(std::iter::once(Text::new(
+                    format!("{x:.0} %"),
+                    (x - 2.0, -0.15),
+                    style(11),
+                )))
+                .ok()?;
+        }
+        chart
+            .draw_series(rows.iter().enumerate().map(|(i, (part, _, high))| {
+                let y = (n - 1 - i) as f64;
+                let side = if *high { "f_H" } else { "f_L" };
+                Text::new(format!("{part} ({side})"), (-44.0, y + 0.72), style(12))
+            }))
+            .ok()?;
+        chart
+            .draw_series(rows.iter().enumerate().map(|(i, (_, share, high))| {
+                let y = (n - 1 - i) as f64;
+                let fill = if *high { INK } else { MID };
+                Rectangle::new([(0.0, y + 0.2), (share * 100.0, y + 0.8)], fill.filled())
+            }))
+            .ok()?;
+        chart
+            .draw_series(rows.iter().enumerate().map(|(i, (_, share, _))| {
+                let y = (n - 1 - i) as f64;
+                Text::new(
+                    format!("{:.1} %", share * 100.0),
+                    (share * 100.0 + 1.0, y + 0.72),
+                    style(11),
+                )
+            }))
+            .ok()?;
+        root.present().ok()?;
+    }
+    Some(finish(svg))
+}

@@ -1,0 +1,363 @@
+//! The named tables a template inserts with `{{ table(name="…") }}`, as Markdown.
+//!
+//! In: the design, its analysis and the requirement checks. Out: a map from table name to
+//! a Markdown table; numbers in engineering notation. User text (designators, notes) is
+//! escaped for Markdown table cells.
+
+use std::collections::BTreeMap;
+
+use crate::analysis::requirements::RequirementCheck;
+use crate::analysis::{Analysis, RootHz};
+use crate::circuit::operating_point::DeviceState;
+use crate::design::{Design, PartKind, Tolerance, Toleranced};
+use crate::notation::{plain, scientific, si};
+
+/// The names `table()` accepts, with what each holds.
+pub const TABLES: &[(&str, &str)] = &[
+    ("parts", "every part with its value, tolerance and connections"),
+    ("nodes", "node voltages at the operating point"),
+    ("devices", "each transistor's region, bias, dissipation and small-signal model"),
+    ("capacitors", "every capacitor and the time-constant set it joined"),
+    ("high_estimates", "upper cut-off: exact value and the estimates with their errors"),
+    ("octc", "open-circuit time constants: R seen, τ, share, Miller factor"),
+    ("low_estimates", "lower cut-off: exact value and the estimates with their errors"),
+    ("sctc", "short-circuit time constants: R seen, τ, share"),
+    ("poles_zeros", "poles and zeros of the whole response"),
+    ("requirements", "each requirement, the computed value, pass or fail, margin"),
+];
+
+/// Escapes text for a Markdown table cell.
+pub fn cell(text: &str) -> String {
+    text.replace('\\', "\\\\")
+        .replace('|', "\\|")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+        .replace('\n', " ")
+}
+
+fn table(header: &[&str], align: &str, rows: Vec<Vec<String>>) -> String {
+    let mut out = format!("| {} |\n|", header.join(" | "));
+    for c in align.chars() {
+        out.push_str(if c == 'r' { "---:|" } else { ":---|" });
+    }
+    out.push('\n');
+    for r in rows {
+        out.push_str(&format!("| {} |\n", r.join(" | ")));
+    }
+    out
+}
+
+fn tolerance(t: &Option<Tolerance>) -> String {
+    match t {
+        None => "exact".into(),
+        Some(t) => {
+            let d = match t.distribution {
+                crate::design::Distribution::Uniform => "uniform",
+                crate::design::Distribution::Gaussian => "gaussian",
+            };
+            format!("±{} % {d}", plain(t.fraction * 100.0, 3))
+        }
+    }
+}
+
+fn value(v: &Toleranced, unit: &str) -> String {
+    si(v.nominal, unit, 4)
+}
+
+fn pct(e: Option<f64>) -> String {
+    e.map_or("—".into(), |e| {
+        let s = plain(e * 100.0, 2);
+        if e > 0.0 { format!("+{s} %") } else { format!("{s} %") }
+    })
+}
+
+fn opt(v: Option<f64>, unit: &str) -> String {
+    v.map_or("—".into(), |v| si(v, unit, 4))
+}
+
+fn root(r: &RootHz) -> String {
+    if r.im_hz == 0.0 {
+        si(r.re_hz, "Hz", 4)
+    } else {
+        let sign = if r.im_hz < 0.0 { "−" } else { "+" };
+        format!("{} {sign} j{}", si(r.re_hz, "Hz", 4), si(r.im_hz.abs(), "Hz", 4))
+    }
+}
+
+/// Every named table.
+pub fn all(
+    design: &Design,
+    a: &Analysis,
+    reqs: &[RequirementCheck],
+) -> BTreeMap<&'static str, String> {
+    let mut t = BTreeMap::new();
+    let parts = design
+        .parts
+        .iter()
+        .map(|p| {
+            let (kind, val, tol, conn) = match &p.kind {
+                PartKind::Resistor { between, value: v } => (
+                    "resistor".to_string(),
+                    value(v, "Ω"),
+                    tolerance(&v.tolerance),
+                    between.join("–"),
+                ),
+                PartKind::Capacitor { between, value: v, role } => (
+                    match role {
+                        Some(r) => format!("capacitor ({})", format!("{r:?}").to_lowercase()),
+                        None => "capacitor".into(),
+                    },
+                    value(v, "F"),
+                    tolerance(&v.tolerance),
+                    between.join("–"),
+                ),
+                PartKind::Inductor { between, value: v } => {
+                    ("inductor".into(), value(v, "H"), tolerance(&v.tolerance), between.join("–"))
+                }
+                PartKind::Transconductance { between, control, value: v } => (
+                    "transconductance".into(),
+                    value(v, "S"),
+                    tolerance(&v.tolerance),
+                    format!("{} by v({})", between.join("→"), control.join(", ")),
+                ),
+                PartKind::VoltageAmplifier { between, control, value: v } => (
+                    "voltage amplifier".into(),
+                    format!("{} V/V", plain(v.nominal, 4)),
+                    tolerance(&v.tolerance),
+                    format!("{} = A·v({})", between.join("–"), control.join(", ")),
+                ),
+                PartKind::Bjt { c, b, e, model } => (
+                    "bjt".into(),
+                    design.models[*model].name.clone(),
+                    "model".into(),
+                    format!("c {c}, b {b}, e {e}"),
+                ),
+                PartKind::Mosfet { d, g, s, model } => (
+                    "mosfet".into(),
+                    design.models[*model].name.clone(),
+                    "model".into(),
+                    format!("d {d}, g {g}, s {s}"),
+                ),
+            };
+            vec![
+                cell(&p.name),
+                kind,
+                cell(&val),
+                tol,
+                cell(&conn),
+                cell(p.note.as_deref().unwrap_or("")),
+            ]
+        })
+        .collect();
+    t.insert(
+        "parts",
+        table(&["part", "kind", "value", "tolerance", "connects", "note"], "llllll", parts),
+    );
+
+    if let Some(op) = &a.operating_point {
+        let nodes = op
+            .nodes
+            .iter()
+            .filter(|(n, _)| !n.contains('.') && n.as_str() != "source")
+            .map(|(n, v)| vec![cell(n), si(*v, "V", 4)])
+            .collect();
+        t.insert("nodes", table(&["node", "voltage"], "lr", nodes));
+        let devices = op
+            .devices
+            .iter()
+            .map(|d| {
+                let ss = &d.small_signal;
+                let (region, bias, caps) = match &d.bias.state {
+                    DeviceState::Bjt { region, ic_a, vce_v, vbe_v, .. } => (
+                        format!("{region:?}").to_lowercase().replace("cutoff", "cut-off"),
+                        format!(
+                            "I_C {}, V_CE {}, V_BE {}",
+                            si(*ic_a, "A", 3),
+                            si(*vce_v, "V", 3),
+                            si(*vbe_v, "V", 4)
+                        ),
+                        format!("Cπ {}, Cμ {}", opt(ss.cpi_f, "F"), opt(ss.cmu_f, "F")),
+                    ),
+                    DeviceState::Mosfet { region, id_a, vds_v, vgs_v, .. } => (
+                        format!("{region:?}").to_lowercase().replace("cutoff", "cut-off"),
+                        format!(
+                            "I_D {}, V_DS {}, V_GS {}",
+                            si(*id_a, "A", 3),
+                            si(*vds_v, "V", 3),
+                            si(*vgs_v, "V", 4)
+                        ),
+                        format!(
+                            "Cgs {}, Cgd {}, Cdb {}",
+                            opt(ss.cgs_f, "F"),
+                            opt(ss.cgd_f, "F"),
+                            opt(ss.cdb_f, "F")
+                        ),
+                    ),
+                };
+                let power = match d.bias.max_power_w {
+                    Some(m) => format!("{} of {}", si(d.bias.power_w, "W", 3), si(m, "W", 3)),
+                    None => si(d.bias.power_w, "W", 3),
+                };
+                let rpi = ss.rpi_ohm.map_or(String::new(), |r| format!(", rπ {}", si(r, "Ω", 3)));
+                let ro = ss.ro_ohm.map_or("∞".into(), |r| si(r, "Ω", 3));
+                vec![
+                    cell(&d.bias.part),
+                    region,
+                    bias,
+                    power,
+                    format!("gm {}{rpi}, ro {ro}", si(ss.gm_s, "S", 3)),
+                    caps,
+                ]
+            })
+            .collect();
+        t.insert(
+            "devices",
+            table(
+                &["device", "region", "bias", "dissipation", "small signal", "capacitances"],
+                "llllll",
+                devices,
+            ),
+        );
+    }
+
+    let caps = a
+        .capacitors
+        .iter()
+        .map(|c| {
+            vec![
+                cell(&c.part),
+                si(c.c_f, "F", 4),
+                format!("{:?}", c.set).to_lowercase(),
+                match c.reason {
+                    crate::circuit::netlist::CapReason::Role => "its role".into(),
+                    crate::circuit::netlist::CapReason::ValueRule => "no role: 1 nF rule".into(),
+                    crate::circuit::netlist::CapReason::Device => "device capacitance".into(),
+                },
+            ]
+        })
+        .collect();
+    t.insert("capacitors", table(&["capacitor", "value", "set", "because"], "lrll", caps));
+
+    let h = &a.high;
+    let est = vec![
+        vec!["exact −3 dB".into(), opt(h.f3db_hz, "Hz"), String::new()],
+        vec![
+            "time-constant sum 1/(2π Στ)".into(),
+            opt(h.octc.f_estimate_hz, "Hz"),
+            pct(h.estimate_errors.time_constant),
+        ],
+        vec![
+            "second order from b1, b2".into(),
+            opt(h.second_order_f_estimate_hz, "Hz"),
+            pct(h.estimate_errors.second_order),
+        ],
+        vec![
+            "root-sum-square of poles and zeros".into(),
+            opt(h.rss_f_estimate_hz, "Hz"),
+            pct(h.estimate_errors.root_sum_square),
+        ],
+    ];
+    let mut high_est = table(&["upper cut-off", "f_H", "error"], "lrr", est);
+    high_est.push_str(&format!(
+        "\nb1 = {}, b2 = {}, pole separation |p2/p1| = {}.\n",
+        si(h.b1_s, "s", 4),
+        scientific(h.b2_s2, "s²", 4),
+        h.dominance_ratio.map_or("—".into(), |d| plain(d, 3))
+    ));
+    t.insert("high_estimates", high_est);
+    let octc = h
+        .octc
+        .caps
+        .iter()
+        .map(|c| {
+            vec![
+                cell(&c.part),
+                si(c.c_f, "F", 3),
+                si(c.r_ohm, "Ω", 4),
+                si(c.tau_s, "s", 3),
+                format!("{} %", plain(c.share * 100.0, 3)),
+                c.miller_factor.map_or("—".into(), |m| plain(m, 3)),
+            ]
+        })
+        .collect();
+    t.insert(
+        "octc",
+        table(&["capacitor", "C", "R seen", "τ = RC", "share", "Miller factor"], "lrrrrr", octc),
+    );
+
+    let l = &a.low;
+    let est = vec![
+        vec!["exact −3 dB".into(), opt(l.f3db_hz, "Hz"), String::new()],
+        vec![
+            "short-circuit sum Σ 1/(2π τ)".into(),
+            opt(l.sctc.f_estimate_hz, "Hz"),
+            pct(l.estimate_errors.time_constant),
+        ],
+        vec![
+            "root-sum-square of poles and zeros".into(),
+            opt(l.rss_f_estimate_hz, "Hz"),
+            pct(l.estimate_errors.root_sum_square),
+        ],
+    ];
+    t.insert("low_estimates", table(&["lower cut-off", "f_L", "error"], "lrr", est));
+    let sctc = l
+        .sctc
+        .caps
+        .iter()
+        .map(|c| {
+            vec![
+                cell(&c.part),
+                si(c.c_f, "F", 3),
+                si(c.r_ohm, "Ω", 4),
+                si(c.tau_s, "s", 3),
+                format!("{} %", plain(c.share * 100.0, 3)),
+            ]
+        })
+        .collect();
+    t.insert(
+        "sctc",
+        table(&["capacitor", "C", "R seen", "τ = RC", "share of Σ 1/τ"], "lrrrr", sctc),
+    );
+
+    let n = a.poles.len().max(a.zeros.len());
+    let pz = (0..n)
+        .map(|i| {
+            vec![
+                a.poles.get(i).map_or(String::new(), root),
+                a.zeros.get(i).map_or(String::new(), root),
+            ]
+        })
+        .collect();
+    t.insert("poles_zeros", table(&["poles (s/2π)", "zeros (s/2π)"], "rr", pz));
+
+    let req = reqs
+        .iter()
+        .map(|r| {
+            let show = |v: f64| {
+                if r.name == "midband_gain" {
+                    format!("{} dB", plain(20.0 * v.log10(), 3))
+                } else {
+                    si(v, r.unit, 4)
+                }
+            };
+            let limit = match (r.min, r.max) {
+                (Some(a), Some(b)) => format!("{} … {}", show(a), show(b)),
+                (Some(a), None) => format!("≥ {}", show(a)),
+                (None, Some(b)) => format!("≤ {}", show(b)),
+                (None, None) => String::new(),
+            };
+            vec![
+                r.name.replace('_', " "),
+                limit,
+                r.value.map_or("not found".into(), show),
+                if r.pass { "pass".into() } else { "**FAIL**".into() },
+                r.margin.map_or("—".into(), |m| pct(Some(m))),
+            ]
+        })
+        .collect();
+    t.insert(
+        "requirements",
+        table(&["requirement", "limit", "nominal", "result", "margin"], "llrlr", req),
+    );
+    t
+}

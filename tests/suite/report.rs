@@ -1,0 +1,234 @@
+//! The review document: every output of `render`, byte-for-byte determinism, a golden
+//! Markdown file, the HTML in headless Chromium (computed text present, plots present, the
+//! page not blank, hostile text inert) and an explanation that follows the circuit.
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+use tauweave::{analysis, design, report};
+
+use crate::support::{files, root, run_in, scratch};
+
+const OUTPUTS: &[&str] = &[
+    "report.html",
+    "report.md",
+    "results.json",
+    "sweep.csv",
+    "plots/bode.svg",
+    "plots/pole_zero.svg",
+    "plots/shares.svg",
+];
+
+fn render(design: &Path, out: &Path) {
+    let o = run_in(&root(), &["render", design.to_str().unwrap(), "--out", out.to_str().unwrap()]);
+    assert!(o.status.success(), "{}: {}", design.display(), String::from_utf8_lossy(&o.stderr));
+}
+
+#[test]
+fn render_writes_every_output_for_every_example() {
+    for path in files(&root().join("designs"), "yaml") {
+        let name = path.file_stem().unwrap().to_string_lossy().to_string();
+        let out = scratch(&format!("outputs-{name}"));
+        render(&path, &out);
+        for f in OUTPUTS {
+            let p = out.join(f);
+            assert!(p.metadata().is_ok_and(|m| m.len() > 200), "{name}: {f} missing or empty");
+        }
+        let md = std::fs::read_to_string(out.join("report.md")).unwrap();
+        for heading in [
+            "## Requirements",
+            "## Parts",
+            "## Operating point",
+            "## Mid-band",
+            "## Upper cut-off",
+            "## Lower cut-off",
+            "## Response",
+            "## Cautions",
+            "## Provenance",
+        ] {
+            assert!(md.contains(heading), "{name}: no `{heading}`");
+        }
+        assert!(!md.contains("@@plot") && !md.contains("NaN"), "{name}");
+        let csv = std::fs::read_to_string(out.join("sweep.csv")).unwrap();
+        assert!(
+            csv.starts_with("frequency_hz,magnitude_db,phase_deg\n") && csv.lines().count() > 100
+        );
+    }
+}
+
+#[test]
+fn two_renders_give_the_same_bytes() {
+    let design = root().join("designs/if-cascode.yaml");
+    let (a, b) = (scratch("determinism-a"), scratch("determinism-b"));
+    render(&design, &a);
+    render(&design, &b);
+    for f in OUTPUTS {
+        assert_eq!(
+            std::fs::read(a.join(f)).unwrap(),
+            std::fs::read(b.join(f)).unwrap(),
+            "{f} differs"
+        );
+    }
+}
+
+fn masked(text: &str) -> String {
+    text.replace(env!("CARGO_PKG_VERSION"), "VERSION")
+}
+
+#[test]
+fn rendered_markdown_matches_the_golden_file() {
+    let out = scratch("golden");
+    render(Path::new("designs/rx-preamp-ce.yaml"), &out);
+    let got = masked(&std::fs::read_to_string(out.join("report.md")).unwrap());
+    let golden = root().join("tests/golden/rx-preamp-ce.md");
+    if std::env::var_os("TAUWEAVE_UPDATE_GOLDEN").is_some() {
+        std::fs::write(&golden, &got).unwrap();
+    }
+    let want = std::fs::read_to_string(&golden)
+        .expect("tests/golden/rx-preamp-ce.md (TAUWEAVE_UPDATE_GOLDEN=1 writes it)");
+    assert!(
+        got == want,
+        "report.md differs from tests/golden/rx-preamp-ce.md; rerun with TAUWEAVE_UPDATE_GOLDEN=1 after checking the change"
+    );
+}
+
+fn chromium() -> PathBuf {
+    for c in ["chromium", "chromium-browser"] {
+        if let Ok(o) = Command::new("which").arg(c).output() {
+            if o.status.success() {
+                return PathBuf::from(String::from_utf8_lossy(&o.stdout).trim());
+            }
+        }
+    }
+    panic!("chromium is not installed: scripts/test installs it (apt-get install chromium)");
+}
+
+fn headless(page: &Path, profile: &Path, extra: &[&str]) -> std::process::Output {
+    let url = format!("file://{}", page.canonicalize().unwrap().display());
+    Command::new(chromium())
+        .args(["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run"])
+        .args(["--disable-background-networking", "--disable-component-update", "--disable-sync"])
+        .arg(format!("--user-data-dir={}", profile.display()))
+        .args(extra)
+        .arg(url)
+        .output()
+        .expect("chromium runs")
+}
+
+#[test]
+fn the_html_report_renders_in_chromium() {
+    let out = scratch("chromium-report");
+    render(&root().join("designs/rx-preamp-ce.yaml"), &out);
+    let dom = headless(&out.join("report.html"), &out.join("profile"), &["--dump-dom"]);
+    let dom = String::from_utf8_lossy(&dom.stdout);
+    // The computed upper cut-off, as the analysis formats it.
+    let d =
+        design::load(&std::fs::read_to_string(root().join("designs/rx-preamp-ce.yaml")).unwrap())
+            .design
+            .unwrap();
+    let a = analysis::analyze(&d).unwrap();
+    let f_h = tauweave::notation::si(a.high.f3db_hz.unwrap(), "Hz", 4);
+    assert!(dom.contains(&f_h), "the DOM lacks the upper cut-off {f_h}");
+    for plot in ["plot-bode", "plot-pole_zero", "plot-shares"] {
+        assert!(dom.contains(&format!("id=\"{plot}\"")), "no {plot} in the DOM");
+    }
+    assert!(dom.matches("<svg").count() >= 3, "fewer than three SVG plots in the DOM");
+    // A screenshot that is not blank: a fair share of dark pixels and many distinct values.
+    let shot = out.join("shot.png");
+    let o = headless(
+        &out.join("report.html"),
+        &out.join("profile2"),
+        &["--window-size=1280,2400", &format!("--screenshot={}", shot.display())],
+    );
+    assert!(shot.exists(), "no screenshot: {}", String::from_utf8_lossy(&o.stderr));
+    let decoder = png::Decoder::new(std::io::BufReader::new(std::fs::File::open(&shot).unwrap()));
+    let mut reader = decoder.read_info().unwrap();
+    let mut buf = vec![0; reader.output_buffer_size().unwrap()];
+    let info = reader.next_frame(&mut buf).unwrap();
+    let px = &buf[..info.buffer_size()];
+    let channels = info.color_type.samples();
+    let dark = px.chunks(channels).filter(|p| p[0] < 100).count();
+    let total = px.len() / channels;
+    assert!(dark * 200 > total, "screenshot looks blank: {dark} dark pixels of {total}");
+}
+
+#[test]
+fn hostile_text_in_a_design_renders_inert() {
+    let dir = scratch("hostile");
+    let text = std::fs::read_to_string(root().join("designs/post-amp-cs.yaml")).unwrap();
+    let hostile = text
+        .replacen(
+            "title: Ultrasonic receiver post-amplifier, common source",
+            "title: \"<script>alert('t')</script> post-amplifier\"",
+            1,
+        )
+        .replacen(
+            "purpose: >",
+            "purpose: >\n    [click me](javascript:alert('p')) <img src=x onerror=alert('i')>",
+            1,
+        );
+    assert_ne!(hostile, text);
+    std::fs::write(dir.join("hostile.yaml"), &hostile).unwrap();
+    let o = run_in(&dir, &["render", "hostile.yaml", "--out", "out"]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let html = std::fs::read_to_string(dir.join("out/report.html")).unwrap();
+    assert!(!html.contains("<script"), "a script element reached the page");
+    assert!(!html.contains("javascript:"), "a javascript: URL reached the page");
+    assert!(!html.contains("<img"), "an img element reached the page");
+    let dom = headless(&dir.join("out/report.html"), &dir.join("profile"), &["--dump-dom"]);
+    let dom = String::from_utf8_lossy(&dom.stdout);
+    assert!(
+        dom.contains("&lt;script&gt;alert('t')&lt;/script&gt;"),
+        "the title is not shown as text"
+    );
+    assert!(dom.contains("onerror=alert('i')"), "the purpose's markup is not shown as text");
+    assert!(!dom.contains("<script>alert"));
+}
+
+fn explanation_of(parts: &str, output: &str) -> (String, analysis::Analysis) {
+    let text = format!(
+        "tauweave: 1\ndesign: {{id: e, title: explanation case, revision: A, date: 2026-11-30}}\n\
+         signal: {{at: a, resistance: 1k}}\noutput: {{at: {output}}}\nparts:\n{parts}"
+    );
+    let d = design::load(&text).design.expect("valid");
+    let a = analysis::analyze(&d).expect("analysis");
+    (report::explain::explain(&a).high.join("\n"), a)
+}
+
+#[test]
+fn the_explanation_follows_the_circuit() {
+    // Well separated: 1 kΩ·10 pF against a buffered 1 kΩ·0.1 pF, a decade and more apart.
+    let (text, _) = explanation_of(
+        "  C1: {kind: capacitor, value: 10 pF, between: [a, gnd], role: parasitic}\n\
+         \x20 E1: {kind: voltage_amplifier, value: 1, between: [b, gnd], control: [a, gnd]}\n\
+         \x20 R2: {kind: resistor, value: 1k, between: [b, c]}\n\
+         \x20 C2: {kind: capacitor, value: 0.1 pF, between: [c, gnd], role: parasitic}\n",
+        "c",
+    );
+    assert!(text.contains("single-pole estimate holds"), "{text}");
+    assert!(text.contains("**C1**"), "{text}");
+    // Two equal isolated poles: the warning with the second-order estimate.
+    let (text, a) = explanation_of(
+        "  C1: {kind: capacitor, value: 10 pF, between: [a, gnd], role: parasitic}\n\
+         \x20 E1: {kind: voltage_amplifier, value: 1, between: [b, gnd], control: [a, gnd]}\n\
+         \x20 R2: {kind: resistor, value: 1k, between: [b, c]}\n\
+         \x20 C2: {kind: capacitor, value: 10 pF, between: [c, gnd], role: parasitic}\n",
+        "c",
+    );
+    assert!(text.starts_with("The upper cut-off") && text.contains("Warning"), "{text}");
+    assert!(text.contains("second-order estimate"), "{text}");
+    // n = 2 identical poles: the time-constant sum gives f_p/2 against the exact
+    // f_p·√(√2 − 1) = 0.6436 f_p (METHODS §4, derived): −22.3 %.
+    let err = a.high.estimate_errors.time_constant.unwrap();
+    assert!((err - (0.5 / (2f64.sqrt() - 1.0).sqrt() - 1.0)).abs() < 1e-6, "{err}");
+    // The load capacitance dominating: the explanation names it.
+    let (text, _) = explanation_of(
+        "  R1: {kind: resistor, value: 2k, between: [a, gnd]}\n\
+         \x20 G1: {kind: transconductance, value: 20 mS, between: [o, gnd], control: [a, gnd]}\n\
+         \x20 RD: {kind: resistor, value: 5k, between: [o, gnd]}\n\
+         \x20 CGD: {kind: capacitor, value: 0.1 pF, between: [a, o], role: parasitic}\n\
+         \x20 CL: {kind: capacitor, value: 100 pF, between: [o, gnd], role: load}\n",
+        "o",
+    );
+    assert!(text.contains("set mainly by **CL**"), "{text}");
+}
