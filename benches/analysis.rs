@@ -12,6 +12,7 @@ use tauweave::analysis::{self, poles, time_constants};
 use tauweave::circuit::netlist::{CapReason, CapSet};
 use tauweave::circuit::small_signal::{Linear, LinearNetwork};
 use tauweave::design;
+use tauweave::report::{self, Formats, Inputs, template};
 
 fn median(mut f: impl FnMut(), budget: Duration, max_runs: usize) -> (Duration, usize) {
     let mut times = Vec::new();
@@ -71,6 +72,40 @@ fn main() {
             || drop(black_box(analysis::analyze(&d).unwrap())),
             Duration::from_secs(2),
             2000,
+        );
+        println!(
+            "  {:<28} {:>10.3} ms  ({runs} runs)",
+            path.file_name().unwrap().to_string_lossy(),
+            t.as_secs_f64() * 1e3
+        );
+    }
+    println!(
+        "\nrender of each example design (analysis, tables, plots, HTML, Markdown, JSON; no disk)"
+    );
+    let mut names: Vec<_> =
+        std::fs::read_dir(format!("{root}/designs")).unwrap().map(|e| e.unwrap().path()).collect();
+    names.sort();
+    let tpl = template::TemplateSource {
+        name: template::BUILT_IN_NAME.into(),
+        text: template::BUILT_IN.into(),
+    };
+    for path in names {
+        let text = std::fs::read_to_string(&path).unwrap();
+        let d = design::load(&text).design.expect("valid design");
+        let inputs = Inputs {
+            design_name: "d.yaml",
+            design_text: &text,
+            template: &tpl,
+            built_in_template: true,
+        };
+        let all = Formats { html: true, markdown: true, json: true };
+        let (t, runs) = median(
+            || {
+                let a = analysis::analyze(&d).unwrap();
+                drop(black_box(report::render(&d, &a, &inputs, all).unwrap()))
+            },
+            Duration::from_secs(2),
+            500,
         );
         println!(
             "  {:<28} {:>10.3} ms  ({runs} runs)",

@@ -232,3 +232,25 @@ fn the_explanation_follows_the_circuit() {
     );
     assert!(text.contains("set mainly by **CL**"), "{text}");
 }
+
+#[test]
+fn a_template_error_names_the_place_and_writes_nothing() {
+    let dir = scratch("template-error");
+    std::fs::write(dir.join("mine.md"), "# {{ design.title }}\n\n{{ table(name=\"octcc\") }}\n")
+        .unwrap();
+    let design = root().join("designs/rx-preamp-ce.yaml");
+    let o = run_in(
+        &dir,
+        &["render", design.to_str().unwrap(), "--template", "mine.md", "--out", "out"],
+    );
+    let stderr = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(2), "{stderr}");
+    assert!(stderr.contains("mine.md:3:4"), "{stderr}");
+    assert!(stderr.contains("there is no table `octcc`") && stderr.contains("octc"), "{stderr}");
+    assert!(stderr.contains("help:") && stderr.contains("nothing was written"), "{stderr}");
+    assert!(!dir.join("out").exists());
+    // `template show` prints the built-in template, which renders.
+    let shown = run_in(&dir, &["template", "show"]);
+    assert!(shown.status.success());
+    assert_eq!(String::from_utf8_lossy(&shown.stdout), tauweave::report::template::BUILT_IN);
+}
