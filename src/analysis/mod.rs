@@ -12,6 +12,7 @@ pub mod poles;
 pub mod requirements;
 pub mod response;
 pub mod time_constants;
+pub mod tolerance;
 
 use std::collections::BTreeMap;
 use std::f64::consts::PI;
@@ -330,71 +331,18 @@ pub fn analyze_network(lin: &LinearNetwork, design: &Design) -> Result<Analysis,
     // Mid-band gain and port resistances.
     let x = g.solve(&mid.b);
     let gain: f64 = x.iter().zip(&mid.out).map(|(a, b)| a * b).sum();
-    let v = |node: usize| Mna::row(node).map_or(0.0, |r| x[r]);
-    let (sp, rs) = lin.source_terminal;
-    let (emf, ret) = lin.source;
-    let i_in = (v(emf) - v(sp)) / rs;
-    let v_in = v(sp) - v(ret);
-    let input_resistance = (i_in.abs() > 0.0).then(|| v_in / i_in).filter(|r| r.is_finite());
-    let unloaded =
-        mna::assemble(lin, state_mid, Assembly { without_load: true, ..Assembly::default() });
-    let output_resistance = Factor::new(&unloaded.g).ok().and_then(|f| {
-        let mut inject = vec![0.0; unloaded.size()];
-        let (op, on) = lin.output;
-        if let Some(r) = Mna::row(op) {
-            inject[r] += 1.0;
-        }
-        if let Some(r) = Mna::row(on) {
-            inject[r] -= 1.0;
-        }
-        let y = f.solve(&inject);
-        let r: f64 = y.iter().zip(&unloaded.out).map(|(a, b)| a * b).sum();
-        r.is_finite().then_some(r)
-    });
-
-    // Capacitor classification and references. Low capacitors in parallel (after the
-    // supplies are taken as ground) act as one; one across a supply does nothing at all.
-    let mut capacitors = Vec::new();
-    let mut high_caps = Vec::new();
-    let mut low_caps: Vec<CapRef> = Vec::new();
-    let mut low_keys: Vec<(usize, usize)> = Vec::new();
-    let mut rails = mna::Wires::new(lin.nodes.len());
-    for el in &lin.elements {
-        if let Linear::Grounded { node } = el {
-            rails.join(*node, 0);
-        }
-    }
-    let mut inert = Vec::new();
-    for (i, el) in lin.elements.iter().enumerate() {
-        if let Linear::Capacitor { name, a, b, c, set, reason } = el {
-            capacitors.push(CapacitorClass {
-                part: name.clone(),
-                c_f: *c,
-                set: *set,
-                reason: *reason,
-            });
-            let r = CapRef { name: name.clone(), c: *c, a: *a, b: *b, branch: mid.branch[i] };
-            match set {
-                CapSet::High => high_caps.push(r),
-                CapSet::Low => {
-                    let (ka, kb) = (rails.find(*a), rails.find(*b));
-                    let key = (ka.min(kb), ka.max(kb));
-                    if ka == kb {
-                        inert.push(name.clone());
-                    } else if let Some(k) = low_keys.iter().position(|x| *x == key) {
-                        let group = &mut low_caps[k];
-                        group.name = format!("{} ∥ {}", group.name, r.name);
-                        group.c += r.c;
-                        group.branch = group.branch.or(r.branch);
-                    } else {
-                        low_keys.push(key);
-                        low_caps.push(r);
-                    }
-                }
+    let (input_resistance, output_resistance) = port_resistances(lin, &mid, &x, state_mid);
+    let capacitors: Vec<CapacitorClass> = lin
+        .elements
+        .iter()
+        .filter_map(|el| match el {
+            Linear::Capacitor { name, c, set, reason, .. } => {
+                Some(CapacitorClass { part: name.clone(), c_f: *c, set: *set, reason: *reason })
             }
-        }
-    }
-    let low_caps: Vec<CapRef> = low_caps.into_iter().filter(|c| c.branch.is_some()).collect();
+            _ => None,
+        })
+        .collect();
+    let (high_caps, low_caps) = cap_refs(lin, &mid);
     let octc = time_constants::open_circuit(&mid, &g, &high_caps);
     let (sctc_caps, inverse_tau_sum) = time_constants::short_circuit(&mid, &g, &low_caps);
     let f_high_est = (octc.b1 > 0.0).then(|| 1.0 / (2.0 * PI * octc.b1));
@@ -427,44 +375,22 @@ pub fn analyze_network(lin: &LinearNetwork, design: &Design) -> Result<Analysis,
 
     // Mid-band frequency from the estimates.
     let settings = &design.analysis;
-    let frequency_hz = match (f_low_est, f_high_est) {
-        (Some(l), Some(h)) => (l * h).sqrt(),
-        (None, Some(h)) => h / 100.0,
-        (Some(l), None) => l * 100.0,
-        (None, None) => (settings.sweep_start_hz * settings.sweep_stop_hz).sqrt(),
-    };
+    let frequency_hz = midband_frequency(f_low_est, f_high_est, settings);
 
     // Exact response and cut-offs.
     let frequencies =
         response::grid(settings.sweep_start_hz, settings.sweep_stop_hz, settings.points_per_decade);
     let transfer = response::Transfer::new(&full);
     let sweep = response::sweep(&transfer, &frequencies);
-    let level = gain.abs() / std::f64::consts::SQRT_2;
-    let start = match transfer.at(frequency_hz) {
-        Some(h) if h.norm() >= level => frequency_hz,
-        _ => sweep
-            .iter()
-            .max_by(|a, b| a.magnitude_db.total_cmp(&b.magnitude_db))
-            .map_or(frequency_hz, |p| p.frequency_hz),
-    };
-    let per_decade = settings.points_per_decade.max(20);
-    let f_high = if high_caps.is_empty() && high_poles.is_empty() {
-        None
-    } else {
-        response::crossing(&transfer, start, level, true, per_decade, settings.sweep_stop_hz * 1e3)
-    };
-    let f_low = if low_caps.is_empty() {
-        None
-    } else {
-        response::crossing(
-            &transfer,
-            start,
-            level,
-            false,
-            per_decade,
-            settings.sweep_start_hz / 1e3,
-        )
-    };
+    let has_inductors = lin.elements.iter().any(|e| matches!(e, Linear::Inductor { .. }));
+    let (f_high, f_low) = exact_cutoffs(
+        &transfer,
+        gain,
+        frequency_hz,
+        settings,
+        !high_caps.is_empty() || has_inductors,
+        !low_caps.is_empty(),
+    );
     let peaking = peaking(&sweep, gain.abs());
 
     // Estimates.
@@ -539,6 +465,218 @@ pub fn analyze_network(lin: &LinearNetwork, design: &Design) -> Result<Analysis,
         zeros: hz(&zeros),
         sweep,
     })
+}
+
+/// The exact −3 dB points: searched outward from mid-band (or, when |H| is already below
+/// the level there, from the sweep's highest point) and refined by Brent's method.
+fn exact_cutoffs(
+    transfer: &response::Transfer,
+    gain: f64,
+    frequency_hz: f64,
+    settings: &crate::design::AnalysisSettings,
+    has_high: bool,
+    has_low: bool,
+) -> (Option<f64>, Option<f64>) {
+    let level = gain.abs() / std::f64::consts::SQRT_2;
+    let start = match transfer.at(frequency_hz) {
+        Some(h) if h.norm() >= level => frequency_hz,
+        _ => response::grid(
+            settings.sweep_start_hz,
+            settings.sweep_stop_hz,
+            settings.points_per_decade,
+        )
+        .into_iter()
+        .filter_map(|f| transfer.at(f).map(|h| (f, h.norm())))
+        .max_by(|a, b| a.1.total_cmp(&b.1))
+        .map_or(frequency_hz, |p| p.0),
+    };
+    let per_decade = settings.points_per_decade.max(20);
+    let f_high = has_high
+        .then(|| {
+            response::crossing(
+                transfer,
+                start,
+                level,
+                true,
+                per_decade,
+                settings.sweep_stop_hz * 1e3,
+            )
+        })
+        .flatten();
+    let f_low = has_low
+        .then(|| {
+            response::crossing(
+                transfer,
+                start,
+                level,
+                false,
+                per_decade,
+                settings.sweep_start_hz / 1e3,
+            )
+        })
+        .flatten();
+    (f_high, f_low)
+}
+
+/// The figures tolerance analysis follows, from one evaluation of a design.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Metrics {
+    /// |mid-band gain|, V/V.
+    pub gain: f64,
+    /// Exact upper −3 dB frequency, Hz.
+    pub f_high: Option<f64>,
+    /// Exact lower −3 dB frequency, Hz.
+    pub f_low: Option<f64>,
+    /// Input resistance, Ω.
+    pub r_in: Option<f64>,
+    /// Output resistance, Ω.
+    pub r_out: Option<f64>,
+    /// |I_C| or |I_D| of each transistor, A.
+    pub bias: Vec<f64>,
+}
+
+/// A lean evaluation for tolerance work: operating point, mid-band, time-constant
+/// estimates and the exact cut-offs — the same numbers [`analyze`] gives, without the
+/// sweep and the eigenvalues.
+pub fn metrics(design: &Design) -> Result<Metrics, AnalysisError> {
+    faer::set_global_parallelism(faer::Par::Seq);
+    let net = Netlist::from_design(design);
+    let op = if net.has_devices() {
+        Some(operating_point::solve(&net).map_err(|e| AnalysisError {
+            message: e.message,
+            help: "the bias does not settle at these values".into(),
+            place: None,
+        })?)
+    } else {
+        None
+    };
+    let bias = op
+        .as_ref()
+        .map(|o| {
+            o.devices
+                .iter()
+                .map(|d| match &d.state {
+                    crate::circuit::operating_point::DeviceState::Bjt { ic_a, .. } => ic_a.abs(),
+                    crate::circuit::operating_point::DeviceState::Mosfet { id_a, .. } => id_a.abs(),
+                })
+                .collect()
+        })
+        .unwrap_or_default();
+    let (lin, _) = small_signal::linearize(&net, op.as_ref());
+    let state_mid = |i| match cap_set(&lin, i) {
+        Some(CapSet::Low) => CapState::Short,
+        Some(CapSet::High) => CapState::Open,
+        None => CapState::Present,
+    };
+    let mid = mna::assemble(&lin, state_mid, Assembly::default());
+    let g = Factor::new(&mid.g).map_err(|s| singular(&lin, &mid, s.unknown, "mid-band"))?;
+    let x = g.solve(&mid.b);
+    let gain: f64 = x.iter().zip(&mid.out).map(|(a, b)| a * b).sum();
+    let (r_in, r_out) = port_resistances(&lin, &mid, &x, state_mid);
+    let (high_caps, low_caps) = cap_refs(&lin, &mid);
+    let octc = time_constants::open_circuit(&mid, &g, &high_caps);
+    let (_, inverse_tau_sum) = time_constants::short_circuit(&mid, &g, &low_caps);
+    let f_high_est = (octc.b1 > 0.0).then(|| 1.0 / (2.0 * PI * octc.b1));
+    let f_low_est = (inverse_tau_sum > 0.0).then(|| inverse_tau_sum / (2.0 * PI));
+    let settings = &design.analysis;
+    let frequency_hz = midband_frequency(f_low_est, f_high_est, settings);
+    let full = mna::assemble(&lin, |_| CapState::Present, Assembly::default());
+    let transfer = response::Transfer::new(&full);
+    let has_inductors = lin.elements.iter().any(|e| matches!(e, Linear::Inductor { .. }));
+    let (f_high, f_low) = exact_cutoffs(
+        &transfer,
+        gain,
+        frequency_hz,
+        settings,
+        !high_caps.is_empty() || has_inductors,
+        !low_caps.is_empty(),
+    );
+    Ok(Metrics { gain: gain.abs(), f_high, f_low, r_in, r_out, bias })
+}
+
+/// R_in (source resistance excluded) and R_out (load excluded) of the mid-band network,
+/// given its solution `x` for a unit source EMF.
+fn port_resistances(
+    lin: &LinearNetwork,
+    mid: &Mna,
+    x: &[f64],
+    state_mid: impl Fn(usize) -> CapState,
+) -> (Option<f64>, Option<f64>) {
+    let v = |node: usize| Mna::row(node).map_or(0.0, |r| x[r]);
+    let (sp, rs) = lin.source_terminal;
+    let (emf, ret) = lin.source;
+    let i_in = (v(emf) - v(sp)) / rs;
+    let v_in = v(sp) - v(ret);
+    let input = (i_in.abs() > 0.0).then(|| v_in / i_in).filter(|r| r.is_finite());
+    let _ = mid;
+    let unloaded =
+        mna::assemble(lin, state_mid, Assembly { without_load: true, ..Assembly::default() });
+    let output = Factor::new(&unloaded.g).ok().and_then(|f| {
+        let mut inject = vec![0.0; unloaded.size()];
+        let (op, on) = lin.output;
+        if let Some(r) = Mna::row(op) {
+            inject[r] += 1.0;
+        }
+        if let Some(r) = Mna::row(on) {
+            inject[r] -= 1.0;
+        }
+        let y = f.solve(&inject);
+        let r: f64 = y.iter().zip(&unloaded.out).map(|(a, b)| a * b).sum();
+        r.is_finite().then_some(r)
+    });
+    (input, output)
+}
+
+/// The high and low capacitors as time-constant references. Low capacitors in parallel
+/// (supplies taken as ground) act as one; one across a supply does nothing and is left out.
+fn cap_refs(lin: &LinearNetwork, mid: &Mna) -> (Vec<CapRef>, Vec<CapRef>) {
+    let mut high_caps = Vec::new();
+    let mut low_caps: Vec<CapRef> = Vec::new();
+    let mut low_keys: Vec<(usize, usize)> = Vec::new();
+    let mut rails = mna::Wires::new(lin.nodes.len());
+    for el in &lin.elements {
+        if let Linear::Grounded { node } = el {
+            rails.join(*node, 0);
+        }
+    }
+    for (i, el) in lin.elements.iter().enumerate() {
+        if let Linear::Capacitor { name, a, b, c, set, .. } = el {
+            let r = CapRef { name: name.clone(), c: *c, a: *a, b: *b, branch: mid.branch[i] };
+            match set {
+                CapSet::High => high_caps.push(r),
+                CapSet::Low => {
+                    let (ka, kb) = (rails.find(*a), rails.find(*b));
+                    let key = (ka.min(kb), ka.max(kb));
+                    if ka == kb {
+                        continue;
+                    }
+                    if let Some(k) = low_keys.iter().position(|x| *x == key) {
+                        let group = &mut low_caps[k];
+                        group.name = format!("{} ∥ {}", group.name, r.name);
+                        group.c += r.c;
+                        group.branch = group.branch.or(r.branch);
+                    } else {
+                        low_keys.push(key);
+                        low_caps.push(r);
+                    }
+                }
+            }
+        }
+    }
+    (high_caps, low_caps.into_iter().filter(|c| c.branch.is_some()).collect())
+}
+
+fn midband_frequency(
+    low: Option<f64>,
+    high: Option<f64>,
+    settings: &crate::design::AnalysisSettings,
+) -> f64 {
+    match (low, high) {
+        (Some(l), Some(h)) => (l * h).sqrt(),
+        (None, Some(h)) => h / 100.0,
+        (Some(l), None) => l * 100.0,
+        (None, None) => (settings.sweep_start_hz * settings.sweep_stop_hz).sqrt(),
+    }
 }
 
 /// Peaking: |H| above |H_mid| by more than 0.01 dB anywhere on the sweep.

@@ -28,6 +28,29 @@ pub struct RequirementCheck {
     /// Relative distance to the nearer limit, positive inside: (value − min)/min or
     /// (max − value)/max.
     pub margin: Option<f64>,
+    /// The value at the tolerance corner that pushes it toward the limit, when a study ran:
+    /// the low corner for a minimum, the high corner for a maximum (the worse of the two
+    /// when both limits are set).
+    pub corner: Option<f64>,
+    /// True when the corner value is within the limits.
+    pub corner_pass: Option<bool>,
+    /// Monte Carlo yield of this requirement.
+    pub yield_fraction: Option<f64>,
+}
+
+/// Adds the worst-case corners and Monte Carlo yields of a tolerance study.
+pub fn with_study(checks: &mut [RequirementCheck], study: &crate::analysis::tolerance::Study) {
+    for c in checks.iter_mut() {
+        let Some(w) = study.worst_case.iter().find(|w| w.figure == c.name) else { continue };
+        let inside = |v: f64| c.min.is_none_or(|lo| v >= lo) && c.max.is_none_or(|hi| v <= hi);
+        let candidates: Vec<f64> =
+            [c.min.and(w.low_corner), c.max.and(w.high_corner)].into_iter().flatten().collect();
+        c.corner = candidates.iter().copied().find(|v| !inside(*v)).or(candidates.first().copied());
+        c.corner_pass = c.corner.map(inside);
+        if let Some(mc) = &study.monte_carlo {
+            c.yield_fraction = mc.yields.iter().find(|(n, _)| n == c.name).map(|(_, y)| *y);
+        }
+    }
 }
 
 /// Checks every requirement against the nominal analysis.
@@ -59,6 +82,9 @@ pub fn check(req: &Requirements, a: &Analysis) -> Vec<RequirementCheck> {
                 value,
                 pass: value.is_some() && margin.is_some_and(|m| m >= 0.0),
                 margin,
+                corner: None,
+                corner_pass: None,
+                yield_fraction: None,
             })
         })
         .collect()

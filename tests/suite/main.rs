@@ -10,3 +10,4 @@ mod reference;
 mod report;
 mod schema;
 mod support;
+mod tolerance;

@@ -1,0 +1,600 @@
+//! What production spread does to a design: normalised sensitivities, the worst case, and
+//! Monte Carlo.
+//!
+//! A *lever* is anything a tolerance can move: every part value, the source resistance,
+//! every model parameter, each supply, the temperature. Sensitivities are
+//! S = ∂ln y/∂ln x (Bode, 1945) by central differences with the operating point re-solved
+//! at each step; the worst case is the linearised bound Σ|S_i|t_i beside the corner chosen
+//! by the signs of S and evaluated in full; Monte Carlo draws every toleranced lever from
+//! its distribution with one ChaCha8 stream per run, evaluates runs in parallel, collects
+//! them in order and reduces them sequentially — bit-identical on any thread count.
+
+use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use rayon::prelude::*;
+use serde::Serialize;
+
+use crate::analysis::{Metrics, metrics};
+use crate::design::{Design, Requirements};
+use crate::design::{DeviceModel, Distribution, PartKind, Tolerance, TransitSpec};
+
+/// What kind of quantity a lever is (for the scaling identities).
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum LeverClass {
+    /// A resistance (parts, source, base resistance).
+    Resistance,
+    /// A capacitance, or a parameter that scales one (transit time, junction or oxide
+    /// capacitance).
+    Capacitance,
+    /// A parameter that scales like 1/C (a transition frequency).
+    InverseCapacitance,
+    /// An inductance.
+    Inductance,
+    /// A transconductance part.
+    Transconductance,
+    /// Anything else (gains, currents, voltages, temperature).
+    Other,
+}
+
+/// Where a lever acts.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum Target {
+    Part(usize),
+    SourceResistance,
+    Supply(usize),
+    Temperature,
+    Model(usize, &'static str),
+}
+
+/// A quantity tolerance analysis can move.
+#[derive(Clone, Debug, Serialize)]
+pub struct Lever {
+    /// `R1`, `signal.resistance`, `vcc`, `temperature`, `RFN1.beta`.
+    pub name: String,
+    /// Nominal value, SI units.
+    pub nominal: f64,
+    /// Its tolerance, when it has one.
+    pub tolerance: Option<Tolerance>,
+    /// Its kind.
+    pub class: LeverClass,
+    #[serde(skip)]
+    target: Target,
+}
+
+fn slot<'d>(design: &'d mut Design, target: Target) -> Option<&'d mut f64> {
+    match target {
+        Target::Part(i) => match &mut design.parts[i].kind {
+            PartKind::Resistor { value, .. }
+            | PartKind::Capacitor { value, .. }
+            | PartKind::Inductor { value, .. }
+            | PartKind::Transconductance { value, .. }
+            | PartKind::VoltageAmplifier { value, .. } => Some(&mut value.nominal),
+            _ => None,
+        },
+        Target::SourceResistance => Some(&mut design.signal.resistance.nominal),
+        Target::Supply(i) => Some(&mut design.supplies[i].voltage.nominal),
+        Target::Temperature => Some(&mut design.temperature_k),
+        Target::Model(i, key) => match &mut design.models[i].device {
+            DeviceModel::Bipolar(b) => match key {
+                "beta" => Some(&mut b.beta.nominal),
+                "saturation_current" => Some(&mut b.saturation_current.nominal),
+                "early_voltage" => b.early_voltage.as_mut().map(|v| &mut v.nominal),
+                "base_resistance" => Some(&mut b.base_resistance.nominal),
+                "transit_time" => match &mut b.transit {
+                    Some(TransitSpec::TransitTime(t)) => Some(&mut t.nominal),
+                    _ => None,
+                },
+                "transition_frequency" => match &mut b.transit {
+                    Some(TransitSpec::TransitionFrequency { frequency, .. }) => {
+                        Some(&mut frequency.nominal)
+                    }
+                    _ => None,
+                },
+                "emitter_junction" => {
+                    b.emitter_junction.as_mut().map(|j| &mut j.capacitance.nominal)
+                }
+                "collector_junction" => {
+                    b.collector_junction.as_mut().map(|j| &mut j.capacitance.nominal)
+                }
+                _ => None,
+            },
+            DeviceModel::Mos(m) => match key {
+                "process_transconductance" => Some(&mut m.process_transconductance.nominal),
+                "threshold" => Some(&mut m.threshold.nominal),
+                "channel_length_modulation" => Some(&mut m.channel_length_modulation.nominal),
+                "oxide_capacitance" => m.oxide_capacitance.as_mut().map(|c| &mut c.nominal),
+                "overlap_capacitance" => m.overlap_capacitance.as_mut().map(|c| &mut c.nominal),
+                "gate_source_capacitance" => {
+                    m.gate_source_capacitance.as_mut().map(|c| &mut c.nominal)
+                }
+                "gate_drain_capacitance" => {
+                    m.gate_drain_capacitance.as_mut().map(|c| &mut c.nominal)
+                }
+                "drain_body_capacitance" => {
+                    m.drain_body_capacitance.as_mut().map(|c| &mut c.nominal)
+                }
+                _ => None,
+            },
+        },
+    }
+}
+
+/// Every lever of a design, in a fixed order: parts, source, supplies, temperature, model
+/// parameters. Levers whose nominal is zero (nothing to scale) are left out.
+pub fn levers(design: &Design) -> Vec<Lever> {
+    let mut out = Vec::new();
+    for (i, p) in design.parts.iter().enumerate() {
+        let (value, class) = match &p.kind {
+            PartKind::Resistor { value, .. } => (value, LeverClass::Resistance),
+            PartKind::Capacitor { value, .. } => (value, LeverClass::Capacitance),
+            PartKind::Inductor { value, .. } => (value, LeverClass::Inductance),
+            PartKind::Transconductance { value, .. } => (value, LeverClass::Transconductance),
+            PartKind::VoltageAmplifier { value, .. } => (value, LeverClass::Other),
+            _ => continue,
+        };
+        out.push(Lever {
+            name: p.name.clone(),
+            nominal: value.nominal,
+            tolerance: value.tolerance,
+            class,
+            target: Target::Part(i),
+        });
+    }
+    let r = &design.signal.resistance;
+    out.push(Lever {
+        name: "signal.resistance".into(),
+        nominal: r.nominal,
+        tolerance: r.tolerance,
+        class: LeverClass::Resistance,
+        target: Target::SourceResistance,
+    });
+    for (i, s) in design.supplies.iter().enumerate() {
+        out.push(Lever {
+            name: s.node.clone(),
+            nominal: s.voltage.nominal,
+            tolerance: s.voltage.tolerance,
+            class: LeverClass::Other,
+            target: Target::Supply(i),
+        });
+    }
+    out.push(Lever {
+        name: "temperature".into(),
+        nominal: design.temperature_k,
+        tolerance: None,
+        class: LeverClass::Other,
+        target: Target::Temperature,
+    });
+    for (i, m) in design.models.iter().enumerate() {
+        let mut add =
+            |key: &'static str, t: Option<&crate::design::Toleranced>, class: LeverClass| {
+                if let Some(t) = t {
+                    if t.nominal != 0.0 {
+                        out.push(Lever {
+                            name: format!("{}.{key}", m.name),
+                            nominal: t.nominal,
+                            tolerance: t.tolerance,
+                            class,
+                            target: Target::Model(i, key),
+                        });
+                    }
+                }
+            };
+        match &m.device {
+            DeviceModel::Bipolar(b) => {
+                add("beta", Some(&b.beta), LeverClass::Other);
+                add("saturation_current", Some(&b.saturation_current), LeverClass::Other);
+                add("early_voltage", b.early_voltage.as_ref(), LeverClass::Other);
+                add("base_resistance", Some(&b.base_resistance), LeverClass::Resistance);
+                match &b.transit {
+                    Some(TransitSpec::TransitTime(t)) => {
+                        add("transit_time", Some(t), LeverClass::Capacitance)
+                    }
+                    Some(TransitSpec::TransitionFrequency { frequency, .. }) => {
+                        add("transition_frequency", Some(frequency), LeverClass::InverseCapacitance)
+                    }
+                    None => {}
+                }
+                add(
+                    "emitter_junction",
+                    b.emitter_junction.as_ref().map(|j| &j.capacitance),
+                    LeverClass::Capacitance,
+                );
+                add(
+                    "collector_junction",
+                    b.collector_junction.as_ref().map(|j| &j.capacitance),
+                    LeverClass::Capacitance,
+                );
+            }
+            DeviceModel::Mos(x) => {
+                add(
+                    "process_transconductance",
+                    Some(&x.process_transconductance),
+                    LeverClass::Other,
+                );
+                add("threshold", Some(&x.threshold), LeverClass::Other);
+                add(
+                    "channel_length_modulation",
+                    Some(&x.channel_length_modulation),
+                    LeverClass::Other,
+                );
+                add("oxide_capacitance", x.oxide_capacitance.as_ref(), LeverClass::Capacitance);
+                add("overlap_capacitance", x.overlap_capacitance.as_ref(), LeverClass::Capacitance);
+                add(
+                    "gate_source_capacitance",
+                    x.gate_source_capacitance.as_ref(),
+                    LeverClass::Capacitance,
+                );
+                add(
+                    "gate_drain_capacitance",
+                    x.gate_drain_capacitance.as_ref(),
+                    LeverClass::Capacitance,
+                );
+                add(
+                    "drain_body_capacitance",
+                    x.drain_body_capacitance.as_ref(),
+                    LeverClass::Capacitance,
+                );
+            }
+        }
+    }
+    out
+}
+
+/// A copy of `design` with each `(lever, factor)` applied multiplicatively.
+pub fn perturbed(design: &Design, levers: &[Lever], changes: &[(usize, f64)]) -> Design {
+    let mut d = design.clone();
+    for &(i, factor) in changes {
+        if let Some(v) = slot(&mut d, levers[i].target) {
+            *v *= factor;
+        }
+    }
+    d
+}
+
+/// A figure tolerance analysis follows.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Figure {
+    /// |mid-band gain|.
+    Gain,
+    /// Upper cut-off.
+    FHigh,
+    /// Lower cut-off.
+    FLow,
+    /// Input resistance.
+    RIn,
+    /// Output resistance.
+    ROut,
+    /// A device's bias current (index into the devices).
+    Bias(usize),
+}
+
+impl Figure {
+    /// The figure's value in `m`.
+    pub fn of(self, m: &Metrics) -> Option<f64> {
+        match self {
+            Figure::Gain => Some(m.gain),
+            Figure::FHigh => m.f_high,
+            Figure::FLow => m.f_low,
+            Figure::RIn => m.r_in,
+            Figure::ROut => m.r_out,
+            Figure::Bias(i) => m.bias.get(i).copied(),
+        }
+    }
+
+    /// Its name in results.json.
+    pub fn key(self, device_names: &[String]) -> String {
+        match self {
+            Figure::Gain => "midband_gain".into(),
+            Figure::FHigh => "upper_cutoff".into(),
+            Figure::FLow => "lower_cutoff".into(),
+            Figure::RIn => "input_resistance".into(),
+            Figure::ROut => "output_resistance".into(),
+            Figure::Bias(i) => {
+                format!("{}.bias_current", device_names.get(i).map_or("?", String::as_str))
+            }
+        }
+    }
+}
+
+/// The figures of a nominal evaluation that exist.
+pub fn figures(nominal: &Metrics) -> Vec<Figure> {
+    let mut out: Vec<Figure> =
+        [Figure::Gain, Figure::FHigh, Figure::FLow, Figure::RIn, Figure::ROut]
+            .into_iter()
+            .filter(|f| f.of(nominal).is_some_and(|v| v > 0.0))
+            .collect();
+    out.extend((0..nominal.bias.len()).map(Figure::Bias));
+    out
+}
+
+/// Relative step of the central differences: small enough that the O(h²) error is below
+/// 1e-7, large enough that the operating point's rounding does not show.
+pub const STEP: f64 = 1e-4;
+
+/// S = ∂ln y/∂ln x for every lever and figure: `s[lever][figure]`, None where a
+/// perturbed evaluation failed or the figure vanished.
+pub fn sensitivities(design: &Design, levers: &[Lever], figs: &[Figure]) -> Vec<Vec<Option<f64>>> {
+    (0..levers.len())
+        .into_par_iter()
+        .map(|i| {
+            let up = metrics(&perturbed(design, levers, &[(i, 1.0 + STEP)])).ok();
+            let down = metrics(&perturbed(design, levers, &[(i, 1.0 - STEP)])).ok();
+            figs.iter()
+                .map(|f| {
+                    let (a, b) =
+                        (up.as_ref().and_then(|m| f.of(m))?, down.as_ref().and_then(|m| f.of(m))?);
+                    (a > 0.0 && b > 0.0)
+                        .then(|| (a.ln() - b.ln()) / ((1.0 + STEP).ln() - (1.0 - STEP).ln()))
+                })
+                .collect()
+        })
+        .collect()
+}
+
+/// The worst case of one figure.
+#[derive(Clone, Debug, Serialize)]
+pub struct WorstCase {
+    /// The figure (`upper_cutoff`, …).
+    pub figure: String,
+    /// Nominal value.
+    pub nominal: f64,
+    /// Linearised bound Σ|S_i|·t_i, relative.
+    pub linear_bound: f64,
+    /// Value at the corner that raises it, evaluated in full.
+    pub high_corner: Option<f64>,
+    /// Value at the corner that lowers it.
+    pub low_corner: Option<f64>,
+}
+
+/// The worst case of each figure over the toleranced levers.
+pub fn worst_case(
+    design: &Design,
+    levers: &[Lever],
+    figs: &[Figure],
+    s: &[Vec<Option<f64>>],
+    nominal: &Metrics,
+    names: &[String],
+) -> Vec<WorstCase> {
+    figs.iter()
+        .enumerate()
+        .filter_map(|(k, f)| {
+            let y0 = f.of(nominal)?;
+            let mut bound = 0.0;
+            let mut up = Vec::new();
+            let mut down = Vec::new();
+            for (i, l) in levers.iter().enumerate() {
+                let (Some(t), Some(sens)) = (l.tolerance, s[i][k]) else { continue };
+                bound += sens.abs() * t.fraction;
+                let sign = if sens >= 0.0 { 1.0 } else { -1.0 };
+                up.push((i, 1.0 + sign * t.fraction));
+                down.push((i, 1.0 - sign * t.fraction));
+            }
+            let eval = |c: &[(usize, f64)]| {
+                metrics(&perturbed(design, levers, c)).ok().and_then(|m| f.of(&m))
+            };
+            Some(WorstCase {
+                figure: f.key(names),
+                nominal: y0,
+                linear_bound: bound,
+                high_corner: eval(&up),
+                low_corner: eval(&down),
+            })
+        })
+        .collect()
+}
+
+/// One Monte Carlo run's factors: each toleranced lever drawn from its distribution, from
+/// the run's own ChaCha8 stream (so run k is the same on any machine and thread count).
+pub fn draw(levers: &[Lever], seed: u64, run: u64) -> Vec<(usize, f64)> {
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    rng.set_stream(run);
+    let mut out = Vec::new();
+    for (i, l) in levers.iter().enumerate() {
+        let Some(t) = l.tolerance else { continue };
+        let u: f64 = rng.random();
+        let factor = match t.distribution {
+            Distribution::Uniform => 1.0 + t.fraction * (2.0 * u - 1.0),
+            Distribution::Gaussian => {
+                // Box–Muller with σ = t/3 (the tolerance is the 3σ point).
+                let v: f64 = rng.random();
+                let z = (-2.0 * (1.0 - u).ln()).sqrt() * (2.0 * std::f64::consts::PI * v).cos();
+                1.0 + t.fraction / 3.0 * z
+            }
+        };
+        out.push((i, factor));
+    }
+    out
+}
+
+/// Percentiles of one figure over the converged runs.
+#[derive(Clone, Debug, Serialize)]
+pub struct Spread {
+    /// The figure.
+    pub figure: String,
+    /// Mean.
+    pub mean: f64,
+    /// Standard deviation (n − 1).
+    pub std_dev: f64,
+    /// 1st, 5th, 50th, 95th and 99th percentiles (linear between order statistics).
+    pub percentiles: [f64; 5],
+    /// Runs in which the figure existed.
+    pub count: usize,
+}
+
+/// Monte Carlo results.
+#[derive(Clone, Debug, Serialize)]
+pub struct MonteCarlo {
+    /// Runs asked for.
+    pub runs: u32,
+    /// The seed.
+    pub seed: u64,
+    /// Runs whose evaluation failed (bias did not converge, …), by index.
+    pub failed_runs: Vec<u64>,
+    /// Spread of each figure.
+    pub spreads: Vec<Spread>,
+    /// Per-requirement yield (name, fraction of all runs that pass).
+    pub yields: Vec<(String, f64)>,
+    /// Fraction of all runs that pass every requirement.
+    pub yield_all: Option<f64>,
+    /// Each run's figures (None for a failed run), for histograms.
+    #[serde(skip)]
+    pub samples: Vec<Option<Metrics>>,
+}
+
+/// Linear-interpolation percentile of sorted data (as numpy's default).
+pub fn percentile(sorted: &[f64], p: f64) -> f64 {
+    if sorted.is_empty() {
+        return f64::NAN;
+    }
+    let x = p / 100.0 * (sorted.len() - 1) as f64;
+    let (lo, hi) = (x.floor() as usize, x.ceil() as usize);
+    sorted[lo] + (sorted[hi] - sorted[lo]) * (x - lo as f64)
+}
+
+/// Runs `runs` Monte Carlo evaluations; `progress` is called with the count done.
+pub fn monte_carlo(
+    design: &Design,
+    levers: &[Lever],
+    figs: &[Figure],
+    names: &[String],
+    runs: u32,
+    seed: u64,
+    requirements: &Requirements,
+    progress: &(dyn Fn(u64) + Sync),
+) -> MonteCarlo {
+    let done = std::sync::atomic::AtomicU64::new(0);
+    let samples: Vec<Option<Metrics>> = (0..runs as u64)
+        .into_par_iter()
+        .map(|k| {
+            let m = metrics(&perturbed(design, levers, &draw(levers, seed, k))).ok();
+            let n = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
+            if n % 64 == 0 {
+                progress(n);
+            }
+            m
+        })
+        .collect();
+    let failed_runs: Vec<u64> =
+        samples.iter().enumerate().filter(|(_, m)| m.is_none()).map(|(k, _)| k as u64).collect();
+    let spreads = figs
+        .iter()
+        .filter_map(|f| {
+            let mut v: Vec<f64> = samples.iter().flatten().filter_map(|m| f.of(m)).collect();
+            if v.len() < 2 {
+                return None;
+            }
+            let n = v.len() as f64;
+            let mean = v.iter().sum::<f64>() / n;
+            let var = v.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1.0);
+            v.sort_by(f64::total_cmp);
+            Some(Spread {
+                figure: f.key(names),
+                mean,
+                std_dev: var.sqrt(),
+                percentiles: [1.0, 5.0, 50.0, 95.0, 99.0].map(|p| percentile(&v, p)),
+                count: v.len(),
+            })
+        })
+        .collect();
+    let checks: Vec<(&str, Option<crate::design::Limits>, Figure)> = vec![
+        ("midband_gain", requirements.midband_gain, Figure::Gain),
+        ("upper_cutoff", requirements.upper_cutoff, Figure::FHigh),
+        ("lower_cutoff", requirements.lower_cutoff, Figure::FLow),
+        ("input_resistance", requirements.input_resistance, Figure::RIn),
+        ("output_resistance", requirements.output_resistance, Figure::ROut),
+    ];
+    let within = |l: &crate::design::Limits, v: Option<f64>| {
+        v.is_some_and(|v| l.min.is_none_or(|lo| v >= lo) && l.max.is_none_or(|hi| v <= hi))
+    };
+    let total = samples.len().max(1) as f64;
+    let mut yields = Vec::new();
+    let mut any = false;
+    for (name, limits, fig) in &checks {
+        if let Some(l) = limits {
+            any = true;
+            let pass =
+                samples.iter().filter(|m| m.as_ref().is_some_and(|m| within(l, fig.of(m)))).count();
+            yields.push((name.to_string(), pass as f64 / total));
+        }
+    }
+    let yield_all = any.then(|| {
+        samples
+            .iter()
+            .filter(|m| {
+                m.as_ref().is_some_and(|m| {
+                    checks.iter().all(|(_, l, fig)| l.as_ref().is_none_or(|l| within(l, fig.of(m))))
+                })
+            })
+            .count() as f64
+            / total
+    });
+    MonteCarlo { runs, seed, failed_runs, spreads, yields, yield_all, samples }
+}
+
+/// A lever's sensitivities.
+#[derive(Clone, Debug, Serialize)]
+pub struct LeverSensitivity {
+    /// The lever.
+    #[serde(flatten)]
+    pub lever: Lever,
+    /// S of each figure (in the order of `Study::figures`), null where undefined.
+    pub s: Vec<Option<f64>>,
+}
+
+/// The whole tolerance study of a design.
+#[derive(Clone, Debug, Serialize)]
+pub struct Study {
+    /// Relative step of the central differences.
+    pub step: f64,
+    /// The figures, by results.json name.
+    pub figures: Vec<String>,
+    /// Every lever with its sensitivities.
+    pub levers: Vec<LeverSensitivity>,
+    /// The worst case of each figure.
+    pub worst_case: Vec<WorstCase>,
+    /// Monte Carlo, when runs > 0.
+    pub monte_carlo: Option<MonteCarlo>,
+}
+
+impl Study {
+    /// S of `lever` for the figure named `figure`.
+    pub fn s(&self, lever: usize, figure: &str) -> Option<f64> {
+        let k = self.figures.iter().position(|f| f == figure)?;
+        self.levers[lever].s[k]
+    }
+}
+
+/// Sensitivities, worst case and Monte Carlo of `design` around its nominal `metrics`.
+pub fn study(
+    design: &Design,
+    nominal: &Metrics,
+    device_names: &[String],
+    runs: u32,
+    progress: &(dyn Fn(u64) + Sync),
+) -> Study {
+    let all = levers(design);
+    let figs = figures(nominal);
+    let s = sensitivities(design, &all, &figs);
+    let worst = worst_case(design, &all, &figs, &s, nominal, device_names);
+    let mc = (runs > 0).then(|| {
+        monte_carlo(
+            design,
+            &all,
+            &figs,
+            device_names,
+            runs,
+            design.analysis.seed,
+            &design.requirements,
+            progress,
+        )
+    });
+    Study {
+        step: STEP,
+        figures: figs.iter().map(|f| f.key(device_names)).collect(),
+        levers: all.into_iter().zip(s).map(|(lever, s)| LeverSensitivity { lever, s }).collect(),
+        worst_case: worst,
+        monte_carlo: mc,
+    }
+}

@@ -1,0 +1,159 @@
+//! Sensitivities and Monte Carlo against outside values: a single-pole cut-off's
+//! sensitivity to R and C is −1 each (common practice); the frequency-scaling and
+//! impedance-scaling identities of METHODS §5 hold on every example; Monte Carlo of an RC
+//! low-pass reproduces the analytic mean and spread within the sampling error; and runs are
+//! bit-identical on one thread and two.
+
+use tauweave::analysis::tolerance::{self, LeverClass, Study};
+use tauweave::analysis::{self, metrics};
+use tauweave::design;
+
+use crate::support::{files, root};
+
+fn load(text: &str) -> design::Design {
+    let l = design::load(text);
+    l.design.unwrap_or_else(|| panic!("{:?}", l.diagnostics))
+}
+
+fn study_of(d: &design::Design, runs: u32) -> Study {
+    let m = metrics(d).unwrap();
+    let names: Vec<String> = (0..m.bias.len()).map(|i| format!("dev{i}")).collect();
+    tolerance::study(d, &m, &names, runs, &|_| {})
+}
+
+fn rc(r_tol: &str, c_tol: &str, runs: u32) -> String {
+    format!(
+        "tauweave: 1\ndesign: {{id: rc, title: RC low-pass, revision: A, date: 2026-11-30}}\n\
+         signal: {{at: a, resistance: 1}}\noutput: {{at: b}}\n\
+         analysis: {{monte_carlo: {{runs: {runs}, seed: 11}}, sweep: {{start: 1 kHz, stop: 1 GHz}}}}\nparts:\n\
+         \x20 R1: {{kind: resistor, value: 10k, between: [a, b], {r_tol}}}\n\
+         \x20 C1: {{kind: capacitor, value: 1 nF, between: [b, gnd], role: parasitic, {c_tol}}}\n"
+    )
+}
+
+#[test]
+fn single_pole_sensitivities_are_minus_one() {
+    // f = 1/(2π(R + R_s)C): S_R = −R/(R + R_s), S_C = −1 (common practice).
+    let d = load(&rc("tolerance: 1 %", "tolerance: 5 %", 0));
+    let s = study_of(&d, 0);
+    let lever = |n: &str| s.levers.iter().position(|l| l.lever.name == n).unwrap();
+    let sc = s.s(lever("C1"), "upper_cutoff").unwrap();
+    let sr = s.s(lever("R1"), "upper_cutoff").unwrap();
+    let srs = s.s(lever("signal.resistance"), "upper_cutoff").unwrap();
+    assert!((sc + 1.0).abs() < 1e-6, "S_C = {sc}");
+    assert!((sr + 1e4 / (1e4 + 1.0)).abs() < 1e-6, "S_R = {sr}");
+    assert!((sr + srs + 1.0).abs() < 1e-6, "S_R + S_Rs = {}", sr + srs);
+}
+
+#[test]
+fn scaling_identities_hold_on_every_example() {
+    // Frequency scaling (METHODS §5, derived): Σ over every capacitance (and inductance, which
+    // scales with it) of S^f = −1 for any cut-off (a transition frequency scales as 1/C and
+    // counts with the opposite sign).
+    // Impedance scaling, for linear networks: Σ S_R + Σ S_L − Σ S_C − Σ S_gm = 0.
+    let mut designs = files(&root().join("designs"), "yaml");
+    designs.extend(files(&root().join("tests/reference/designs"), "yaml"));
+    for path in designs {
+        let name = path.file_name().unwrap().to_string_lossy().to_string();
+        let d = load(&std::fs::read_to_string(&path).unwrap());
+        let s = study_of(&d, 0);
+        let linear = d.models.is_empty();
+        for fig in ["upper_cutoff", "lower_cutoff"] {
+            if !s.figures.iter().any(|f| f == fig) {
+                continue;
+            }
+            let sum = |class: LeverClass| -> f64 {
+                s.levers
+                    .iter()
+                    .enumerate()
+                    .filter(|(_, l)| l.lever.class == class)
+                    .filter_map(|(i, _)| s.s(i, fig))
+                    .sum()
+            };
+            let c = sum(LeverClass::Capacitance) + sum(LeverClass::Inductance)
+                - sum(LeverClass::InverseCapacitance);
+            assert!((c + 1.0).abs() < 2e-5, "{name} {fig}: Σ S_C = {c}");
+            if linear {
+                let z = sum(LeverClass::Resistance) + sum(LeverClass::Inductance)
+                    - sum(LeverClass::Capacitance)
+                    - sum(LeverClass::Transconductance);
+                assert!(z.abs() < 2e-5, "{name} {fig}: impedance scaling sum {z}");
+            }
+        }
+        if linear {
+            let g = |class: LeverClass| -> f64 {
+                s.levers
+                    .iter()
+                    .enumerate()
+                    .filter(|(_, l)| l.lever.class == class)
+                    .filter_map(|(i, _)| s.s(i, "midband_gain"))
+                    .sum()
+            };
+            let z = g(LeverClass::Resistance) + g(LeverClass::Inductance)
+                - g(LeverClass::Transconductance);
+            assert!(z.abs() < 2e-5, "{name} gain: impedance scaling sum {z}");
+        }
+    }
+}
+
+/// Mean and standard deviation of f = f0/(x·y) with x, y independent factors, from the
+/// moments E[1/x], E[1/x²].
+fn analytic(m1x: f64, m2x: f64, m1y: f64, m2y: f64, f0: f64) -> (f64, f64) {
+    let mean = f0 * m1x * m1y;
+    let second = f0 * f0 * m2x * m2y;
+    (mean, (second - mean * mean).sqrt())
+}
+
+#[test]
+fn monte_carlo_reproduces_the_analytic_spread_of_an_rc_cutoff() {
+    // f = 1/(2π R C) (the 1 Ω source is counted in f0 exactly). For a factor x uniform on
+    // [1 − t, 1 + t]: E[1/x] = ln((1+t)/(1−t))/(2t), E[1/x²] = 1/(1 − t²) (integrals of
+    // 1/x and 1/x²). For x gaussian with σ = t/3: E[1/x] ≈ 1 + σ² + 3σ⁴, E[1/x²] ≈ 1 + 3σ² + 15σ⁴
+    // (Taylor moments of a normal variable; σ ≤ 0.033 keeps the next terms below 1e-8).
+    let runs = 4000;
+    let f0 = 1.0 / (2.0 * std::f64::consts::PI * (1e4 + 1.0) * 1e-9);
+    for (dist, t) in [("uniform", 0.10f64), ("gaussian", 0.10f64)] {
+        let d = load(&rc(
+            &format!("tolerance: 10 %, distribution: {dist}"),
+            &format!("tolerance: 10 %, distribution: {dist}"),
+            runs,
+        ));
+        let s = study_of(&d, runs);
+        let mc = s.monte_carlo.as_ref().unwrap();
+        assert!(mc.failed_runs.is_empty());
+        let spread = mc.spreads.iter().find(|x| x.figure == "upper_cutoff").unwrap();
+        // The source resistance is exact and 1e-4 of R: fold it into the R factor's moments.
+        let (m1, m2) = if dist == "uniform" {
+            (((1.0 + t) / (1.0 - t)).ln() / (2.0 * t), 1.0 / (1.0 - t * t))
+        } else {
+            let s2 = (t / 3.0f64).powi(2);
+            (1.0 + s2 + 3.0 * s2 * s2, 1.0 + 3.0 * s2 + 15.0 * s2 * s2)
+        };
+        let (mean, sd) = analytic(m1, m2, m1, m2, f0);
+        let n = runs as f64;
+        // Within four standard errors of the mean and of the standard deviation.
+        assert!(
+            (spread.mean - mean).abs() < 4.0 * sd / n.sqrt(),
+            "{dist}: mean {} vs {mean}",
+            spread.mean
+        );
+        assert!(
+            (spread.std_dev - sd).abs() < 4.0 * sd / (2.0 * (n - 1.0)).sqrt() * 1.5,
+            "{dist}: sd {} vs {sd}",
+            spread.std_dev
+        );
+    }
+}
+
+#[test]
+fn monte_carlo_is_bit_identical_on_one_and_two_threads() {
+    let d = load(&std::fs::read_to_string(root().join("designs/rx-preamp-ce.yaml")).unwrap());
+    let run = |threads: usize| {
+        rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap().install(|| {
+            let s = study_of(&d, 200);
+            serde_json::to_string(&s).unwrap()
+        })
+    };
+    assert_eq!(run(1), run(2));
+    let _ = analysis::analyze(&d).unwrap();
+}
