@@ -102,7 +102,7 @@ fn main() {
         let (t, runs) = median(
             || {
                 let a = analysis::analyze(&d).unwrap();
-                drop(black_box(report::render(&d, &a, &inputs, all).unwrap()))
+                drop(black_box(report::render(&d, &a, None, &inputs, all).unwrap()))
             },
             Duration::from_secs(2),
             500,

@@ -15,7 +15,7 @@ use rayon::prelude::*;
 use serde::Serialize;
 
 use crate::analysis::{Metrics, metrics};
-use crate::design::{Design, Requirements};
+use crate::design::Design;
 use crate::design::{DeviceModel, Distribution, PartKind, Tolerance, TransitSpec};
 
 /// What kind of quantity a lever is (for the scaling identities).
@@ -62,7 +62,7 @@ pub struct Lever {
     target: Target,
 }
 
-fn slot<'d>(design: &'d mut Design, target: Target) -> Option<&'d mut f64> {
+fn slot(design: &mut Design, target: Target) -> Option<&mut f64> {
     match target {
         Target::Part(i) => match &mut design.parts[i].kind {
             PartKind::Resistor { value, .. }
@@ -453,17 +453,18 @@ pub fn percentile(sorted: &[f64], p: f64) -> f64 {
     sorted[lo] + (sorted[hi] - sorted[lo]) * (x - lo as f64)
 }
 
-/// Runs `runs` Monte Carlo evaluations; `progress` is called with the count done.
+/// Runs `runs` Monte Carlo evaluations with the design's seed, and the yields of its
+/// requirements; `progress` is called with the count done.
 pub fn monte_carlo(
     design: &Design,
     levers: &[Lever],
     figs: &[Figure],
     names: &[String],
     runs: u32,
-    seed: u64,
-    requirements: &Requirements,
     progress: &(dyn Fn(u64) + Sync),
 ) -> MonteCarlo {
+    let seed = design.analysis.seed;
+    let requirements = &design.requirements;
     let done = std::sync::atomic::AtomicU64::new(0);
     let samples: Vec<Option<Metrics>> = (0..runs as u64)
         .into_par_iter()
@@ -578,18 +579,7 @@ pub fn study(
     let figs = figures(nominal);
     let s = sensitivities(design, &all, &figs);
     let worst = worst_case(design, &all, &figs, &s, nominal, device_names);
-    let mc = (runs > 0).then(|| {
-        monte_carlo(
-            design,
-            &all,
-            &figs,
-            device_names,
-            runs,
-            design.analysis.seed,
-            &design.requirements,
-            progress,
-        )
-    });
+    let mc = (runs > 0).then(|| monte_carlo(design, &all, &figs, device_names, runs, progress));
     Study {
         step: STEP,
         figures: figs.iter().map(|f| f.key(device_names)).collect(),

@@ -23,6 +23,9 @@ use crate::notation::{plain, scientific, si};
 pub struct CheckArgs {
     /// The design file (YAML).
     pub design: PathBuf,
+    /// Monte Carlo runs (overrides the design's `analysis.monte_carlo.runs`; 0 skips it).
+    #[arg(long)]
+    pub runs: Option<u32>,
 }
 
 /// Runs the check.
@@ -33,7 +36,84 @@ pub fn run(args: &CheckArgs) -> Result<Outcome, Failure> {
     print!("{}", summary(design, file.loaded.warnings()));
     let analysis = crate::analysis::analyze(design).map_err(|e| analysis_failure(&file, &e))?;
     print!("{}", analysis_text(&analysis));
+    let study = crate::cli::render::run_study(design, &analysis, args.runs)?;
+    let mut checks = crate::analysis::requirements::check(&design.requirements, &analysis);
+    crate::analysis::requirements::with_study(&mut checks, &study);
+    print!("{}", requirements_text(&checks, &study));
+    if checks.iter().any(|c| !c.pass) {
+        let failing: Vec<&str> = checks.iter().filter(|c| !c.pass).map(|c| c.name).collect();
+        eprintln!("{}: fails {} at nominal values", file.name, failing.join(", "));
+        return Ok(Outcome::Failing);
+    }
     Ok(Outcome::Done)
+}
+
+/// The requirement table: nominal, margin, worst corner, yield.
+pub fn requirements_text(
+    checks: &[crate::analysis::requirements::RequirementCheck],
+    study: &crate::analysis::tolerance::Study,
+) -> String {
+    let mut out = String::new();
+    if checks.is_empty() {
+        return out;
+    }
+    let _ = writeln!(out, "\nrequirements");
+    let rows: Vec<Vec<String>> = checks
+        .iter()
+        .map(|r| {
+            let show = |v: f64| {
+                if r.name == "midband_gain" {
+                    format!("{} dB", plain(20.0 * v.log10(), 3))
+                } else {
+                    si(v, r.unit, 4)
+                }
+            };
+            let limit = match (r.min, r.max) {
+                (Some(a), Some(b)) => format!("{} … {}", show(a), show(b)),
+                (Some(a), None) => format!("≥ {}", show(a)),
+                (None, Some(b)) => format!("≤ {}", show(b)),
+                (None, None) => String::new(),
+            };
+            vec![
+                r.name.replace('_', " "),
+                limit,
+                r.value.map_or("not found".into(), show),
+                if r.pass { "pass".into() } else { "FAIL".into() },
+                r.margin.map_or("—".into(), |m| percent(Some(m))),
+                match (r.corner, r.corner_pass) {
+                    (Some(v), Some(p)) => {
+                        format!("{} {}", show(v), if p { "pass" } else { "fail" })
+                    }
+                    _ => "—".into(),
+                },
+                r.yield_fraction.map_or("—".into(), |y| format!("{} %", plain(y * 100.0, 4))),
+            ]
+        })
+        .collect();
+    out.push_str(&render(
+        2,
+        &[
+            ("", Align::Left),
+            ("limit", Align::Left),
+            ("nominal", Align::Right),
+            ("", Align::Left),
+            ("margin", Align::Right),
+            ("worst corner", Align::Right),
+            ("yield", Align::Right),
+        ],
+        &rows,
+    ));
+    if let Some(mc) = &study.monte_carlo {
+        let _ = writeln!(
+            out,
+            "  Monte Carlo: {} runs (seed {}), {} failed to converge; all requirements together: {}",
+            mc.runs,
+            mc.seed,
+            mc.failed_runs.len(),
+            mc.yield_all.map_or("—".into(), |y| format!("{} %", plain(y * 100.0, 4)))
+        );
+    }
+    out
 }
 
 fn percent(error: Option<f64>) -> String {

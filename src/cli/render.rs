@@ -40,6 +40,37 @@ pub struct RenderArgs {
     /// A Markdown template of your own (start from `tauweave template show`).
     #[arg(long)]
     pub template: Option<PathBuf>,
+    /// Monte Carlo runs (overrides the design's `analysis.monte_carlo.runs`; 0 skips it).
+    #[arg(long)]
+    pub runs: Option<u32>,
+}
+
+/// Runs the tolerance study with a progress bar on a terminal.
+pub fn run_study(
+    design: &crate::design::Design,
+    analysis: &crate::analysis::Analysis,
+    runs: Option<u32>,
+) -> Result<crate::analysis::tolerance::Study, Failure> {
+    use std::io::IsTerminal;
+    let nominal = crate::analysis::metrics(design)
+        .map_err(|e| Failure::Input(format!("error: {}\n  help: {}\n", e.message, e.help)))?;
+    let names: Vec<String> = analysis
+        .operating_point
+        .as_ref()
+        .map(|op| op.devices.iter().map(|d| d.bias.part.clone()).collect())
+        .unwrap_or_default();
+    let runs = runs.unwrap_or(design.analysis.monte_carlo_runs);
+    let bar = if std::io::stderr().is_terminal() && runs >= 500 {
+        let b = indicatif::ProgressBar::new(runs as u64);
+        b.set_message("Monte Carlo");
+        b
+    } else {
+        indicatif::ProgressBar::hidden()
+    };
+    let study =
+        crate::analysis::tolerance::study(design, &nominal, &names, runs, &|n| bar.set_position(n));
+    bar.finish_and_clear();
+    Ok(study)
 }
 
 /// Reads the template named on the command line, or the built-in one.
@@ -77,7 +108,8 @@ pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
         template: &template,
         built_in_template: built_in,
     };
-    let files = report::render(design, &analysis, &inputs, formats)
+    let study = run_study(design, &analysis, args.runs)?;
+    let files = report::render(design, &analysis, Some(&study), &inputs, formats)
         .map_err(|e| Failure::Input(format!("{}nothing was written\n", e.message)))?;
     let dir = args.out.clone().unwrap_or_else(|| PathBuf::from("out").join(&design.meta.id));
     for f in &files {

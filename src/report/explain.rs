@@ -7,6 +7,7 @@
 
 use serde::Serialize;
 
+use crate::analysis::tolerance::Study;
 use crate::analysis::{Analysis, RootHz};
 use crate::notation::{plain, si};
 
@@ -34,9 +35,42 @@ fn signed_pct(x: f64) -> String {
     if x > 0.0 { format!("+{s} %") } else { format!("{s} %") }
 }
 
-/// The explanation for `a`.
-pub fn explain(a: &Analysis) -> Explanation {
-    Explanation { high: high(a), low: low(a) }
+/// The explanation for `a`, with the strongest levers when a tolerance study ran.
+pub fn explain(a: &Analysis, study: Option<&Study>) -> Explanation {
+    let mut high = high(a);
+    let mut low = low(a);
+    if let Some(s) = study {
+        if let Some(t) = levers(s, "upper_cutoff", "f_H", true) {
+            high.push(t);
+        }
+        if let Some(t) = levers(s, "lower_cutoff", "f_L", false) {
+            low.push(t);
+        }
+    }
+    Explanation { high, low }
+}
+
+/// "The strongest levers on f_H: …; to raise f_H, lower X (−0.62 %/%)."
+fn levers(s: &Study, figure: &str, symbol: &str, up: bool) -> Option<String> {
+    let mut ranked: Vec<(&str, f64)> = s
+        .levers
+        .iter()
+        .enumerate()
+        .filter_map(|(i, l)| s.s(i, figure).map(|v| (l.lever.name.as_str(), v)))
+        .filter(|(_, v)| v.abs() >= 1e-3)
+        .collect();
+    ranked.sort_by(|a, b| b.1.abs().total_cmp(&a.1.abs()).then(a.0.cmp(b.0)));
+    let (top, value) = *ranked.first()?;
+    let list: Vec<String> =
+        ranked.iter().take(4).map(|(n, v)| format!("{n} {} %/%", plain(*v, 3))).collect();
+    let verb = if (value < 0.0) == up { "lower" } else { "raise" };
+    let goal = if up { "raise" } else { "lower" };
+    Some(format!(
+        "The strongest levers on {symbol} (normalised sensitivity, % change of {symbol} per % change of \
+         the part): {}. To {goal} {symbol}, {verb} {top} ({} %/%).",
+        list.join(", "),
+        plain(value, 3)
+    ))
 }
 
 fn high(a: &Analysis) -> Vec<String> {

@@ -18,6 +18,7 @@ pub mod write;
 
 use sha2::{Digest, Sha256};
 
+use crate::analysis::tolerance::Study;
 use crate::analysis::{Analysis, requirements};
 use crate::design::Design;
 use template::{Blocks, TemplateError, TemplateSource, plot_marker};
@@ -75,18 +76,29 @@ pub fn sweep_csv(a: &Analysis) -> String {
 pub fn render(
     design: &Design,
     analysis: &Analysis,
+    study: Option<&Study>,
     inputs: &Inputs,
     formats: Formats,
 ) -> Result<Vec<OutputFile>, TemplateError> {
-    let checks = requirements::check(&design.requirements, analysis);
+    let mut checks = requirements::check(&design.requirements, analysis);
+    if let Some(s) = study {
+        requirements::with_study(&mut checks, s);
+    }
     let caution_list = cautions::cautions(design, analysis);
     let hashes = results::Hashes {
         design: hex(&Sha256::digest(inputs.design_text.as_bytes())),
         template: Some(hex(&Sha256::digest(inputs.template.text.as_bytes()))),
         template_name: (!inputs.built_in_template).then(|| inputs.template.name.clone()),
     };
-    let doc =
-        results::document(design, analysis, &checks, &caution_list, hashes, inputs.design_name);
+    let doc = results::document(
+        design,
+        analysis,
+        &checks,
+        &caution_list,
+        study,
+        hashes,
+        inputs.design_name,
+    );
     let mut files = Vec::new();
     if formats.json {
         files.push(OutputFile {
@@ -99,10 +111,10 @@ pub fn render(
     if !(formats.html || formats.markdown) {
         return Ok(files);
     }
-    let explanation = explain::explain(analysis);
-    let plot_list = plots::all(analysis, &checks);
+    let explanation = explain::explain(analysis, study);
+    let plot_list = plots::all(analysis, &checks, study);
     let blocks = Blocks {
-        tables: tables::all(design, analysis, &checks),
+        tables: tables::all(design, analysis, &checks, study),
         plots: plot_list.iter().map(|p| p.name).collect(),
         explanation: (explanation.high.clone(), explanation.low.clone()),
         cautions: caution_list.iter().map(|c| view::escape(&c.text)).collect(),

@@ -9,6 +9,7 @@
 use plotters::prelude::*;
 
 use crate::analysis::requirements::RequirementCheck;
+use crate::analysis::tolerance::Study;
 use crate::analysis::{Analysis, RootHz};
 use crate::notation::si;
 
@@ -39,8 +40,9 @@ fn style(size: u32) -> TextStyle<'static> {
 }
 
 /// Every plot of the review.
-pub fn all(a: &Analysis, requirements: &[RequirementCheck]) -> Vec<Plot> {
+pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study>) -> Vec<Plot> {
     let mut out = Vec::new();
+    let extra = study.map(|s| (tornado(s), histograms(s, requirements)));
     if let Some(svg) = bode(a, requirements) {
         out.push(Plot { name: "bode", caption: "Bode plot: magnitude and phase of the exact response, with the −3 dB points (solid), the time-constant estimates (dashed) and the requirement limits (dotted).".into(), svg });
     }
@@ -54,7 +56,171 @@ pub fn all(a: &Analysis, requirements: &[RequirementCheck]) -> Vec<Plot> {
     if let Some(svg) = shares(a) {
         out.push(Plot { name: "shares", caption: "Share of each capacitor in the open-circuit time-constant sum (upper cut-off) and in Σ 1/τ of the short-circuit constants (lower cut-off).".into(), svg });
     }
+    if let Some((tornado, histograms)) = extra {
+        if let Some(svg) = tornado {
+            out.push(Plot { name: "tornado", caption: "Tornado chart: how far each toleranced lever moves the upper cut-off at its tolerance limit (S·t), largest first; dark bars raise f_H, grey bars lower it.".into(), svg });
+        }
+        if let Some(svg) = histograms {
+            out.push(Plot { name: "histograms", caption: "Monte Carlo histograms of the mid-band gain and both cut-offs, with the requirement limits dotted.".into(), svg });
+        }
+    }
     out
+}
+
+fn tornado(s: &Study) -> Option<String> {
+    let mut rows: Vec<(String, f64)> = s
+        .levers
+        .iter()
+        .enumerate()
+        .filter_map(|(i, l)| {
+            Some((
+                l.lever.name.clone(),
+                s.s(i, "upper_cutoff")? * l.lever.tolerance?.fraction * 100.0,
+            ))
+        })
+        .filter(|(_, v)| v.abs() > 1e-3)
+        .collect();
+    rows.sort_by(|a, b| b.1.abs().total_cmp(&a.1.abs()).then(a.0.cmp(&b.0)));
+    rows.truncate(12);
+    if rows.is_empty() {
+        return None;
+    }
+    let n = rows.len();
+    let reach = rows.iter().map(|r| r.1.abs()).fold(0.0, f64::max) * 1.25;
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (860, 70 + 26 * n as u32)).into_drawing_area();
+        root.fill(&WHITE).ok()?;
+        let mut chart = ChartBuilder::on(&root)
+            .margin(14)
+            .x_label_area_size(32)
+            .y_label_area_size(0)
+            .build_cartesian_2d(-reach * 1.6..reach, -0.2..n as f64)
+            .ok()?;
+        chart
+            .configure_mesh()
+            .disable_y_mesh()
+            .disable_y_axis()
+            .light_line_style(WHITE)
+            .bold_line_style(PALE)
+            .axis_style(MID)
+            .x_label_formatter(&|v| {
+                if *v < -reach - 1e-9 { String::new() } else { format!("{v:+.1} %") }
+            })
+            .label_style(style(11))
+            .x_desc("change of f_H at the tolerance limit")
+            .axis_desc_style(style(12))
+            .draw()
+            .ok()?;
+        chart
+            .draw_series(LineSeries::new([(0.0, 0.0), (0.0, n as f64)], MID.stroke_width(1)))
+            .ok()?;
+        chart
+            .draw_series(rows.iter().enumerate().map(|(i, (_, v))| {
+                let y = (n - 1 - i) as f64;
+                let fill = if *v >= 0.0 { INK } else { MID };
+                Rectangle::new([(0.0, y + 0.2), (*v, y + 0.8)], fill.filled())
+            }))
+            .ok()?;
+        chart
+            .draw_series(rows.iter().enumerate().map(|(i, (name, v))| {
+                let y = (n - 1 - i) as f64;
+                Text::new(format!("{name}  {v:+.2} %"), (-reach * 1.58, y + 0.72), style(12))
+            }))
+            .ok()?;
+        root.present().ok()?;
+    }
+    Some(finish(svg))
+}
+
+fn histograms(s: &Study, requirements: &[RequirementCheck]) -> Option<String> {
+    let mc = s.monte_carlo.as_ref()?;
+    let panels: Vec<(&str, &str, Vec<f64>)> =
+        [("midband_gain", "|A| (V/V)"), ("upper_cutoff", "f_H"), ("lower_cutoff", "f_L")]
+            .into_iter()
+            .filter_map(|(key, label)| {
+                let v: Vec<f64> = mc
+                    .samples
+                    .iter()
+                    .flatten()
+                    .filter_map(|m| match key {
+                        "midband_gain" => Some(m.gain),
+                        "upper_cutoff" => m.f_high,
+                        _ => m.f_low,
+                    })
+                    .collect();
+                (v.len() >= 2).then_some((key, label, v))
+            })
+            .collect();
+    if panels.is_empty() {
+        return None;
+    }
+    let mut svg = String::new();
+    {
+        let root =
+            SVGBackend::with_string(&mut svg, (860, 250 * panels.len() as u32)).into_drawing_area();
+        root.fill(&WHITE).ok()?;
+        let areas = root.split_evenly((panels.len(), 1));
+        for ((key, label, values), area) in panels.iter().zip(areas.iter()) {
+            let limits: Vec<f64> = requirements
+                .iter()
+                .filter(|r| r.name == *key)
+                .flat_map(|r| [r.min, r.max])
+                .flatten()
+                .collect();
+            let lo = values.iter().copied().fold(f64::MAX, f64::min);
+            let hi = values.iter().copied().fold(f64::MIN, f64::max);
+            let (lo, hi) = limits.iter().fold((lo, hi), |(a, b), &l| (a.min(l), b.max(l)));
+            let pad = (hi - lo).max(hi.abs() * 1e-6) * 0.05;
+            let (lo, hi) = (lo - pad, hi + pad);
+            let bins = 40usize;
+            let width = (hi - lo) / bins as f64;
+            let mut counts = vec![0usize; bins];
+            for v in values {
+                let k = (((v - lo) / width) as usize).min(bins - 1);
+                counts[k] += 1;
+            }
+            let top = *counts.iter().max().unwrap_or(&1) as f64 * 1.15;
+            let unit = if *key == "midband_gain" { "" } else { "Hz" };
+            let mut chart = ChartBuilder::on(area)
+                .margin(12)
+                .x_label_area_size(28)
+                .y_label_area_size(50)
+                .build_cartesian_2d(lo..hi, 0.0..top)
+                .ok()?;
+            chart
+                .configure_mesh()
+                .light_line_style(WHITE)
+                .bold_line_style(PALE)
+                .axis_style(MID)
+                .x_label_formatter(&|v| si(*v, unit, 3))
+                .y_label_formatter(&|v| format!("{v:.0}"))
+                .label_style(style(11))
+                .x_desc(label.to_string())
+                .y_desc("runs")
+                .axis_desc_style(style(12))
+                .draw()
+                .ok()?;
+            chart
+                .draw_series(counts.iter().enumerate().map(|(k, c)| {
+                    let x0 = lo + k as f64 * width;
+                    Rectangle::new([(x0, 0.0), (x0 + width * 0.92, *c as f64)], MID.filled())
+                }))
+                .ok()?;
+            for l in limits {
+                chart
+                    .draw_series(DashedLineSeries::new(
+                        [(l, 0.0), (l, top)],
+                        2,
+                        2,
+                        INK.stroke_width(2),
+                    ))
+                    .ok()?;
+            }
+        }
+        root.present().ok()?;
+    }
+    Some(finish(svg))
 }
 
 fn decade_label(v: f64, unit: &str) -> String {

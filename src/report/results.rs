@@ -66,10 +66,34 @@ pub struct ResultsDocument<'a> {
     /// Everything computed.
     #[serde(flatten)]
     pub analysis: &'a Analysis,
-    /// Each requirement at nominal values.
+    /// Each requirement at nominal values, at the tolerance corners and its yield.
     pub requirements: &'a [RequirementCheck],
+    /// Normalised sensitivities of every figure to every lever (null without a study).
+    pub sensitivity: Option<Sensitivity<'a>>,
+    /// Worst case and Monte Carlo (null without a study).
+    pub tolerance: Option<ToleranceSummary<'a>>,
     /// The cautions that apply.
     pub cautions: &'a [Caution],
+}
+
+/// The `sensitivity` key.
+#[derive(Clone, Debug, Serialize)]
+pub struct Sensitivity<'a> {
+    /// Relative step of the central differences.
+    pub step: f64,
+    /// Figure names, the order of each lever's `s`.
+    pub figures: &'a [String],
+    /// Every lever with S = ∂ln y/∂ln x for each figure.
+    pub levers: &'a [crate::analysis::tolerance::LeverSensitivity],
+}
+
+/// The `tolerance` key.
+#[derive(Clone, Debug, Serialize)]
+pub struct ToleranceSummary<'a> {
+    /// Linearised bound and evaluated corners of each figure.
+    pub worst_case: &'a [crate::analysis::tolerance::WorstCase],
+    /// Monte Carlo, when it ran.
+    pub monte_carlo: Option<&'a crate::analysis::tolerance::MonteCarlo>,
 }
 
 /// The tool's identity.
@@ -83,6 +107,7 @@ pub fn document<'a>(
     analysis: &'a Analysis,
     requirements: &'a [RequirementCheck],
     cautions: &'a [Caution],
+    study: Option<&'a crate::analysis::tolerance::Study>,
     hashes: Hashes,
     design_name: &str,
 ) -> ResultsDocument<'a> {
@@ -106,6 +131,15 @@ pub fn document<'a>(
         },
         analysis,
         requirements,
+        sensitivity: study.map(|s| Sensitivity {
+            step: s.step,
+            figures: &s.figures,
+            levers: &s.levers,
+        }),
+        tolerance: study.map(|s| ToleranceSummary {
+            worst_case: &s.worst_case,
+            monte_carlo: s.monte_carlo.as_ref(),
+        }),
         cautions,
     }
 }

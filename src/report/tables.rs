@@ -7,6 +7,7 @@
 use std::collections::BTreeMap;
 
 use crate::analysis::requirements::RequirementCheck;
+use crate::analysis::tolerance::Study;
 use crate::analysis::{Analysis, RootHz};
 use crate::circuit::operating_point::DeviceState;
 use crate::design::{Design, PartKind, Tolerance, Toleranced};
@@ -23,7 +24,13 @@ pub const TABLES: &[(&str, &str)] = &[
     ("low_estimates", "lower cut-off: exact value and the estimates with their errors"),
     ("sctc", "short-circuit time constants: R seen, τ, share"),
     ("poles_zeros", "poles and zeros of the whole response"),
-    ("requirements", "each requirement, the computed value, pass or fail, margin"),
+    (
+        "requirements",
+        "each requirement: nominal value, pass or fail, margin, worst-case corner, yield",
+    ),
+    ("sensitivity", "normalised sensitivities of gain and cut-offs to every lever, largest first"),
+    ("worst_case", "linearised worst-case bound beside the evaluated corners"),
+    ("monte_carlo", "Monte Carlo mean, spread and percentiles of each figure"),
 ];
 
 /// Escapes text for a Markdown table cell.
@@ -89,6 +96,7 @@ pub fn all(
     design: &Design,
     a: &Analysis,
     reqs: &[RequirementCheck],
+    study: Option<&Study>,
 ) -> BTreeMap<&'static str, String> {
     let mut t = BTreeMap::new();
     let parts = design
@@ -352,12 +360,153 @@ pub fn all(
                 r.value.map_or("not found".into(), show),
                 if r.pass { "pass".into() } else { "**FAIL**".into() },
                 r.margin.map_or("—".into(), |m| pct(Some(m))),
+                match (r.corner, r.corner_pass) {
+                    (Some(v), Some(true)) => format!("{} pass", show(v)),
+                    (Some(v), Some(false)) => format!("{} **fail**", show(v)),
+                    _ => "—".into(),
+                },
+                r.yield_fraction.map_or("—".into(), |y| format!("{} %", plain(y * 100.0, 4))),
             ]
         })
         .collect();
     t.insert(
         "requirements",
-        table(&["requirement", "limit", "nominal", "result", "margin"], "llrlr", req),
+        table(
+            &["requirement", "limit", "nominal", "result", "margin", "worst corner", "yield"],
+            "llrlrrr",
+            req,
+        ),
     );
+    if let Some(s) = study {
+        study_tables(&mut t, s);
+    }
     t
+}
+
+fn figure_label(key: &str) -> String {
+    match key {
+        "midband_gain" => "gain".into(),
+        "upper_cutoff" => "f_H".into(),
+        "lower_cutoff" => "f_L".into(),
+        "input_resistance" => "R_in".into(),
+        "output_resistance" => "R_out".into(),
+        other => other.replace(".bias_current", " bias"),
+    }
+}
+
+fn figure_value(key: &str, v: f64) -> String {
+    match key {
+        "midband_gain" => format!("{} V/V", plain(v, 4)),
+        "upper_cutoff" | "lower_cutoff" => si(v, "Hz", 4),
+        "input_resistance" | "output_resistance" => si(v, "Ω", 4),
+        _ => si(v, "A", 4),
+    }
+}
+
+fn study_tables(t: &mut BTreeMap<&'static str, String>, s: &Study) {
+    let shown: Vec<usize> = s
+        .figures
+        .iter()
+        .enumerate()
+        .filter(|(_, f)| {
+            matches!(f.as_str(), "midband_gain" | "upper_cutoff" | "lower_cutoff")
+                || f.ends_with(".bias_current")
+        })
+        .map(|(k, _)| k)
+        .collect();
+    let mut rows: Vec<(f64, Vec<String>)> = s
+        .levers
+        .iter()
+        .map(|l| {
+            let biggest = shown.iter().filter_map(|&k| l.s[k]).fold(0.0f64, |m, v| m.max(v.abs()));
+            let mut row = vec![
+                cell(&l.lever.name),
+                l.lever
+                    .tolerance
+                    .map_or("exact".into(), |t| format!("±{} %", plain(t.fraction * 100.0, 3))),
+            ];
+            row.extend(shown.iter().map(|&k| {
+                l.s[k].map_or("—".into(), |v| if v.abs() < 5e-5 { "0".into() } else { plain(v, 3) })
+            }));
+            (biggest, row)
+        })
+        .filter(|(b, _)| *b >= 1e-4)
+        .collect();
+    rows.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1[0].cmp(&b.1[0])));
+    let mut header: Vec<String> = vec!["lever".into(), "tolerance".into()];
+    header.extend(shown.iter().map(|&k| format!("S of {}", figure_label(&s.figures[k]))));
+    let header_refs: Vec<&str> = header.iter().map(String::as_str).collect();
+    let align: String = "ll".chars().chain(std::iter::repeat_n('r', shown.len())).collect();
+    let mut text = table(&header_refs, &align, rows.into_iter().map(|(_, r)| r).collect());
+    text.push_str(&format!(
+        "\nS = ∂ln y/∂ln x by central differences (step {}), the operating point re-solved at each step.\n",
+        plain(s.step, 2)
+    ));
+    t.insert("sensitivity", text);
+
+    let wc = s
+        .worst_case
+        .iter()
+        .map(|w| {
+            let rel = |v: Option<f64>| {
+                v.map_or("—".into(), |v| {
+                    format!("{} ({})", figure_value(&w.figure, v), pct(Some(v / w.nominal - 1.0)))
+                })
+            };
+            vec![
+                figure_label(&w.figure),
+                figure_value(&w.figure, w.nominal),
+                format!("±{} %", plain(w.linear_bound * 100.0, 3)),
+                rel(w.low_corner),
+                rel(w.high_corner),
+            ]
+        })
+        .collect();
+    t.insert(
+        "worst_case",
+        table(
+            &["figure", "nominal", "linear bound Σ|S|t", "low corner", "high corner"],
+            "lrrrr",
+            wc,
+        ),
+    );
+
+    if let Some(mc) = &s.monte_carlo {
+        let rows = mc
+            .spreads
+            .iter()
+            .map(|sp| {
+                let mut row = vec![
+                    figure_label(&sp.figure),
+                    figure_value(&sp.figure, sp.mean),
+                    format!("{} %", plain(sp.std_dev / sp.mean * 100.0, 3)),
+                ];
+                row.extend(sp.percentiles.iter().map(|p| figure_value(&sp.figure, *p)));
+                row
+            })
+            .collect();
+        let mut text = table(
+            &["figure", "mean", "σ/mean", "1 %", "5 %", "50 %", "95 %", "99 %"],
+            "lrrrrrrr",
+            rows,
+        );
+        let failed = if mc.failed_runs.is_empty() {
+            String::new()
+        } else {
+            let list: Vec<String> = mc.failed_runs.iter().take(20).map(|r| r.to_string()).collect();
+            format!(" (runs {})", list.join(", "))
+        };
+        text.push_str(&format!(
+            "\n{} runs, seed {}; {} run{} did not converge{failed}.{}\n",
+            mc.runs,
+            mc.seed,
+            mc.failed_runs.len(),
+            if mc.failed_runs.len() == 1 { "" } else { "s" },
+            mc.yield_all.map_or(String::new(), |y| format!(
+                " Yield of all requirements together: **{} %**.",
+                plain(y * 100.0, 4)
+            ))
+        ));
+        t.insert("monte_carlo", text);
+    }
 }

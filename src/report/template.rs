@@ -89,6 +89,10 @@ pub fn render(
         let name: String = kwargs.must_get("name")?;
         match tables.get(name.as_str()) {
             Some(t) => Ok(Value::safe_string(&format!("\n{t}\n"))),
+            // Tolerance tables exist only when a study ran: absent, not an error.
+            None if ["sensitivity", "worst_case", "monte_carlo"].contains(&name.as_str()) => {
+                Ok(Value::safe_string(""))
+            }
             None => {
                 let known: Vec<&str> = TABLES.iter().map(|(n, _)| *n).collect();
                 Err(tera::Error::message(format!(

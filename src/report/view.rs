@@ -13,7 +13,7 @@ use crate::design::Design;
 use crate::notation::si;
 use crate::report::cautions::Caution;
 use crate::report::explain::Explanation;
-use crate::report::results::{Provenance, ResultsDocument, Tool};
+use crate::report::results::{Provenance, ResultsDocument, Sensitivity, ToleranceSummary, Tool};
 
 /// Escapes text so it reads as text in Markdown and HTML.
 pub fn escape(text: &str) -> String {
@@ -59,8 +59,12 @@ pub struct View<'a> {
     /// Every computed value (operating_point, midband, high, low, poles, zeros, …).
     #[serde(flatten)]
     pub analysis: &'a Analysis,
-    /// Requirements at nominal values.
+    /// Requirements at nominal values, corners and yields.
     pub requirements: &'a [RequirementCheck],
+    /// Sensitivities (absent without a study).
+    pub sensitivity: Option<&'a Sensitivity<'a>>,
+    /// Worst case and Monte Carlo (absent without a study).
+    pub tolerance: Option<&'a ToleranceSummary<'a>>,
     /// Cautions.
     pub cautions: &'a [Caution],
     /// Explanation paragraphs (Markdown).
@@ -80,6 +84,8 @@ impl<'a> View<'a> {
             provenance: &doc.provenance,
             analysis: doc.analysis,
             requirements: doc.requirements,
+            sensitivity: doc.sensitivity.as_ref(),
+            tolerance: doc.tolerance.as_ref(),
             cautions: doc.cautions,
             explanation,
         }

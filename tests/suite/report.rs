@@ -192,7 +192,7 @@ fn explanation_of(parts: &str, output: &str) -> (String, analysis::Analysis) {
     );
     let d = design::load(&text).design.expect("valid");
     let a = analysis::analyze(&d).expect("analysis");
-    (report::explain::explain(&a).high.join("\n"), a)
+    (report::explain::explain(&a, None).high.join("\n"), a)
 }
 
 #[test]

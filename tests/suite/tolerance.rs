@@ -157,3 +157,48 @@ fn monte_carlo_is_bit_identical_on_one_and_two_threads() {
     assert_eq!(run(1), run(2));
     let _ = analysis::analyze(&d).unwrap();
 }
+
+#[test]
+fn results_json_is_bit_identical_for_one_and_two_threads() {
+    let design = root().join("designs/follower-cap-load.yaml");
+    let mut outputs = Vec::new();
+    for threads in ["1", "2"] {
+        let dir = crate::support::scratch(&format!("threads-{threads}"));
+        let o = std::process::Command::new(crate::support::binary())
+            .args([
+                "render",
+                design.to_str().unwrap(),
+                "--format",
+                "json",
+                "--runs",
+                "300",
+                "--out",
+                ".",
+            ])
+            .current_dir(&dir)
+            .env("RAYON_NUM_THREADS", threads)
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        outputs.push(std::fs::read(dir.join("results.json")).unwrap());
+    }
+    assert!(outputs[0] == outputs[1], "results.json differs between 1 and 2 threads");
+    let v: serde_json::Value = serde_json::from_slice(&outputs[0]).unwrap();
+    assert_eq!(v["tolerance"]["monte_carlo"]["runs"], 300);
+    assert!(v["sensitivity"]["levers"].as_array().unwrap().len() > 5);
+    assert!(v["requirements"][0]["yield_fraction"].is_number());
+}
+
+#[test]
+fn check_exits_1_when_a_nominal_requirement_fails() {
+    let dir = crate::support::scratch("failing-requirement");
+    let text = std::fs::read_to_string(root().join("designs/rx-preamp-ce.yaml")).unwrap();
+    let tight = text.replace("upper_cutoff: {min: 900 kHz}", "upper_cutoff: {min: 20 MHz}");
+    assert_ne!(tight, text, "the example's requirement line changed; update this test");
+    std::fs::write(dir.join("tight.yaml"), tight).unwrap();
+    let o = crate::support::run_in(&dir, &["check", "tight.yaml", "--runs", "50"]);
+    assert_eq!(o.status.code(), Some(1), "{}", String::from_utf8_lossy(&o.stderr));
+    let stdout = String::from_utf8_lossy(&o.stdout);
+    assert!(stdout.contains("upper cutoff") && stdout.contains("FAIL"), "{stdout}");
+    assert!(String::from_utf8_lossy(&o.stderr).contains("fails upper_cutoff"));
+}
