@@ -231,6 +231,8 @@ pub struct Analysis {
     /// The frequency response over the design's sweep.
     #[serde(skip)]
     pub sweep: Vec<SweepPoint>,
+    /// True when the network has inductors (the time constants treat them as wires).
+    pub has_inductors: bool,
 }
 
 /// Runs the whole analysis of a design at its nominal values.
@@ -389,7 +391,7 @@ pub fn analyze_network(lin: &LinearNetwork, design: &Design) -> Result<Analysis,
         frequency_hz,
         settings,
         !high_caps.is_empty() || has_inductors,
-        !low_caps.is_empty(),
+        !low_caps.is_empty() || has_inductors,
     );
     let peaking = peaking(&sweep, gain.abs());
 
@@ -464,6 +466,7 @@ pub fn analyze_network(lin: &LinearNetwork, design: &Design) -> Result<Analysis,
         poles: hz(&poles),
         zeros: hz(&zeros),
         sweep,
+        has_inductors,
     })
 }
 
@@ -589,7 +592,7 @@ pub fn metrics(design: &Design) -> Result<Metrics, AnalysisError> {
         frequency_hz,
         settings,
         !high_caps.is_empty() || has_inductors,
-        !low_caps.is_empty(),
+        !low_caps.is_empty() || has_inductors,
     );
     Ok(Metrics { gain: gain.abs(), f_high, f_low, r_in, r_out, bias })
 }

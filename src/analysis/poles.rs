@@ -65,7 +65,8 @@ fn qz_roots(a: &Mat<f64>, b: &Mat<f64>) -> Option<Vec<Root>> {
     if n == 1 {
         // faer's QZ does not take a 1×1 pencil; a + s·b = 0 is solved directly.
         let (x, y) = (a[(0, 0)], b[(0, 0)]);
-        let finite = y != 0.0 && y.abs() > INFINITE_RATIO * x.abs();
+        // The reduction left one dynamic unknown: any non-zero b gives a finite root.
+        let finite = y != 0.0 && (x / y).is_finite();
         return Some(if finite { vec![c64::new(-x / y, 0.0)] } else { Vec::new() });
     }
     let (na, nb) = (frobenius(a), frobenius(b));

@@ -135,6 +135,17 @@ pub enum MosRegion {
     Saturation,
 }
 
+impl MosRegion {
+    /// The region's name as reports print it.
+    pub fn label(self) -> &'static str {
+        match self {
+            MosRegion::CutOff => "cut-off",
+            MosRegion::Triode => "triode",
+            MosRegion::Saturation => "saturation",
+        }
+    }
+}
+
 /// Region of a MOSFET at normalised voltages.
 pub fn mos_region(p: &MosParams, vgs: f64, vds: f64) -> MosRegion {
     let vov = vgs - p.sign * p.vth;
@@ -159,6 +170,18 @@ pub enum BjtRegion {
     CutOff,
     /// Collector junction forward, emitter reverse.
     ReverseActive,
+}
+
+impl BjtRegion {
+    /// The region's name as reports print it.
+    pub fn label(self) -> &'static str {
+        match self {
+            BjtRegion::Active => "active",
+            BjtRegion::Saturated => "saturated",
+            BjtRegion::CutOff => "cut-off",
+            BjtRegion::ReverseActive => "reverse-active",
+        }
+    }
 }
 
 /// Junction voltage above which a silicon junction counts as conducting (common practice).
@@ -213,6 +236,7 @@ mod tests {
             beta_r: 1.0,
             early_voltage: 50.0,
             rb: 0.0,
+            rb_external: 0.0,
             transit: Transit::Time(0.0),
             cje: (0.0, 0.75, 0.33),
             cjc: (1e-12, 0.75, 0.5),

@@ -46,8 +46,11 @@ pub struct BjtParams {
     pub beta_r: f64,
     /// Early voltage, V (infinite when not given).
     pub early_voltage: f64,
-    /// Ohmic base resistance, Ω.
+    /// Ohmic base resistance still to be added by the small-signal model, Ω (0 once the
+    /// netlist carries it as the resistor `<part>.rx`).
     pub rb: f64,
+    /// The model's base resistance, Ω, for reports.
+    pub rb_external: f64,
     /// Transit time or f_T.
     pub transit: Transit,
     /// Emitter junction (C0, φ, m), F / V / —.
@@ -210,9 +213,11 @@ pub struct Netlist {
 impl Netlist {
     /// Builds the netlist of a validated design with its nominal values.
     pub fn from_design(design: &Design) -> Netlist {
-        let nodes = design.nodes();
-        let index = |name: &str| nodes.iter().position(|n| n == name).unwrap_or(0);
+        let design_nodes = design.nodes();
+        let index = |name: &str| design_nodes.iter().position(|n| n == name).unwrap_or(0);
         let mut elements = Vec::new();
+        // Internal base nodes: r_x is a real resistor at DC and at small signal alike.
+        let mut internal: Vec<(usize, String)> = Vec::new();
         for part in &design.parts {
             let name = part.name.clone();
             let el = match &part.kind {
@@ -270,13 +275,25 @@ impl Netlist {
                         gain: value.nominal,
                     }
                 }
-                PartKind::Bjt { c, b, e, model } => Element::Bjt {
-                    name,
-                    c: index(c),
-                    b: index(b),
-                    e: index(e),
-                    params: bjt_params(&design.models[*model].device),
-                },
+                PartKind::Bjt { c, b, e, model } => {
+                    let mut params = bjt_params(&design.models[*model].device);
+                    let mut base = index(b);
+                    if params.rb > 0.0 {
+                        let inner = format!("{name}.b'");
+                        let at = design_nodes.len() + internal.len();
+                        internal.push((at, inner));
+                        elements.push(Element::Resistor {
+                            name: format!("{name}.rx"),
+                            a: base,
+                            b: at,
+                            r: params.rb,
+                        });
+                        base = at;
+                        params.rb_external = params.rb;
+                        params.rb = 0.0;
+                    }
+                    Element::Bjt { name, c: index(c), b: base, e: index(e), params }
+                }
                 PartKind::Mosfet { d, g, s, model } => Element::Mosfet {
                     name,
                     d: index(d),
@@ -287,6 +304,8 @@ impl Netlist {
             };
             elements.push(el);
         }
+        let mut nodes = design_nodes.clone();
+        nodes.extend(internal.into_iter().map(|(_, n)| n));
         Netlist {
             supplies: design.supplies.iter().map(|s| (index(&s.node), s.voltage.nominal)).collect(),
             signal: (
@@ -321,6 +340,7 @@ fn bjt_params(device: &DeviceModel) -> BjtParams {
         beta_r: m.beta_reverse,
         early_voltage: m.early_voltage.map_or(f64::INFINITY, |v| v.nominal),
         rb: m.base_resistance.nominal,
+        rb_external: 0.0,
         transit: match m.transit {
             Some(TransitSpec::TransitTime(t)) => Transit::Time(t.nominal),
             Some(TransitSpec::TransitionFrequency { frequency, collector_current }) => {

@@ -179,14 +179,14 @@ pub fn analysis_text(a: &Analysis) -> String {
             let ss = &d.small_signal;
             let (region, current, voltage, c1, c2) = match &d.bias.state {
                 DeviceState::Bjt { region, ic_a, vce_v, .. } => (
-                    format!("{region:?}").to_lowercase(),
+                    region.label().to_string(),
                     format!("I_C {}", si(*ic_a, "A", 3)),
                     format!("V_CE {}", si(*vce_v, "V", 3)),
                     format!("Cπ {}", opt_si(ss.cpi_f, "F")),
                     format!("Cμ {}", opt_si(ss.cmu_f, "F")),
                 ),
                 DeviceState::Mosfet { region, id_a, vds_v, .. } => (
-                    format!("{region:?}").to_lowercase().replace("cutoff", "cut-off"),
+                    region.label().to_string(),
                     format!("I_D {}", si(*id_a, "A", 3)),
                     format!("V_DS {}", si(*vds_v, "V", 3)),
                     format!("Cgs {}", opt_si(ss.cgs_f, "F")),

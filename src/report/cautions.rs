@@ -113,7 +113,7 @@ pub fn cautions(design: &Design, a: &Analysis) -> Vec<Caution> {
                     BjtRegion::Active => {}
                     other => out.push(computed(
                         "bias_region",
-                        format!("{part} is not in the active region ({}); the small-signal figures do not describe an amplifier.", format!("{other:?}").to_lowercase().replace("cutoff", "cut-off")),
+                        format!("{part} is not in the active region ({}); the small-signal figures do not describe an amplifier.", other.label()),
                     )),
                 },
                 DeviceState::Mosfet { region, vds_v, overdrive_v, .. } => match region {
@@ -124,7 +124,7 @@ pub fn cautions(design: &Design, a: &Analysis) -> Vec<Caution> {
                     MosRegion::Saturation => {}
                     other => out.push(computed(
                         "bias_region",
-                        format!("{part} is not in saturation ({}); the small-signal figures do not describe an amplifier.", format!("{other:?}").to_lowercase().replace("cutoff", "cut-off")),
+                        format!("{part} is not in saturation ({}); the small-signal figures do not describe an amplifier.", other.label()),
                     )),
                 },
             }
@@ -154,6 +154,20 @@ pub fn cautions(design: &Design, a: &Analysis) -> Vec<Caution> {
             ));
         }
     }
+    if a.has_inductors {
+        let gap = h
+            .estimate_errors
+            .time_constant
+            .map_or("—".into(), |e| format!("{} %", plain(e * 100.0, 2)));
+        out.push(computed(
+            "inductors",
+            format!(
+                "The network has inductors: the time-constant estimates treat them as wires, so \
+                 they can be far from the exact response here (the upper estimate is off by {gap}). \
+                 Use the exact cut-offs."
+            ),
+        ));
+    }
     out.push(standard(
         "small_signal",
         "These are small-signal results for the stated models; confirm gain and bandwidth by \
@@ -164,13 +178,17 @@ pub fn cautions(design: &Design, a: &Analysis) -> Vec<Caution> {
         "Cable, probe and fixture capacitance add to any load modelled here; include them in the \
          design when they are known.",
     ));
-    let highest = design.supplies.iter().map(|s| s.voltage.nominal.abs()).fold(0.0, f64::max);
+    // The largest voltage between any two rails (ground included): ±40 V rails are 80 V apart.
+    let top = design.supplies.iter().map(|s| s.voltage.nominal).fold(0.0, f64::max);
+    let bottom = design.supplies.iter().map(|s| s.voltage.nominal).fold(0.0, f64::min);
+    let highest = top - bottom;
     if highest >= HAZARDOUS_SUPPLY_V {
         out.push(computed(
             "hazardous_voltage",
             format!(
-                "A supply of {} is at a hazardous voltage. Work on it needs qualified hands; local \
-                 electrical codes and licensed practice take precedence over this document.",
+                "The supplies span {}, a hazardous voltage. Work on this stage needs qualified \
+                 hands; local electrical codes and licensed practice take precedence over this \
+                 document.",
                 si(highest, "V", 3)
             ),
         ));

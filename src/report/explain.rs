@@ -10,6 +10,7 @@ use serde::Serialize;
 use crate::analysis::tolerance::Study;
 use crate::analysis::{Analysis, RootHz};
 use crate::notation::{plain, si};
+use crate::report::tables::cell;
 
 /// Pole separation at or above which one pole dominates (common practice: the nearest
 /// other pole or zero at least 4× away; METHODS §4).
@@ -62,13 +63,14 @@ fn levers(s: &Study, figure: &str, symbol: &str, up: bool) -> Option<String> {
     ranked.sort_by(|a, b| b.1.abs().total_cmp(&a.1.abs()).then(a.0.cmp(b.0)));
     let (top, value) = *ranked.first()?;
     let list: Vec<String> =
-        ranked.iter().take(4).map(|(n, v)| format!("{n} {} %/%", plain(*v, 3))).collect();
+        ranked.iter().take(4).map(|(n, v)| format!("{} {} %/%", cell(n), plain(*v, 3))).collect();
     let verb = if (value < 0.0) == up { "lower" } else { "raise" };
     let goal = if up { "raise" } else { "lower" };
     Some(format!(
         "The strongest levers on {symbol} (normalised sensitivity, % change of {symbol} per % change of \
-         the part): {}. To {goal} {symbol}, {verb} {top} ({} %/%).",
+         the part): {}. To {goal} {symbol}, {verb} {} ({} %/%).",
         list.join(", "),
+        cell(top),
         plain(value, 3)
     ))
 }
@@ -86,7 +88,7 @@ fn high(a: &Analysis) -> Vec<String> {
     let mut lead = format!(
         "The upper cut-off is set mainly by **{}**: it holds {} of the time-constant sum Στ = {} \
          (f_H ≈ {} from the sum), with {} seeing {}.",
-        top.part,
+        cell(&top.part),
         pct(top.share),
         si(h.b1_s, "s", 4),
         h.octc.f_estimate_hz.map_or("—".into(), |f| si(f, "Hz", 4)),
@@ -107,60 +109,93 @@ fn high(a: &Analysis) -> Vec<String> {
         }
     }
     if caps.len() > 1 && caps[1].share >= 0.2 {
-        lead.push_str(&format!(" **{}** follows with {}.", caps[1].part, pct(caps[1].share)));
+        lead.push_str(&format!(
+            " **{}** follows with {}.",
+            cell(&caps[1].part),
+            pct(caps[1].share)
+        ));
     }
     out.push(lead);
 
-    // Which estimate to trust.
+    // Which estimate to trust, and why.
     let exact = h.f3db_hz;
-    let complex = h.poles_hz.first().is_some_and(|p| p.im_hz != 0.0);
     let e = &h.estimate_errors;
     let exact_text = exact.map_or("—".into(), |f| si(f, "Hz", 4));
-    match h.dominance_ratio {
-        _ if complex => {
-            let q = quality(&h.poles_hz[0]);
-            out.push(format!(
-                "The two lowest high-frequency poles form a complex pair (Q = {}), so no single pole \
-                 dominates and the time-constant sum is off by {}; the second-order estimate from \
-                 b1 and b2 is within {} of the exact {}. Trust the second-order figure, and check \
-                 the response for peaking.",
-                plain(q, 3),
+    let best = best_of(&[
+        ("the time-constant sum", e.time_constant),
+        ("the second-order estimate from b1 and b2", e.second_order),
+        ("the root-sum-square of the poles and zeros", e.root_sum_square),
+    ]);
+    let best_text = best.map_or(String::new(), |(name, err)| {
+        format!(" The closest estimate here is {name} ({}).", signed_pct(err))
+    });
+    let complex = h.poles_hz.first().is_some_and(|p| p.im_hz != 0.0);
+    let tc_ok = e.time_constant.is_some_and(|x| x.abs() <= TRUSTED_ERROR);
+    if exact.is_none() {
+        out.push("No upper −3 dB point was found within three decades above the sweep: the response does not fall by 3 dB there.".to_string());
+    } else if complex {
+        let q = quality(&h.poles_hz[0]);
+        out.push(format!(
+            "The two lowest high-frequency poles form a complex pair (Q = {}), so no single pole dominates; \
+             the time-constant sum is {} off the exact {exact_text}.{best_text} Check the response for peaking.",
+            plain(q, 3),
+            e.time_constant.map_or("—".into(), signed_pct),
+        ));
+    } else if tc_ok && h.dominance_ratio.is_none_or(|k| k >= DOMINANT_RATIO) {
+        match h.dominance_ratio {
+            Some(k) => out.push(format!(
+                "The next pole is {}× higher, so the single-pole estimate holds: the time-constant sum \
+                 is within {} of the exact {exact_text}.",
+                plain(k, 3),
                 e.time_constant.map_or("—".into(), signed_pct),
-                e.second_order.map_or("—".into(), signed_pct),
-                exact_text
-            ));
+            )),
+            None => out.push(format!(
+                "There is one high-frequency pole; the time-constant sum is within {} of the exact {exact_text}.",
+                e.time_constant.map_or("—".into(), signed_pct),
+            )),
         }
-        Some(k) if k >= DOMINANT_RATIO && e.time_constant.is_some_and(|x| x.abs() <= TRUSTED_ERROR) => out.push(format!(
-            "The next pole is {}× higher, so the single-pole estimate holds: the time-constant sum \
-             is within {} of the exact {}.",
-            plain(k, 3),
+    } else {
+        let cause = match h.dominance_ratio {
+            Some(k) if k < DOMINANT_RATIO => {
+                format!("the two lowest poles are only {}× apart", plain(k, 3))
+            }
+            _ => {
+                let near_zero = exact.and_then(|f| {
+                    h.zeros_hz
+                        .iter()
+                        .map(|z| z.magnitude_hz())
+                        .filter(|m| *m > 0.0 && *m < 10.0 * f)
+                        .reduce(f64::min)
+                });
+                match near_zero {
+                    Some(z) => format!(
+                        "a zero at {} sits within a decade of the band edge",
+                        si(z, "Hz", 3)
+                    ),
+                    None if a.has_inductors => {
+                        "inductors shape the band edge, and the time constants count them as wires"
+                            .to_string()
+                    }
+                    None => "the poles beyond the first add up".to_string(),
+                }
+            }
+        };
+        out.push(format!(
+            "Warning: the time-constant sum misses the exact {exact_text} by {}, because {cause}.{best_text}",
             e.time_constant.map_or("—".into(), signed_pct),
-            exact_text
-        )),
-        Some(k) => out.push(format!(
-            "Warning: the two lowest poles are {}× apart and the zeros sit where they do, so the \
-             time-constant sum misses the bandwidth by {} against the exact {}; the second-order \
-             estimate from b1 and b2 is within {}.",
-            plain(k, 3),
-            e.time_constant.map_or("—".into(), signed_pct),
-            exact_text,
-            e.second_order.map_or("—".into(), signed_pct)
-        )),
-        None => out.push(format!(
-            "There is one high-frequency pole; the time-constant estimate is exact to rounding ({}).",
-            e.time_constant.map_or("—".into(), signed_pct)
-        )),
+        ));
     }
 
     // Right-half-plane zeros.
     if let Some(z) = h
         .zeros_hz
         .iter()
-        .filter(|z| z.re_hz > 0.0 && z.im_hz == 0.0)
-        .min_by(|x, y| x.re_hz.total_cmp(&y.re_hz))
+        .filter(|z| z.re_hz > 0.0)
+        .min_by(|x, y| x.magnitude_hz().total_cmp(&y.magnitude_hz()))
     {
-        let ratio = exact.map(|f| z.re_hz / f);
-        let place = match ratio {
+        let f_z = z.magnitude_hz();
+        let place = match exact.map(|f| f_z / f) {
+            Some(r) if r < 1.0 => "below the upper cut-off, inside the band".to_string(),
             Some(r) if r < 10.0 => format!(
                 "only {}× above the cut-off, close enough to shape the band edge",
                 plain(r, 3)
@@ -168,10 +203,14 @@ fn high(a: &Analysis) -> Vec<String> {
             Some(r) => format!("{}× above the cut-off, well clear of the band", plain(r, 3)),
             None => "beyond the band".to_string(),
         };
+        let effect = if a.midband.gain < 0.0 {
+            "above it the stage stops inverting and the phase keeps falling"
+        } else {
+            "above it the phase keeps falling"
+        };
         out.push(format!(
-            "A right-half-plane zero sits at {}, {place}; above it the stage stops inverting and the \
-             phase keeps falling.",
-            si(z.re_hz, "Hz", 4)
+            "A right-half-plane zero sits at {}, {place}; {effect}.",
+            si(f_z, "Hz", 4)
         ));
     }
 
@@ -180,13 +219,34 @@ fn high(a: &Analysis) -> Vec<String> {
         format!(
             "lower the gain across {} or the resistance driving its input side, or shrink the \
              capacitance itself",
-            top.part
+            cell(&top.part)
         )
     } else {
-        format!("lower the {} that {} sees, or its capacitance", si(top.r_ohm, "Ω", 3), top.part)
+        format!(
+            "lower the {} that {} sees, or its capacitance",
+            si(top.r_ohm, "Ω", 3),
+            cell(&top.part)
+        )
     };
-    out.push(format!("To raise f_H, {lever}: f_H moves almost in proportion to its time constant while it holds {}.", pct(top.share)));
+    if top.share >= 0.8 {
+        out.push(format!(
+            "To raise f_H, {lever}: with {} of the sum it sets f_H almost in proportion.",
+            pct(top.share)
+        ));
+    } else {
+        out.push(format!(
+            "To raise f_H, {lever}: the time-constant estimate moves by about {} % per % change of its time constant.",
+            plain(top.share * 100.0, 2)
+        ));
+    }
     out
+}
+
+/// The estimate with the smallest error, if any has one.
+fn best_of(list: &[(&'static str, Option<f64>)]) -> Option<(&'static str, f64)> {
+    list.iter()
+        .filter_map(|(n, e)| e.map(|e| (*n, e)))
+        .min_by(|a, b| a.1.abs().total_cmp(&b.1.abs()))
 }
 
 fn quality(p: &RootHz) -> f64 {
@@ -207,7 +267,7 @@ fn low(a: &Analysis) -> Vec<String> {
     out.push(format!(
         "The lower cut-off is set mainly by **{}** ({}, seeing {}): it holds {} of Σ 1/τ, which \
          gives f_L ≈ {}.",
-        top.part,
+        cell(&top.part),
         si(top.c_f, "F", 3),
         si(top.r_ohm, "Ω", 4),
         pct(top.share),
@@ -215,30 +275,39 @@ fn low(a: &Analysis) -> Vec<String> {
     ));
     let exact = l.f3db_hz.map_or("—".into(), |f| si(f, "Hz", 4));
     let err = l.estimate_errors.time_constant.map_or("—".into(), signed_pct);
-    match l.dominance_ratio {
-        Some(k)
-            if k >= DOMINANT_RATIO
-                && l.estimate_errors.time_constant.is_some_and(|x| x.abs() <= TRUSTED_ERROR) =>
-        {
-            out.push(format!(
-                "The highest low-frequency pole stands {}× above the next, so the short-circuit sum \
-                 holds: {err} from the exact {exact}.",
-                plain(k, 3)
+    let tc = l.estimate_errors.time_constant;
+    let one_pole_no_zero =
+        l.poles_hz.len() == 1 && l.zeros_hz.iter().all(|z| z.magnitude_hz() == 0.0);
+    if l.f3db_hz.is_none() {
+        out.push(
+            "No lower −3 dB point was found within three decades below the sweep.".to_string(),
+        );
+    } else if one_pole_no_zero && tc.is_some_and(|x| x.abs() < 1e-6) {
+        out.push(format!("One low-frequency pole and no zero off the origin: the short-circuit estimate is exact ({err})."));
+    } else if tc.is_some_and(|x| x.abs() <= TRUSTED_ERROR)
+        && l.dominance_ratio.is_none_or(|k| k >= DOMINANT_RATIO)
+    {
+        out.push(format!("The short-circuit sum holds: {err} from the exact {exact}."));
+    } else {
+        let cause = match l.dominance_ratio {
+            Some(k) if k < DOMINANT_RATIO => format!("the highest low-frequency pole is only {}× above the next", plain(k, 3)),
+            _ => "the other low-frequency poles, and the zeros of the coupling and bypass networks, add to the sum".to_string(),
+        };
+        let best = best_of(&[
+            ("the short-circuit sum", tc),
+            ("the root-sum-square of the poles and zeros", l.estimate_errors.root_sum_square),
+        ]);
+        out.push(format!(
+            "Warning: the short-circuit sum is {err} off the exact {exact}, because {cause}.{}",
+            best.map_or(String::new(), |(n, e)| format!(
+                " The closest estimate here is {n} ({}).",
+                signed_pct(e)
             ))
-        }
-        Some(k) => out.push(format!(
-            "Warning: the short-circuit sum is {err} off the exact {exact}: the highest \
-             low-frequency pole is only {}× above the next, and the zeros of the coupling and \
-             bypass networks sit close to the poles. The root-sum-square of the poles and zeros \
-             is within {}.",
-            plain(k, 3),
-            l.estimate_errors.root_sum_square.map_or("—".into(), signed_pct)
-        )),
-        None => out.push(format!("One low-frequency pole: the short-circuit estimate is exact ({err}).")),
+        ));
     }
     out.push(format!(
         "To lower f_L, enlarge {} or raise the {} it sees.",
-        top.part,
+        cell(&top.part),
         si(top.r_ohm, "Ω", 3)
     ));
     out

@@ -44,7 +44,15 @@ fn body(markdown: &str) -> (String, Vec<(u8, String, String)>) {
                 }
                 j += 1;
             }
-            let mut anchor = id.as_ref().map_or_else(|| slug(&text), |s| s.to_string());
+            // A heading id from the text is trusted only when it is a plain slug.
+            let given = id.as_ref().map(|s| s.to_string()).filter(|s| {
+                !s.is_empty()
+                    && s.chars().all(|c| c.is_ascii_alphanumeric() || c == '-' || c == '_')
+            });
+            let mut anchor = given.unwrap_or_else(|| slug(&text));
+            if anchor.is_empty() {
+                anchor = "section".to_string();
+            }
             let base = anchor.clone();
             let mut n = 2;
             while used.contains(&anchor) {
@@ -76,7 +84,9 @@ fn body(markdown: &str) -> (String, Vec<(u8, String, String)>) {
 }
 
 fn sanitise(html: &str) -> String {
+    // No images from the text: the page stays self-contained (plots are spliced in after).
     ammonia::Builder::default()
+        .rm_tags(&["img"])
         .add_generic_attributes(&["id", "class"])
         .add_tag_attributes("td", &["style"])
         .add_tag_attributes("th", &["style"])

@@ -35,11 +35,7 @@ pub const TABLES: &[(&str, &str)] = &[
 
 /// Escapes text for a Markdown table cell.
 pub fn cell(text: &str) -> String {
-    text.replace('\\', "\\\\")
-        .replace('|', "\\|")
-        .replace('<', "&lt;")
-        .replace('>', "&gt;")
-        .replace('\n', " ")
+    crate::report::view::escape(&text.replace('\n', " "))
 }
 
 fn table(header: &[&str], align: &str, rows: Vec<Vec<String>>) -> String {
@@ -177,7 +173,7 @@ pub fn all(
                 let ss = &d.small_signal;
                 let (region, bias, caps) = match &d.bias.state {
                     DeviceState::Bjt { region, ic_a, vce_v, vbe_v, .. } => (
-                        format!("{region:?}").to_lowercase().replace("cutoff", "cut-off"),
+                        region.label().to_string(),
                         format!(
                             "I_C {}, V_CE {}, V_BE {}",
                             si(*ic_a, "A", 3),
@@ -187,7 +183,7 @@ pub fn all(
                         format!("Cπ {}, Cμ {}", opt(ss.cpi_f, "F"), opt(ss.cmu_f, "F")),
                     ),
                     DeviceState::Mosfet { region, id_a, vds_v, vgs_v, .. } => (
-                        format!("{region:?}").to_lowercase().replace("cutoff", "cut-off"),
+                        region.label().to_string(),
                         format!(
                             "I_D {}, V_DS {}, V_GS {}",
                             si(*id_a, "A", 3),

@@ -15,9 +15,24 @@ use crate::report::cautions::Caution;
 use crate::report::explain::Explanation;
 use crate::report::results::{Provenance, ResultsDocument, Sensitivity, ToleranceSummary, Tool};
 
-/// Escapes text so it reads as text in Markdown and HTML.
+/// Escapes text so it reads as text in Markdown and HTML: HTML's `& < >` become entities,
+/// and Markdown's link, emphasis, code, table, heading and attribute characters are
+/// backslash-escaped (CommonMark lets any ASCII punctuation be escaped).
 pub fn escape(text: &str) -> String {
-    text.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;")
+    let mut out = String::with_capacity(text.len());
+    for c in text.chars() {
+        match c {
+            '&' => out.push_str("&amp;"),
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '\\' | '`' | '*' | '_' | '[' | ']' | '!' | '|' | '{' | '}' | '#' | '~' => {
+                out.push('\\');
+                out.push(c);
+            }
+            c => out.push(c),
+        }
+    }
+    out
 }
 
 /// The design as the template sees it.

@@ -173,7 +173,11 @@ fn hostile_text_in_a_design_renders_inert() {
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let html = std::fs::read_to_string(dir.join("out/report.html")).unwrap();
     assert!(!html.contains("<script"), "a script element reached the page");
-    assert!(!html.contains("javascript:"), "a javascript: URL reached the page");
+    assert!(!html.contains("href=\"javascript:"), "a javascript: link reached the page");
+    assert!(
+        html.contains("[click me](javascript:alert('p'))"),
+        "the link text is not shown as text"
+    );
     assert!(!html.contains("<img"), "an img element reached the page");
     let dom = headless(&dir.join("out/report.html"), &dir.join("profile"), &["--dump-dom"]);
     let dom = String::from_utf8_lossy(&dom.stdout);
@@ -183,6 +187,7 @@ fn hostile_text_in_a_design_renders_inert() {
     );
     assert!(dom.contains("onerror=alert('i')"), "the purpose's markup is not shown as text");
     assert!(!dom.contains("<script>alert"));
+    assert!(!html.contains("onmouseover=\""), "a heading attribute injected an event handler");
 }
 
 fn explanation_of(parts: &str, output: &str) -> (String, analysis::Analysis) {
