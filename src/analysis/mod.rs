@@ -151,7 +151,7 @@ pub struct Octc {
     /// Per high-frequency capacitor.
     pub caps: Vec<OpenCircuitCap>,
     /// Σ τ, s.
-    pub sum_tau_s: f64,
+    pub sum_tau_s: Option<f64>,
     /// 1/(2π Σ τ), Hz.
     pub f_estimate_hz: Option<f64>,
 }
@@ -162,9 +162,9 @@ pub struct High {
     /// Exact upper −3 dB frequency, Hz.
     pub f3db_hz: Option<f64>,
     /// b1 = Σ τ, s.
-    pub b1_s: f64,
+    pub b1_s: Option<f64>,
     /// b2, s².
-    pub b2_s2: f64,
+    pub b2_s2: Option<f64>,
     /// |p2/p1| of the high-frequency network's two lowest poles.
     pub dominance_ratio: Option<f64>,
     /// Open-circuit time constants.
@@ -435,10 +435,14 @@ pub fn analyze_network(lin: &LinearNetwork, design: &Design) -> Result<Analysis,
         },
         high: High {
             f3db_hz: f_high,
-            b1_s: octc.b1,
-            b2_s2: octc.b2,
+            b1_s: (!high_caps.is_empty()).then_some(octc.b1),
+            b2_s2: (!high_caps.is_empty()).then_some(octc.b2),
             dominance_ratio: dominance_high,
-            octc: Octc { caps: octc.caps, sum_tau_s: octc.b1, f_estimate_hz: f_high_est },
+            octc: Octc {
+                caps: octc.caps,
+                sum_tau_s: (!high_caps.is_empty()).then_some(octc.b1),
+                f_estimate_hz: f_high_est,
+            },
             second_order_f_estimate_hz: second_order,
             rss_f_estimate_hz: rss_high,
             estimate_errors: EstimateErrors {

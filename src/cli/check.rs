@@ -266,8 +266,8 @@ pub fn analysis_text(a: &Analysis) -> String {
             out,
             "  |p2/p1| = {}   b1 = {}   b2 = {}",
             plain(d, 3),
-            si(h.b1_s, "s", 4),
-            scientific(h.b2_s2, "s²", 4)
+            h.b1_s.map_or("—".into(), |b| si(b, "s", 4)),
+            h.b2_s2.map_or("—".into(), |b| scientific(b, "s²", 4))
         );
     }
     if let Some(p) = &h.peaking {

@@ -90,7 +90,7 @@ fn high(a: &Analysis) -> Vec<String> {
          (f_H ≈ {} from the sum), with {} seeing {}.",
         cell(&top.part),
         pct(top.share),
-        si(h.b1_s, "s", 4),
+        h.b1_s.map_or("—".into(), |b| si(b, "s", 4)),
         h.octc.f_estimate_hz.map_or("—".into(), |f| si(f, "Hz", 4)),
         si(top.c_f, "F", 3),
         si(top.r_ohm, "Ω", 4),

@@ -264,8 +264,8 @@ pub fn all(
     let mut high_est = table(&["upper cut-off", "f_H", "error"], "lrr", est);
     high_est.push_str(&format!(
         "\nb1 = {}, b2 = {}, pole separation |p2/p1| = {}.\n",
-        si(h.b1_s, "s", 4),
-        scientific(h.b2_s2, "s²", 4),
+        h.b1_s.map_or("—".into(), |b| si(b, "s", 4)),
+        h.b2_s2.map_or("—".into(), |b| scientific(b, "s²", 4)),
         h.dominance_ratio.map_or("—".into(), |d| plain(d, 3))
     ));
     t.insert("high_estimates", high_est);

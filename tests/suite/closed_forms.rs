@@ -56,8 +56,8 @@ fn common_emitter_without_degeneration() {
     close(cap_r(&a, "CL"), rl, "R_CL0");
     let b1 = rs2 * (cpi + cmu * (1.0 + gm * rl)) + rl * (cmu + cl);
     let b2 = rs2 * rl * (cpi * cmu + cpi * cl + cmu * cl);
-    close(a.high.b1_s, b1, "b1");
-    close(a.high.b2_s2, b2, "b2");
+    close(a.high.b1_s.unwrap(), b1, "b1");
+    close(a.high.b2_s2.unwrap(), b2, "b2");
     close(a.midband.gain, -gm * rl * rpi / (rpi + rs), "mid-band gain");
     // The right-half-plane zero at +gm/Cμ.
     assert_eq!(a.zeros.len(), 1);
@@ -114,8 +114,8 @@ fn common_source() {
     let rs = par(rs, 10e6);
     close(cap_r(&a, "CGS"), rs, "R_gs0");
     close(cap_r(&a, "CGD"), rs + rd + gm * rd * rs, "R_gd0");
-    close(a.high.b1_s, rs * (1.0 + gm * rd) * cgd + rs * cgs + rd * (cgd + cdb), "b1");
-    close(a.high.b2_s2, rs * rd * (cgs * cgd + cgs * cdb + cgd * cdb), "b2");
+    close(a.high.b1_s.unwrap(), rs * (1.0 + gm * rd) * cgd + rs * cgs + rd * (cgd + cdb), "b1");
+    close(a.high.b2_s2.unwrap(), rs * rd * (cgs * cgd + cgs * cdb + cgd * cdb), "b2");
     close(a.zeros[0].re_hz, gm / cgd / (2.0 * std::f64::consts::PI), "zero");
 }
 
