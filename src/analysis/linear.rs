@@ -57,6 +57,9 @@ impl Factor {
 /// y = outᵀ (G + sC)⁻¹ b at complex frequency `s`, or None when singular there.
 pub fn transfer(g: &Mat<f64>, c: &Mat<f64>, b: &[f64], out: &[f64], s: c64) -> Option<c64> {
     let n = g.nrows();
+    if n <= SMALL {
+        return transfer_small(g, c, b, out, s);
+    }
     let a = Mat::<c64>::from_fn(n, n, |i, j| c64::new(g[(i, j)], 0.0) + s * c[(i, j)]);
     let scale = (0..n)
         .flat_map(|i| (0..n).map(move |j| (i, j)))
@@ -72,6 +75,66 @@ pub fn transfer(g: &Mat<f64>, c: &Mat<f64>, b: &[f64], out: &[f64], s: c64) -> O
     let rhs = Mat::<c64>::from_fn(n, 1, |i, _| c64::new(b[i], 0.0));
     let x = lu.solve(&rhs);
     let y = (0..n).map(|i| x[(i, 0)] * out[i]).fold(c64::new(0.0, 0.0), |acc, v| acc + v);
+    y.is_finite().then_some(y)
+}
+
+/// Size up to which [`transfer`] uses a plain in-place elimination (no allocation per
+/// matrix beyond one buffer): the reduced dynamic systems of amplifier stages are this
+/// small, and a sweep or a cut-off search solves them hundreds of times.
+const SMALL: usize = 24;
+
+fn transfer_small(g: &Mat<f64>, c: &Mat<f64>, b: &[f64], out: &[f64], s: c64) -> Option<c64> {
+    let n = g.nrows();
+    let w = n + 1;
+    let mut a = vec![c64::new(0.0, 0.0); n * w];
+    let mut scale = 0.0f64;
+    for i in 0..n {
+        for j in 0..n {
+            let v = c64::new(g[(i, j)], 0.0) + s * c[(i, j)];
+            scale = scale.max(v.norm());
+            a[i * w + j] = v;
+        }
+        a[i * w + n] = c64::new(b[i], 0.0);
+    }
+    // Gaussian elimination with partial pivoting on [A | b].
+    for k in 0..n {
+        let (mut p, mut best) = (k, a[k * w + k].norm());
+        for i in k + 1..n {
+            let m = a[i * w + k].norm();
+            if m > best {
+                p = i;
+                best = m;
+            }
+        }
+        if best.partial_cmp(&(PIVOT_TOLERANCE * scale)) != Some(std::cmp::Ordering::Greater) {
+            return None;
+        }
+        if p != k {
+            for j in 0..w {
+                a.swap(k * w + j, p * w + j);
+            }
+        }
+        let inv = c64::new(1.0, 0.0) / a[k * w + k];
+        for i in k + 1..n {
+            let f = a[i * w + k] * inv;
+            if f == c64::new(0.0, 0.0) {
+                continue;
+            }
+            for j in k..w {
+                let t = a[k * w + j];
+                a[i * w + j] -= f * t;
+            }
+        }
+    }
+    let mut x = vec![c64::new(0.0, 0.0); n];
+    for i in (0..n).rev() {
+        let mut acc = a[i * w + n];
+        for j in i + 1..n {
+            acc -= a[i * w + j] * x[j];
+        }
+        x[i] = acc / a[i * w + i];
+    }
+    let y = x.iter().zip(out).fold(c64::new(0.0, 0.0), |acc, (v, o)| acc + v * *o);
     y.is_finite().then_some(y)
 }
 

@@ -392,6 +392,7 @@ pub fn analyze_network(lin: &LinearNetwork, design: &Design) -> Result<Analysis,
         settings,
         !high_caps.is_empty() || has_inductors,
         !low_caps.is_empty() || has_inductors,
+        (f_low_est, f_high_est),
     );
     let peaking = peaking(&sweep, gain.abs());
 
@@ -483,6 +484,7 @@ fn exact_cutoffs(
     settings: &crate::design::AnalysisSettings,
     has_high: bool,
     has_low: bool,
+    estimates: (Option<f64>, Option<f64>),
 ) -> (Option<f64>, Option<f64>) {
     let level = gain.abs() / std::f64::consts::SQRT_2;
     let start = match transfer.at(frequency_hz) {
@@ -507,6 +509,7 @@ fn exact_cutoffs(
                 true,
                 per_decade,
                 settings.sweep_stop_hz * 1e3,
+                estimates.1,
             )
         })
         .flatten();
@@ -519,6 +522,7 @@ fn exact_cutoffs(
                 false,
                 per_decade,
                 settings.sweep_start_hz / 1e3,
+                estimates.0,
             )
         })
         .flatten();
@@ -597,6 +601,7 @@ pub fn metrics(design: &Design) -> Result<Metrics, AnalysisError> {
         settings,
         !high_caps.is_empty() || has_inductors,
         !low_caps.is_empty() || has_inductors,
+        (f_low_est, f_high_est),
     );
     Ok(Metrics { gain: gain.abs(), f_high, f_low, r_in, r_out, bias })
 }

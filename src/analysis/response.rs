@@ -133,13 +133,22 @@ pub fn crossing(
     up: bool,
     per_decade: u32,
     limit: f64,
+    estimate: Option<f64>,
 ) -> Option<f64> {
     let ratio = 10f64.powf(1.0 / per_decade.max(10) as f64);
     let below = |f: f64| m.at(f).map(|h| h.norm() - level);
     let mut f_prev = from;
-    let mut g_prev = below(from)?;
-    if g_prev < 0.0 {
+    if below(from)? < 0.0 {
         return None;
+    }
+    // Jump toward the time-constant estimate (halfway there on a log scale) when the
+    // response is still above the level there: the grid walk then starts close to the edge.
+    if let Some(e) = estimate {
+        let target = if up { e / 2.0 } else { e * 2.0 };
+        let beyond_start = if up { target > from } else { target < from };
+        if beyond_start && below(target).is_some_and(|g| g >= 0.0) {
+            f_prev = target;
+        }
     }
     loop {
         let f = if up { f_prev * ratio } else { f_prev / ratio };
@@ -153,7 +162,5 @@ pub fn crossing(
             return Some(10f64.powf(x));
         }
         f_prev = f;
-        g_prev = g;
-        let _ = g_prev;
     }
 }
