@@ -78,7 +78,7 @@ fn tornado(s: &Study) -> Option<String> {
                 s.s(i, "upper_cutoff")? * l.lever.tolerance?.fraction * 100.0,
             ))
         })
-        .filter(|(_, v)| v.abs() > 1e-3)
+        .filter(|(_, v)| v.abs() >= 0.005)
         .collect();
     rows.sort_by(|a, b| b.1.abs().total_cmp(&a.1.abs()).then(a.0.cmp(&b.0)));
     rows.truncate(12);
@@ -170,9 +170,15 @@ fn histograms(s: &Study, requirements: &[RequirementCheck]) -> Option<String> {
                 .collect();
             let lo = values.iter().copied().fold(f64::MAX, f64::min);
             let hi = values.iter().copied().fold(f64::MIN, f64::max);
-            let (lo, hi) = limits.iter().fold((lo, hi), |(a, b), &l| (a.min(l), b.max(l)));
+            // Limits within three spreads of the data widen the axis; farther ones are
+            // named at the edge instead of squashing the histogram.
+            let spread = (hi - lo).max(hi.abs() * 1e-6);
+            let (near, far): (Vec<f64>, Vec<f64>) =
+                limits.iter().partition(|&&l| l >= lo - 3.0 * spread && l <= hi + 3.0 * spread);
+            let (lo, hi) = near.iter().fold((lo, hi), |(a, b), &l| (a.min(l), b.max(l)));
             let pad = (hi - lo).max(hi.abs() * 1e-6) * 0.05;
             let (lo, hi) = (lo - pad, hi + pad);
+            let limits = near;
             let bins = 40usize;
             let width = (hi - lo) / bins as f64;
             let mut counts = vec![0usize; bins];
@@ -184,7 +190,7 @@ fn histograms(s: &Study, requirements: &[RequirementCheck]) -> Option<String> {
             let unit = if *key == "midband_gain" { "" } else { "Hz" };
             let mut chart = ChartBuilder::on(area)
                 .margin(12)
-                .x_label_area_size(28)
+                .x_label_area_size(40)
                 .y_label_area_size(50)
                 .build_cartesian_2d(lo..hi, 0.0..top)
                 .ok()?;
@@ -215,6 +221,16 @@ fn histograms(s: &Study, requirements: &[RequirementCheck]) -> Option<String> {
                         2,
                         INK.stroke_width(2),
                     ))
+                    .ok()?;
+            }
+            for l in far {
+                let (x, text) = if l > hi {
+                    (hi - (hi - lo) * 0.28, format!("limit {} →", si(l, unit, 3)))
+                } else {
+                    (lo + (hi - lo) * 0.01, format!("← limit {}", si(l, unit, 3)))
+                };
+                chart
+                    .draw_series(std::iter::once(Text::new(text, (x, top * 0.93), style(11))))
                     .ok()?;
             }
         }
