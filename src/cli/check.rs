@@ -58,38 +58,8 @@ pub fn requirements_text(
         return out;
     }
     let _ = writeln!(out, "\nrequirements");
-    let rows: Vec<Vec<String>> = checks
-        .iter()
-        .map(|r| {
-            let show = |v: f64| {
-                if r.name == "midband_gain" {
-                    format!("{} dB", plain(20.0 * v.log10(), 3))
-                } else {
-                    si(v, r.unit, 4)
-                }
-            };
-            let limit = match (r.min, r.max) {
-                (Some(a), Some(b)) => format!("{} … {}", show(a), show(b)),
-                (Some(a), None) => format!("≥ {}", show(a)),
-                (None, Some(b)) => format!("≤ {}", show(b)),
-                (None, None) => String::new(),
-            };
-            vec![
-                r.name.replace('_', " "),
-                limit,
-                r.value.map_or("not found".into(), show),
-                if r.pass { "pass".into() } else { "FAIL".into() },
-                r.margin.map_or("—".into(), |m| percent(Some(m))),
-                match (r.corner, r.corner_pass) {
-                    (Some(v), Some(p)) => {
-                        format!("{} {}", show(v), if p { "pass" } else { "fail" })
-                    }
-                    _ => "—".into(),
-                },
-                r.yield_fraction.map_or("—".into(), |y| format!("{} %", plain(y * 100.0, 4))),
-            ]
-        })
-        .collect();
+    let rows: Vec<Vec<String>> =
+        checks.iter().map(crate::report::tables::requirement_row).collect();
     out.push_str(&render(
         2,
         &[

@@ -337,32 +337,14 @@ pub fn all(
     let req = reqs
         .iter()
         .map(|r| {
-            let show = |v: f64| {
-                if r.name == "midband_gain" {
-                    format!("{} dB", plain(20.0 * v.log10(), 3))
-                } else {
-                    si(v, r.unit, 4)
-                }
-            };
-            let limit = match (r.min, r.max) {
-                (Some(a), Some(b)) => format!("{} … {}", show(a), show(b)),
-                (Some(a), None) => format!("≥ {}", show(a)),
-                (None, Some(b)) => format!("≤ {}", show(b)),
-                (None, None) => String::new(),
-            };
-            vec![
-                r.name.replace('_', " "),
-                limit,
-                r.value.map_or("not found".into(), show),
-                if r.pass { "pass".into() } else { "**FAIL**".into() },
-                r.margin.map_or("—".into(), |m| pct(Some(m))),
-                match (r.corner, r.corner_pass) {
-                    (Some(v), Some(true)) => format!("{} pass", show(v)),
-                    (Some(v), Some(false)) => format!("{} **fail**", show(v)),
-                    _ => "—".into(),
-                },
-                r.yield_fraction.map_or("—".into(), |y| format!("{} %", plain(y * 100.0, 4))),
-            ]
+            let mut row = requirement_row(r);
+            if !r.pass {
+                row[3] = "**FAIL**".into();
+            }
+            if r.corner_pass == Some(false) {
+                row[5] = row[5].replace(" fail", " **fail**");
+            }
+            row
         })
         .collect();
     t.insert(
@@ -377,6 +359,36 @@ pub fn all(
         study_tables(&mut t, s);
     }
     t
+}
+
+/// One requirement as text cells: name, limit, nominal, pass/FAIL, margin, worst corner,
+/// yield — shared by the report's table and the terminal.
+pub fn requirement_row(r: &RequirementCheck) -> Vec<String> {
+    let show = |v: f64| {
+        if r.name == "midband_gain" {
+            format!("{} dB", plain(20.0 * v.log10(), 3))
+        } else {
+            si(v, r.unit, 4)
+        }
+    };
+    let limit = match (r.min, r.max) {
+        (Some(a), Some(b)) => format!("{} … {}", show(a), show(b)),
+        (Some(a), None) => format!("≥ {}", show(a)),
+        (None, Some(b)) => format!("≤ {}", show(b)),
+        (None, None) => String::new(),
+    };
+    vec![
+        r.name.replace('_', " "),
+        limit,
+        r.value.map_or("not found".into(), show),
+        if r.pass { "pass".into() } else { "FAIL".into() },
+        r.margin.map_or("—".into(), |m| pct(Some(m))),
+        match (r.corner, r.corner_pass) {
+            (Some(v), Some(p)) => format!("{} {}", show(v), if p { "pass" } else { "fail" }),
+            _ => "—".into(),
+        },
+        r.yield_fraction.map_or("—".into(), |y| format!("{} %", plain(y * 100.0, 4))),
+    ]
 }
 
 fn figure_label(key: &str) -> String {
