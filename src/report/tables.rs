@@ -473,7 +473,7 @@ fn study_tables(t: &mut BTreeMap<&'static str, String>, s: &Study) {
     t.insert(
         "worst_case",
         table(
-            &["figure", "nominal", "linear bound Σ|S|t", "low corner", "high corner"],
+            &["figure", "nominal", "linear bound Σ\\|S\\|·t", "low corner", "high corner"],
             "lrrrr",
             wc,
         ),

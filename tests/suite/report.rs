@@ -49,6 +49,10 @@ fn render_writes_every_output_for_every_example() {
             assert!(md.contains(heading), "{name}: no `{heading}`");
         }
         assert!(!md.contains("@@plot") && !md.contains("NaN"), "{name}");
+        // Every Markdown table became a table: none is left as a paragraph of pipes.
+        let html = std::fs::read_to_string(out.join("report.html")).unwrap();
+        assert!(!html.contains("<p>|"), "{name}: a table did not render");
+        assert!(html.matches("<table>").count() >= 12, "{name}: too few tables");
         let csv = std::fs::read_to_string(out.join("sweep.csv")).unwrap();
         assert!(
             csv.starts_with("frequency_hz,magnitude_db,phase_deg\n") && csv.lines().count() > 100
