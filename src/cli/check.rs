@@ -86,15 +86,6 @@ pub fn requirements_text(
     out
 }
 
-fn percent(error: Option<f64>) -> String {
-    error.map_or(String::new(), |e| {
-        let p = e * 100.0;
-        let text = if p.abs() < 0.01 { "0".to_string() } else { plain(p, 2) };
-        let sign = if p > 0.0 && text != "0" { "+" } else { "" };
-        format!("{sign}{text} %")
-    })
-}
-
 fn opt_si(v: Option<f64>, unit: &str) -> String {
     v.map_or("—".to_string(), |v| si(v, unit, 4))
 }
@@ -208,24 +199,7 @@ pub fn analysis_text(a: &Analysis) -> String {
 
     let h = &a.high;
     let _ = writeln!(out, "\nupper cut-off");
-    let est = vec![
-        vec!["exact".to_string(), opt_si(h.f3db_hz, "Hz"), String::new()],
-        vec![
-            "time-constant sum".into(),
-            opt_si(h.octc.f_estimate_hz, "Hz"),
-            percent(h.estimate_errors.time_constant),
-        ],
-        vec![
-            "second order (b1, b2)".into(),
-            opt_si(h.second_order_f_estimate_hz, "Hz"),
-            percent(h.estimate_errors.second_order),
-        ],
-        vec![
-            "root-sum-square".into(),
-            opt_si(h.rss_f_estimate_hz, "Hz"),
-            percent(h.estimate_errors.root_sum_square),
-        ],
-    ];
+    let est = crate::report::tables::high_estimate_rows(h);
     out.push_str(&render(
         2,
         &[("", Align::Left), ("f_high", Align::Right), ("error", Align::Right)],
@@ -243,21 +217,7 @@ pub fn analysis_text(a: &Analysis) -> String {
     if let Some(p) = &h.peaking {
         let _ = writeln!(out, "  peaking {} dB at {}", plain(p.peak_db, 3), si(p.at_hz, "Hz", 3));
     }
-    let rows: Vec<Vec<String>> = h
-        .octc
-        .caps
-        .iter()
-        .map(|c| {
-            vec![
-                c.part.clone(),
-                si(c.c_f, "F", 3),
-                si(c.r_ohm, "Ω", 4),
-                si(c.tau_s, "s", 3),
-                format!("{} %", plain(c.share * 100.0, 3)),
-                c.miller_factor.map_or("—".into(), |m| plain(m, 3)),
-            ]
-        })
-        .collect();
+    let rows = crate::report::tables::octc_rows(h);
     if !rows.is_empty() {
         let _ = writeln!(out);
         out.push_str(&render(
@@ -276,38 +236,13 @@ pub fn analysis_text(a: &Analysis) -> String {
 
     let l = &a.low;
     let _ = writeln!(out, "\nlower cut-off");
-    let est = vec![
-        vec!["exact".to_string(), opt_si(l.f3db_hz, "Hz"), String::new()],
-        vec![
-            "time-constant sum".into(),
-            opt_si(l.sctc.f_estimate_hz, "Hz"),
-            percent(l.estimate_errors.time_constant),
-        ],
-        vec![
-            "root-sum-square".into(),
-            opt_si(l.rss_f_estimate_hz, "Hz"),
-            percent(l.estimate_errors.root_sum_square),
-        ],
-    ];
+    let est = crate::report::tables::low_estimate_rows(l);
     out.push_str(&render(
         2,
         &[("", Align::Left), ("f_low", Align::Right), ("error", Align::Right)],
         &est,
     ));
-    let rows: Vec<Vec<String>> = l
-        .sctc
-        .caps
-        .iter()
-        .map(|c| {
-            vec![
-                c.part.clone(),
-                si(c.c_f, "F", 3),
-                si(c.r_ohm, "Ω", 4),
-                si(c.tau_s, "s", 3),
-                format!("{} %", plain(c.share * 100.0, 3)),
-            ]
-        })
-        .collect();
+    let rows = crate::report::tables::sctc_rows(l);
     if !rows.is_empty() {
         let _ = writeln!(out);
         out.push_str(&render(

@@ -243,25 +243,7 @@ pub fn all(
     t.insert("capacitors", table(&["capacitor", "value", "set", "because"], "lrll", caps));
 
     let h = &a.high;
-    let est = vec![
-        vec!["exact −3 dB".into(), opt(h.f3db_hz, "Hz"), String::new()],
-        vec![
-            "time-constant sum 1/(2π Στ)".into(),
-            opt(h.octc.f_estimate_hz, "Hz"),
-            pct(h.estimate_errors.time_constant),
-        ],
-        vec![
-            "second order from b1, b2".into(),
-            opt(h.second_order_f_estimate_hz, "Hz"),
-            pct(h.estimate_errors.second_order),
-        ],
-        vec![
-            "root-sum-square of poles and zeros".into(),
-            opt(h.rss_f_estimate_hz, "Hz"),
-            pct(h.estimate_errors.root_sum_square),
-        ],
-    ];
-    let mut high_est = table(&["upper cut-off", "f_H", "error"], "lrr", est);
+    let mut high_est = table(&["upper cut-off", "f_H", "error"], "lrr", high_estimate_rows(h));
     high_est.push_str(&format!(
         "\nb1 = {}, b2 = {}, pole separation |p2/p1| = {}.\n",
         h.b1_s.map_or("—".into(), |b| si(b, "s", 4)),
@@ -269,58 +251,32 @@ pub fn all(
         h.dominance_ratio.map_or("—".into(), |d| plain(d, 3))
     ));
     t.insert("high_estimates", high_est);
-    let octc = h
-        .octc
-        .caps
-        .iter()
-        .map(|c| {
-            vec![
-                cell(&c.part),
-                si(c.c_f, "F", 3),
-                si(c.r_ohm, "Ω", 4),
-                si(c.tau_s, "s", 3),
-                format!("{} %", plain(c.share * 100.0, 3)),
-                c.miller_factor.map_or("—".into(), |m| plain(m, 3)),
-            ]
-        })
-        .collect();
+    let escaped = |mut rows: Vec<Vec<String>>| {
+        for r in rows.iter_mut() {
+            r[0] = cell(&r[0]);
+        }
+        rows
+    };
     t.insert(
         "octc",
-        table(&["capacitor", "C", "R seen", "τ = RC", "share", "Miller factor"], "lrrrrr", octc),
+        table(
+            &["capacitor", "C", "R seen", "τ = RC", "share", "Miller factor"],
+            "lrrrrr",
+            escaped(octc_rows(h)),
+        ),
     );
-
     let l = &a.low;
-    let est = vec![
-        vec!["exact −3 dB".into(), opt(l.f3db_hz, "Hz"), String::new()],
-        vec![
-            "short-circuit sum Σ 1/(2π τ)".into(),
-            opt(l.sctc.f_estimate_hz, "Hz"),
-            pct(l.estimate_errors.time_constant),
-        ],
-        vec![
-            "root-sum-square of poles and zeros".into(),
-            opt(l.rss_f_estimate_hz, "Hz"),
-            pct(l.estimate_errors.root_sum_square),
-        ],
-    ];
-    t.insert("low_estimates", table(&["lower cut-off", "f_L", "error"], "lrr", est));
-    let sctc = l
-        .sctc
-        .caps
-        .iter()
-        .map(|c| {
-            vec![
-                cell(&c.part),
-                si(c.c_f, "F", 3),
-                si(c.r_ohm, "Ω", 4),
-                si(c.tau_s, "s", 3),
-                format!("{} %", plain(c.share * 100.0, 3)),
-            ]
-        })
-        .collect();
+    t.insert(
+        "low_estimates",
+        table(&["lower cut-off", "f_L", "error"], "lrr", low_estimate_rows(l)),
+    );
     t.insert(
         "sctc",
-        table(&["capacitor", "C", "R seen", "τ = RC", "share of Σ 1/τ"], "lrrrr", sctc),
+        table(
+            &["capacitor", "C", "R seen", "τ = RC", "share of Σ 1/τ"],
+            "lrrrr",
+            escaped(sctc_rows(l)),
+        ),
     );
 
     let n = a.poles.len().max(a.zeros.len());
@@ -359,6 +315,81 @@ pub fn all(
         study_tables(&mut t, s);
     }
     t
+}
+
+/// The upper cut-off's exact value and estimates: label, f_H, error (shared with the
+/// terminal).
+pub fn high_estimate_rows(h: &crate::analysis::High) -> Vec<Vec<String>> {
+    vec![
+        vec!["exact −3 dB".into(), opt(h.f3db_hz, "Hz"), String::new()],
+        vec![
+            "time-constant sum 1/(2π Στ)".into(),
+            opt(h.octc.f_estimate_hz, "Hz"),
+            pct(h.estimate_errors.time_constant),
+        ],
+        vec![
+            "second order from b1, b2".into(),
+            opt(h.second_order_f_estimate_hz, "Hz"),
+            pct(h.estimate_errors.second_order),
+        ],
+        vec![
+            "root-sum-square of poles and zeros".into(),
+            opt(h.rss_f_estimate_hz, "Hz"),
+            pct(h.estimate_errors.root_sum_square),
+        ],
+    ]
+}
+
+/// The lower cut-off's exact value and estimates: label, f_L, error.
+pub fn low_estimate_rows(l: &crate::analysis::Low) -> Vec<Vec<String>> {
+    vec![
+        vec!["exact −3 dB".into(), opt(l.f3db_hz, "Hz"), String::new()],
+        vec![
+            "short-circuit sum Σ 1/(2π τ)".into(),
+            opt(l.sctc.f_estimate_hz, "Hz"),
+            pct(l.estimate_errors.time_constant),
+        ],
+        vec![
+            "root-sum-square of poles and zeros".into(),
+            opt(l.rss_f_estimate_hz, "Hz"),
+            pct(l.estimate_errors.root_sum_square),
+        ],
+    ]
+}
+
+/// Open-circuit time constants: part (raw), C, R seen, τ, share, Miller factor.
+pub fn octc_rows(h: &crate::analysis::High) -> Vec<Vec<String>> {
+    h.octc
+        .caps
+        .iter()
+        .map(|c| {
+            vec![
+                c.part.clone(),
+                si(c.c_f, "F", 3),
+                si(c.r_ohm, "Ω", 4),
+                si(c.tau_s, "s", 3),
+                format!("{} %", plain(c.share * 100.0, 3)),
+                c.miller_factor.map_or("—".into(), |m| plain(m, 3)),
+            ]
+        })
+        .collect()
+}
+
+/// Short-circuit time constants: part (raw), C, R seen, τ, share of Σ 1/τ.
+pub fn sctc_rows(l: &crate::analysis::Low) -> Vec<Vec<String>> {
+    l.sctc
+        .caps
+        .iter()
+        .map(|c| {
+            vec![
+                c.part.clone(),
+                si(c.c_f, "F", 3),
+                si(c.r_ohm, "Ω", 4),
+                si(c.tau_s, "s", 3),
+                format!("{} %", plain(c.share * 100.0, 3)),
+            ]
+        })
+        .collect()
 }
 
 /// One requirement as text cells: name, limit, nominal, pass/FAIL, margin, worst corner,
