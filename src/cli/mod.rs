@@ -10,6 +10,7 @@ pub mod schema;
 pub mod source;
 pub mod table;
 pub mod template;
+pub mod verify;
 
 use clap::{Parser, Subcommand};
 
@@ -51,6 +52,8 @@ pub enum Command {
     Render(render::RenderArgs),
     /// Work with report templates.
     Template(template::TemplateArgs),
+    /// Rebuild a rendered folder from its own inputs and compare every file byte for byte.
+    Verify(verify::VerifyArgs),
     /// Print the JSON Schema of the design format (for editors).
     Schema(schema::SchemaArgs),
 }
@@ -63,5 +66,6 @@ pub fn run() -> Result<Outcome, Failure> {
         Command::Render(args) => render::run(&args),
         Command::Schema(args) => schema::run(&args),
         Command::Template(args) => template::run(&args),
+        Command::Verify(args) => verify::run(&args),
     }
 }

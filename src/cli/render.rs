@@ -92,26 +92,9 @@ pub fn template_source(path: &Option<PathBuf>) -> Result<(TemplateSource, bool),
 /// Runs the render.
 pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
     let file = load_file(&args.design)?;
-    let design = file.design()?;
-    eprint!("{}", file.report());
     let (template, built_in) = template_source(&args.template)?;
-    let analysis = crate::analysis::analyze(design).map_err(|e| analysis_failure(&file, &e))?;
-    let formats = match args.format {
-        Format::All => Formats { html: true, markdown: true, json: true },
-        Format::Html => Formats { html: true, markdown: false, json: true },
-        Format::Md => Formats { html: false, markdown: true, json: true },
-        Format::Json => Formats { html: false, markdown: false, json: true },
-    };
-    let inputs = Inputs {
-        design_name: &file.name,
-        design_text: &file.text,
-        template: &template,
-        built_in_template: built_in,
-    };
-    let study = run_study(design, &analysis, args.runs)?;
-    let files = report::render(design, &analysis, Some(&study), &inputs, formats)
-        .map_err(|e| Failure::Input(format!("{}nothing was written\n", e.message)))?;
-    let dir = args.out.clone().unwrap_or_else(|| PathBuf::from("out").join(&design.meta.id));
+    let (id, files) = build(&file, &template, built_in, args.format, args.runs)?;
+    let dir = args.out.clone().unwrap_or_else(|| PathBuf::from("out").join(id));
     for f in &files {
         let path = dir.join(&f.path);
         write::atomic(&path, &f.bytes).map_err(|e| {
@@ -121,4 +104,43 @@ pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
     let names: Vec<&str> = files.iter().map(|f| f.path.as_str()).collect();
     eprintln!("wrote {} into {}/", names.join(", "), dir.display());
     Ok(Outcome::Done)
+}
+
+/// Everything a render writes, in memory: analysis, tolerance study, the review files,
+/// the input copies and the manifest. Returns the design id too. Shared with `verify`.
+pub fn build(
+    file: &crate::cli::source::LoadedFile,
+    template: &TemplateSource,
+    built_in: bool,
+    format: Format,
+    runs: Option<u32>,
+) -> Result<(String, Vec<crate::report::OutputFile>), Failure> {
+    let design = file.design()?;
+    eprint!("{}", file.report());
+    let analysis = crate::analysis::analyze(design).map_err(|e| analysis_failure(file, &e))?;
+    let formats = match format {
+        Format::All => Formats { html: true, markdown: true, json: true },
+        Format::Html => Formats { html: true, markdown: false, json: true },
+        Format::Md => Formats { html: false, markdown: true, json: true },
+        Format::Json => Formats { html: false, markdown: false, json: true },
+    };
+    let inputs = Inputs {
+        design_name: &file.name,
+        design_text: &file.text,
+        template,
+        built_in_template: built_in,
+    };
+    let runs = runs.unwrap_or(design.analysis.monte_carlo_runs);
+    let study = run_study(design, &analysis, Some(runs))?;
+    let files = report::render(design, &analysis, Some(&study), &inputs, formats)
+        .map_err(|e| Failure::Input(format!("{}nothing was written\n", e.message)))?;
+    let files = crate::report::manifest::seal(
+        files,
+        &file.name,
+        &file.text,
+        (!built_in).then_some((template.name.as_str(), template.text.as_str())),
+        &format!("{format:?}").to_lowercase(),
+        runs,
+    );
+    Ok((design.meta.id.clone(), files))
 }

@@ -9,6 +9,7 @@
 pub mod cautions;
 pub mod explain;
 pub mod html;
+pub mod manifest;
 pub mod plots;
 pub mod results;
 pub mod tables;

@@ -1,5 +1,6 @@
 //! The integration suite: one binary, a module per feature, fixtures under tests/.
 
+mod archive;
 mod bad_input;
 mod closed_forms;
 mod examples;

@@ -1,0 +1,119 @@
+//! The manifest of a rendered folder: what built it, from which inputs (copied beside the
+//! outputs), and the SHA-256 of every file — so the folder alone can be rebuilt and
+//! compared byte for byte years later.
+
+use std::collections::BTreeMap;
+
+use serde::{Deserialize, Serialize};
+use sha2::{Digest, Sha256};
+
+use crate::report::{OutputFile, hex};
+
+/// File name of the manifest inside a rendered folder.
+pub const FILE: &str = "manifest.json";
+/// Where the design file is copied.
+pub const DESIGN_COPY: &str = "inputs/design.yaml";
+/// Where a user template is copied.
+pub const TEMPLATE_COPY: &str = "inputs/template.md";
+
+/// What a render recorded about itself.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Manifest {
+    /// `tauweave`.
+    pub tool: String,
+    /// The version that rendered.
+    pub version: String,
+    /// The design file's name as given (it appears in the provenance).
+    pub design_name: String,
+    /// The user template's name as given; absent for the built-in template.
+    pub template_name: Option<String>,
+    /// `all`, `html`, `md` or `json`.
+    pub format: String,
+    /// Monte Carlo runs used.
+    pub runs: u32,
+    /// SHA-256 of each copied input, by path in the folder.
+    pub inputs: BTreeMap<String, String>,
+    /// SHA-256 of each output, by path in the folder.
+    pub outputs: BTreeMap<String, String>,
+}
+
+/// SHA-256 of bytes, hex.
+pub fn sha256(bytes: &[u8]) -> String {
+    hex(&Sha256::digest(bytes))
+}
+
+/// Adds the input copies and the manifest to a render's files.
+pub fn seal(
+    mut files: Vec<OutputFile>,
+    design_name: &str,
+    design_text: &str,
+    template: Option<(&str, &str)>,
+    format: &str,
+    runs: u32,
+) -> Vec<OutputFile> {
+    let outputs: BTreeMap<String, String> =
+        files.iter().map(|f| (f.path.clone(), sha256(&f.bytes))).collect();
+    let mut inputs = BTreeMap::new();
+    inputs.insert(DESIGN_COPY.to_string(), sha256(design_text.as_bytes()));
+    files.push(OutputFile { path: DESIGN_COPY.into(), bytes: design_text.as_bytes().to_vec() });
+    if let Some((_, text)) = template {
+        inputs.insert(TEMPLATE_COPY.to_string(), sha256(text.as_bytes()));
+        files.push(OutputFile { path: TEMPLATE_COPY.into(), bytes: text.as_bytes().to_vec() });
+    }
+    let manifest = Manifest {
+        tool: "tauweave".into(),
+        version: env!("CARGO_PKG_VERSION").into(),
+        design_name: design_name.into(),
+        template_name: template.map(|(n, _)| n.to_string()),
+        format: format.into(),
+        runs,
+        inputs,
+        outputs,
+    };
+    let mut json = serde_json::to_string_pretty(&manifest).unwrap_or_default();
+    json.push('\n');
+    files.push(OutputFile { path: FILE.into(), bytes: json.into_bytes() });
+    files.sort_by(|a, b| a.path.cmp(&b.path));
+    files
+}
+
+/// The values that differ between two JSON documents: `path: old → new`.
+pub fn json_differences(
+    old: &serde_json::Value,
+    new: &serde_json::Value,
+    path: &str,
+    out: &mut Vec<String>,
+) {
+    use serde_json::Value;
+    match (old, new) {
+        (Value::Object(a), Value::Object(b)) => {
+            for (k, v) in a {
+                match b.get(k) {
+                    Some(w) => json_differences(v, w, &format!("{path}.{k}"), out),
+                    None => out.push(format!("{path}.{k}: missing in the rebuild")),
+                }
+            }
+            for k in b.keys().filter(|k| !a.contains_key(*k)) {
+                out.push(format!("{path}.{k}: new in the rebuild"));
+            }
+        }
+        (Value::Array(a), Value::Array(b)) if a.len() == b.len() => {
+            for (i, (v, w)) in a.iter().zip(b).enumerate() {
+                json_differences(v, w, &format!("{path}[{i}]"), out);
+            }
+        }
+        (Value::Number(x), Value::Number(y)) => {
+            let (x, y) = (x.as_f64().unwrap_or(0.0), y.as_f64().unwrap_or(0.0));
+            if x != y {
+                let rel = if x != 0.0 {
+                    format!(" ({:+.3e} relative)", (y - x) / x.abs())
+                } else {
+                    String::new()
+                };
+                out.push(format!("{path}: {x} → {y}{rel}"));
+            }
+        }
+        (a, b) if a != b => out.push(format!("{path}: {a} → {b}")),
+        _ => {}
+    }
+}
