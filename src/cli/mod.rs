@@ -5,6 +5,7 @@
 //! that reads files given by the user and prints to the terminal.
 
 pub mod check;
+pub mod new;
 pub mod render;
 pub mod schema;
 pub mod source;
@@ -50,6 +51,8 @@ pub enum Command {
     Check(check::CheckArgs),
     /// Analyse a design and write its review (HTML, Markdown, plots, JSON) into a folder.
     Render(render::RenderArgs),
+    /// Write a starter design to edit into your own.
+    New(new::NewArgs),
     /// Work with report templates.
     Template(template::TemplateArgs),
     /// Rebuild a rendered folder from its own inputs and compare every file byte for byte.
@@ -65,6 +68,7 @@ pub fn run() -> Result<Outcome, Failure> {
         Command::Check(args) => check::run(&args),
         Command::Render(args) => render::run(&args),
         Command::Schema(args) => schema::run(&args),
+        Command::New(args) => new::run(&args),
         Command::Template(args) => template::run(&args),
         Command::Verify(args) => verify::run(&args),
     }

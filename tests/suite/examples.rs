@@ -32,3 +32,27 @@ fn the_cable_capacitance_comes_from_params() {
     let design::PartKind::Capacitor { value, .. } = &load.kind else { panic!("not a capacitor") };
     assert!((value.nominal - 250e-12).abs() < 1e-24, "{}", value.nominal);
 }
+
+#[test]
+fn every_starter_checks_and_renders_as_it_stands() {
+    for kind in ["common-emitter", "common-source", "cascode", "emitter-follower"] {
+        let dir = scratch(&format!("new-{kind}"));
+        let o = run_in(&dir, &["new", "my-stage", "--kind", kind]);
+        assert!(o.status.success(), "{kind}: {}", String::from_utf8_lossy(&o.stderr));
+        let text = std::fs::read_to_string(dir.join("my-stage.yaml")).unwrap();
+        assert!(text.contains("  id: my-stage\n"), "{kind}: id not set");
+        let check = run_in(&dir, &["check", "my-stage.yaml", "--runs", "20"]);
+        assert_eq!(
+            check.status.code(),
+            Some(0),
+            "{kind}: {}",
+            String::from_utf8_lossy(&check.stderr)
+        );
+        let render = run_in(&dir, &["render", "my-stage.yaml", "--runs", "20"]);
+        assert!(render.status.success(), "{kind}: {}", String::from_utf8_lossy(&render.stderr));
+        assert!(dir.join("out/my-stage/report.html").exists());
+        // A second `new` with the same name refuses to overwrite.
+        let again = run_in(&dir, &["new", "my-stage", "--kind", kind]);
+        assert_eq!(again.status.code(), Some(2));
+    }
+}
