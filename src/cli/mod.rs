@@ -5,6 +5,7 @@
 //! that reads files given by the user and prints to the terminal.
 
 pub mod check;
+pub mod diff;
 pub mod new;
 pub mod render;
 pub mod schema;
@@ -51,6 +52,8 @@ pub enum Command {
     Check(check::CheckArgs),
     /// Analyse a design and write its review (HTML, Markdown, plots, JSON) into a folder.
     Render(render::RenderArgs),
+    /// Show what changed between two revisions of a design: parts, models and results.
+    Diff(diff::DiffArgs),
     /// Write a starter design to edit into your own.
     New(new::NewArgs),
     /// Work with report templates.
@@ -68,6 +71,7 @@ pub fn run() -> Result<Outcome, Failure> {
         Command::Check(args) => check::run(&args),
         Command::Render(args) => render::run(&args),
         Command::Schema(args) => schema::run(&args),
+        Command::Diff(args) => diff::run(&args),
         Command::New(args) => new::run(&args),
         Command::Template(args) => template::run(&args),
         Command::Verify(args) => verify::run(&args),

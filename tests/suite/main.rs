@@ -3,6 +3,7 @@
 mod archive;
 mod bad_input;
 mod closed_forms;
+mod diff;
 mod examples;
 mod failures;
 mod identities;
