@@ -1,6 +1,8 @@
-//! Property tests (proptest): on random passive RC networks the open-circuit time-constant
-//! estimate never exceeds the exact upper cut-off (with real poles, Π(1 + ω²τ_i²) ≤ 2 at
-//! ω = 1/Στ — METHODS §4, derived); on random resistor–transistor bias networks the
+//! Property tests (proptest): on random passive RC networks whose zeros are real, the
+//! open-circuit time-constant estimate never exceeds the exact upper cut-off (with real poles
+//! and zeros, Π(1 + ω²τ_i²) ≤ 2 at ω = 1/Στ — METHODS §4, derived; a bridged RC network can
+//! have complex zeros, a notch, and then the bound does not hold, so those are set aside);
+//! on random resistor–transistor bias networks the
 //! operating point balances KCL to below 1e-12 A at every node.
 
 use proptest::prelude::*;
@@ -77,7 +79,13 @@ prop_compose! {
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig::with_cases(64))]
+    // A fixed seed: CI sees the same 256 cases every run (a failure reproduces exactly);
+    // change the seed to explore further.
+    #![proptest_config(ProptestConfig {
+        cases: 256,
+        rng_seed: proptest::test_runner::RngSeed::Fixed(20_261_201),
+        ..ProptestConfig::default()
+    })]
 
     #[test]
     fn time_constant_estimate_never_exceeds_the_exact_cutoff(text in rc_network()) {
@@ -86,6 +94,7 @@ proptest! {
         let d = loaded.design.unwrap();
         let a = analysis::analyze(&d).expect("a passive RC network analyses");
         prop_assume!(a.midband.gain.abs() > 1e-9);
+        prop_assume!(a.zeros.iter().all(|z| z.im_hz == 0.0));
         if let (Some(est), Some(exact)) = (a.high.octc.f_estimate_hz, a.high.f3db_hz) {
             prop_assert!(est <= exact * (1.0 + 1e-9), "estimate {} above exact {}\n{}", est, exact, text);
         }
