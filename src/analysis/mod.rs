@@ -333,7 +333,7 @@ pub fn analyze_network(lin: &LinearNetwork, design: &Design) -> Result<Analysis,
     // Mid-band gain and port resistances.
     let x = g.solve(&mid.b);
     let gain: f64 = x.iter().zip(&mid.out).map(|(a, b)| a * b).sum();
-    let (input_resistance, output_resistance) = port_resistances(lin, &mid, &x, state_mid);
+    let (input_resistance, output_resistance) = port_resistances(lin, &x, state_mid);
     let capacitors: Vec<CapacitorClass> = lin
         .elements
         .iter()
@@ -583,7 +583,7 @@ pub fn metrics(design: &Design) -> Result<Metrics, AnalysisError> {
     let g = Factor::new(&mid.g).map_err(|s| singular(&lin, &mid, s.unknown, "mid-band"))?;
     let x = g.solve(&mid.b);
     let gain: f64 = x.iter().zip(&mid.out).map(|(a, b)| a * b).sum();
-    let (r_in, r_out) = port_resistances(&lin, &mid, &x, state_mid);
+    let (r_in, r_out) = port_resistances(&lin, &x, state_mid);
     let (high_caps, low_caps) = cap_refs(&lin, &mid);
     let octc = time_constants::open_circuit(&mid, &g, &high_caps);
     let (_, inverse_tau_sum) = time_constants::short_circuit(&mid, &g, &low_caps);
@@ -610,7 +610,6 @@ pub fn metrics(design: &Design) -> Result<Metrics, AnalysisError> {
 /// given its solution `x` for a unit source EMF.
 fn port_resistances(
     lin: &LinearNetwork,
-    mid: &Mna,
     x: &[f64],
     state_mid: impl Fn(usize) -> CapState,
 ) -> (Option<f64>, Option<f64>) {
@@ -620,7 +619,6 @@ fn port_resistances(
     let i_in = (v(emf) - v(sp)) / rs;
     let v_in = v(sp) - v(ret);
     let input = (i_in.abs() > 0.0).then(|| v_in / i_in).filter(|r| r.is_finite());
-    let _ = mid;
     let unloaded =
         mna::assemble(lin, state_mid, Assembly { without_load: true, ..Assembly::default() });
     let output = Factor::new(&unloaded.g).ok().and_then(|f| {

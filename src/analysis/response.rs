@@ -85,11 +85,6 @@ impl Transfer {
     }
 }
 
-/// H(j2πf) of the whole system (no reduction).
-pub fn at(m: &Mna, f: f64) -> Option<c64> {
-    transfer(&m.g, &m.c, &m.b, &m.out, c64::new(0.0, 2.0 * PI * f))
-}
-
 /// Log-spaced frequencies from `start` to `stop`, `per_decade` a decade, both ends included.
 pub fn grid(start: f64, stop: f64, per_decade: u32) -> Vec<f64> {
     let decades = (stop / start).log10();

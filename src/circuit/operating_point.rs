@@ -333,7 +333,7 @@ fn newton(
     start: &Attempt,
 ) -> Result<Attempt, Diverged> {
     let mut x = start.x.clone();
-    let mut controls = start.controls.clone();
+    let mut state = start.controls.clone();
     let (base, base_rhs) = linear_system(net, layout, ramp, gmin);
     let mut worst = (0usize, None);
     for it in 0..MAX_ITERATIONS {
@@ -342,16 +342,15 @@ fn newton(
         let mut limited = false;
         let mut biggest_device_step = 0.0;
         for (i, el) in net.elements.iter().enumerate() {
-            let Some(raw) = controls_of(el, &x) else { continue };
-            let (v, l) =
-                if it == 0 { (controls[i], false) } else { limit(el, raw, controls[i], vt) };
-            let step = (v[0] - controls[i][0]).abs().max((v[1] - controls[i][1]).abs());
+            let Some(raw) = controls(el, &x) else { continue };
+            let (v, l) = if it == 0 { (state[i], false) } else { limit(el, raw, state[i], vt) };
+            let step = (v[0] - state[i][0]).abs().max((v[1] - state[i][1]).abs());
             if step > biggest_device_step {
                 biggest_device_step = step;
                 worst.1 = Some(i);
             }
             limited |= l;
-            controls[i] = v;
+            state[i] = v;
             stamp_device(&mut a, &mut rhs, el, v, vt);
         }
         let rhs_mat = Mat::<f64>::from_fn(layout.size, 1, |r, _| rhs[r]);
@@ -372,14 +371,10 @@ fn newton(
         }
         x = new;
         if it > 0 && !limited && dx <= VOLTAGE_TOLERANCE * (1.0 + scale) {
-            return Ok(Attempt { x, controls, iterations: start.iterations + it + 1 });
+            return Ok(Attempt { x, controls: state, iterations: start.iterations + it + 1 });
         }
     }
     Err(Diverged { node: worst.0, device: worst.1, iterations: start.iterations + MAX_ITERATIONS })
-}
-
-fn controls_of(el: &Element, x: &[f64]) -> Option<[f64; 2]> {
-    controls(el, x)
 }
 
 /// Solves the operating point of `net`.

@@ -399,7 +399,6 @@ impl Parser<'_> {
         let digits: String = chars.collect();
         let scale = code_scale(letter)?;
         let frac: f64 = format!("0.{digits}").parse().ok()?;
-        let _ = start;
         let unit = self.unit_after_number(true).ok()?;
         apply_unit(frac * scale, unit, start).ok()
     }
@@ -497,7 +496,7 @@ impl Parser<'_> {
         {
             // `0.04 1/V`
             self.pos += 1;
-            let (scale, dim) = self.unit_expression(start, 1.0, Dim::NONE)?;
+            let (scale, dim) = self.unit_expression()?;
             return Ok(UnitSuffix::Unit(scale, dim));
         }
         match self.peek() {
@@ -526,7 +525,7 @@ impl Parser<'_> {
                     let word: String =
                         self.chars[after..].iter().take_while(|c| is_symbol_char(**c)).collect();
                     if resolve_symbol(&word).is_some() {
-                        let (scale, dim) = self.unit_expression(start, 1.0, Dim::NONE)?;
+                        let (scale, dim) = self.unit_expression()?;
                         return Ok(UnitSuffix::Unit(scale, dim));
                     }
                 }
@@ -583,17 +582,13 @@ impl Parser<'_> {
                 Some(format!("write `* {word}` to multiply")),
             ));
         }
-        let (scale, dim) = self.unit_expression(start, 1.0, Dim::NONE)?;
+        let (scale, dim) = self.unit_expression()?;
         Ok(UnitSuffix::Unit(scale, dim))
     }
 
     /// `pF/m`, `µA/V²`, `fF/µm^2`, `V/V`, `/V`: symbols joined by `/` or `·` with powers.
-    fn unit_expression(
-        &mut self,
-        start: usize,
-        mut scale: f64,
-        mut dim: Dim,
-    ) -> Result<(f64, Dim), QuantityError> {
+    fn unit_expression(&mut self) -> Result<(f64, Dim), QuantityError> {
+        let (mut scale, mut dim) = (1.0, Dim::NONE);
         let mut divide = false;
         if self.peek() == Some('/') {
             divide = true;
@@ -628,7 +623,6 @@ impl Parser<'_> {
                 _ => break,
             }
         }
-        let _ = start;
         Ok((scale, dim))
     }
 

@@ -1276,14 +1276,10 @@ impl Reader<'_> {
         model: &str,
         key: &'static str,
         place: Place,
-        owner: &Key,
     ) -> Option<Toleranced> {
         let (k, n) = f.get_entry(key)?;
         self.places.insert(format!("models.{model}.{key}"), n.span);
-        self.toleranced(n, place, k.span, &format!("`{key}` of model `{model}`")).or_else(|| {
-            let _ = owner;
-            None
-        })
+        self.toleranced(n, place, k.span, &format!("`{key}` of model `{model}`"))
     }
 
     fn required_param(
@@ -1292,13 +1288,12 @@ impl Reader<'_> {
         model: &str,
         key: &'static str,
         place: Place,
-        owner: &Key,
     ) -> Option<Toleranced> {
         if !f.has(key) {
             f.require(key, &mut self.diagnostics);
             return None;
         }
-        self.param_at(f, model, key, place, owner)
+        self.param_at(f, model, key, place)
     }
 
     fn bipolar(
@@ -1308,19 +1303,17 @@ impl Reader<'_> {
         key: &Key,
         npn: bool,
     ) -> Option<BipolarModel> {
-        let beta = self.required_param(f, name, "beta", RATIO, key);
-        let beta_reverse =
-            self.param_at(f, name, "beta_reverse", RATIO, key).map_or(1.0, |t| t.nominal);
-        let early =
-            self.param_at(f, name, "early_voltage", Place { positive: true, ..VOLTAGE }, key);
-        let is = self.required_param(f, name, "saturation_current", CURRENT, key);
+        let beta = self.required_param(f, name, "beta", RATIO);
+        let beta_reverse = self.param_at(f, name, "beta_reverse", RATIO).map_or(1.0, |t| t.nominal);
+        let early = self.param_at(f, name, "early_voltage", Place { positive: true, ..VOLTAGE });
+        let is = self.required_param(f, name, "saturation_current", CURRENT);
         let rb = self
-            .param_at(f, name, "base_resistance", Place { positive: false, ..RESISTANCE }, key)
+            .param_at(f, name, "base_resistance", Place { positive: false, ..RESISTANCE })
             .unwrap_or(Toleranced::exact(0.0));
         if rb.nominal < 0.0 {
             self.negative_param(name, "base_resistance");
         }
-        let tf = self.param_at(f, name, "transit_time", TIME, key);
+        let tf = self.param_at(f, name, "transit_time", TIME);
         let ft = match f.get_entry("transition_frequency") {
             Some((k, n)) => self.transition_frequency(name, k, n),
             None => None,
@@ -1360,7 +1353,7 @@ impl Reader<'_> {
             Some((k, n)) => self.junction(name, "collector_junction", k, n),
             None => None,
         };
-        let max_power = self.param_at(f, name, "max_power", POWER, key).map(|t| t.nominal);
+        let max_power = self.param_at(f, name, "max_power", POWER).map(|t| t.nominal);
         Some(BipolarModel {
             polarity: if npn { BipolarType::Npn } else { BipolarType::Pnp },
             beta: beta?,
@@ -1463,11 +1456,10 @@ impl Reader<'_> {
                 positive: true,
                 decibels: false,
             },
-            key,
         );
-        let w = self.required_param(f, name, "width", LENGTH, key);
-        let l = self.required_param(f, name, "length", LENGTH, key);
-        let vth = self.required_param(f, name, "threshold", VOLTAGE, key);
+        let w = self.required_param(f, name, "width", LENGTH);
+        let l = self.required_param(f, name, "length", LENGTH);
+        let vth = self.required_param(f, name, "threshold", VOLTAGE);
         let lambda = self
             .param_at(
                 f,
@@ -1479,7 +1471,6 @@ impl Reader<'_> {
                     positive: false,
                     decibels: false,
                 },
-                key,
             )
             .unwrap_or(Toleranced::exact(0.0));
         if lambda.nominal < 0.0 {
@@ -1495,7 +1486,6 @@ impl Reader<'_> {
                 positive: true,
                 decibels: false,
             },
-            key,
         );
         let cov = self.param_at(
             f,
@@ -1507,28 +1497,24 @@ impl Reader<'_> {
                 positive: false,
                 decibels: false,
             },
-            key,
         );
         let cgs = self.param_at(
             f,
             name,
             "gate_source_capacitance",
             Place { positive: false, ..CAPACITANCE },
-            key,
         );
         let cgd = self.param_at(
             f,
             name,
             "gate_drain_capacitance",
             Place { positive: false, ..CAPACITANCE },
-            key,
         );
         let cdb = self.param_at(
             f,
             name,
             "drain_body_capacitance",
             Place { positive: false, ..CAPACITANCE },
-            key,
         );
         for (k, v) in [
             ("overlap_capacitance", cov),
@@ -1572,7 +1558,7 @@ impl Reader<'_> {
                 );
             }
         }
-        let max_power = self.param_at(f, name, "max_power", POWER, key).map(|t| t.nominal);
+        let max_power = self.param_at(f, name, "max_power", POWER).map(|t| t.nominal);
         Some(MosModel {
             polarity: if nmos { MosType::Nmos } else { MosType::Pmos },
             process_transconductance: kp?,
