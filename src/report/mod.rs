@@ -7,6 +7,7 @@
 //! Knows nothing of how numbers were computed.
 
 pub mod cautions;
+pub mod change;
 pub mod explain;
 pub mod html;
 pub mod manifest;
@@ -116,7 +117,9 @@ pub fn render(
     let plot_list = plots::all(analysis, &checks, study);
     let blocks = Blocks {
         tables: tables::all(design, analysis, &checks, study),
+        known_tables: tables::TABLES.iter().map(|(n, _)| *n).collect(),
         plots: plot_list.iter().map(|p| p.name).collect(),
+        known_plots: plots::PLOTS.to_vec(),
         explanation: (explanation.high.clone(), explanation.low.clone()),
         cautions: caution_list.iter().map(|c| view::escape(&c.text)).collect(),
     };
@@ -146,7 +149,7 @@ pub fn render(
 }
 
 /// At most one blank line in a row: directives leave gaps where blocks were absent.
-fn tidy_blank_lines(text: &str) -> String {
+pub fn tidy_blank_lines(text: &str) -> String {
     let mut out = String::with_capacity(text.len());
     let mut blank = 0;
     for line in text.lines() {

@@ -39,6 +39,9 @@ fn style(size: u32) -> TextStyle<'static> {
     (FONT, size).into_font().color(&INK)
 }
 
+/// The names of every plot a review can hold (`plot(name=…)` accepts these).
+pub const PLOTS: &[&str] = &["bode", "pole_zero", "shares", "tornado", "histograms"];
+
 /// Every plot of the review.
 pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study>) -> Vec<Plot> {
     let mut out = Vec::new();

@@ -38,7 +38,8 @@ pub fn cell(text: &str) -> String {
     crate::report::view::escape(&text.replace('\n', " "))
 }
 
-fn table(header: &[&str], align: &str, rows: Vec<Vec<String>>) -> String {
+/// A Markdown table: `align` has one `l` or `r` per column.
+pub fn markdown_table(header: &[&str], align: &str, rows: Vec<Vec<String>>) -> String {
     let mut out = format!("| {} |\n|", header.join(" | "));
     for c in align.chars() {
         out.push_str(if c == 'r' { "---:|" } else { ":---|" });
@@ -155,7 +156,11 @@ pub fn all(
         .collect();
     t.insert(
         "parts",
-        table(&["part", "kind", "value", "tolerance", "connects", "note"], "llllll", parts),
+        markdown_table(
+            &["part", "kind", "value", "tolerance", "connects", "note"],
+            "llllll",
+            parts,
+        ),
     );
 
     if let Some(op) = &a.operating_point {
@@ -165,7 +170,7 @@ pub fn all(
             .filter(|(n, _)| !n.contains('.') && n.as_str() != "source")
             .map(|(n, v)| vec![cell(n), si(*v, "V", 4)])
             .collect();
-        t.insert("nodes", table(&["node", "voltage"], "lr", nodes));
+        t.insert("nodes", markdown_table(&["node", "voltage"], "lr", nodes));
         let devices = op
             .devices
             .iter()
@@ -216,7 +221,7 @@ pub fn all(
             .collect();
         t.insert(
             "devices",
-            table(
+            markdown_table(
                 &["device", "region", "bias", "dissipation", "small signal", "capacitances"],
                 "llllll",
                 devices,
@@ -240,10 +245,11 @@ pub fn all(
             ]
         })
         .collect();
-    t.insert("capacitors", table(&["capacitor", "value", "set", "because"], "lrll", caps));
+    t.insert("capacitors", markdown_table(&["capacitor", "value", "set", "because"], "lrll", caps));
 
     let h = &a.high;
-    let mut high_est = table(&["upper cut-off", "f_H", "error"], "lrr", high_estimate_rows(h));
+    let mut high_est =
+        markdown_table(&["upper cut-off", "f_H", "error"], "lrr", high_estimate_rows(h));
     high_est.push_str(&format!(
         "\nb1 = {}, b2 = {}, pole separation |p2/p1| = {}.\n",
         h.b1_s.map_or("—".into(), |b| si(b, "s", 4)),
@@ -259,7 +265,7 @@ pub fn all(
     };
     t.insert(
         "octc",
-        table(
+        markdown_table(
             &["capacitor", "C", "R seen", "τ = RC", "share", "Miller factor"],
             "lrrrrr",
             escaped(octc_rows(h)),
@@ -268,11 +274,11 @@ pub fn all(
     let l = &a.low;
     t.insert(
         "low_estimates",
-        table(&["lower cut-off", "f_L", "error"], "lrr", low_estimate_rows(l)),
+        markdown_table(&["lower cut-off", "f_L", "error"], "lrr", low_estimate_rows(l)),
     );
     t.insert(
         "sctc",
-        table(
+        markdown_table(
             &["capacitor", "C", "R seen", "τ = RC", "share of Σ 1/τ"],
             "lrrrr",
             escaped(sctc_rows(l)),
@@ -288,7 +294,7 @@ pub fn all(
             ]
         })
         .collect();
-    t.insert("poles_zeros", table(&["poles (s/2π)", "zeros (s/2π)"], "rr", pz));
+    t.insert("poles_zeros", markdown_table(&["poles (s/2π)", "zeros (s/2π)"], "rr", pz));
 
     let req = reqs
         .iter()
@@ -305,7 +311,7 @@ pub fn all(
         .collect();
     t.insert(
         "requirements",
-        table(
+        markdown_table(
             &["requirement", "limit", "nominal", "result", "margin", "worst corner", "yield"],
             "llrlrrr",
             req,
@@ -476,7 +482,7 @@ fn study_tables(t: &mut BTreeMap<&'static str, String>, s: &Study) {
     header.extend(shown.iter().map(|&k| format!("S of {}", figure_label(&s.figures[k]))));
     let header_refs: Vec<&str> = header.iter().map(String::as_str).collect();
     let align: String = "ll".chars().chain(std::iter::repeat_n('r', shown.len())).collect();
-    let mut text = table(&header_refs, &align, rows.into_iter().map(|(_, r)| r).collect());
+    let mut text = markdown_table(&header_refs, &align, rows.into_iter().map(|(_, r)| r).collect());
     text.push_str(&format!(
         "\nS = ∂ln y/∂ln x by central differences (step {}), the operating point re-solved at each step.\n",
         plain(s.step, 2)
@@ -503,7 +509,7 @@ fn study_tables(t: &mut BTreeMap<&'static str, String>, s: &Study) {
         .collect();
     t.insert(
         "worst_case",
-        table(
+        markdown_table(
             &["figure", "nominal", "linear bound Σ\\|S\\|·t", "low corner", "high corner"],
             "lrrrr",
             wc,
@@ -524,7 +530,7 @@ fn study_tables(t: &mut BTreeMap<&'static str, String>, s: &Study) {
                 row
             })
             .collect();
-        let mut text = table(
+        let mut text = markdown_table(
             &["figure", "mean", "σ/mean", "1 %", "5 %", "50 %", "95 %", "99 %"],
             "lrrrrrrr",
             rows,

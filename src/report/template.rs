@@ -12,7 +12,6 @@ use std::sync::Arc;
 use tera::{Context, Kwargs, State, Tera, TeraResult, Value};
 
 use crate::notation::{plain, si};
-use crate::report::tables::TABLES;
 
 /// The built-in review template.
 pub const BUILT_IN: &str = include_str!("../../templates/review.md");
@@ -31,8 +30,13 @@ pub struct TemplateSource {
 pub struct Blocks {
     /// Markdown tables by name.
     pub tables: BTreeMap<&'static str, String>,
+    /// Every table name this kind of template may ask for; one of these that is not in
+    /// `tables` (a tolerance table without a study) inserts nothing, any other is an error.
+    pub known_tables: Vec<&'static str>,
     /// Plot names that exist.
     pub plots: Vec<&'static str>,
+    /// Every plot name this kind of template may ask for (absent ones insert nothing).
+    pub known_plots: Vec<&'static str>,
     /// Explanation paragraphs: (high, low).
     pub explanation: (Vec<String>, Vec<String>),
     /// Caution texts, Markdown.
@@ -85,39 +89,30 @@ pub fn render(
         Ok(number(v).map_or("—".into(), |x| plain(x, digits.unwrap_or(4) as usize)))
     });
     let tables = Arc::new(blocks.tables);
+    let known_tables = blocks.known_tables;
     tera.register_function("table", move |kwargs: Kwargs, _: &State| -> TeraResult<Value> {
         let name: String = kwargs.must_get("name")?;
         match tables.get(name.as_str()) {
             Some(t) => Ok(Value::safe_string(&format!("\n{t}\n"))),
             // Tolerance tables exist only when a study ran: absent, not an error.
-            None if ["sensitivity", "worst_case", "monte_carlo"].contains(&name.as_str()) => {
-                Ok(Value::safe_string(""))
-            }
-            None => {
-                let known: Vec<&str> = TABLES.iter().map(|(n, _)| *n).collect();
-                Err(tera::Error::message(format!(
-                    "there is no table `{name}` for this design; tables: {}",
-                    known.join(", ")
-                )))
-            }
+            None if known_tables.contains(&name.as_str()) => Ok(Value::safe_string("")),
+            None => Err(tera::Error::message(format!(
+                "there is no table `{name}`; tables: {}",
+                known_tables.join(", ")
+            ))),
         }
     });
     let plots = Arc::new(blocks.plots);
+    let known_plots = blocks.known_plots;
     tera.register_function("plot", move |kwargs: Kwargs, _: &State| -> TeraResult<Value> {
         let name: String = kwargs.must_get("name")?;
-        if plots.iter().any(|p| *p == name)
-            || ["bode", "pole_zero", "shares"].contains(&name.as_str())
-        {
-            let present = plots.iter().any(|p| *p == name);
-            Ok(Value::safe_string(&if present {
-                format!("\n{}\n", plot_marker(&name))
-            } else {
-                String::new()
-            }))
+        if plots.iter().any(|p| *p == name) {
+            Ok(Value::safe_string(&format!("\n{}\n", plot_marker(&name))))
+        } else if known_plots.contains(&name.as_str()) {
+            Ok(Value::safe_string(""))
         } else {
-            Err(tera::Error::message(format!(
-                "there is no plot `{name}`; plots: bode, pole_zero, shares"
-            )))
+            let list = if known_plots.is_empty() { "none".into() } else { known_plots.join(", ") };
+            Err(tera::Error::message(format!("there is no plot `{name}`; plots: {list}")))
         }
     });
     let explanation = Arc::new(blocks.explanation);
