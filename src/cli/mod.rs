@@ -13,6 +13,7 @@ pub mod source;
 pub mod table;
 pub mod template;
 pub mod verify;
+pub mod watch;
 
 use clap::{Parser, Subcommand};
 

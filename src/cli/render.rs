@@ -2,7 +2,8 @@
 //! report.html, report.md with plots/*.svg, results.json and sweep.csv.
 //!
 //! Every file is written atomically (temporary file in the same folder, then rename);
-//! nothing is written when the design, its analysis or the template fails.
+//! nothing is written when the design, its analysis or the template fails. With `--watch`,
+//! `watch.rs` calls [`render_and_write`] again on every change of the inputs.
 
 use std::path::PathBuf;
 
@@ -11,7 +12,7 @@ use clap::{Args, ValueEnum};
 use crate::cli::source::{analysis_failure, load_file};
 use crate::cli::{Failure, Outcome};
 use crate::report::template::{BUILT_IN, BUILT_IN_NAME, TemplateSource};
-use crate::report::{self, Formats, Inputs, write};
+use crate::report::{self, Formats, Inputs, OutputFile, write};
 
 /// Output formats.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
@@ -43,6 +44,9 @@ pub struct RenderArgs {
     /// Monte Carlo runs (overrides the design's `analysis.monte_carlo.runs`; 0 skips it).
     #[arg(long)]
     pub runs: Option<u32>,
+    /// After the first render, render again whenever the design or the template changes.
+    #[arg(long)]
+    pub watch: bool,
 }
 
 /// Runs the tolerance study with a progress bar on a terminal.
@@ -89,21 +93,53 @@ pub fn template_source(path: &Option<PathBuf>) -> Result<(TemplateSource, bool),
     }
 }
 
-/// Runs the render.
+/// Runs the render (and keeps watching with `--watch`).
 pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
+    if args.watch {
+        return crate::cli::watch::run(args);
+    }
+    let written = render_and_write(args)?;
+    eprintln!("{}", written.summary());
+    Ok(Outcome::Done)
+}
+
+/// A render written to disk.
+pub struct Written {
+    /// The design id.
+    pub id: String,
+    /// The output folder.
+    pub dir: PathBuf,
+    /// The files written, paths relative to `dir`.
+    pub files: Vec<OutputFile>,
+}
+
+impl Written {
+    /// `wrote report.html, … into DIR/`.
+    pub fn summary(&self) -> String {
+        let names: Vec<&str> = self.files.iter().map(|f| f.path.as_str()).collect();
+        format!("wrote {} into {}/", names.join(", "), self.dir.display())
+    }
+
+    /// The bytes written to `path` (relative to the output folder), if it was written.
+    pub fn file(&self, path: &str) -> Option<&[u8]> {
+        self.files.iter().find(|f| f.path == path).map(|f| f.bytes.as_slice())
+    }
+}
+
+/// One render: reads the design and the template as they are now, builds the review and
+/// writes every file into the output folder. Nothing is written when the build fails.
+pub fn render_and_write(args: &RenderArgs) -> Result<Written, Failure> {
     let file = load_file(&args.design)?;
     let (template, built_in) = template_source(&args.template)?;
     let (id, files) = build(&file, &template, built_in, args.format, args.runs)?;
-    let dir = args.out.clone().unwrap_or_else(|| PathBuf::from("out").join(id));
+    let dir = args.out.clone().unwrap_or_else(|| PathBuf::from("out").join(&id));
     for f in &files {
         let path = dir.join(&f.path);
         write::atomic(&path, &f.bytes).map_err(|e| {
             Failure::Input(format!("error: cannot write `{}`: {e}\n", path.display()))
         })?;
     }
-    let names: Vec<&str> = files.iter().map(|f| f.path.as_str()).collect();
-    eprintln!("wrote {} into {}/", names.join(", "), dir.display());
-    Ok(Outcome::Done)
+    Ok(Written { id, dir, files })
 }
 
 /// Everything a render writes, in memory: analysis, tolerance study, the review files,
@@ -114,7 +150,7 @@ pub fn build(
     built_in: bool,
     format: Format,
     runs: Option<u32>,
-) -> Result<(String, Vec<crate::report::OutputFile>), Failure> {
+) -> Result<(String, Vec<OutputFile>), Failure> {
     let design = file.design()?;
     eprint!("{}", file.report());
     let analysis = crate::analysis::analyze(design).map_err(|e| analysis_failure(file, &e))?;

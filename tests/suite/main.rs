@@ -13,3 +13,4 @@ mod report;
 mod schema;
 mod support;
 mod tolerance;
+mod watch;

@@ -1,0 +1,186 @@
+//! `tauweave render --watch`: renders, then renders again whenever the design file or the
+//! template changes, until the process is stopped (Ctrl-C).
+//!
+//! Owns the watch loop: a debounced watcher on the folders holding the inputs (non-recursive,
+//! so an editor that saves by renaming a temporary file over the original is seen), the filter
+//! that keeps only changes to those exact files (so the review written into a watched folder
+//! never triggers another render), and the one line printed per rebuild. Rendering and
+//! writing stay in `render.rs`. A render that fails on its input is reported and watching
+//! goes on; only a failing watcher or an internal error ends the loop, for `main` to report.
+
+use std::collections::BTreeSet;
+use std::path::{Path, PathBuf};
+use std::sync::mpsc;
+use std::time::{Duration, Instant};
+
+use notify::event::{AccessKind, AccessMode};
+use notify::{EventKind, RecursiveMode};
+use notify_debouncer_full::{DebounceEventResult, new_debouncer};
+use serde_json::Value;
+
+use crate::cli::render::{RenderArgs, render_and_write};
+use crate::cli::{Failure, Outcome};
+use crate::notation::{plain, si};
+
+/// How long the inputs must stay quiet before a rebuild: one save is often several writes.
+const QUIET: Duration = Duration::from_millis(200);
+
+/// Renders `args` and renders again on every change of its design or template file.
+/// Returns only when watching becomes impossible or a render hits an internal error.
+pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
+    let inputs: Vec<&Path> =
+        std::iter::once(args.design.as_path()).chain(args.template.as_deref()).collect();
+    let watched = inputs
+        .iter()
+        .map(|p| {
+            watch_key(p).map_err(|e| {
+                Failure::Input(format!(
+                    "error: cannot watch `{}`: {e}\n  help: check that its folder exists\n",
+                    p.display()
+                ))
+            })
+        })
+        .collect::<Result<Vec<PathBuf>, Failure>>()?;
+
+    let (sender, events) = mpsc::channel();
+    let mut debouncer = new_debouncer(QUIET, None, sender).map_err(watcher_failure)?;
+    let folders: BTreeSet<&Path> = watched.iter().filter_map(|p| p.parent()).collect();
+    for folder in folders {
+        debouncer.watch(folder, RecursiveMode::NonRecursive).map_err(watcher_failure)?;
+    }
+
+    let names: Vec<String> = inputs.iter().map(|p| format!("{}", p.display())).collect();
+    let watching = format!("watching {} for changes (Ctrl-C to stop)", names.join(" and "));
+    match render_and_write(args) {
+        Ok(written) => eprintln!("{}", written.summary()),
+        Err(failure) => report_input_failure(failure)?,
+    }
+    eprintln!("{watching}");
+
+    while let Ok(batch) = events.recv() {
+        let mut changed = touches(batch, &watched);
+        // Saves that landed during the last render make one rebuild, not one each.
+        for more in events.try_iter() {
+            changed |= touches(more, &watched);
+        }
+        if !changed {
+            continue;
+        }
+        // The clock is read for this line only; nothing written depends on it.
+        let started = Instant::now();
+        match render_and_write(args) {
+            Ok(written) => eprintln!(
+                "rebuilt {} in {} ms: {}",
+                written.id,
+                started.elapsed().as_millis(),
+                headline(written.file("results.json").unwrap_or_default())
+            ),
+            Err(failure) => {
+                report_input_failure(failure)?;
+                eprintln!("{watching}");
+            }
+        }
+    }
+    Err(Failure::Internal("the file watcher stopped".into()))
+}
+
+/// The name a watched file is known by: its folder, canonicalised, joined with its file
+/// name. It holds while the file itself is replaced or briefly missing.
+fn watch_key(path: &Path) -> std::io::Result<PathBuf> {
+    let name = path.file_name().ok_or_else(|| {
+        std::io::Error::new(std::io::ErrorKind::InvalidInput, "the path names no file")
+    })?;
+    let folder = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    Ok(folder.canonicalize()?.join(name))
+}
+
+/// True when the batch changes one of the `watched` files. Reading a file is no change (our
+/// own render opens the design); writes to any other file, the outputs included, are ignored.
+fn touches(batch: DebounceEventResult, watched: &[PathBuf]) -> bool {
+    match batch {
+        Ok(events) => events.iter().any(|e| {
+            let is_change = match e.kind {
+                EventKind::Access(AccessKind::Close(AccessMode::Write)) => true,
+                EventKind::Access(_) => false,
+                _ => true,
+            };
+            is_change && e.paths.iter().any(|p| watch_key(p).is_ok_and(|k| watched.contains(&k)))
+        }),
+        Err(errors) => {
+            for e in errors {
+                eprintln!("warning: file watcher: {e}");
+            }
+            false
+        }
+    }
+}
+
+/// Prints a render's input failure, which watching survives; any other failure is returned.
+fn report_input_failure(failure: Failure) -> Result<(), Failure> {
+    match failure {
+        Failure::Input(report) => {
+            eprint!("{report}");
+            Ok(())
+        }
+        other => Err(other),
+    }
+}
+
+fn watcher_failure(e: notify::Error) -> Failure {
+    Failure::Input(format!(
+        "error: cannot watch for changes: {e}\n  help: render without `--watch`, or raise the \
+         system's limit on watched folders\n"
+    ))
+}
+
+/// The headline numbers of a results.json: `gain 20.56 dB, f_high 1.275 MHz, f_low
+/// 2.224 kHz, requirements 5/5 pass`. A missing value prints `—`.
+fn headline(results_json: &[u8]) -> String {
+    let results: Value = serde_json::from_slice(results_json).unwrap_or_default();
+    let number = |pointer: &str| results.pointer(pointer).and_then(Value::as_f64);
+    let gain = number("/midband/gain_db").map_or("—".into(), |g| format!("{} dB", plain(g, 4)));
+    let f_high = number("/high/f3db_hz").map_or("—".into(), |f| si(f, "Hz", 4));
+    let f_low = number("/low/f3db_hz").map_or("—".into(), |f| si(f, "Hz", 4));
+    let checks = results["requirements"].as_array().map_or(&[][..], Vec::as_slice);
+    let passed = checks.iter().filter(|c| c["pass"] == true).count();
+    format!(
+        "gain {gain}, f_high {f_high}, f_low {f_low}, requirements {passed}/{} pass",
+        checks.len()
+    )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn headline_reads_the_numbers_and_counts_passes() {
+        let json = br#"{"midband": {"gain_db": 20.5634}, "high": {"f3db_hz": 1275123.0},
+            "low": {"f3db_hz": 2224.4}, "requirements": [{"pass": true}, {"pass": false}]}"#;
+        assert_eq!(
+            headline(json),
+            "gain 20.56 dB, f_high 1.275 MHz, f_low 2.224 kHz, requirements 1/2 pass"
+        );
+    }
+
+    #[test]
+    fn headline_prints_a_dash_for_missing_values() {
+        let json = br#"{"midband": {"gain_db": null}, "high": {"f3db_hz": null},
+            "low": null, "requirements": []}"#;
+        assert_eq!(headline(json), "gain —, f_high —, f_low —, requirements 0/0 pass");
+        assert_eq!(headline(b"not json"), "gain —, f_high —, f_low —, requirements 0/0 pass");
+    }
+
+    #[test]
+    fn watch_key_is_the_same_for_relative_and_absolute_names() {
+        let here = std::env::current_dir().unwrap();
+        assert_eq!(
+            watch_key(Path::new("Cargo.toml")).unwrap(),
+            watch_key(&here.join("Cargo.toml")).unwrap()
+        );
+        assert_eq!(
+            watch_key(Path::new("src/../missing.yaml")).unwrap(),
+            here.canonicalize().unwrap().join("missing.yaml")
+        );
+    }
+}

@@ -1,0 +1,109 @@
+//! `render --watch`: the real binary re-renders after an in-place save and after a save that
+//! renames a temporary file over the design, and its own output, written into the watched
+//! folder, never triggers another rebuild.
+
+use std::io::{BufRead, BufReader};
+use std::path::Path;
+use std::process::{Child, Command, Stdio};
+use std::sync::mpsc::{self, Receiver};
+use std::time::{Duration, Instant};
+
+use crate::support::{binary, root, scratch};
+
+/// How long a render may take before the test gives up (a debug build, two cores).
+const PATIENCE: Duration = Duration::from_secs(60);
+
+/// Kills the watching process however the test ends.
+struct Watching(Child);
+
+impl Drop for Watching {
+    fn drop(&mut self) {
+        let _ = self.0.kill();
+        let _ = self.0.wait();
+    }
+}
+
+/// Waits for a stderr line containing `wanted`; returns it, or panics with every line seen.
+fn wait_for(lines: &Receiver<String>, wanted: &str, seen: &mut Vec<String>) -> String {
+    let deadline = Instant::now() + PATIENCE;
+    loop {
+        let left = deadline.saturating_duration_since(Instant::now());
+        match lines.recv_timeout(left) {
+            Ok(line) => {
+                seen.push(line.clone());
+                if line.contains(wanted) {
+                    return line;
+                }
+            }
+            Err(e) => panic!("no line with `{wanted}` ({e}); stderr so far:\n{}", seen.join("\n")),
+        }
+    }
+}
+
+fn gain_db(out: &Path) -> f64 {
+    let text = std::fs::read_to_string(out.join("results.json")).expect("results.json written");
+    let results: serde_json::Value = serde_json::from_str(&text).unwrap();
+    results["midband"]["gain_db"].as_f64().expect("a mid-band gain")
+}
+
+#[test]
+fn watch_rebuilds_on_in_place_and_rename_saves_and_ignores_its_own_output() {
+    let dir = scratch("watch");
+    let design = dir.join("design.yaml");
+    let original = std::fs::read_to_string(root().join("designs/rx-preamp-ce.yaml")).unwrap();
+    let rc = "RC:  {kind: resistor, value: 1k0,";
+    assert!(original.contains(rc), "the example design still has `{rc}`");
+    std::fs::write(&design, &original).unwrap();
+    // The output folder is the watched folder itself: every file written lands beside the
+    // design, so a watcher that did not filter its events would rebuild forever.
+    let out = &dir;
+
+    let mut child = Command::new(binary())
+        .args(["render", "design.yaml", "--watch", "--runs", "0", "--out", "."])
+        .current_dir(&dir)
+        .env("NO_COLOR", "1")
+        .stdin(Stdio::null())
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("the tauweave binary runs");
+    let stderr = child.stderr.take().unwrap();
+    let _watching = Watching(child);
+    let (send, lines) = mpsc::channel();
+    std::thread::spawn(move || {
+        for line in BufReader::new(stderr).lines().map_while(Result::ok) {
+            if send.send(line).is_err() {
+                break;
+            }
+        }
+    });
+    let mut seen = Vec::new();
+
+    wait_for(&lines, "watching design.yaml for changes", &mut seen);
+    let first = gain_db(out);
+
+    // (1) An in-place save with RC raised from 1 kΩ to 1.2 kΩ.
+    let rc_1k2 = original.replace(rc, "RC:  {kind: resistor, value: 1k2,");
+    std::fs::write(&design, &rc_1k2).unwrap();
+    let line = wait_for(&lines, "rebuilt rx-preamp-ce in ", &mut seen);
+    assert!(line.contains(" ms: gain ") && line.ends_with("requirements 5/5 pass"), "{line}");
+    // The gain goes with RC ∥ R_load (common practice): 500 Ω -> 545 Ω, about +0.75 dB.
+    let after_in_place = gain_db(out);
+    assert!(after_in_place > first + 0.5, "gain {first} dB -> {after_in_place} dB");
+
+    // (2) A save as many editors do it: a temporary file renamed over the design.
+    let rc_1k5 = original.replace(rc, "RC:  {kind: resistor, value: 1k5,");
+    let temp = dir.join(".design.yaml.tmp");
+    std::fs::write(&temp, &rc_1k5).unwrap();
+    std::fs::rename(&temp, &design).unwrap();
+    wait_for(&lines, "rebuilt rx-preamp-ce in ", &mut seen);
+    // 545 Ω -> 600 Ω: about +0.83 dB.
+    let after_rename = gain_db(out);
+    assert!(after_rename > after_in_place + 0.5, "gain {after_in_place} dB -> {after_rename} dB");
+
+    // (3) The rebuild just wrote a dozen files into the watched folder: none of them may
+    // start another rebuild.
+    if let Ok(line) = lines.recv_timeout(Duration::from_secs(2)) {
+        panic!("a line after the rebuild, with no input changed: {line}");
+    }
+}
