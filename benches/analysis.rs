@@ -98,7 +98,7 @@ fn main() {
             template: &tpl,
             built_in_template: true,
         };
-        let all = Formats { html: true, markdown: true, json: true };
+        let all = Formats { html: true, markdown: true, json: true, typst: None };
         let (t, runs) = median(
             || {
                 let a = analysis::analyze(&d).unwrap();
@@ -153,7 +153,7 @@ fn main() {
         &a,
         Some(&study),
         &inputs,
-        Formats { html: true, markdown: true, json: true },
+        Formats { html: true, markdown: true, json: true, typst: None },
     )
     .unwrap();
     println!(

@@ -13,7 +13,7 @@ use std::path::{Path, PathBuf};
 use clap::Args;
 use serde_json::Value;
 
-use crate::cli::render::{Format, build, template_source};
+use crate::cli::render::{BuildOptions, build, template_source};
 use crate::cli::source::{LoadedFile, load_file};
 use crate::cli::table::{Align, render};
 use crate::cli::{Failure, Outcome};
@@ -82,8 +82,9 @@ fn side(path: &Path, runs: Option<u32>) -> Result<Side, Failure> {
     }
     let file = load_file(path)?;
     let (template, _) = template_source(&None)?;
-    let (_, files) = build(&file, &template, true, Format::Json, runs)?;
-    let json = files
+    let built = build(&file, &template, true, &BuildOptions::json(runs))?;
+    let json = built
+        .files
         .iter()
         .find(|f| f.path == "results.json")
         .map(|f| f.bytes.clone())

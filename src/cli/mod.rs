@@ -7,6 +7,7 @@
 pub mod check;
 pub mod diff;
 pub mod new;
+pub mod pdf;
 pub mod render;
 pub mod schema;
 pub mod source;

@@ -1,5 +1,6 @@
 //! `tauweave render DESIGN`: analyses a design and writes its review into a folder:
-//! report.html, report.md with plots/*.svg, results.json and sweep.csv.
+//! report.html, report.md with plots/*.svg, report.typ and report.pdf (through typst, see
+//! `pdf.rs`), results.json and sweep.csv, with the input copies and the manifest.
 //!
 //! Every file is written atomically (temporary file in the same folder, then rename);
 //! nothing is written when the design, its analysis or the template fails. With `--watch`,
@@ -9,9 +10,12 @@ use std::path::PathBuf;
 
 use clap::{Args, ValueEnum};
 
+use crate::cli::pdf::{self, PdfProblem};
 use crate::cli::source::{analysis_failure, load_file};
 use crate::cli::{Failure, Outcome};
+use crate::report::manifest::{self, Recipe};
 use crate::report::template::{BUILT_IN, BUILT_IN_NAME, TemplateSource};
+use crate::report::typst::Paper;
 use crate::report::{self, Formats, Inputs, OutputFile, write};
 
 /// Output formats.
@@ -23,8 +27,59 @@ pub enum Format {
     Html,
     /// report.md with plots/*.svg (and results.json, sweep.csv).
     Md,
+    /// report.pdf through typst, with report.typ and plots/*.svg (and results.json, sweep.csv).
+    Pdf,
     /// results.json and sweep.csv only.
     Json,
+}
+
+impl Format {
+    /// Its name on the command line and in the manifest.
+    pub fn name(self) -> &'static str {
+        match self {
+            Format::All => "all",
+            Format::Html => "html",
+            Format::Md => "md",
+            Format::Pdf => "pdf",
+            Format::Json => "json",
+        }
+    }
+
+    /// The format named `name` (as in a manifest).
+    pub fn from_name(name: &str) -> Option<Format> {
+        Format::value_variants().iter().copied().find(|f| f.name() == name)
+    }
+}
+
+/// Paper sizes of the PDF packet.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum PaperSize {
+    /// ISO A4 (210 mm × 297 mm).
+    A4,
+    /// US Letter (8.5 in × 11 in).
+    UsLetter,
+}
+
+impl PaperSize {
+    /// Its name on the command line and in the manifest.
+    pub fn name(self) -> &'static str {
+        match self {
+            PaperSize::A4 => "a4",
+            PaperSize::UsLetter => "us-letter",
+        }
+    }
+
+    /// The paper named `name` (as in a manifest).
+    pub fn from_name(name: &str) -> Option<PaperSize> {
+        PaperSize::value_variants().iter().copied().find(|p| p.name() == name)
+    }
+
+    fn paper(self) -> Paper {
+        match self {
+            PaperSize::A4 => Paper::A4,
+            PaperSize::UsLetter => Paper::UsLetter,
+        }
+    }
 }
 
 /// Flags of `tauweave render`.
@@ -44,6 +99,12 @@ pub struct RenderArgs {
     /// Monte Carlo runs (overrides the design's `analysis.monte_carlo.runs`; 0 skips it).
     #[arg(long)]
     pub runs: Option<u32>,
+    /// Paper of the PDF packet.
+    #[arg(long, value_enum, default_value_t = PaperSize::A4)]
+    pub paper: PaperSize,
+    /// The typst program for the PDF (default: $TAUWEAVE_TYPST, else `typst` on PATH).
+    #[arg(long, value_name = "PATH")]
+    pub typst: Option<PathBuf>,
     /// After the first render, render again whenever the design or the template changes.
     #[arg(long)]
     pub watch: bool,
@@ -100,7 +161,15 @@ pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
     }
     let written = render_and_write(args)?;
     eprintln!("{}", written.summary());
-    Ok(Outcome::Done)
+    match &written.pdf_problem {
+        None => Ok(Outcome::Done),
+        // Asked for `all`: the PDF is one format among several, a missing typst a warning.
+        Some(p @ PdfProblem::Missing(_)) if args.format == Format::All => {
+            eprint!("{}", p.message());
+            Ok(Outcome::Done)
+        }
+        Some(p) => Err(Failure::Input(p.message())),
+    }
 }
 
 /// A render written to disk.
@@ -111,6 +180,8 @@ pub struct Written {
     pub dir: PathBuf,
     /// The files written, paths relative to `dir`.
     pub files: Vec<OutputFile>,
+    /// Why report.pdf was not made, when it was asked for and is missing.
+    pub pdf_problem: Option<PdfProblem>,
 }
 
 impl Written {
@@ -131,34 +202,71 @@ impl Written {
 pub fn render_and_write(args: &RenderArgs) -> Result<Written, Failure> {
     let file = load_file(&args.design)?;
     let (template, built_in) = template_source(&args.template)?;
-    let (id, files) = build(&file, &template, built_in, args.format, args.runs)?;
-    let dir = args.out.clone().unwrap_or_else(|| PathBuf::from("out").join(&id));
-    for f in &files {
+    let options = BuildOptions {
+        format: args.format,
+        runs: args.runs,
+        paper: args.paper,
+        typst: args.typst.clone(),
+    };
+    let built = build(&file, &template, built_in, &options)?;
+    let dir = args.out.clone().unwrap_or_else(|| PathBuf::from("out").join(&built.id));
+    for f in &built.files {
         let path = dir.join(&f.path);
         write::atomic(&path, &f.bytes).map_err(|e| {
             Failure::Input(format!("error: cannot write `{}`: {e}\n", path.display()))
         })?;
     }
-    Ok(Written { id, dir, files })
+    Ok(Written { id: built.id, dir, files: built.files, pdf_problem: built.pdf_problem })
+}
+
+/// How to build: what a rebuild must repeat (recorded in the manifest), and which typst.
+#[derive(Clone, Debug)]
+pub struct BuildOptions {
+    /// What to write.
+    pub format: Format,
+    /// Monte Carlo runs (default: the design's own).
+    pub runs: Option<u32>,
+    /// Paper of the PDF packet.
+    pub paper: PaperSize,
+    /// The typst program, when named on the command line.
+    pub typst: Option<PathBuf>,
+}
+
+impl BuildOptions {
+    /// Results only (results.json, sweep.csv): what `diff` needs.
+    pub fn json(runs: Option<u32>) -> BuildOptions {
+        BuildOptions { format: Format::Json, runs, paper: PaperSize::A4, typst: None }
+    }
+}
+
+/// A render in memory.
+pub struct Built {
+    /// The design id.
+    pub id: String,
+    /// Every file, the manifest and the input copies included, sorted by path.
+    pub files: Vec<OutputFile>,
+    /// Why report.pdf is not among them, when it was asked for.
+    pub pdf_problem: Option<PdfProblem>,
 }
 
 /// Everything a render writes, in memory: analysis, tolerance study, the review files,
-/// the input copies and the manifest. Returns the design id too. Shared with `verify`.
+/// report.pdf through typst, the input copies and the manifest. Shared with `verify` and
+/// `diff`. A missing or failing typst leaves the PDF out and says why in the result.
 pub fn build(
     file: &crate::cli::source::LoadedFile,
     template: &TemplateSource,
     built_in: bool,
-    format: Format,
-    runs: Option<u32>,
-) -> Result<(String, Vec<OutputFile>), Failure> {
+    options: &BuildOptions,
+) -> Result<Built, Failure> {
     let design = file.design()?;
     eprint!("{}", file.report());
     let analysis = crate::analysis::analyze(design).map_err(|e| analysis_failure(file, &e))?;
-    let formats = match format {
-        Format::All => Formats { html: true, markdown: true, json: true },
-        Format::Html => Formats { html: true, markdown: false, json: true },
-        Format::Md => Formats { html: false, markdown: true, json: true },
-        Format::Json => Formats { html: false, markdown: false, json: true },
+    let pdf = matches!(options.format, Format::All | Format::Pdf);
+    let formats = Formats {
+        html: matches!(options.format, Format::All | Format::Html),
+        markdown: matches!(options.format, Format::All | Format::Md),
+        json: true,
+        typst: pdf.then(|| options.paper.paper()),
     };
     let inputs = Inputs {
         design_name: &file.name,
@@ -166,17 +274,38 @@ pub fn build(
         template,
         built_in_template: built_in,
     };
-    let runs = runs.unwrap_or(design.analysis.monte_carlo_runs);
+    let runs = options.runs.unwrap_or(design.analysis.monte_carlo_runs);
     let study = run_study(design, &analysis, Some(runs))?;
-    let files = report::render(design, &analysis, Some(&study), &inputs, formats)
+    let mut files = report::render(design, &analysis, Some(&study), &inputs, formats)
         .map_err(|e| Failure::Input(format!("{}nothing was written\n", e.message)))?;
-    let files = crate::report::manifest::seal(
-        files,
-        &file.name,
-        &file.text,
-        (!built_in).then_some((template.name.as_str(), template.text.as_str())),
-        &format!("{format:?}").to_lowercase(),
+    let mut pdf_problem = None;
+    let mut typst_version = None;
+    if pdf {
+        let made = pdf::find(options.typst.as_deref()).and_then(|typst| {
+            let sources: Vec<OutputFile> = files
+                .iter()
+                .filter(|f| f.path == report::TYPST_FILE || f.path.starts_with("plots/"))
+                .cloned()
+                .collect();
+            pdf::compile(&typst, &sources, &design.meta.date).map(|bytes| (typst.version, bytes))
+        });
+        match made {
+            Ok((version, bytes)) => {
+                typst_version = Some(version);
+                files.push(OutputFile { path: report::PDF_FILE.into(), bytes });
+                files.sort_by(|a, b| a.path.cmp(&b.path));
+            }
+            Err(problem) => pdf_problem = Some(problem),
+        }
+    }
+    let recipe = Recipe {
+        design_name: file.name.clone(),
+        template_name: (!built_in).then(|| template.name.clone()),
+        format: options.format.name().into(),
         runs,
-    );
-    Ok((design.meta.id.clone(), files))
+        paper: options.paper.name().into(),
+        typst: typst_version,
+    };
+    let files = manifest::seal(files, recipe, &file.text, (!built_in).then_some(&*template.text));
+    Ok(Built { id: design.meta.id.clone(), files, pdf_problem })
 }

@@ -9,7 +9,7 @@ use std::path::PathBuf;
 
 use clap::Args;
 
-use crate::cli::render::{Format, build};
+use crate::cli::render::{BuildOptions, Format, PaperSize, build};
 use crate::cli::source::LoadedFile;
 use crate::cli::{Failure, Outcome};
 use crate::report::manifest::{self, Manifest, sha256};
@@ -20,6 +20,9 @@ use crate::report::template::{BUILT_IN, BUILT_IN_NAME, TemplateSource};
 pub struct VerifyArgs {
     /// A folder written by `tauweave render`.
     pub dir: PathBuf,
+    /// The typst program, to rebuild a report.pdf (default: $TAUWEAVE_TYPST, else PATH).
+    #[arg(long, value_name = "PATH")]
+    pub typst: Option<PathBuf>,
 }
 
 /// Runs the verification.
@@ -46,7 +49,8 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
     }
     let design_text = std::fs::read_to_string(args.dir.join(manifest::DESIGN_COPY))
         .map_err(|e| unusable(format!("no design copy: {e}")))?;
-    let template = match &m.template_name {
+    let recipe = &m.recipe;
+    let template = match &recipe.template_name {
         None => (TemplateSource { name: BUILT_IN_NAME.into(), text: BUILT_IN.into() }, true),
         Some(name) => {
             let text = std::fs::read_to_string(args.dir.join(manifest::TEMPLATE_COPY))
@@ -54,12 +58,14 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
             (TemplateSource { name: name.clone(), text }, false)
         }
     };
-    let format = match m.format.as_str() {
-        "all" => Format::All,
-        "html" => Format::Html,
-        "md" => Format::Md,
-        "json" => Format::Json,
-        other => return Err(unusable(format!("unknown format `{other}` in the manifest"))),
+    let options = BuildOptions {
+        format: Format::from_name(&recipe.format).ok_or_else(|| {
+            unusable(format!("unknown format `{}` in the manifest", recipe.format))
+        })?,
+        runs: Some(recipe.runs),
+        paper: PaperSize::from_name(&recipe.paper)
+            .ok_or_else(|| unusable(format!("unknown paper `{}` in the manifest", recipe.paper)))?,
+        typst: args.typst.clone(),
     };
     if m.version != env!("CARGO_PKG_VERSION") {
         eprintln!(
@@ -69,11 +75,30 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
         );
     }
     let file = LoadedFile {
-        name: m.design_name.clone(),
+        name: recipe.design_name.clone(),
         loaded: crate::design::load(&design_text),
         text: design_text,
     };
-    let (_, rebuilt) = build(&file, &template.0, template.1, format, Some(m.runs))?;
+    let built = build(&file, &template.0, template.1, &options)?;
+    if m.outputs.contains_key(crate::report::PDF_FILE) {
+        if let Some(problem) = &built.pdf_problem {
+            return Err(unusable(format!(
+                "its report.pdf cannot be rebuilt here:\n{}",
+                problem.message()
+            )));
+        }
+        let now = built.files.iter().find(|f| f.path == manifest::FILE).and_then(|f| {
+            serde_json::from_slice::<Manifest>(&f.bytes).ok().and_then(|n| n.recipe.typst)
+        });
+        if now != recipe.typst {
+            eprintln!(
+                "note: report.pdf was made by {}, rebuilt by {}",
+                recipe.typst.as_deref().unwrap_or("an unknown typst"),
+                now.as_deref().unwrap_or("—")
+            );
+        }
+    }
+    let rebuilt = built.files;
     for (path, hash) in &m.outputs {
         let Some(new) = rebuilt.iter().find(|f| &f.path == path) else {
             problems.push(format!("{path}: not produced by the rebuild"));

@@ -18,7 +18,7 @@ use notify::{EventKind, RecursiveMode};
 use notify_debouncer_full::{DebounceEventResult, new_debouncer};
 use serde_json::Value;
 
-use crate::cli::render::{RenderArgs, render_and_write};
+use crate::cli::render::{RenderArgs, Written, render_and_write};
 use crate::cli::{Failure, Outcome};
 use crate::notation::{plain, si};
 
@@ -52,7 +52,10 @@ pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
     let names: Vec<String> = inputs.iter().map(|p| format!("{}", p.display())).collect();
     let watching = format!("watching {} for changes (Ctrl-C to stop)", names.join(" and "));
     match render_and_write(args) {
-        Ok(written) => eprintln!("{}", written.summary()),
+        Ok(written) => {
+            eprintln!("{}", written.summary());
+            pdf_note(&written);
+        }
         Err(failure) => report_input_failure(failure)?,
     }
     eprintln!("{watching}");
@@ -69,12 +72,15 @@ pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
         // The clock is read for this line only; nothing written depends on it.
         let started = Instant::now();
         match render_and_write(args) {
-            Ok(written) => eprintln!(
-                "rebuilt {} in {} ms: {}",
-                written.id,
-                started.elapsed().as_millis(),
-                headline(written.file("results.json").unwrap_or_default())
-            ),
+            Ok(written) => {
+                eprintln!(
+                    "rebuilt {} in {} ms: {}",
+                    written.id,
+                    started.elapsed().as_millis(),
+                    headline(written.file("results.json").unwrap_or_default())
+                );
+                pdf_note(&written);
+            }
             Err(failure) => {
                 report_input_failure(failure)?;
                 eprintln!("{watching}");
@@ -82,6 +88,13 @@ pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
         }
     }
     Err(Failure::Internal("the file watcher stopped".into()))
+}
+
+/// Says why report.pdf was not made, when it was not; watching goes on.
+fn pdf_note(written: &Written) {
+    if let Some(problem) = &written.pdf_problem {
+        eprint!("{}", problem.message());
+    }
 }
 
 /// The name a watched file is known by: its folder, canonicalised, joined with its file

@@ -16,6 +16,29 @@ pub const DESIGN_COPY: &str = "inputs/design.yaml";
 /// Where a user template is copied.
 pub const TEMPLATE_COPY: &str = "inputs/template.md";
 
+/// How a folder was rendered: everything besides the inputs that a rebuild must repeat.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Recipe {
+    /// The design file's name as given (it appears in the provenance).
+    pub design_name: String,
+    /// The user template's name as given; absent for the built-in template.
+    pub template_name: Option<String>,
+    /// `all`, `html`, `md`, `pdf` or `json`.
+    pub format: String,
+    /// Monte Carlo runs used.
+    pub runs: u32,
+    /// Paper of the PDF packet, `a4` or `us-letter` (`a4` in folders from before it).
+    #[serde(default = "default_paper")]
+    pub paper: String,
+    /// What the typst program said of its version, when it made report.pdf.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub typst: Option<String>,
+}
+
+fn default_paper() -> String {
+    "a4".into()
+}
+
 /// What a render recorded about itself.
 #[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
 pub struct Manifest {
@@ -23,14 +46,9 @@ pub struct Manifest {
     pub tool: String,
     /// The version that rendered.
     pub version: String,
-    /// The design file's name as given (it appears in the provenance).
-    pub design_name: String,
-    /// The user template's name as given; absent for the built-in template.
-    pub template_name: Option<String>,
-    /// `all`, `html`, `md` or `json`.
-    pub format: String,
-    /// Monte Carlo runs used.
-    pub runs: u32,
+    /// How it rendered.
+    #[serde(flatten)]
+    pub recipe: Recipe,
     /// SHA-256 of each copied input, by path in the folder.
     pub inputs: BTreeMap<String, String>,
     /// SHA-256 of each output, by path in the folder.
@@ -42,31 +60,27 @@ pub fn sha256(bytes: &[u8]) -> String {
     hex(&Sha256::digest(bytes))
 }
 
-/// Adds the input copies and the manifest to a render's files.
+/// Adds the input copies and the manifest to a render's files. `template_text` is the
+/// user template's text (absent for the built-in one).
 pub fn seal(
     mut files: Vec<OutputFile>,
-    design_name: &str,
+    recipe: Recipe,
     design_text: &str,
-    template: Option<(&str, &str)>,
-    format: &str,
-    runs: u32,
+    template_text: Option<&str>,
 ) -> Vec<OutputFile> {
     let outputs: BTreeMap<String, String> =
         files.iter().map(|f| (f.path.clone(), sha256(&f.bytes))).collect();
     let mut inputs = BTreeMap::new();
     inputs.insert(DESIGN_COPY.to_string(), sha256(design_text.as_bytes()));
     files.push(OutputFile { path: DESIGN_COPY.into(), bytes: design_text.as_bytes().to_vec() });
-    if let Some((_, text)) = template {
+    if let Some(text) = template_text {
         inputs.insert(TEMPLATE_COPY.to_string(), sha256(text.as_bytes()));
         files.push(OutputFile { path: TEMPLATE_COPY.into(), bytes: text.as_bytes().to_vec() });
     }
     let manifest = Manifest {
         tool: "tauweave".into(),
         version: env!("CARGO_PKG_VERSION").into(),
-        design_name: design_name.into(),
-        template_name: template.map(|(n, _)| n.to_string()),
-        format: format.into(),
-        runs,
+        recipe,
         inputs,
         outputs,
     };

@@ -2,8 +2,9 @@
 //!
 //! In: a design, its [`crate::analysis::Analysis`] and the run's inputs (design text,
 //! template). Out: the files of a render — results.json, report.md with plots/*.svg,
-//! report.html, sweep.csv — as bytes with their relative paths; the CLI writes them. The
-//! pipeline: results → view model → Tera template → Markdown → HTML / Markdown / JSON.
+//! report.html, report.typ, sweep.csv — as bytes with their relative paths; the CLI writes
+//! them (and has typst compile report.typ). The pipeline: results → view model → Tera
+//! template → Markdown → HTML / Markdown / typst / JSON.
 //! Knows nothing of how numbers were computed.
 
 pub mod cautions;
@@ -15,6 +16,7 @@ pub mod plots;
 pub mod results;
 pub mod tables;
 pub mod template;
+pub mod typst;
 pub mod view;
 pub mod write;
 
@@ -43,6 +45,8 @@ pub struct Formats {
     pub markdown: bool,
     /// results.json and sweep.csv.
     pub json: bool,
+    /// report.typ and plots/*.svg on this paper (the CLI compiles them into report.pdf).
+    pub typst: Option<typst::Paper>,
 }
 
 /// The inputs of a render, as bytes, so provenance can hash them.
@@ -56,6 +60,11 @@ pub struct Inputs<'a> {
     /// True when the template is the built-in one.
     pub built_in_template: bool,
 }
+
+/// The typst document of a render, compiled into [`PDF_FILE`] beside it.
+pub const TYPST_FILE: &str = "report.typ";
+/// The PDF packet.
+pub const PDF_FILE: &str = "report.pdf";
 
 /// Lower-case hex of bytes.
 pub fn hex(bytes: &[u8]) -> String {
@@ -110,7 +119,7 @@ pub fn render(
         files
             .push(OutputFile { path: "sweep.csv".into(), bytes: sweep_csv(analysis).into_bytes() });
     }
-    if !(formats.html || formats.markdown) {
+    if !(formats.html || formats.markdown || formats.typst.is_some()) {
         return Ok(files);
     }
     let explanation = explain::explain(analysis, study);
@@ -125,17 +134,30 @@ pub fn render(
     };
     let view = view::View::new(design, &doc, &explanation);
     let markdown = tidy_blank_lines(&template::render(inputs.template, &view, blocks)?);
-    if formats.markdown {
-        let mut md = markdown.clone();
+    if formats.markdown || formats.typst.is_some() {
+        // The Markdown and the typst document both reference plots/NAME.svg.
         for p in &plot_list {
-            md = md
-                .replace(&plot_marker(p.name), &format!("![{}](plots/{}.svg)", p.caption, p.name));
             files.push(OutputFile {
                 path: format!("plots/{}.svg", p.name),
                 bytes: p.svg.clone().into_bytes(),
             });
         }
+    }
+    if formats.markdown {
+        let mut md = markdown.clone();
+        for p in &plot_list {
+            md = md
+                .replace(&plot_marker(p.name), &format!("![{}](plots/{}.svg)", p.caption, p.name));
+        }
         files.push(OutputFile { path: "report.md".into(), bytes: md.into_bytes() });
+    }
+    if let Some(paper) = formats.typst {
+        let footer = format!("{} · rev {}", design.meta.id, design.meta.revision);
+        let page = typst::PageSetup { paper, title: &design.meta.title, footer: &footer };
+        files.push(OutputFile {
+            path: TYPST_FILE.into(),
+            bytes: typst::document(&markdown, &plot_list, &page).into_bytes(),
+        });
     }
     if formats.html {
         let title = format!("{} — rev {}", design.meta.title, design.meta.revision);

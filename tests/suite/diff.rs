@@ -73,7 +73,11 @@ fn one_resistor_changed_shows_that_part_and_what_moved() {
     assert!(md.contains("| f\\_H exact | 1.275 MHz | 1.17 MHz | −105.8 kHz | −8.299 % |"), "{md}");
     assert!(md.contains("No requirement changed between pass and fail"), "{md}");
     let html = read(&dir.join("chg"), "change.html");
-    assert!(html.contains("f_H exact</td><td style=\"text-align: right\">1.275 MHz</td>") && html.contains("Change review"), "{html}");
+    assert!(
+        html.contains("f_H exact</td><td style=\"text-align: right\">1.275 MHz</td>")
+            && html.contains("Change review"),
+        "{html}"
+    );
 
     // Identical revisions: nothing moved.
     let same = run_in(&dir, &["diff", "rev-c.yaml", "rev-c.yaml", "--runs", "50", "--no-write"]);

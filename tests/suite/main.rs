@@ -7,6 +7,7 @@ mod diff;
 mod examples;
 mod failures;
 mod identities;
+mod pdf;
 mod properties;
 mod reference;
 mod report;

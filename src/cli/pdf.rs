@@ -1,0 +1,157 @@
+//! The PDF route: finds the `typst` program and compiles report.typ into report.pdf with
+//! deterministic settings.
+//!
+//! In: the report.typ and plots/*.svg of a render (in memory), the design's date. Out: the
+//! PDF bytes, or why there are none. typst runs in a private staging folder holding only
+//! those files, which is also its `--root`; system fonts are ignored (only the fonts typst
+//! embeds are used), and the creation timestamp is the design's date at 00:00 UTC, so the
+//! same inputs give the same PDF bytes. The program is `--typst PATH`, else `TAUWEAVE_TYPST`,
+//! else `typst` on PATH.
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+use crate::report::OutputFile;
+
+/// The environment variable that names the typst program.
+pub const ENV: &str = "TAUWEAVE_TYPST";
+
+/// How to install typst, for messages.
+pub const INSTALL: &str = "cargo install typst-cli --locked";
+
+/// A typst program that answered `--version`.
+#[derive(Clone, Debug)]
+pub struct Typst {
+    /// The program.
+    pub program: PathBuf,
+    /// What it printed for `--version` (`typst 0.15.1 …`), trimmed.
+    pub version: String,
+}
+
+/// Why no PDF was made.
+#[derive(Clone, Debug)]
+pub enum PdfProblem {
+    /// No typst program was found (or it did not run).
+    Missing(String),
+    /// typst ran and reported errors (its own text, naming report.typ's line).
+    Failed(String),
+}
+
+impl PdfProblem {
+    /// The message for the terminal.
+    pub fn message(&self) -> String {
+        match self {
+            PdfProblem::Missing(why) => format!(
+                "warning: report.pdf was not made: {why}\n  help: install typst with `{INSTALL}` \
+                 (about 20 minutes, once), or name the program with --typst PATH or {ENV}\n"
+            ),
+            PdfProblem::Failed(text) => format!(
+                "error: report.pdf was not made: typst could not compile report.typ\n{text}\n  \
+                 help: report.typ is written beside the other outputs; the line above names the \
+                 place\n"
+            ),
+        }
+    }
+}
+
+/// Finds the typst program: the flag, else the environment variable, else PATH.
+pub fn find(flag: Option<&Path>) -> Result<Typst, PdfProblem> {
+    let program = match flag {
+        Some(p) => p.to_path_buf(),
+        None => match std::env::var_os(ENV) {
+            Some(p) if !p.is_empty() => PathBuf::from(p),
+            _ => on_path("typst").ok_or_else(|| {
+                PdfProblem::Missing("the `typst` program is not on PATH".to_string())
+            })?,
+        },
+    };
+    let out = Command::new(&program)
+        .arg("--version")
+        .output()
+        .map_err(|e| PdfProblem::Missing(format!("`{}` does not run: {e}", program.display())))?;
+    if !out.status.success() {
+        return Err(PdfProblem::Missing(format!(
+            "`{} --version` failed: {}",
+            program.display(),
+            String::from_utf8_lossy(&out.stderr).trim()
+        )));
+    }
+    Ok(Typst { program, version: String::from_utf8_lossy(&out.stdout).trim().to_string() })
+}
+
+fn on_path(name: &str) -> Option<PathBuf> {
+    let path = std::env::var_os("PATH")?;
+    std::env::split_paths(&path).map(|d| d.join(name)).find(|p| p.is_file())
+}
+
+/// Seconds since 1970-01-01 UTC of a `YYYY-MM-DD` date at midnight (proleptic Gregorian).
+pub fn unix_midnight(date: &str) -> Option<i64> {
+    let mut it = date.splitn(3, '-').map(|p| p.parse::<i64>().ok());
+    let (y, m, d) = (it.next()??, it.next()??, it.next()??);
+    if !(1..=12).contains(&m) || !(1..=31).contains(&d) {
+        return None;
+    }
+    // Days from civil, after H. Hinnant's `days_from_civil` (public-domain algorithm).
+    let y = if m <= 2 { y - 1 } else { y };
+    let era = y.div_euclid(400);
+    let yoe = y - era * 400;
+    let mp = (m + 9) % 12;
+    let doy = (153 * mp + 2) / 5 + d - 1;
+    let doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
+    Some((era * 146_097 + doe - 719_468) * 86_400)
+}
+
+/// Compiles `files` (report.typ and the plots it names) into PDF bytes.
+pub fn compile(typst: &Typst, files: &[OutputFile], date: &str) -> Result<Vec<u8>, PdfProblem> {
+    let failed = |why: String| PdfProblem::Failed(format!("  {why}"));
+    let stage = tempfile::tempdir().map_err(|e| failed(format!("no staging folder: {e}")))?;
+    for f in files {
+        let path = stage.path().join(&f.path);
+        if let Some(dir) = path.parent() {
+            std::fs::create_dir_all(dir).map_err(|e| failed(format!("{}: {e}", dir.display())))?;
+        }
+        std::fs::write(&path, &f.bytes).map_err(|e| failed(format!("{}: {e}", f.path)))?;
+    }
+    let timestamp = unix_midnight(date)
+        .ok_or_else(|| failed(format!("the design date `{date}` is not YYYY-MM-DD")))?;
+    let out = Command::new(&typst.program)
+        .current_dir(stage.path())
+        .args(["compile", "--root", ".", "--ignore-system-fonts", "--diagnostic-format", "human"])
+        .args(["--creation-timestamp", &timestamp.to_string()])
+        .args(["report.typ", "report.pdf"])
+        // Nothing from the caller's environment may change the bytes.
+        .env_remove("TYPST_ROOT")
+        .env_remove("TYPST_FONT_PATHS")
+        .env_remove("TYPST_IGNORE_EMBEDDED_FONTS")
+        .env_remove("TYPST_PACKAGE_PATH")
+        .env_remove("TYPST_PACKAGE_CACHE_PATH")
+        .env_remove("SOURCE_DATE_EPOCH")
+        .env("NO_COLOR", "1")
+        .output()
+        .map_err(|e| {
+            PdfProblem::Missing(format!("`{}` does not run: {e}", typst.program.display()))
+        })?;
+    if !out.status.success() {
+        let text = String::from_utf8_lossy(&out.stderr);
+        let indented: Vec<String> = text.lines().map(|l| format!("  {l}")).collect();
+        return Err(PdfProblem::Failed(indented.join("\n")));
+    }
+    std::fs::read(stage.path().join("report.pdf"))
+        .map_err(|e| failed(format!("typst wrote no report.pdf: {e}")))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn midnight_timestamps() {
+        // Reference values from GNU coreutils: `date -u -d 2026-11-20 +%s` prints 1795132800.
+        assert_eq!(unix_midnight("1970-01-01"), Some(0));
+        assert_eq!(unix_midnight("2000-03-01"), Some(951_868_800));
+        assert_eq!(unix_midnight("2026-11-20"), Some(1_795_132_800));
+        assert_eq!(unix_midnight("1969-12-31"), Some(-86_400));
+        assert_eq!(unix_midnight("2026-13-01"), None);
+        assert_eq!(unix_midnight("soon"), None);
+    }
+}
