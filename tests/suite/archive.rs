@@ -48,7 +48,10 @@ fn verify_passes_fresh_and_catches_every_changed_byte() {
         serde_json::from_str(&std::fs::read_to_string(rendered.join("manifest.json")).unwrap())
             .unwrap();
     let outputs: Vec<String> = manifest["outputs"].as_object().unwrap().keys().cloned().collect();
-    assert!(outputs.len() >= 9, "{outputs:?}");
+    assert!(outputs.len() >= 11, "{outputs:?}");
+    // The PDF is archived too (typst is named by `run_in`; scripts/test installs it).
+    crate::support::typst();
+    assert!(outputs.iter().any(|o| o == "report.pdf"), "{outputs:?}");
     for (k, path) in outputs.iter().enumerate() {
         let copy = base.join(format!("flip-{k}"));
         copy_dir(&rendered, &copy);

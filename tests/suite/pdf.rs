@@ -8,18 +8,7 @@
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
-use crate::support::{binary, files, root, scratch};
-
-/// The typst program: on PATH, or where `cargo install` puts it.
-fn typst() -> PathBuf {
-    let home = std::env::var_os("HOME").map(PathBuf::from).unwrap_or_default();
-    let on_path = std::env::var_os("PATH")
-        .map(|p| std::env::split_paths(&p).map(|d| d.join("typst")).collect::<Vec<_>>())
-        .unwrap_or_default();
-    on_path.into_iter().chain([home.join(".cargo/bin/typst")]).find(|p| p.is_file()).expect(
-        "typst is not installed: scripts/test installs it (cargo install typst-cli --locked)",
-    )
-}
+use crate::support::{binary, files, root, run_in, scratch, typst};
 
 /// A poppler-utils program's output (pdftoppm, pdfinfo, pdftotext).
 fn poppler(program: &str, args: &[&str]) -> Output {
@@ -241,4 +230,26 @@ fn without_typst_the_other_formats_are_written_and_the_message_says_how_to_insta
         .unwrap();
     assert_eq!(o.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&o.stderr).contains("/nonexistent/typst"));
+}
+
+#[test]
+fn verify_needs_typst_to_rebuild_a_pdf_and_says_so() {
+    let dir = scratch("pdf-verify");
+    let design = root().join("designs/post-amp-cs.yaml");
+    let o = run_in(&dir, &["render", design.to_str().unwrap(), "--runs", "0", "--out", "a"]);
+    assert_eq!(o.status.code(), Some(0), "{}", String::from_utf8_lossy(&o.stderr));
+    assert!(dir.join("a/report.pdf").is_file());
+    let o = Command::new(binary())
+        .args(["verify", "a"])
+        .current_dir(&dir)
+        .env("PATH", dir.join("empty-path"))
+        .env_remove("TAUWEAVE_TYPST")
+        .output()
+        .unwrap();
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(2), "{err}");
+    assert!(
+        err.contains("report.pdf cannot be rebuilt here") && err.contains("typst-cli"),
+        "{err}"
+    );
 }

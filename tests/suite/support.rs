@@ -13,9 +13,30 @@ pub fn binary() -> PathBuf {
     PathBuf::from(env!("CARGO_BIN_EXE_tauweave"))
 }
 
-/// Runs `tauweave` with `args` in the working directory `cwd`.
+/// The typst program, on PATH or where `cargo install` puts it (scripts/test installs it).
+pub fn find_typst() -> Option<PathBuf> {
+    let home = std::env::var_os("HOME").map(PathBuf::from).unwrap_or_default();
+    let on_path = std::env::var_os("PATH")
+        .map(|p| std::env::split_paths(&p).map(|d| d.join("typst")).collect::<Vec<_>>())
+        .unwrap_or_default();
+    on_path.into_iter().chain([home.join(".cargo/bin/typst")]).find(|p| p.is_file())
+}
+
+/// The typst program; a test that needs it fails (never skips) when it is missing.
+pub fn typst() -> PathBuf {
+    find_typst().expect(
+        "typst is not installed: scripts/test installs it (cargo install typst-cli --locked)",
+    )
+}
+
+/// Runs `tauweave` with `args` in the working directory `cwd`. The typst program found by
+/// [`find_typst`] is named through `TAUWEAVE_TYPST`, so renders make their PDF.
 pub fn run_in(cwd: &Path, args: &[&str]) -> Output {
-    Command::new(binary())
+    let mut command = Command::new(binary());
+    if let Some(typst) = find_typst() {
+        command.env("TAUWEAVE_TYPST", typst);
+    }
+    command
         .args(args)
         .current_dir(cwd)
         .env("NO_COLOR", "1")
