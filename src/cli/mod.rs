@@ -52,7 +52,7 @@ pub struct Cli {
 pub enum Command {
     /// Validate a design file and print a summary of it.
     Check(check::CheckArgs),
-    /// Analyse a design and write its review (HTML, Markdown, plots, JSON) into a folder.
+    /// Analyse a design and write its review (HTML, Markdown, PDF, plots, JSON) into a folder.
     Render(render::RenderArgs),
     /// Show what changed between two revisions of a design: parts, models and results.
     Diff(diff::DiffArgs),

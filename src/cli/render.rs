@@ -21,7 +21,7 @@ use crate::report::{self, Formats, Inputs, OutputFile, write};
 /// Output formats.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
 pub enum Format {
-    /// Everything: HTML, Markdown with plots, results.json and sweep.csv.
+    /// Everything: HTML, Markdown with plots, PDF (when typst is found), results.json, sweep.csv.
     All,
     /// report.html, self-contained (and results.json, sweep.csv).
     Html,

@@ -50,15 +50,7 @@ fn dark_fraction_of_page_one(pdf: &Path) -> f64 {
         ],
     );
     assert!(o.status.success(), "pdftoppm: {}", String::from_utf8_lossy(&o.stderr));
-    let png = stem.with_extension("png");
-    let decoder = png::Decoder::new(std::io::BufReader::new(std::fs::File::open(&png).unwrap()));
-    let mut reader = decoder.read_info().unwrap();
-    let mut buf = vec![0; reader.output_buffer_size().unwrap()];
-    let info = reader.next_frame(&mut buf).unwrap();
-    let px = &buf[..info.buffer_size()];
-    let channels = info.color_type.samples();
-    let dark = px.chunks(channels).filter(|p| p[0] < 128).count();
-    dark as f64 / (px.len() / channels) as f64
+    crate::support::dark_fraction(&stem.with_extension("png"), 128)
 }
 
 #[test]

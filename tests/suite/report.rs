@@ -145,15 +145,8 @@ fn the_html_report_renders_in_chromium() {
         &["--window-size=1280,2400", &format!("--screenshot={}", shot.display())],
     );
     assert!(shot.exists(), "no screenshot: {}", String::from_utf8_lossy(&o.stderr));
-    let decoder = png::Decoder::new(std::io::BufReader::new(std::fs::File::open(&shot).unwrap()));
-    let mut reader = decoder.read_info().unwrap();
-    let mut buf = vec![0; reader.output_buffer_size().unwrap()];
-    let info = reader.next_frame(&mut buf).unwrap();
-    let px = &buf[..info.buffer_size()];
-    let channels = info.color_type.samples();
-    let dark = px.chunks(channels).filter(|p| p[0] < 100).count();
-    let total = px.len() / channels;
-    assert!(dark * 200 > total, "screenshot looks blank: {dark} dark pixels of {total}");
+    let dark = crate::support::dark_fraction(&shot, 100);
+    assert!(dark > 0.005, "screenshot looks blank: {dark:.4} of the pixels dark");
 }
 
 #[test]

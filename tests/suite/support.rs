@@ -63,3 +63,15 @@ pub fn scratch(name: &str) -> PathBuf {
     std::fs::create_dir_all(&dir).expect("scratch dir");
     dir
 }
+
+/// The fraction of a PNG's pixels whose first channel is below `below` (dark ink on white).
+pub fn dark_fraction(png: &Path, below: u8) -> f64 {
+    let file = std::fs::File::open(png).unwrap_or_else(|e| panic!("{}: {e}", png.display()));
+    let mut reader = png::Decoder::new(std::io::BufReader::new(file)).read_info().unwrap();
+    let mut buf = vec![0; reader.output_buffer_size().unwrap()];
+    let info = reader.next_frame(&mut buf).unwrap();
+    let px = &buf[..info.buffer_size()];
+    let channels = info.color_type.samples();
+    let dark = px.chunks(channels).filter(|p| p[0] < below).count();
+    dark as f64 / (px.len() / channels) as f64
+}
