@@ -5,7 +5,7 @@
 //! it. typst and poppler-utils are installed by scripts/test; a test never skips for lack
 //! of them, it fails and says so.
 
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::{Command, Output};
 
 use crate::support::{binary, files, root, run_in, scratch, typst};
