@@ -68,6 +68,21 @@ pub fn plain(value: f64, digits: usize) -> String {
     text.replacen('-', "−", 1)
 }
 
+/// A signed fraction as per cent with `digits` significant digits: `+9.001 %`, `−8.3 %`, `0 %`.
+pub fn signed_percent(fraction: f64, digits: usize) -> String {
+    let text = plain(fraction * 100.0, digits);
+    if text != "0" && fraction > 0.0 { format!("+{text} %") } else { format!("{text} %") }
+}
+
+/// A number without a unit, readable at any size: plain from 0.001 to 10⁶, else scientific.
+pub fn number(value: f64, digits: usize) -> String {
+    if value == 0.0 || (1e-3..1e6).contains(&value.abs()) {
+        plain(value, digits)
+    } else {
+        scientific(value, "", digits)
+    }
+}
+
 /// Scientific notation for values whose unit takes no prefix (s², 1/V²): `1.083×10⁻¹⁴ s²`.
 pub fn scientific(value: f64, unit: &str, digits: usize) -> String {
     if !value.is_finite() {
@@ -136,6 +151,17 @@ mod tests {
         assert_eq!(si(f64::NAN, "V", 3), "—");
         assert_eq!(si(f64::INFINITY, "Ω", 3), "—");
         assert_eq!(si(1500.0, "", 3), "1.5 k");
+    }
+
+    #[test]
+    fn signed_percentages_and_bare_numbers() {
+        assert_eq!(signed_percent(0.09001, 4), "+9.001 %");
+        assert_eq!(signed_percent(-0.083, 3), "−8.3 %");
+        assert_eq!(signed_percent(1e-9, 2), "+0.0000001 %");
+        assert_eq!(signed_percent(0.0, 3), "0 %");
+        assert_eq!(number(100.0, 4), "100");
+        assert_eq!(number(4e-16, 3), "4×10⁻¹⁶");
+        assert_eq!(number(0.0, 3), "0");
     }
 
     #[test]

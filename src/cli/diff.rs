@@ -96,18 +96,24 @@ fn side(path: &Path, runs: Option<u32>) -> Result<Side, Failure> {
 /// The change report as terminal text, in the order of the written report.
 pub fn terminal(c: &Change) -> String {
     let mut out = String::new();
-    let _ = writeln!(out, "{} → {}", c.old.source, c.new.source);
+    let _ = writeln!(out, "{} → {}", c.old.source_text, c.new.source_text);
     if !c.status_changes.is_empty() {
         let _ = writeln!(out, "\nrequirements that changed status");
-        let header = [("", Align::Left), ("before", Align::Right), ("after", Align::Right)];
+        let header = [
+            ("", Align::Left),
+            ("limit", Align::Left),
+            ("before", Align::Right),
+            ("after", Align::Right),
+        ];
         out.push_str(&render(2, &header, &change::status_rows(c)));
     }
-    let _ = writeln!(out, "\nparts and models");
+    let _ = writeln!(out, "\nparts, models and settings");
     if !c.parts_compared {
-        let _ = writeln!(out, "  not compared: one side is a results.json");
+        let _ = writeln!(out, "  parts and models not compared: one side is a results.json");
     } else if c.part_changes.is_empty() {
-        let _ = writeln!(out, "  no part or model changed");
-    } else {
+        let _ = writeln!(out, "  no part, model or setting changed");
+    }
+    {
         for p in &c.part_changes {
             let mark = match p.change {
                 "added" => "+",
@@ -139,6 +145,16 @@ pub fn terminal(c: &Change) -> String {
     out
 }
 
+/// `out/<later design id>-change/`; an id that is not a plain name (a results.json can say
+/// anything) gives `out/change/`, so the report never lands outside `out/`.
+fn default_folder(results: &Value) -> PathBuf {
+    let id = results.pointer("/design/id").and_then(Value::as_str).unwrap_or("");
+    let plain = !id.is_empty()
+        && !id.starts_with('.')
+        && id.chars().all(|c| c.is_ascii_alphanumeric() || "._-".contains(c));
+    PathBuf::from("out").join(if plain { format!("{id}-change") } else { "change".into() })
+}
+
 /// Runs the diff.
 pub fn run(args: &DiffArgs) -> Result<Outcome, Failure> {
     let template = match &args.template {
@@ -152,13 +168,11 @@ pub fn run(args: &DiffArgs) -> Result<Outcome, Failure> {
     let (old_name, new_name) = (args.old.display().to_string(), args.new.display().to_string());
     let c = change::compare(&old.revision(&old_name), &new.revision(&new_name));
     print!("{}", terminal(&c));
+    // Rendered even with --no-write, so a broken change template is reported either way.
+    let files = change::render(&c, &template)
+        .map_err(|e| Failure::Input(format!("{}nothing was written\n", e.message)))?;
     if !args.no_write {
-        let files = change::render(&c, &template)
-            .map_err(|e| Failure::Input(format!("{}nothing was written\n", e.message)))?;
-        let dir = args
-            .out
-            .clone()
-            .unwrap_or_else(|| PathBuf::from("out").join(format!("{}-change", c.new.id)));
+        let dir = args.out.clone().unwrap_or_else(|| default_folder(&new.results));
         for f in &files {
             let path = dir.join(&f.path);
             write::atomic(&path, &f.bytes).map_err(|e| {

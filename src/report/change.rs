@@ -12,10 +12,10 @@ use std::collections::BTreeMap;
 use serde::Serialize;
 use serde_json::Value;
 
-use crate::design::{Design, PartKind, Toleranced};
-use crate::notation::{plain, si};
+use crate::design::{Design, Part, Toleranced};
+use crate::notation::{number, plain, si, signed_percent};
 use crate::report::results::{Tool, tool};
-use crate::report::tables::{cell, markdown_table};
+use crate::report::tables::{cell, markdown_table, part_cells};
 use crate::report::template::{self, Blocks, TemplateError, TemplateSource};
 use crate::report::view::escape;
 use crate::report::{OutputFile, html, tidy_blank_lines};
@@ -28,7 +28,7 @@ pub const BUILT_IN_NAME: &str = "built-in change template";
 /// The names `table()` accepts in a change template, with what each holds.
 pub const TABLES: &[(&str, &str)] = &[
     ("status", "requirements whose pass/fail changed, with both values"),
-    ("parts", "parts and model parameters added, removed or changed"),
+    ("parts", "parts, model parameters, settings and requirement limits that changed"),
     ("moved", "every reviewed figure that moved: old, new, change, relative change"),
 ];
 
@@ -64,6 +64,9 @@ pub struct RevisionView {
     /// Revision as written (for the page title, which escapes on its own).
     #[serde(skip)]
     pub revision_text: String,
+    /// The file given, as written (for the terminal).
+    #[serde(skip)]
+    pub source_text: String,
 }
 
 /// A requirement whose nominal pass/fail changed (or that appeared or went away).
@@ -79,14 +82,19 @@ pub struct StatusChange {
     pub old_value: String,
     /// The value in the later revision, formatted.
     pub new_value: String,
+    /// The limit in the earlier revision, formatted (`≥ 900 kHz`).
+    pub old_limit: String,
+    /// The limit in the later revision, formatted.
+    pub new_limit: String,
 }
 
-/// A part or model parameter that was added, removed or changed.
+/// A part, model parameter or setting that was added, removed or changed.
 #[derive(Clone, Debug, Serialize)]
 pub struct PartChange {
     /// `added`, `removed` or `changed`.
     pub change: &'static str,
-    /// Designator, or `model NAME` / `model NAME parameter`.
+    /// Designator, `model NAME` / `model NAME parameter`, or a setting (`supply vcc`,
+    /// `signal`, `temperature`, `requirement upper_cutoff`, …).
     pub item: String,
     /// Before (absent when added).
     pub old: Option<String>,
@@ -97,19 +105,26 @@ pub struct PartChange {
 /// One figure that moved.
 #[derive(Clone, Debug, Serialize)]
 pub struct Moved {
-    /// What it is (`f_H exact`, `τ Q1.cmu`, `V(coll)`).
+    /// What it is (`f_H exact`, `τ Q1.cmu`, `V(coll)`), escaped for Markdown.
     pub figure: String,
-    /// Its JSON pointer in results.json.
+    /// What it is, as written (for the terminal).
+    #[serde(skip)]
+    pub label: String,
+    /// Its identity across revisions (`/high/f3db_hz`, `tau high Q1.cmu`, `pole 2`).
     pub key: String,
-    /// SI unit (`""` for V/V, `%` for a yield fraction).
+    /// SI unit of the numbers (`""` for V/V, `dB`, `%` for a yield fraction).
     pub unit: &'static str,
     /// Earlier value (SI), null when absent.
     pub old: Option<f64>,
     /// Later value (SI), null when absent.
     pub new: Option<f64>,
+    /// Earlier value as text (a pole as `|p|, Q` when complex); `—` when absent.
+    pub old_text: String,
+    /// Later value as text.
+    pub new_text: String,
     /// new − old (SI; a fraction for yields).
     pub absolute: Option<f64>,
-    /// new/old − 1: the change of the magnitude whatever the sign of the value.
+    /// new/old − 1 (null for yields and values in dB).
     pub relative: Option<f64>,
 }
 
@@ -140,46 +155,57 @@ pub struct Change {
 pub fn compare(old: &Revision, new: &Revision) -> Change {
     let status_changes = status_changes(old.results, new.results);
     let now_failing = status_changes.iter().any(|s| s.new_pass == Some(false));
-    let (parts_compared, part_changes) = match (old.design, new.design) {
-        (Some(a), Some(b)) => (true, part_changes(a, b)),
-        _ => (false, Vec::new()),
+    let mut part_changes = match (old.design, new.design) {
+        (Some(a), Some(b)) => part_changes(a, b),
+        _ => Vec::new(),
     };
-    let figures = figures(new.results);
-    let moved = figures
-        .iter()
-        .filter_map(|(figure, key, unit)| {
-            let a = old.results.pointer(key).and_then(Value::as_f64);
-            let b = new.results.pointer(key).and_then(Value::as_f64);
-            let changed = match (a, b) {
-                (Some(a), Some(b)) => a != b,
-                (None, None) => false,
-                _ => true,
-            };
-            changed.then(|| Moved {
-                figure: figure.clone(),
-                key: key.clone(),
-                unit,
-                old: a,
-                new: b,
-                absolute: a.zip(b).map(|(a, b)| b - a),
-                // A yield moves in percentage points; its ratio says nothing more.
-                relative: a
-                    .zip(b)
-                    .filter(|(a, _)| *a != 0.0 && *unit != "%")
-                    .map(|(a, b)| b / a - 1.0),
-            })
-        })
-        .collect();
+    part_changes.extend(limit_changes(old.results, new.results));
+    let (before, after) = (figures(old.results), figures(new.results));
+    // The later revision's order, then what only the earlier one had.
+    let mut keys: Vec<&str> = after.iter().map(|f| f.key.as_str()).collect();
+    keys.extend(
+        before.iter().map(|f| f.key.as_str()).filter(|k| !after.iter().any(|f| f.key == *k)),
+    );
+    let find = |list: &'_ [Figure], key: &str| list.iter().find(|f| f.key == key).cloned();
+    let mut moved = Vec::new();
+    for key in &keys {
+        let (a, b) = (find(&before, key), find(&after, key));
+        let Some(any) = b.as_ref().or(a.as_ref()) else { continue };
+        let (x, y) = (a.as_ref().map(|f| f.value), b.as_ref().map(|f| f.value));
+        let text = |f: &Option<Figure>| f.as_ref().map_or("—".to_string(), Figure::text);
+        let (old_text, new_text) = (text(&a), text(&b));
+        if x == y && old_text == new_text {
+            continue;
+        }
+        let relative = match (x, y) {
+            (Some(x), Some(y)) if x != 0.0 && any.unit != "%" && any.unit != "dB" => {
+                Some(y / x - 1.0)
+            }
+            _ => None,
+        };
+        moved.push(Moved {
+            figure: escape(&any.label),
+            label: any.label.clone(),
+            key: key.to_string(),
+            unit: any.unit,
+            old: x,
+            new: y,
+            old_text,
+            new_text,
+            absolute: x.zip(y).map(|(x, y)| y - x),
+            relative,
+        });
+    }
     Change {
         tool: tool(),
         old: revision_view(old),
         new: revision_view(new),
         status_changes,
         now_failing,
-        parts_compared,
+        parts_compared: old.design.is_some() && new.design.is_some(),
         part_changes,
         moved,
-        figures_compared: figures.len(),
+        figures_compared: keys.len(),
     }
 }
 
@@ -187,92 +213,138 @@ fn revision_view(r: &Revision) -> RevisionView {
     let text = |k: &str| r.results.pointer(&format!("/design/{k}")).and_then(Value::as_str);
     RevisionView {
         source: escape(r.source),
+        source_text: r.source.to_string(),
         kind: if r.design.is_some() { "design" } else { "results" },
         sha256: r.sha256.clone(),
-        id: text("id").unwrap_or("—").to_string(),
+        id: escape(text("id").unwrap_or("—")),
         title: escape(text("title").unwrap_or("—")),
         revision: escape(text("revision").unwrap_or("—")),
-        date: text("date").unwrap_or("—").to_string(),
+        date: escape(text("date").unwrap_or("—")),
         revision_text: text("revision").unwrap_or("—").to_string(),
     }
 }
 
-/// A requirement's nominal value as text: dB for the gain, SI otherwise.
-fn requirement_value(r: &Value) -> String {
-    let unit = r["unit"].as_str().unwrap_or("");
-    match r["value"].as_f64() {
-        None => "not found".into(),
-        Some(v) if r["name"] == "midband_gain" && v > 0.0 => {
-            format!("{} dB", plain(20.0 * v.log10(), 3))
-        }
-        Some(v) => si(v, unit, 4),
+/// A requirement's value in its display form: dB for the gain, SI otherwise.
+fn requirement_show(r: &Value, v: f64) -> String {
+    if r["name"] == "midband_gain" && v > 0.0 {
+        format!("{} dB", plain(20.0 * v.log10(), 3))
+    } else {
+        si(v, r["unit"].as_str().unwrap_or(""), 4)
     }
 }
 
-fn status_changes(old: &Value, new: &Value) -> Vec<StatusChange> {
-    let list =
-        |v: &Value| -> Vec<Value> { v["requirements"].as_array().cloned().unwrap_or_default() };
-    let (ro, rn) = (list(old), list(new));
-    let find = |l: &[Value], name: &str| l.iter().find(|r| r["name"] == name).cloned();
+/// A requirement's nominal value as text.
+fn requirement_value(r: &Value) -> String {
+    r["value"].as_f64().map_or("not found".into(), |v| requirement_show(r, v))
+}
+
+/// A requirement's limits as text: `18 dB … 23 dB`, `≥ 900 kHz`, `≤ 1.2 kΩ`.
+fn requirement_limit(r: &Value) -> String {
+    let show = |k: &str| r[k].as_f64().map(|v| requirement_show(r, v));
+    match (show("min"), show("max")) {
+        (Some(a), Some(b)) => format!("{a} … {b}"),
+        (Some(a), None) => format!("≥ {a}"),
+        (None, Some(b)) => format!("≤ {b}"),
+        (None, None) => "—".into(),
+    }
+}
+
+fn requirements(v: &Value) -> Vec<Value> {
+    v["requirements"].as_array().cloned().unwrap_or_default()
+}
+
+fn find_requirement(list: &[Value], name: &str) -> Option<Value> {
+    list.iter().find(|r| r["name"] == name).cloned()
+}
+
+/// Requirements whose limits changed, were added or were removed.
+fn limit_changes(old: &Value, new: &Value) -> Vec<PartChange> {
+    let (ro, rn) = (requirements(old), requirements(new));
     let mut out = Vec::new();
     for r in &rn {
         let name = r["name"].as_str().unwrap_or("?");
-        let before = find(&ro, name);
-        let (old_pass, new_pass) =
-            (before.as_ref().and_then(|b| b["pass"].as_bool()), r["pass"].as_bool());
-        if old_pass != new_pass {
-            out.push(StatusChange {
-                requirement: name.to_string(),
-                old_pass,
-                new_pass,
-                old_value: before.as_ref().map_or("—".into(), requirement_value),
-                new_value: requirement_value(r),
+        let before = find_requirement(&ro, name).map(|b| requirement_limit(&b));
+        let after = requirement_limit(r);
+        if before.as_deref() != Some(after.as_str()) {
+            out.push(PartChange {
+                change: if before.is_some() { "changed" } else { "added" },
+                item: format!("requirement {}", name.replace('_', " ")),
+                old: before,
+                new: Some(after),
             });
         }
     }
-    for r in ro.iter().filter(|r| find(&rn, r["name"].as_str().unwrap_or("?")).is_none()) {
-        out.push(StatusChange {
-            requirement: r["name"].as_str().unwrap_or("?").to_string(),
-            old_pass: r["pass"].as_bool(),
-            new_pass: None,
-            old_value: requirement_value(r),
-            new_value: "—".into(),
+    for r in
+        ro.iter().filter(|r| find_requirement(&rn, r["name"].as_str().unwrap_or("?")).is_none())
+    {
+        out.push(PartChange {
+            change: "removed",
+            item: format!("requirement {}", r["name"].as_str().unwrap_or("?").replace('_', " ")),
+            old: Some(requirement_limit(r)),
+            new: None,
         });
     }
     out
 }
 
-fn value_text(v: &Toleranced, unit: &str) -> String {
-    let tol =
-        v.tolerance.map_or(String::new(), |t| format!(" ±{} %", plain(t.fraction * 100.0, 3)));
-    format!("{}{tol}", si(v.nominal, unit, 4))
-}
-
-/// A part in one line: kind, value with tolerance, connections, model.
-pub fn part_summary(k: &PartKind, d: &Design) -> String {
-    match k {
-        PartKind::Resistor { between, value } => {
-            format!("resistor {} {}", value_text(value, "Ω"), between.join("–"))
-        }
-        PartKind::Capacitor { between, value, .. } => {
-            format!("capacitor {} {}", value_text(value, "F"), between.join("–"))
-        }
-        PartKind::Inductor { between, value } => {
-            format!("inductor {} {}", value_text(value, "H"), between.join("–"))
-        }
-        PartKind::Transconductance { between, value, .. } => {
-            format!("transconductance {} {}", value_text(value, "S"), between.join("→"))
-        }
-        PartKind::VoltageAmplifier { between, value, .. } => {
-            format!("voltage amplifier {} V/V {}", plain(value.nominal, 4), between.join("–"))
-        }
-        PartKind::Bjt { c, b, e, model } => {
-            format!("bjt {} c {c} b {b} e {e}", d.models[*model].name)
-        }
-        PartKind::Mosfet { d: dr, g, s, model } => {
-            format!("mosfet {} d {dr} g {g} s {s}", d.models[*model].name)
+fn status_changes(old: &Value, new: &Value) -> Vec<StatusChange> {
+    let (ro, rn) = (requirements(old), requirements(new));
+    let mut out = Vec::new();
+    for r in &rn {
+        let before = find_requirement(&ro, r["name"].as_str().unwrap_or("?"));
+        let old_pass = before.as_ref().and_then(|b| b["pass"].as_bool());
+        if old_pass != r["pass"].as_bool() {
+            out.push(status_change(before.as_ref(), Some(r)));
         }
     }
+    for r in
+        ro.iter().filter(|r| find_requirement(&rn, r["name"].as_str().unwrap_or("?")).is_none())
+    {
+        out.push(status_change(Some(r), None));
+    }
+    out
+}
+
+fn status_change(old: Option<&Value>, new: Option<&Value>) -> StatusChange {
+    let name = old.or(new).and_then(|r| r["name"].as_str()).unwrap_or("?");
+    StatusChange {
+        requirement: name.to_string(),
+        old_pass: old.and_then(|r| r["pass"].as_bool()),
+        new_pass: new.and_then(|r| r["pass"].as_bool()),
+        old_value: old.map_or("—".into(), requirement_value),
+        new_value: new.map_or("—".into(), requirement_value),
+        old_limit: old.map_or("—".into(), requirement_limit),
+        new_limit: new.map_or("—".into(), requirement_limit),
+    }
+}
+
+/// A part in one line: the cells of the parts table, joined.
+fn part_summary(p: &Part, d: &Design) -> String {
+    let cells = part_cells(p, d);
+    cells.iter().filter(|c| !c.is_empty()).cloned().collect::<Vec<_>>().join(", ")
+}
+
+/// The circuit's settings besides its parts, as `item → text`.
+fn settings(d: &Design) -> BTreeMap<String, String> {
+    let tol = |v: &Toleranced, unit: &str| {
+        let t =
+            v.tolerance.map_or(String::new(), |t| format!(" ±{} %", plain(t.fraction * 100.0, 3)));
+        format!("{}{t}", si(v.nominal, unit, 4))
+    };
+    let mut out = BTreeMap::new();
+    out.insert("temperature".to_string(), format!("{} °C", plain(d.temperature_k - 273.15, 4)));
+    for s in &d.supplies {
+        out.insert(format!("supply {}", s.node), tol(&s.voltage, "V"));
+    }
+    let sig = &d.signal;
+    out.insert(
+        "signal".to_string(),
+        format!("{}–{} through {}", sig.positive, sig.negative, tol(&sig.resistance, "Ω")),
+    );
+    out.insert("output".to_string(), format!("{}–{}", d.output.positive, d.output.negative));
+    out.insert("Monte Carlo runs".to_string(), d.analysis.monte_carlo_runs.to_string());
+    out.insert("Monte Carlo seed".to_string(), d.analysis.seed.to_string());
+    out
 }
 
 /// A model's parameters as `name → text`, nested keys joined by dots; a toleranced value
@@ -281,7 +353,7 @@ fn model_parameters(v: &Value) -> BTreeMap<String, String> {
     fn walk(v: &Value, path: &str, out: &mut BTreeMap<String, String>) {
         match v {
             Value::Object(m) if m.contains_key("nominal") => {
-                let n = m["nominal"].as_f64().map_or("—".into(), |x| plain(x, 4));
+                let n = m["nominal"].as_f64().map_or("—".into(), |x| number(x, 4));
                 let t = m
                     .get("tolerance")
                     .and_then(|t| t["fraction"].as_f64())
@@ -295,7 +367,7 @@ fn model_parameters(v: &Value) -> BTreeMap<String, String> {
                 }
             }
             Value::Number(n) => {
-                out.insert(path.to_string(), n.as_f64().map_or("—".into(), |x| plain(x, 4)));
+                out.insert(path.to_string(), n.as_f64().map_or("—".into(), |x| number(x, 4)));
             }
             Value::Null => {}
             other => {
@@ -311,7 +383,7 @@ fn model_parameters(v: &Value) -> BTreeMap<String, String> {
 fn part_changes(old: &Design, new: &Design) -> Vec<PartChange> {
     let mut out = Vec::new();
     for p in &new.parts {
-        let after = part_summary(&p.kind, new);
+        let after = part_summary(p, new);
         match old.parts.iter().find(|q| q.name == p.name) {
             None => out.push(PartChange {
                 change: "added",
@@ -320,7 +392,7 @@ fn part_changes(old: &Design, new: &Design) -> Vec<PartChange> {
                 new: Some(after),
             }),
             Some(q) => {
-                let before = part_summary(&q.kind, old);
+                let before = part_summary(q, old);
                 if before != after {
                     out.push(PartChange {
                         change: "changed",
@@ -336,7 +408,7 @@ fn part_changes(old: &Design, new: &Design) -> Vec<PartChange> {
         out.push(PartChange {
             change: "removed",
             item: q.name.clone(),
-            old: Some(part_summary(&q.kind, old)),
+            old: Some(part_summary(q, old)),
             new: None,
         });
     }
@@ -370,71 +442,151 @@ fn part_changes(old: &Design, new: &Design) -> Vec<PartChange> {
         }
     }
     for o in old.models.iter().filter(|o| !new.models.iter().any(|m| m.name == o.name)) {
+        let before = model_parameters(&serde_json::to_value(&o.device).unwrap_or_default());
         out.push(PartChange {
             change: "removed",
             item: format!("model {}", o.name),
-            old: Some(String::new()),
+            old: before.get("family").cloned(),
             new: None,
+        });
+    }
+    let (before, after) = (settings(old), settings(new));
+    let keys: std::collections::BTreeSet<&String> = before.keys().chain(after.keys()).collect();
+    for k in keys {
+        let (a, b) = (before.get(k), after.get(k));
+        if a != b {
+            out.push(PartChange {
+                change: match (a, b) {
+                    (None, _) => "added",
+                    (_, None) => "removed",
+                    _ => "changed",
+                },
+                item: k.clone(),
+                old: a.cloned(),
+                new: b.cloned(),
+            });
+        }
+    }
+    out
+}
+
+/// One reviewed figure of one revision.
+#[derive(Clone, Debug)]
+struct Figure {
+    /// Identity across revisions.
+    key: String,
+    /// Label, as written.
+    label: String,
+    /// Unit of `value`.
+    unit: &'static str,
+    /// The number compared.
+    value: f64,
+    /// Text to show instead of the value alone (a pole in full).
+    shown: Option<String>,
+}
+
+impl Figure {
+    fn text(&self) -> String {
+        self.shown.clone().unwrap_or_else(|| show(Some(self.value), self.unit))
+    }
+}
+
+/// A pole (s/2π) by its magnitude |p|, a complex pair with its Q (`15.97 MHz, Q 0.65`);
+/// a right-half-plane pole says so.
+fn pole_text(re: f64, im: f64) -> String {
+    let mut text = si(re.hypot(im), "Hz", 4);
+    if im != 0.0 {
+        text.push_str(&format!(", Q {}", plain(re.hypot(im) / (2.0 * re.abs()), 3)));
+    }
+    if re > 0.0 {
+        text.push_str(", right half-plane");
+    }
+    text
+}
+
+/// The figures a reviewer follows in a results document, keyed by what they are (a part,
+/// a node, a requirement), so revisions that add or drop parts still line up.
+fn figures(v: &Value) -> Vec<Figure> {
+    let mut out = Vec::new();
+    let mut push = |key: String, label: String, unit: &'static str, value: Option<f64>| {
+        if let Some(value) = value.filter(|x| x.is_finite()) {
+            out.push(Figure { key, label, unit, value, shown: None });
+        }
+    };
+    let at = |p: &str| v.pointer(p).and_then(Value::as_f64);
+    push("gain".into(), "mid-band gain |A|".into(), "", at("/midband/gain").map(f64::abs));
+    push("gain_db".into(), "mid-band gain".into(), "dB", at("/midband/gain_db"));
+    for (key, label, unit) in [
+        ("/midband/input_resistance_ohm", "R_in", "Ω"),
+        ("/midband/output_resistance_ohm", "R_out", "Ω"),
+        ("/high/f3db_hz", "f_H exact", "Hz"),
+        ("/high/octc/f_estimate_hz", "f_H time-constant estimate", "Hz"),
+        ("/high/second_order_f_estimate_hz", "f_H second-order estimate", "Hz"),
+        ("/low/f3db_hz", "f_L exact", "Hz"),
+        ("/low/sctc/f_estimate_hz", "f_L time-constant estimate", "Hz"),
+    ] {
+        push(key.into(), label.into(), unit, at(key));
+    }
+    if let Some(nodes) = v.pointer("/operating_point/nodes").and_then(Value::as_object) {
+        for (k, x) in nodes.iter().filter(|(k, _)| !k.contains('.') && *k != "source") {
+            push(format!("node {k}"), format!("V({k})"), "V", x.as_f64());
+        }
+    }
+    for d in v.pointer("/operating_point/devices").and_then(Value::as_array).into_iter().flatten() {
+        let part = d["part"].as_str().unwrap_or("?");
+        let current = d.get("ic_a").or(d.get("id_a")).and_then(Value::as_f64);
+        push(format!("device {part} current"), format!("{part} bias current"), "A", current);
+        push(
+            format!("device {part} power"),
+            format!("{part} dissipation"),
+            "W",
+            d["power_w"].as_f64(),
+        );
+    }
+    for (side, list) in [("high", "octc"), ("low", "sctc")] {
+        let caps = v.pointer(&format!("/{side}/{list}/caps")).and_then(Value::as_array);
+        for c in caps.into_iter().flatten() {
+            let part = c["part"].as_str().unwrap_or("?");
+            push(format!("tau {side} {part}"), format!("τ {part}"), "s", c["tau_s"].as_f64());
+        }
+    }
+    for r in v.pointer("/requirements").and_then(Value::as_array).into_iter().flatten() {
+        let name = r["name"].as_str().unwrap_or("?");
+        let label = format!("yield, {}", name.replace('_', " "));
+        push(format!("yield {name}"), label, "%", r["yield_fraction"].as_f64());
+    }
+    let all = at("/tolerance/monte_carlo/yield_all");
+    push("yield all".into(), "yield, all requirements".into(), "%", all);
+    // Poles by distance from the origin, a conjugate pair once: the k-th pole of one
+    // revision is compared with the k-th of the other, by |p|.
+    let mut poles: Vec<(f64, f64)> = v
+        .pointer("/poles")
+        .and_then(Value::as_array)
+        .into_iter()
+        .flatten()
+        .filter_map(|p| Some((p["re_hz"].as_f64()?, p["im_hz"].as_f64()?)))
+        .filter(|(_, im)| *im >= 0.0)
+        .collect();
+    poles.sort_by(|a, b| a.0.hypot(a.1).total_cmp(&b.0.hypot(b.1)));
+    for (i, (re, im)) in poles.into_iter().enumerate() {
+        out.push(Figure {
+            key: format!("pole {}", i + 1),
+            label: format!("pole {} |p|", i + 1),
+            unit: "Hz",
+            value: re.hypot(im),
+            shown: Some(pole_text(re, im)),
         });
     }
     out
 }
 
-/// The figures a reviewer follows in a results document: label, JSON pointer, unit.
-fn figures(v: &Value) -> Vec<(String, String, &'static str)> {
-    let mut out = vec![
-        ("mid-band gain".to_string(), "/midband/gain".to_string(), ""),
-        ("R_in".into(), "/midband/input_resistance_ohm".into(), "Ω"),
-        ("R_out".into(), "/midband/output_resistance_ohm".into(), "Ω"),
-        ("f_H exact".into(), "/high/f3db_hz".into(), "Hz"),
-        ("f_H time-constant estimate".into(), "/high/octc/f_estimate_hz".into(), "Hz"),
-        ("f_H second-order estimate".into(), "/high/second_order_f_estimate_hz".into(), "Hz"),
-        ("f_L exact".into(), "/low/f3db_hz".into(), "Hz"),
-        ("f_L time-constant estimate".into(), "/low/sctc/f_estimate_hz".into(), "Hz"),
-    ];
-    if let Some(nodes) = v.pointer("/operating_point/nodes").and_then(Value::as_object) {
-        for k in nodes.keys().filter(|k| !k.contains('.') && *k != "source") {
-            out.push((format!("V({k})"), format!("/operating_point/nodes/{k}"), "V"));
-        }
-    }
-    if let Some(devs) = v.pointer("/operating_point/devices").and_then(Value::as_array) {
-        for (i, d) in devs.iter().enumerate() {
-            let part = d["part"].as_str().unwrap_or("?");
-            let key = if d.get("ic_a").is_some() { "ic_a" } else { "id_a" };
-            let at = format!("/operating_point/devices/{i}");
-            out.push((format!("{part} bias current"), format!("{at}/{key}"), "A"));
-            out.push((format!("{part} dissipation"), format!("{at}/power_w"), "W"));
-        }
-    }
-    for (side, list) in [("high", "octc"), ("low", "sctc")] {
-        if let Some(caps) = v.pointer(&format!("/{side}/{list}/caps")).and_then(Value::as_array) {
-            for (i, c) in caps.iter().enumerate() {
-                let part = c["part"].as_str().unwrap_or("?");
-                out.push((format!("τ {part}"), format!("/{side}/{list}/caps/{i}/tau_s"), "s"));
-            }
-        }
-    }
-    if let Some(p) = v.pointer("/poles").and_then(Value::as_array) {
-        for i in 0..p.len() {
-            out.push((format!("pole {}", i + 1), format!("/poles/{i}/re_hz"), "Hz"));
-        }
-    }
-    if let Some(reqs) = v.pointer("/requirements").and_then(Value::as_array) {
-        for (i, r) in reqs.iter().enumerate() {
-            let name = r["name"].as_str().unwrap_or("?").replace('_', " ");
-            out.push((format!("yield, {name}"), format!("/requirements/{i}/yield_fraction"), "%"));
-        }
-    }
-    out.push(("yield, all requirements".into(), "/tolerance/monte_carlo/yield_all".into(), "%"));
-    out
-}
-
-/// A value in its unit: engineering notation, V/V plain, a fraction as per cent.
-pub fn show(v: Option<f64>, unit: &str) -> String {
+/// A value in its unit: engineering notation, V/V plain, dB, a fraction as per cent.
+fn show(v: Option<f64>, unit: &str) -> String {
     match (v, unit) {
         (None, _) => "—".into(),
         (Some(v), "%") => format!("{} %", plain(v * 100.0, 4)),
-        (Some(v), "") => plain(v, 4),
+        (Some(v), "") => format!("{} V/V", plain(v, 4)),
+        (Some(v), "dB") => format!("{} dB", plain(v, 4)),
         (Some(v), u) => si(v, u, 4),
     }
 }
@@ -443,7 +595,7 @@ fn signed(text: String, positive: bool) -> String {
     if positive { format!("+{text}") } else { text }
 }
 
-/// The rows of the `moved` table: figure, old, new, change (absolute), relative change.
+/// The rows of the `moved` table: figure, before, after, change (absolute), relative change.
 pub fn moved_rows(c: &Change) -> Vec<Vec<String>> {
     c.moved
         .iter()
@@ -451,12 +603,11 @@ pub fn moved_rows(c: &Change) -> Vec<Vec<String>> {
             let absolute = m.absolute.map_or("—".into(), |d| match m.unit {
                 // A yield moves in percentage points.
                 "%" => signed(format!("{} pt", plain(d * 100.0, 3)), d > 0.0),
+                "dB" => signed(format!("{} dB", plain(d, 3)), d > 0.0),
                 unit => signed(show(Some(d), unit), d > 0.0),
             });
-            let relative = m
-                .relative
-                .map_or("—".into(), |r| format!("{:+.3} %", r * 100.0).replace('-', "−"));
-            vec![m.figure.clone(), show(m.old, m.unit), show(m.new, m.unit), absolute, relative]
+            let relative = m.relative.map_or("—".into(), |r| signed_percent(r, 3));
+            vec![m.label.clone(), m.old_text.clone(), m.new_text.clone(), absolute, relative]
         })
         .collect()
 }
@@ -469,13 +620,19 @@ fn pass_text(p: Option<bool>) -> &'static str {
     }
 }
 
-/// The rows of the `status` table: requirement, before, after.
+/// The rows of the `status` table: requirement, limit, before, after (value and verdict).
 pub fn status_rows(c: &Change) -> Vec<Vec<String>> {
     c.status_changes
         .iter()
         .map(|s| {
+            let limit = if s.old_limit == s.new_limit {
+                s.new_limit.clone()
+            } else {
+                format!("{} → {}", s.old_limit, s.new_limit)
+            };
             vec![
                 s.requirement.replace('_', " "),
+                limit,
                 format!("{} {}", s.old_value, pass_text(s.old_pass)),
                 format!("{} {}", s.new_value, pass_text(s.new_pass)),
             ]
@@ -506,7 +663,7 @@ pub fn tables(c: &Change) -> BTreeMap<&'static str, String> {
     let mut t = BTreeMap::new();
     t.insert(
         "status",
-        markdown_table(&["requirement", "before", "after"], "lll", cells(status_rows(c))),
+        markdown_table(&["requirement", "limit", "before", "after"], "llrr", cells(status_rows(c))),
     );
     t.insert(
         "parts",

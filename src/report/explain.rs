@@ -32,8 +32,7 @@ fn pct(x: f64) -> String {
 }
 
 fn signed_pct(x: f64) -> String {
-    let s = plain(x * 100.0, 2);
-    if x > 0.0 { format!("+{s} %") } else { format!("{s} %") }
+    crate::notation::signed_percent(x, 2)
 }
 
 /// The explanation for `a`, with the strongest levers when a tolerance study ran.

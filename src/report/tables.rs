@@ -10,7 +10,7 @@ use crate::analysis::requirements::RequirementCheck;
 use crate::analysis::tolerance::Study;
 use crate::analysis::{Analysis, RootHz};
 use crate::circuit::operating_point::DeviceState;
-use crate::design::{Design, PartKind, Tolerance, Toleranced};
+use crate::design::{Design, Part, PartKind, Tolerance, Toleranced};
 use crate::notation::{plain, scientific, si};
 
 /// The names `table()` accepts, with what each holds.
@@ -69,10 +69,7 @@ fn value(v: &Toleranced, unit: &str) -> String {
 }
 
 fn pct(e: Option<f64>) -> String {
-    e.map_or("—".into(), |e| {
-        let s = plain(e * 100.0, 2);
-        if e > 0.0 { format!("+{s} %") } else { format!("{s} %") }
-    })
+    e.map_or("—".into(), |e| crate::notation::signed_percent(e, 2))
 }
 
 fn opt(v: Option<f64>, unit: &str) -> String {
@@ -88,6 +85,53 @@ fn root(r: &RootHz) -> String {
     }
 }
 
+/// A part's cells as plain text (unescaped): kind, value, tolerance, connections, note —
+/// shared by the parts table and the change report.
+pub fn part_cells(p: &Part, design: &Design) -> [String; 5] {
+    let (kind, val, tol, conn) = match &p.kind {
+        PartKind::Resistor { between, value: v } => {
+            ("resistor".to_string(), value(v, "Ω"), tolerance(&v.tolerance), between.join("–"))
+        }
+        PartKind::Capacitor { between, value: v, role } => (
+            match role {
+                Some(r) => format!("capacitor ({})", format!("{r:?}").to_lowercase()),
+                None => "capacitor".into(),
+            },
+            value(v, "F"),
+            tolerance(&v.tolerance),
+            between.join("–"),
+        ),
+        PartKind::Inductor { between, value: v } => {
+            ("inductor".into(), value(v, "H"), tolerance(&v.tolerance), between.join("–"))
+        }
+        PartKind::Transconductance { between, control, value: v } => (
+            "transconductance".into(),
+            value(v, "S"),
+            tolerance(&v.tolerance),
+            format!("{} by v({})", between.join("→"), control.join(", ")),
+        ),
+        PartKind::VoltageAmplifier { between, control, value: v } => (
+            "voltage amplifier".into(),
+            format!("{} V/V", plain(v.nominal, 4)),
+            tolerance(&v.tolerance),
+            format!("{} = A·v({})", between.join("–"), control.join(", ")),
+        ),
+        PartKind::Bjt { c, b, e, model } => (
+            "bjt".into(),
+            design.models[*model].name.clone(),
+            "model".into(),
+            format!("c {c}, b {b}, e {e}"),
+        ),
+        PartKind::Mosfet { d, g, s, model } => (
+            "mosfet".into(),
+            design.models[*model].name.clone(),
+            "model".into(),
+            format!("d {d}, g {g}, s {s}"),
+        ),
+    };
+    [kind, val, tol, conn, p.note.clone().unwrap_or_default()]
+}
+
 /// Every named table.
 pub fn all(
     design: &Design,
@@ -100,58 +144,9 @@ pub fn all(
         .parts
         .iter()
         .map(|p| {
-            let (kind, val, tol, conn) = match &p.kind {
-                PartKind::Resistor { between, value: v } => (
-                    "resistor".to_string(),
-                    value(v, "Ω"),
-                    tolerance(&v.tolerance),
-                    between.join("–"),
-                ),
-                PartKind::Capacitor { between, value: v, role } => (
-                    match role {
-                        Some(r) => format!("capacitor ({})", format!("{r:?}").to_lowercase()),
-                        None => "capacitor".into(),
-                    },
-                    value(v, "F"),
-                    tolerance(&v.tolerance),
-                    between.join("–"),
-                ),
-                PartKind::Inductor { between, value: v } => {
-                    ("inductor".into(), value(v, "H"), tolerance(&v.tolerance), between.join("–"))
-                }
-                PartKind::Transconductance { between, control, value: v } => (
-                    "transconductance".into(),
-                    value(v, "S"),
-                    tolerance(&v.tolerance),
-                    format!("{} by v({})", between.join("→"), control.join(", ")),
-                ),
-                PartKind::VoltageAmplifier { between, control, value: v } => (
-                    "voltage amplifier".into(),
-                    format!("{} V/V", plain(v.nominal, 4)),
-                    tolerance(&v.tolerance),
-                    format!("{} = A·v({})", between.join("–"), control.join(", ")),
-                ),
-                PartKind::Bjt { c, b, e, model } => (
-                    "bjt".into(),
-                    design.models[*model].name.clone(),
-                    "model".into(),
-                    format!("c {c}, b {b}, e {e}"),
-                ),
-                PartKind::Mosfet { d, g, s, model } => (
-                    "mosfet".into(),
-                    design.models[*model].name.clone(),
-                    "model".into(),
-                    format!("d {d}, g {g}, s {s}"),
-                ),
-            };
-            vec![
-                cell(&p.name),
-                kind,
-                cell(&val),
-                tol,
-                cell(&conn),
-                cell(p.note.as_deref().unwrap_or("")),
-            ]
+            let mut row = vec![cell(&p.name)];
+            row.extend(part_cells(p, design).iter().map(|c| cell(c)));
+            row
         })
         .collect();
     t.insert(

@@ -54,11 +54,14 @@ fn one_resistor_changed_shows_that_part_and_what_moved() {
     );
     // A larger collector resistor: more gain, a lower upper cut-off (its load sees more R),
     // a higher output resistance (common practice for a common-emitter stage). The gain is
-    // negative (inverting), so its absolute change is negative while its magnitude grows.
-    let gain = row(&out, "mid-band gain");
-    assert!(gain.trim_end().ends_with("+9.001 %") && gain.contains(" −0.9"), "{gain}");
+    // compared by magnitude, so its change and relative change agree in sign.
+    let gain = row(&out, "mid-band gain |A|");
+    assert!(gain.ends_with("+9 %") && gain.contains(" +0.9601 V/V"), "{gain}");
     let f_h = row(&out, "f_H exact");
-    assert!(f_h.contains(" −105.8 kHz") && f_h.ends_with("−8.299 %"), "{f_h}");
+    assert!(f_h.contains(" −105.8 kHz") && f_h.ends_with("−8.3 %"), "{f_h}");
+    // The dominant high-frequency pole moves down with f_H (|p| by magnitude).
+    let pole = row(&out, "pole 4 |p|");
+    assert!(pole.contains("1.276 MHz") && pole.ends_with("−8.31 %"), "{pole}");
     assert!(row(&out, "R_out").contains("+19."), "{}", row(&out, "R_out"));
     assert!(!out.contains("requirements that changed status"), "{out}");
 
@@ -66,11 +69,11 @@ fn one_resistor_changed_shows_that_part_and_what_moved() {
     let md = read(&dir.join("chg"), "change.md");
     assert!(
         md.contains(
-            "| changed | RC | resistor 1 kΩ ±1 % vcc–coll | resistor 1.2 kΩ ±1 % vcc–coll |"
+            "| changed | RC | resistor, 1 kΩ, ±1 % uniform, vcc–coll | resistor, 1.2 kΩ, ±1 % uniform, vcc–coll |"
         ),
         "{md}"
     );
-    assert!(md.contains("| f\\_H exact | 1.275 MHz | 1.17 MHz | −105.8 kHz | −8.299 % |"), "{md}");
+    assert!(md.contains("| f\\_H exact | 1.275 MHz | 1.17 MHz | −105.8 kHz | −8.3 % |"), "{md}");
     assert!(md.contains("No requirement changed between pass and fail"), "{md}");
     let html = read(&dir.join("chg"), "change.html");
     assert!(
@@ -83,7 +86,7 @@ fn one_resistor_changed_shows_that_part_and_what_moved() {
     let same = run_in(&dir, &["diff", "rev-c.yaml", "rev-c.yaml", "--runs", "50", "--no-write"]);
     let out = String::from_utf8_lossy(&same.stdout);
     assert!(
-        out.contains("no part or model changed") && out.contains("what moved\n  nothing"),
+        out.contains("no part, model or setting changed") && out.contains("what moved\n  nothing"),
         "{out}"
     );
 }
@@ -96,7 +99,7 @@ fn a_requirement_that_starts_failing_comes_first_and_exits_1() {
     let out = String::from_utf8_lossy(&o.stdout);
     assert_eq!(o.status.code(), Some(1), "{out}{}", String::from_utf8_lossy(&o.stderr));
     let status = out.find("requirements that changed status").expect("status section");
-    assert!(status < out.find("parts and models").unwrap(), "{out}");
+    assert!(status < out.find("parts, models and settings").unwrap(), "{out}");
     assert!(row(&out, "midband gain").ends_with("FAIL"), "{out}");
     assert!(
         row(&out, "output resistance").contains("pass")
@@ -119,7 +122,7 @@ fn an_earlier_results_json_can_be_the_old_side() {
     let out = String::from_utf8_lossy(&o.stdout);
     assert_eq!(o.status.code(), Some(0), "{out}{}", String::from_utf8_lossy(&o.stderr));
     assert!(out.contains("not compared: one side is a results.json"), "{out}");
-    assert!(row(&out, "f_H exact").ends_with("−8.299 %"), "{out}");
+    assert!(row(&out, "f_H exact").ends_with("−8.3 %"), "{out}");
     // JSON that is not a tauweave results.json is refused, not compared.
     std::fs::write(dir.join("other.json"), "{\"a\": 1}").unwrap();
     let bad = run_in(&dir, &["diff", "other.json", "rev-d.yaml", "--no-write"]);
@@ -156,4 +159,36 @@ fn the_change_template_is_replaceable() {
     assert_eq!(bad.status.code(), Some(2), "{err}");
     assert!(err.contains("bad.md:3") && err.contains("tables: status, parts, moved"), "{err}");
     assert!(!dir.join("b").exists());
+}
+
+#[test]
+fn settings_limits_and_pole_pairs_are_compared() {
+    let dir = scratch("diff-settings");
+    let old = std::fs::read_to_string(root().join("designs/follower-cap-load.yaml")).unwrap();
+    // Three times the load capacitance, a tighter f_H requirement, a warmer stage.
+    let new = old
+        .replace("load_capacitance: c_load", "load_capacitance: 1.5 nF")
+        .replace("c_load: c_cable + c_daq_input", "c_load_unused: c_cable + c_daq_input");
+    let new = new.replacen("temperature:", "temperature: 45 °C # was:", 1);
+    assert!(
+        new.contains("1.5 nF") && new.contains("45 °C"),
+        "the example changed; update this test"
+    );
+    std::fs::write(dir.join("a.yaml"), &old).unwrap();
+    std::fs::write(dir.join("b.yaml"), &new).unwrap();
+    let o = run_in(&dir, &["diff", "a.yaml", "b.yaml", "--runs", "0", "--no-write"]);
+    let out = String::from_utf8_lossy(&o.stdout);
+    // f_H falls below the design's 5 MHz floor: exit 1, status first, limit shown.
+    assert_eq!(o.status.code(), Some(1), "{out}{}", String::from_utf8_lossy(&o.stderr));
+    let status = row(&out, "upper cutoff");
+    assert!(status.contains("≥ 5 MHz") && status.ends_with("FAIL"), "{status}");
+    assert!(row(&out, "~ load.c").contains("→  capacitor (load), 1.5 nF"), "{out}");
+    assert!(row(&out, "~ temperature").contains("→  45 °C"), "{out}");
+    // The output pole pair (a follower into a capacitance, common practice: it peaks) turns
+    // into two real poles: the pair's Q is shown before, and a pole appears after.
+    assert!(row(&out, "pole 2 |p|").contains(", Q "), "{out}");
+    assert!(!row(&out, "pole 2 |p|").ends_with(", Q"), "{out}");
+    let third = row(&out, "pole 3 |p|");
+    let cells: Vec<&str> = third.split("  ").map(str::trim).filter(|c| !c.is_empty()).collect();
+    assert!(cells[1] == "—" && cells[2].ends_with("Hz") && !cells[2].contains('Q'), "{third}");
 }
