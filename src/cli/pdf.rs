@@ -2,11 +2,12 @@
 //! deterministic settings.
 //!
 //! In: the report.typ and plots/*.svg of a render (in memory), the design's date. Out: the
-//! PDF bytes, or why there are none. typst runs in a private staging folder holding only
-//! those files, which is also its `--root`; system fonts are ignored (only the fonts typst
-//! embeds are used), and the creation timestamp is the design's date at 00:00 UTC, so the
-//! same inputs give the same PDF bytes. The program is `--typst PATH`, else `TAUWEAVE_TYPST`,
-//! else `typst` on PATH.
+//! PDF bytes and typst's warnings, or why there are none. typst runs in a private staging
+//! folder holding only those files, which is also its `--root`; system fonts are ignored
+//! (only the fonts typst embeds are used), and the creation timestamp is the design's date
+//! at 00:00 UTC, so the same inputs give the same PDF bytes. The program is `--typst PATH`,
+//! else `TAUWEAVE_TYPST`, else `typst` on PATH; a path (not a bare name) is made absolute
+//! against the current folder.
 
 use std::path::{Path, PathBuf};
 use std::process::Command;
@@ -38,19 +39,42 @@ pub enum PdfProblem {
 }
 
 impl PdfProblem {
-    /// The message for the terminal.
-    pub fn message(&self) -> String {
+    /// Why there is no PDF, in a few words (typst's own text below them when it failed).
+    pub fn reason(&self) -> String {
         match self {
-            PdfProblem::Missing(why) => format!(
-                "warning: report.pdf was not made: {why}\n  help: install typst with `{INSTALL}` \
-                 (about 20 minutes, once), or name the program with --typst PATH or {ENV}\n"
-            ),
-            PdfProblem::Failed(text) => format!(
-                "error: report.pdf was not made: typst could not compile report.typ\n{text}\n  \
-                 help: report.typ is written beside the other outputs; the line above names the \
-                 place\n"
-            ),
+            PdfProblem::Missing(why) => why.clone(),
+            PdfProblem::Failed(text) => format!("typst could not compile report.typ\n{text}"),
         }
+    }
+
+    /// The message for the terminal: an `error:` when `fatal` (the command fails for it),
+    /// else a `warning:` (the command goes on).
+    pub fn message(&self, fatal: bool) -> String {
+        let level = if fatal { "error" } else { "warning" };
+        let help = match self {
+            PdfProblem::Missing(_) => format!(
+                "install typst with `{INSTALL}` (about 20 minutes, once), or name the program \
+                 with --typst PATH or {ENV}"
+            ),
+            PdfProblem::Failed(_) => {
+                "report.typ is written beside the other outputs; the line above names the place"
+                    .to_string()
+            }
+        };
+        format!("{level}: report.pdf was not made: {}\n  help: {help}\n", self.reason())
+    }
+}
+
+/// The command that installs the typst recorded in a manifest (`typst 0.15.1 (…)`), so
+/// that a rebuilt PDF can match byte for byte; [`INSTALL`] when no version is recorded.
+pub fn install_for(recorded: Option<&str>) -> String {
+    let version = recorded
+        .and_then(|r| r.strip_prefix("typst "))
+        .and_then(|r| r.split_whitespace().next())
+        .filter(|v| v.starts_with(|c: char| c.is_ascii_digit()));
+    match version {
+        Some(v) => format!("cargo install typst-cli --version {v} --locked"),
+        None => INSTALL.to_string(),
     }
 }
 
@@ -65,10 +89,17 @@ pub fn find(flag: Option<&Path>) -> Result<Typst, PdfProblem> {
             })?,
         },
     };
-    let out = Command::new(&program)
-        .arg("--version")
-        .output()
-        .map_err(|e| PdfProblem::Missing(format!("`{}` does not run: {e}", program.display())))?;
+    let does_not_run = |e: std::io::Error| {
+        PdfProblem::Missing(format!("`{}` does not run: {e}", program.display()))
+    };
+    // `compile` runs typst in its staging folder, so a path is made absolute here; a bare
+    // name stays a PATH lookup.
+    let program = if program.parent().is_some_and(|p| !p.as_os_str().is_empty()) {
+        program.canonicalize().map_err(does_not_run)?
+    } else {
+        program.clone()
+    };
+    let out = Command::new(&program).arg("--version").output().map_err(does_not_run)?;
     if !out.status.success() {
         return Err(PdfProblem::Missing(format!(
             "`{} --version` failed: {}",
@@ -101,8 +132,17 @@ pub fn unix_midnight(date: &str) -> Option<i64> {
     Some((era * 146_097 + doe - 719_468) * 86_400)
 }
 
+/// A PDF typst made.
+#[derive(Clone, Debug)]
+pub struct Compiled {
+    /// The PDF bytes.
+    pub bytes: Vec<u8>,
+    /// typst's warnings, its own text indented by two spaces; empty when it had none.
+    pub warnings: String,
+}
+
 /// Compiles `files` (report.typ and the plots it names) into PDF bytes.
-pub fn compile(typst: &Typst, files: &[OutputFile], date: &str) -> Result<Vec<u8>, PdfProblem> {
+pub fn compile(typst: &Typst, files: &[OutputFile], date: &str) -> Result<Compiled, PdfProblem> {
     let failed = |why: String| PdfProblem::Failed(format!("  {why}"));
     let stage = tempfile::tempdir().map_err(|e| failed(format!("no staging folder: {e}")))?;
     for f in files {
@@ -117,7 +157,9 @@ pub fn compile(typst: &Typst, files: &[OutputFile], date: &str) -> Result<Vec<u8
     let out = Command::new(&typst.program)
         .current_dir(stage.path())
         .args(["compile", "--root", ".", "--ignore-system-fonts", "--diagnostic-format", "human"])
-        .args(["--creation-timestamp", &timestamp.to_string()])
+        // One argument, so that a date before 1970 is not read as a flag (typst 0.15.1 takes
+        // negative timestamps and writes the right date).
+        .arg(format!("--creation-timestamp={timestamp}"))
         .args(["report.typ", "report.pdf"])
         // Nothing from the caller's environment may change the bytes.
         .env_remove("TYPST_ROOT")
@@ -125,19 +167,26 @@ pub fn compile(typst: &Typst, files: &[OutputFile], date: &str) -> Result<Vec<u8
         .env_remove("TYPST_IGNORE_EMBEDDED_FONTS")
         .env_remove("TYPST_PACKAGE_PATH")
         .env_remove("TYPST_PACKAGE_CACHE_PATH")
+        .env_remove("TYPST_FEATURES")
         .env_remove("SOURCE_DATE_EPOCH")
         .env("NO_COLOR", "1")
         .output()
         .map_err(|e| {
             PdfProblem::Missing(format!("`{}` does not run: {e}", typst.program.display()))
         })?;
+    let stderr = indent(&String::from_utf8_lossy(&out.stderr));
     if !out.status.success() {
-        let text = String::from_utf8_lossy(&out.stderr);
-        let indented: Vec<String> = text.lines().map(|l| format!("  {l}")).collect();
-        return Err(PdfProblem::Failed(indented.join("\n")));
+        return Err(PdfProblem::Failed(stderr));
     }
-    std::fs::read(stage.path().join("report.pdf"))
-        .map_err(|e| failed(format!("typst wrote no report.pdf: {e}")))
+    let bytes = std::fs::read(stage.path().join("report.pdf"))
+        .map_err(|e| failed(format!("typst wrote no report.pdf: {e}")))?;
+    Ok(Compiled { bytes, warnings: stderr })
+}
+
+/// `text` without trailing blank lines, each line indented by two spaces.
+fn indent(text: &str) -> String {
+    let lines: Vec<String> = text.trim_end().lines().map(|l| format!("  {l}")).collect();
+    lines.join("\n")
 }
 
 #[cfg(test)]
@@ -153,5 +202,31 @@ mod tests {
         assert_eq!(unix_midnight("1969-12-31"), Some(-86_400));
         assert_eq!(unix_midnight("2026-13-01"), None);
         assert_eq!(unix_midnight("soon"), None);
+    }
+
+    #[test]
+    fn pdf_install_command_names_the_recorded_typst() {
+        assert_eq!(
+            install_for(Some("typst 0.15.1 (unknown commit)")),
+            "cargo install typst-cli --version 0.15.1 --locked"
+        );
+        assert_eq!(
+            install_for(Some("typst 0.13.0")),
+            "cargo install typst-cli --version 0.13.0 --locked"
+        );
+        assert_eq!(install_for(Some("something else")), INSTALL);
+        assert_eq!(install_for(Some("typst")), INSTALL);
+        assert_eq!(install_for(None), INSTALL);
+    }
+
+    #[test]
+    fn pdf_problems_say_error_or_warning() {
+        let missing = PdfProblem::Missing("the `typst` program is not on PATH".into());
+        assert!(missing.message(true).starts_with("error: report.pdf was not made: the"));
+        assert!(missing.message(false).starts_with("warning: report.pdf was not made: the"));
+        assert!(missing.message(true).contains(INSTALL));
+        let failed = PdfProblem::Failed("  error: unknown variable".into());
+        assert!(failed.message(true).starts_with("error: report.pdf was not made: typst could"));
+        assert!(failed.message(false).contains("\n  error: unknown variable\n  help: "));
     }
 }

@@ -163,13 +163,18 @@ pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
     eprintln!("{}", written.summary());
     match &written.pdf_problem {
         None => Ok(Outcome::Done),
-        // Asked for `all`: the PDF is one format among several, a missing typst a warning.
-        Some(p @ PdfProblem::Missing(_)) if args.format == Format::All => {
-            eprint!("{}", p.message());
+        Some(p) if !pdf_fatal(args.format, p) => {
+            eprint!("{}", p.message(false));
             Ok(Outcome::Done)
         }
-        Some(p) => Err(Failure::Input(p.message())),
+        Some(p) => Err(Failure::Input(p.message(true))),
     }
+}
+
+/// True when a PDF problem fails the render: always, except a missing typst when the PDF
+/// was one format among several (`all`).
+pub fn pdf_fatal(format: Format, problem: &PdfProblem) -> bool {
+    !(format == Format::All && matches!(problem, PdfProblem::Missing(_)))
 }
 
 /// A render written to disk.
@@ -247,6 +252,8 @@ pub struct Built {
     pub files: Vec<OutputFile>,
     /// Why report.pdf is not among them, when it was asked for.
     pub pdf_problem: Option<PdfProblem>,
+    /// What the typst that made report.pdf said of its version (as in the manifest).
+    pub typst_version: Option<String>,
 }
 
 /// Everything a render writes, in memory: analysis, tolerance study, the review files,
@@ -287,12 +294,15 @@ pub fn build(
                 .filter(|f| f.path == report::TYPST_FILE || f.path.starts_with("plots/"))
                 .cloned()
                 .collect();
-            pdf::compile(&typst, &sources, &design.meta.date).map(|bytes| (typst.version, bytes))
+            pdf::compile(&typst, &sources, &design.meta.date).map(|pdf| (typst.version, pdf))
         });
         match made {
-            Ok((version, bytes)) => {
+            Ok((version, pdf)) => {
+                if !pdf.warnings.is_empty() {
+                    eprintln!("typst warnings while making report.pdf:\n{}", pdf.warnings);
+                }
                 typst_version = Some(version);
-                files.push(OutputFile { path: report::PDF_FILE.into(), bytes });
+                files.push(OutputFile { path: report::PDF_FILE.into(), bytes: pdf.bytes });
                 files.sort_by(|a, b| a.path.cmp(&b.path));
             }
             Err(problem) => pdf_problem = Some(problem),
@@ -304,8 +314,8 @@ pub fn build(
         format: options.format.name().into(),
         runs,
         paper: options.paper.name().into(),
-        typst: typst_version,
+        typst: typst_version.clone(),
     };
     let files = manifest::seal(files, recipe, &file.text, (!built_in).then_some(&*template.text));
-    Ok(Built { id: design.meta.id.clone(), files, pdf_problem })
+    Ok(Built { id: design.meta.id.clone(), files, pdf_problem, typst_version })
 }

@@ -3,12 +3,15 @@
 //!
 //! Exit 0 when everything is identical, 1 when a file differs or an input was changed
 //! (the report says which, and for results.json which values and by how much), 2 when the
-//! folder has no usable manifest.
+//! folder has no usable manifest, or when all is identical but a report.pdf could not be
+//! rebuilt here (no typst): the verification is incomplete, and the message names the typst
+//! version to install.
 
 use std::path::PathBuf;
 
 use clap::Args;
 
+use crate::cli::pdf;
 use crate::cli::render::{BuildOptions, Format, PaperSize, build};
 use crate::cli::source::LoadedFile;
 use crate::cli::{Failure, Outcome};
@@ -80,30 +83,22 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
         text: design_text,
     };
     let built = build(&file, &template.0, template.1, &options)?;
+    // A report.pdf that cannot be rebuilt here (no typst, or it fails) is checked against
+    // its SHA-256 only, and the verification is incomplete.
+    let mut unverified = None;
     if m.outputs.contains_key(crate::report::PDF_FILE) {
-        if let Some(problem) = &built.pdf_problem {
-            return Err(unusable(format!(
-                "its report.pdf cannot be rebuilt here:\n{}",
-                problem.message()
-            )));
-        }
-        let now = built.files.iter().find(|f| f.path == manifest::FILE).and_then(|f| {
-            serde_json::from_slice::<Manifest>(&f.bytes).ok().and_then(|n| n.recipe.typst)
-        });
-        if now != recipe.typst {
-            eprintln!(
+        match built.pdf_problem {
+            Some(problem) => unverified = Some(problem),
+            None if built.typst_version != recipe.typst => eprintln!(
                 "note: report.pdf was made by {}, rebuilt by {}",
                 recipe.typst.as_deref().unwrap_or("an unknown typst"),
-                now.as_deref().unwrap_or("—")
-            );
+                built.typst_version.as_deref().unwrap_or("—")
+            ),
+            None => {}
         }
     }
     let rebuilt = built.files;
     for (path, hash) in &m.outputs {
-        let Some(new) = rebuilt.iter().find(|f| &f.path == path) else {
-            problems.push(format!("{path}: not produced by the rebuild"));
-            continue;
-        };
         let old = match std::fs::read(args.dir.join(path)) {
             Ok(b) => b,
             Err(e) => {
@@ -116,51 +111,76 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
                 "{path}: changed after the render (its SHA-256 no longer matches the manifest)"
             ));
         }
+        if unverified.is_some() && path == crate::report::PDF_FILE {
+            continue;
+        }
+        let Some(new) = rebuilt.iter().find(|f| &f.path == path) else {
+            problems.push(format!("{path}: not produced by the rebuild"));
+            continue;
+        };
         if old != new.bytes {
-            let mut detail = String::new();
-            if path.ends_with(".json") {
-                if let (Ok(a), Ok(b)) = (
-                    serde_json::from_slice::<serde_json::Value>(&old),
-                    serde_json::from_slice::<serde_json::Value>(&new.bytes),
-                ) {
-                    let mut diffs = Vec::new();
-                    manifest::json_differences(&a, &b, "", &mut diffs);
-                    for d in diffs.iter().take(20) {
-                        detail.push_str(&format!("\n    {d}"));
-                    }
-                    if diffs.len() > 20 {
-                        detail.push_str(&format!("\n    … and {} more", diffs.len() - 20));
-                    }
-                }
-            }
-            if detail.is_empty() {
-                let at = old
-                    .iter()
-                    .zip(&new.bytes)
-                    .position(|(a, b)| a != b)
-                    .unwrap_or(old.len().min(new.bytes.len()));
-                detail = format!(" (first difference at byte {at})");
-            }
-            problems.push(format!("{path}: differs from the rebuild{detail}"));
+            problems.push(format!(
+                "{path}: differs from the rebuild{}",
+                difference(&old, &new.bytes, path)
+            ));
         }
     }
-    if problems.is_empty() {
-        println!(
-            "identical: {} outputs rebuilt from {} byte for byte",
-            m.outputs.len(),
-            args.dir.display()
-        );
-        Ok(Outcome::Done)
-    } else {
-        println!(
-            "differs: {} problem{} in {}",
-            problems.len(),
-            if problems.len() == 1 { "" } else { "s" },
-            args.dir.display()
-        );
+    let dir = args.dir.display();
+    let compared = m.outputs.len() - usize::from(unverified.is_some());
+    if !problems.is_empty() {
+        let s = if problems.len() == 1 { "" } else { "s" };
+        println!("differs: {} problem{s} in {dir}", problems.len());
         for p in &problems {
             println!("  {p}");
         }
-        Ok(Outcome::Failing)
+    } else if unverified.is_some() {
+        println!(
+            "incomplete: report.pdf not verified, the other {compared} outputs identical in {dir}"
+        );
+    } else {
+        println!("identical: {compared} outputs rebuilt from {dir} byte for byte");
+        return Ok(Outcome::Done);
     }
+    let Some(problem) = unverified else { return Ok(Outcome::Failing) };
+    // Exit 1 when something differs, else 2: the verification is incomplete.
+    let fatal = problems.is_empty();
+    let message = format!(
+        "{}: report.pdf cannot be verified here: {}\n  help: install the typst that made it \
+         with `{}`, or name the program with --typst PATH or {}\n",
+        if fatal { "error" } else { "warning" },
+        problem.reason(),
+        pdf::install_for(recipe.typst.as_deref()),
+        pdf::ENV
+    );
+    if fatal {
+        return Err(Failure::Input(message));
+    }
+    eprint!("{message}");
+    Ok(Outcome::Failing)
+}
+
+/// Where two versions of an output differ: for JSON the values that changed, else the first
+/// byte that differs.
+fn difference(old: &[u8], new: &[u8], path: &str) -> String {
+    let mut detail = String::new();
+    if path.ends_with(".json") {
+        if let (Ok(a), Ok(b)) = (
+            serde_json::from_slice::<serde_json::Value>(old),
+            serde_json::from_slice::<serde_json::Value>(new),
+        ) {
+            let mut diffs = Vec::new();
+            manifest::json_differences(&a, &b, "", &mut diffs);
+            for d in diffs.iter().take(20) {
+                detail.push_str(&format!("\n    {d}"));
+            }
+            if diffs.len() > 20 {
+                detail.push_str(&format!("\n    … and {} more", diffs.len() - 20));
+            }
+        }
+    }
+    if detail.is_empty() {
+        let at = old.iter().zip(new).position(|(a, b)| a != b).unwrap_or(old.len().min(new.len()));
+        detail = format!(" (first difference at byte {at})");
+    }
+    detail
 }

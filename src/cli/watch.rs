@@ -7,6 +7,17 @@
 //! never triggers another render), and the one line printed per rebuild. Rendering and
 //! writing stay in `render.rs`. A render that fails on its input is reported and watching
 //! goes on; only a failing watcher or an internal error ends the loop, for `main` to report.
+//!
+//! The contents decide, not the events: the loop keeps the bytes of the design and template
+//! as last rendered, and on an event re-reads them and rebuilds only when they differ. So a
+//! `touch` rebuilds nothing, and neither does a render that copies its inputs over the watched
+//! design itself (`render out/x/inputs/design.yaml --out out/x`): an edit there converges after
+//! one rebuild instead of looping. After a render that wrote its files, the bytes kept are its
+//! own input copies, exactly what was rendered. After a failed render they are the bytes this
+//! loop read just before it; `render_and_write` reads the files again itself, so a save landing
+//! between the two reads is compared against the older bytes (at worst one needless rebuild, or
+//! a stale error message until the next save when an edit is undone within that instant).
+//! The "report.pdf was not made" note is printed once, and again only when its message changes.
 
 use std::collections::BTreeSet;
 use std::path::{Path, PathBuf};
@@ -18,9 +29,10 @@ use notify::{EventKind, RecursiveMode};
 use notify_debouncer_full::{DebounceEventResult, new_debouncer};
 use serde_json::Value;
 
-use crate::cli::render::{RenderArgs, Written, render_and_write};
+use crate::cli::render::{Format, RenderArgs, Written, pdf_fatal, render_and_write};
 use crate::cli::{Failure, Outcome};
 use crate::notation::{plain, si};
+use crate::report::manifest::{DESIGN_COPY, TEMPLATE_COPY};
 
 /// How long the inputs must stay quiet before a rebuild: one save is often several writes.
 const QUIET: Duration = Duration::from_millis(200);
@@ -51,10 +63,14 @@ pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
 
     let names: Vec<String> = inputs.iter().map(|p| format!("{}", p.display())).collect();
     let watching = format!("watching {} for changes (Ctrl-C to stop)", names.join(" and "));
+    // The inputs' bytes as last rendered, and the last render's note on report.pdf.
+    let mut rendered = read_inputs(&inputs);
+    let mut pdf_shown = None;
     match render_and_write(args) {
         Ok(written) => {
             eprintln!("{}", written.summary());
-            pdf_note(&written);
+            rendered = input_copies(&written, inputs.len());
+            pdf_note(&written, args.format, &mut pdf_shown);
         }
         Err(failure) => report_input_failure(failure)?,
     }
@@ -69,6 +85,11 @@ pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
         if !changed {
             continue;
         }
+        // A `touch`, or our own copy written over the design: the same bytes, no rebuild.
+        let now = read_inputs(&inputs);
+        if now == rendered {
+            continue;
+        }
         // The clock is read for this line only; nothing written depends on it.
         let started = Instant::now();
         match render_and_write(args) {
@@ -79,9 +100,11 @@ pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
                     started.elapsed().as_millis(),
                     headline(written.file("results.json").unwrap_or_default())
                 );
-                pdf_note(&written);
+                rendered = input_copies(&written, inputs.len());
+                pdf_note(&written, args.format, &mut pdf_shown);
             }
             Err(failure) => {
+                rendered = now;
                 report_input_failure(failure)?;
                 eprintln!("{watching}");
             }
@@ -90,11 +113,29 @@ pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
     Err(Failure::Internal("the file watcher stopped".into()))
 }
 
-/// Says why report.pdf was not made, when it was not; watching goes on.
-fn pdf_note(written: &Written) {
-    if let Some(problem) = &written.pdf_problem {
-        eprint!("{}", problem.message());
+/// The bytes of each input as they are now; `None` for a file that cannot be read.
+fn read_inputs(inputs: &[&Path]) -> Vec<Option<Vec<u8>>> {
+    inputs.iter().map(|p| std::fs::read(p).ok()).collect()
+}
+
+/// The bytes a render read from its inputs, the design and then the template (when it has
+/// one of its own): the copies it wrote into the output folder.
+fn input_copies(written: &Written, count: usize) -> Vec<Option<Vec<u8>>> {
+    [DESIGN_COPY, TEMPLATE_COPY]
+        .iter()
+        .take(count)
+        .map(|c| written.file(c).map(<[u8]>::to_vec))
+        .collect()
+}
+
+/// Says why report.pdf was not made, when it was not and the last render did not already say
+/// the same; `shown` holds the last render's message. Watching goes on.
+fn pdf_note(written: &Written, format: Format, shown: &mut Option<String>) {
+    let message = written.pdf_problem.as_ref().map(|p| p.message(pdf_fatal(format, p)));
+    if let Some(m) = message.as_ref().filter(|m| Some(*m) != shown.as_ref()) {
+        eprint!("{m}");
     }
+    *shown = message;
 }
 
 /// The name a watched file is known by: its folder, canonicalised, joined with its file

@@ -111,6 +111,8 @@ pub fn page(title: &str, markdown: &str, plots: &[Plot]) -> String {
             p.svg.trim_start_matches("<?xml version=\"1.0\" encoding=\"UTF-8\"?>").trim(),
             escape(&p.caption)
         );
+        // Only the `plot()` directive makes this paragraph: escaped text never holds the
+        // marker character, which pulldown-cmark and ammonia pass through unchanged.
         main = main.replace(&format!("<p>{}</p>", plot_marker(p.name)), &figure);
     }
     let mut nav = String::from("<nav class=\"toc\"><h2>Contents</h2><ol>");

@@ -35,7 +35,7 @@ pub const TABLES: &[(&str, &str)] = &[
 
 /// Escapes text for a Markdown table cell.
 pub fn cell(text: &str) -> String {
-    crate::report::view::escape(&text.replace('\n', " "))
+    crate::report::view::escape(&text.replace(['\r', '\n'], " "))
 }
 
 /// A Markdown table: `align` has one `l` or `r` per column.

@@ -43,9 +43,26 @@ pub struct Blocks {
     pub cautions: Vec<String>,
 }
 
-/// The marker a plot directive leaves in the Markdown; the exporters replace it.
+/// The private-use character (U+E000) plot markers are built around. [`escape`] replaces it
+/// in free text, so no design text can spell a marker: only the `plot()` directive makes one.
+/// It passes pulldown-cmark (neither whitespace nor punctuation), ammonia and typst's
+/// paragraph detection unchanged.
+///
+/// [`escape`]: crate::report::view::escape
+pub const MARKER: char = '\u{E000}';
+
+/// The marker a plot directive leaves in the Markdown, a paragraph of its own
+/// (`U+E000 plot:NAME U+E000`); the exporters replace it: html.rs and typst.rs a paragraph
+/// that is exactly the marker, the Markdown output every occurrence.
 pub fn plot_marker(name: &str) -> String {
-    format!("@@plot:{name}@@")
+    format!("{MARKER}plot:{name}{MARKER}")
+}
+
+/// The plot name when `text` is exactly a plot marker (see [`plot_marker`]).
+pub fn plot_marker_name(text: &str) -> Option<&str> {
+    let name = text.strip_prefix(MARKER)?.strip_prefix("plot:")?.strip_suffix(MARKER)?;
+    let plain = !name.is_empty() && name.chars().all(|c| c.is_ascii_alphanumeric() || c == '_');
+    plain.then_some(name)
 }
 
 /// A template that failed to render, with the template's place when known.
@@ -150,8 +167,67 @@ fn report(name: &str, e: &tera::Error) -> String {
         source = s.source();
     }
     text.push_str(
-        "  help: `tauweave template show` prints the built-in template to start from; \
-         docs/templates.md lists the values, filters and functions\n",
+        "  help: `tauweave template show` (or `template show change` for a change report) \
+         prints the built-in template to start from; docs/templates.md lists the values, \
+         filters and functions\n",
     );
     text
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::report::plots::Plot;
+    use crate::report::typst::{PageSetup, Paper};
+    use crate::report::view::escape;
+    use crate::report::{html, typst};
+
+    fn blocks() -> Blocks {
+        Blocks {
+            tables: BTreeMap::new(),
+            known_tables: vec![],
+            plots: vec!["bode"],
+            known_plots: vec!["bode", "shares"],
+            explanation: (vec![], vec![]),
+            cautions: vec![],
+        }
+    }
+
+    #[test]
+    fn markers_round_trip() {
+        assert_eq!(plot_marker_name(&plot_marker("pole_zero")), Some("pole_zero"));
+        assert_eq!(plot_marker_name("@@plot:bode@@"), None);
+        assert_eq!(plot_marker_name(&plot_marker("a b")), None);
+        assert!(!escape(&plot_marker("bode")).contains(MARKER));
+    }
+
+    /// Only the directive makes a plot: design text that spells a marker, old or new, stays
+    /// text in every exporter, and the directive's marker survives pulldown-cmark, ammonia
+    /// and typst's paragraph detection.
+    #[test]
+    fn only_the_plot_directive_makes_a_plot() {
+        let plots = [Plot { name: "bode", caption: "Bode".into(), svg: "<svg></svg>".into() }];
+        let page = PageSetup { paper: Paper::A4, title: "T", footer: "f" };
+        let source = TemplateSource {
+            name: "t".into(),
+            text:
+                "# T\n\n{{ purpose }}\n\n{{ plot(name=\"bode\") }}\n\n{{ plot(name=\"shares\") }}\n"
+                    .into(),
+        };
+        let marker = plot_marker("bode");
+        for text in ["@@plot:bode@@", &marker, &format!("  {marker}\n\n{marker}\n- {marker}")] {
+            let view = BTreeMap::from([("purpose", escape(text))]);
+            let md = render(&source, &view, blocks()).map_err(|e| e.message).unwrap();
+            assert_eq!(md.matches(&marker).count(), 1, "{md}");
+            let html = html::page("t", &md, &plots);
+            assert_eq!(
+                html.matches("<figure class=\"plot\" id=\"plot-bode\">").count(),
+                1,
+                "{html}"
+            );
+            assert!(html.contains("plot:bode"), "the text is shown: {html}");
+            let doc = typst::document(&md, &plots, &page);
+            assert_eq!(doc.matches("#figure(").count(), 1, "{doc}");
+        }
+    }
 }

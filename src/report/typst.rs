@@ -125,11 +125,9 @@ fn string_literal(text: &str) -> String {
     out
 }
 
-/// The plot name of a plot-marker paragraph (`@@plot:NAME@@`, see `template::plot_marker`).
+/// The plot name of a plot-marker paragraph (see `template::plot_marker`).
 fn marker_name(text: &str) -> Option<&str> {
-    let name = text.trim().strip_prefix("@@plot:")?.strip_suffix("@@")?;
-    let plain = !name.is_empty() && name.chars().all(|c| c.is_ascii_alphanumeric() || c == '_');
-    plain.then_some(name)
+    crate::report::template::plot_marker_name(text.trim())
 }
 
 /// Only these links become PDF links, as the HTML sanitiser allows; others keep their text.
@@ -174,8 +172,9 @@ fn definition_end(events: &[Event], start: usize) -> usize {
 
 fn preamble(page: &PageSetup) -> String {
     let setup = format!(
-        "// report.typ, written by tauweave.\n\
-         // Build: typst compile --ignore-system-fonts report.typ report.pdf\n\
+        "// report.typ, written by tauweave. `tauweave render` compiles it with\n\
+         // --ignore-system-fonts and the design's date as --creation-timestamp, so the \
+         bytes match.\n\
          #set document(title: {title})\n\
          #set page(\n  paper: {paper},\n  margin: (x: 2.2cm, top: 2.2cm, bottom: 2.5cm),\n  \
          numbering: \"1 / 1\",\n  footer: context {{\n    \
@@ -981,7 +980,10 @@ mod tests {
         assert!(doc.contains("paper: \"us-letter\""), "{doc}");
         assert!(doc.contains("numbering: \"1 / 1\""), "{doc}");
         assert!(doc.contains("  id \\#1 \\] · rev C #h(1fr) #counter(page).display(both: true)\n"));
-        assert!(!doc.contains("date"), "the CLI passes the date: {doc}");
+        assert!(
+            !doc.contains("date:") && !doc.contains("datetime"),
+            "the CLI passes the date: {doc}"
+        );
         assert_eq!(Paper::A4.typst_name(), "a4");
         // Only fonts typst-cli embeds (it runs with --ignore-system-fonts).
         let embedded = ["Libertinus Serif", "New Computer Modern", "DejaVu Sans Mono"];

@@ -6,7 +6,8 @@ use std::path::Path;
 
 use crate::support::{root, run_in, scratch};
 
-fn copy_dir(from: &Path, to: &Path) {
+/// Copies a folder and everything in it.
+pub fn copy_dir(from: &Path, to: &Path) {
     std::fs::create_dir_all(to).unwrap();
     for e in std::fs::read_dir(from).unwrap() {
         let e = e.unwrap();

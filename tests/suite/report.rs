@@ -48,7 +48,7 @@ fn render_writes_every_output_for_every_example() {
         ] {
             assert!(md.contains(heading), "{name}: no `{heading}`");
         }
-        assert!(!md.contains("@@plot") && !md.contains("NaN"), "{name}");
+        assert!(!md.contains('\u{E000}') && !md.contains("NaN"), "{name}: a plot marker or NaN");
         // Every Markdown table became a table: none is left as a paragraph of pipes.
         let html = std::fs::read_to_string(out.join("report.html")).unwrap();
         assert!(!html.contains("<p>|"), "{name}: a table did not render");
@@ -161,7 +161,12 @@ fn hostile_text_in_a_design_renders_inert() {
         )
         .replacen(
             "purpose: >",
-            "purpose: >\n    [click me](javascript:alert('p')) <img src=x onerror=alert('i')>",
+            // A literal block: the lines stay lines. A paragraph that spells a plot marker (the
+            // old `@@plot:NAME@@` and the marker character's own), and lines that would be a
+            // list, an ordered list, a setext heading, a rule and indented code.
+            "purpose: |\n    [click me](javascript:alert('p')) <img src=x onerror=alert('i')>\n\n    \
+             @@plot:bode@@\n\n    \u{E000}plot:pole_zero\u{E000}\n\n    Heading\n    ===\n    \
+             - item\n    1. item\n    2) item\n    + item\n    ---\n\n            indented code\n",
             1,
         );
     assert_ne!(hostile, text);
@@ -176,6 +181,37 @@ fn hostile_text_in_a_design_renders_inert() {
         "the link text is not shown as text"
     );
     assert!(!html.contains("<img"), "an img element reached the page");
+    // Exactly the plots the template asks for (those that exist, written as plots/*.svg),
+    // each once, in every format: the purpose's marker look-alikes stay text.
+    let plots: Vec<String> = crate::support::files(&dir.join("out/plots"), "svg")
+        .iter()
+        .map(|p| p.file_stem().unwrap().to_string_lossy().to_string())
+        .collect();
+    assert!(plots.iter().any(|p| p == "bode") && plots.iter().any(|p| p == "pole_zero"));
+    assert_eq!(html.matches("<figure class=\"plot\"").count(), plots.len(), "{plots:?}");
+    for p in &plots {
+        assert_eq!(html.matches(&format!("id=\"plot-{p}\"")).count(), 1, "plot {p}");
+    }
+    let md = std::fs::read_to_string(dir.join("out/report.md")).unwrap();
+    assert_eq!(md.matches("](plots/").count(), plots.len(), "image links in report.md");
+    assert!(!md.contains('\u{E000}'), "a plot marker is left in report.md");
+    let typ = std::fs::read_to_string(dir.join("out/report.typ")).unwrap();
+    assert_eq!(typ.matches("#figure(").count(), plots.len(), "figures in report.typ");
+    // The purpose, between the header table and the supplies: text only, no block of its own.
+    let start = html.find("</table>").expect("the header table") + "</table>".len();
+    let end = html.find("<p>Supplies:").expect("the supplies line");
+    let purpose = &html[start..end];
+    for tag in ["<ul", "<ol", "<li", "<h1", "<h2", "<h3", "<pre", "<code", "<hr", "<figure"] {
+        assert!(!purpose.contains(tag), "{tag} in the purpose: {purpose}");
+    }
+    for text in [
+        "<p>@@plot:bode@@</p>",
+        "<p>\u{FFFD}plot:pole_zero\u{FFFD}</p>",
+        "<p>Heading\n===\n- item\n1. item\n2) item\n+ item\n---</p>",
+        "<p>indented code</p>",
+    ] {
+        assert!(purpose.contains(text), "{text:?} is not shown as text: {purpose}");
+    }
     let dom = headless(&dir.join("out/report.html"), &dir.join("profile"), &["--dump-dom"]);
     let dom = String::from_utf8_lossy(&dom.stdout);
     assert!(

@@ -1,6 +1,9 @@
 //! `render --watch`: the real binary re-renders after an in-place save and after a save that
-//! renames a temporary file over the design, and its own output, written into the watched
-//! folder, never triggers another rebuild.
+//! renames a temporary file over the design; its own output, written into the watched
+//! folder, never triggers another rebuild, nor does a `touch` (the same bytes rewritten); the
+//! note that report.pdf was not made is printed once, not on every rebuild; and watching a
+//! design inside its own output folder (the render copies it over itself) settles after an
+//! edit instead of rebuilding forever.
 
 use std::io::{BufRead, BufReader};
 use std::path::Path;
@@ -58,27 +61,12 @@ fn watch_rebuilds_on_in_place_and_rename_saves_and_ignores_its_own_output() {
     // design, so a watcher that did not filter its events would rebuild forever.
     let out = &dir;
 
-    let mut child = Command::new(binary())
-        .args(["render", "design.yaml", "--watch", "--runs", "0", "--out", "."])
-        .current_dir(&dir)
-        .env("NO_COLOR", "1")
-        .stdin(Stdio::null())
-        .stdout(Stdio::null())
-        .stderr(Stdio::piped())
-        .spawn()
-        .expect("the tauweave binary runs");
-    let stderr = child.stderr.take().unwrap();
-    let _watching = Watching(child);
-    let (send, lines) = mpsc::channel();
-    std::thread::spawn(move || {
-        for line in BufReader::new(stderr).lines().map_while(Result::ok) {
-            if send.send(line).is_err() {
-                break;
-            }
-        }
-    });
+    // No typst: the PDF's note must come with the first render only.
+    let (_watching, lines) =
+        watch(&dir, &["design.yaml", "--out", "."], &[("TAUWEAVE_TYPST", "/nonexistent/typst")]);
     let mut seen = Vec::new();
 
+    wait_for(&lines, "warning: report.pdf was not made", &mut seen);
     wait_for(&lines, "watching design.yaml for changes", &mut seen);
     let first = gain_db(out);
 
@@ -102,8 +90,84 @@ fn watch_rebuilds_on_in_place_and_rename_saves_and_ignores_its_own_output() {
     assert!(after_rename > after_in_place + 0.5, "gain {after_in_place} dB -> {after_rename} dB");
 
     // (3) The rebuild just wrote a dozen files into the watched folder: none of them may
-    // start another rebuild.
+    // start another rebuild, and the PDF's note is not repeated.
+    expect_quiet(&lines, "after the rebuild, with no input changed");
+
+    // (4) A `touch`: the same bytes written again start no rebuild.
+    std::fs::write(&design, &rc_1k5).unwrap();
+    expect_quiet(&lines, "after rewriting the design with the same bytes");
+}
+
+#[test]
+fn watch_of_a_design_inside_its_own_output_folder_settles_after_an_edit() {
+    let dir = scratch("watch-own-output");
+    let original = std::fs::read_to_string(root().join("designs/rx-preamp-ce.yaml")).unwrap();
+    let rc = "RC:  {kind: resistor, value: 1k0,";
+    assert!(original.contains(rc), "the example design still has `{rc}`");
+    // The design is the output folder's own input copy: every render writes it again.
+    let out = dir.join("out");
+    let design = out.join("inputs/design.yaml");
+    std::fs::create_dir_all(design.parent().unwrap()).unwrap();
+    std::fs::write(&design, &original).unwrap();
+
+    let args = ["out/inputs/design.yaml", "--format", "json", "--out", "out"];
+    let (_watching, lines) = watch(&dir, &args, &[]);
+    let mut seen = Vec::new();
+    wait_for(&lines, "watching out/inputs/design.yaml for changes", &mut seen);
+    let first = gain_db(&out);
+
+    // One real edit: RC from 1 kΩ to 1.2 kΩ.
+    let rc_1k2 = original.replace(rc, "RC:  {kind: resistor, value: 1k2,");
+    std::fs::write(&design, &rc_1k2).unwrap();
+    wait_for(&lines, "rebuilt rx-preamp-ce in ", &mut seen);
+    // The render wrote the design over itself with the same bytes: at most one more rebuild,
+    // then quiet for 2 s (without the check it rebuilt about five times a second, forever).
+    let mut more = 0;
+    while let Ok(line) = lines.recv_timeout(Duration::from_secs(2)) {
+        more += 1;
+        assert!(line.starts_with("rebuilt ") && more <= 1, "line {more} after the edit: {line}");
+    }
+    assert_eq!(std::fs::read_to_string(&design).unwrap(), rc_1k2, "the edit stays");
+    // The gain goes with RC ∥ R_load (common practice): 500 Ω -> 545 Ω, about +0.75 dB.
+    let after = gain_db(&out);
+    assert!(after > first + 0.5, "gain {first} dB -> {after} dB");
+
+    // A `touch` of the design starts no rebuild.
+    std::fs::write(&design, &rc_1k2).unwrap();
+    expect_quiet(&lines, "after rewriting the design with the same bytes");
+}
+
+/// Starts `tauweave render ARGS --watch --runs 0` in `cwd` with `env` added; returns the
+/// kill-on-drop guard and its stderr, line by line.
+fn watch(cwd: &Path, args: &[&str], env: &[(&str, &str)]) -> (Watching, Receiver<String>) {
+    let mut child = Command::new(binary())
+        .arg("render")
+        .args(args)
+        .args(["--watch", "--runs", "0"])
+        .current_dir(cwd)
+        .env("NO_COLOR", "1")
+        .envs(env.iter().copied())
+        .stdin(Stdio::null())
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("the tauweave binary runs");
+    let stderr = child.stderr.take().unwrap();
+    let watching = Watching(child);
+    let (send, lines) = mpsc::channel();
+    std::thread::spawn(move || {
+        for line in BufReader::new(stderr).lines().map_while(Result::ok) {
+            if send.send(line).is_err() {
+                break;
+            }
+        }
+    });
+    (watching, lines)
+}
+
+/// Panics when the watcher prints anything within 2 s.
+fn expect_quiet(lines: &Receiver<String>, when: &str) {
     if let Ok(line) = lines.recv_timeout(Duration::from_secs(2)) {
-        panic!("a line after the rebuild, with no input changed: {line}");
+        panic!("a line {when}: {line}");
     }
 }
