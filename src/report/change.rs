@@ -160,7 +160,10 @@ pub fn compare(old: &Revision, new: &Revision) -> Change {
         _ => Vec::new(),
     };
     part_changes.extend(limit_changes(old.results, new.results));
-    let (before, after) = (figures(old.results), figures(new.results));
+    let (mut before, mut after) = (figures(old.results), figures(new.results));
+    let (poles_before, poles_after) = pole_figures(old.results, new.results);
+    before.extend(poles_before);
+    after.extend(poles_after);
     // The later revision's order, then what only the earlier one had.
     let mut keys: Vec<&str> = after.iter().map(|f| f.key.as_str()).collect();
     keys.extend(
@@ -557,27 +560,66 @@ fn figures(v: &Value) -> Vec<Figure> {
     }
     let all = at("/tolerance/monte_carlo/yield_all");
     push("yield all".into(), "yield, all requirements".into(), "%", all);
-    // Poles by distance from the origin, a conjugate pair once: the k-th pole of one
-    // revision is compared with the k-th of the other, by |p|.
+    out
+}
+
+/// The poles of a results document, a conjugate pair once, by distance from the origin.
+fn poles(v: &Value) -> Vec<(f64, f64)> {
     let mut poles: Vec<(f64, f64)> = v
         .pointer("/poles")
         .and_then(Value::as_array)
         .into_iter()
         .flatten()
         .filter_map(|p| Some((p["re_hz"].as_f64()?, p["im_hz"].as_f64()?)))
-        .filter(|(_, im)| *im >= 0.0)
+        .filter(|(re, im)| *im >= 0.0 && re.hypot(*im) > 0.0)
         .collect();
     poles.sort_by(|a, b| a.0.hypot(a.1).total_cmp(&b.0.hypot(b.1)));
-    for (i, (re, im)) in poles.into_iter().enumerate() {
-        out.push(Figure {
-            key: format!("pole {}", i + 1),
-            label: format!("pole {} |p|", i + 1),
-            unit: "Hz",
-            value: re.hypot(im),
-            shown: Some(pole_text(re, im)),
-        });
+    poles
+}
+
+/// The poles of both revisions as figures, each earlier pole paired with the later pole
+/// nearest to it in log |p| (closest pairs first), so a pole that appears or goes away does
+/// not shift the pairing of the others. Later poles are numbered by |p|; an earlier pole
+/// left unpaired is listed as gone.
+fn pole_figures(old: &Value, new: &Value) -> (Vec<Figure>, Vec<Figure>) {
+    let (a, b) = (poles(old), poles(new));
+    let magnitude = |p: &(f64, f64)| p.0.hypot(p.1);
+    let mut pairs: Vec<(f64, usize, usize)> = Vec::new();
+    for (i, p) in a.iter().enumerate() {
+        for (j, q) in b.iter().enumerate() {
+            pairs.push(((magnitude(p) / magnitude(q)).ln().abs(), i, j));
+        }
     }
-    out
+    pairs.sort_by(|x, y| x.0.total_cmp(&y.0).then(x.1.cmp(&y.1)).then(x.2.cmp(&y.2)));
+    let mut partner: Vec<Option<usize>> = vec![None; a.len()];
+    let mut taken = vec![false; b.len()];
+    for (_, i, j) in pairs {
+        if partner[i].is_none() && !taken[j] {
+            partner[i] = Some(j);
+            taken[j] = true;
+        }
+    }
+    let figure = |key: String, label: String, (re, im): (f64, f64)| Figure {
+        key,
+        label,
+        unit: "Hz",
+        value: re.hypot(im),
+        shown: Some(pole_text(re, im)),
+    };
+    let later: Vec<Figure> = b
+        .iter()
+        .enumerate()
+        .map(|(j, q)| figure(format!("pole {}", j + 1), format!("pole {} |p|", j + 1), *q))
+        .collect();
+    let earlier = a
+        .iter()
+        .enumerate()
+        .map(|(i, p)| match partner[i] {
+            Some(j) => figure(format!("pole {}", j + 1), format!("pole {} |p|", j + 1), *p),
+            None => figure(format!("pole gone {}", i + 1), "pole |p|, earlier only".into(), *p),
+        })
+        .collect();
+    (earlier, later)
 }
 
 /// A value in its unit: engineering notation, V/V plain, dB, a fraction as per cent.
@@ -704,4 +746,48 @@ pub fn render(
         },
         OutputFile { path: "change.md".into(), bytes: markdown.into_bytes() },
     ])
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn with_poles(poles: &[(f64, f64)]) -> Value {
+        let list: Vec<Value> = poles
+            .iter()
+            .flat_map(|&(re, im)| {
+                let mut v = vec![serde_json::json!({"re_hz": re, "im_hz": im})];
+                if im != 0.0 {
+                    v.push(serde_json::json!({"re_hz": re, "im_hz": -im}));
+                }
+                v
+            })
+            .collect();
+        serde_json::json!({ "poles": list })
+    }
+
+    #[test]
+    fn a_new_pole_does_not_shift_the_pairing_of_the_others() {
+        let old = with_poles(&[(-100.0, 0.0), (-1e3, 0.0), (-1e4, 0.0)]);
+        let new = with_poles(&[(-105.0, 0.0), (-400.0, 0.0), (-1.1e3, 0.0), (-1e4, 0.0)]);
+        let (before, after) = pole_figures(&old, &new);
+        let key = |list: &[Figure], v: f64| {
+            list.iter().find(|f| f.value == v).map(|f| f.key.clone()).unwrap()
+        };
+        assert_eq!(key(&before, 100.0), key(&after, 105.0));
+        assert_eq!(key(&before, 1e3), key(&after, 1.1e3));
+        assert_eq!(key(&before, 1e4), key(&after, 1e4));
+        assert!(!before.iter().any(|f| f.key == key(&after, 400.0)));
+    }
+
+    #[test]
+    fn a_pair_shows_its_q_and_a_gone_pole_is_listed() {
+        // |p| = 5 Hz, Q = |p|/(2|Re p|) = 5/6 (second-order section, common practice).
+        let old = with_poles(&[(-3.0, 4.0), (-1e6, 0.0)]);
+        let new = with_poles(&[(-3.0, 4.0)]);
+        let (before, after) = pole_figures(&old, &new);
+        assert_eq!(after.len(), 1);
+        assert_eq!(before[0].text(), "5 Hz, Q 0.833");
+        assert_eq!(before[1].key, "pole gone 2");
+    }
 }
