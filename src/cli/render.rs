@@ -61,12 +61,10 @@ pub enum PaperSize {
 }
 
 impl PaperSize {
-    /// Its name on the command line and in the manifest.
+    /// Its name on the command line and in the manifest: typst's own name for the paper
+    /// (clap derives the same spelling for the flag).
     pub fn name(self) -> &'static str {
-        match self {
-            PaperSize::A4 => "a4",
-            PaperSize::UsLetter => "us-letter",
-        }
+        self.paper().typst_name()
     }
 
     /// The paper named `name` (as in a manifest).
@@ -318,4 +316,22 @@ pub fn build(
     };
     let files = manifest::seal(files, recipe, &file.text, (!built_in).then_some(&*template.text));
     Ok(Built { id: design.meta.id.clone(), files, pdf_problem, typst_version })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn paper_names_match_the_flag_and_round_trip() {
+        for p in PaperSize::value_variants() {
+            let flag = p.to_possible_value().unwrap();
+            assert_eq!(flag.get_name(), p.name());
+            assert_eq!(PaperSize::from_name(p.name()), Some(*p));
+        }
+        for f in Format::value_variants() {
+            assert_eq!(f.to_possible_value().unwrap().get_name(), f.name());
+            assert_eq!(Format::from_name(f.name()), Some(*f));
+        }
+    }
 }
