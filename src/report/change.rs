@@ -15,7 +15,7 @@ use serde_json::Value;
 use crate::design::{Design, Part, Toleranced};
 use crate::notation::{number, plain, si, signed_percent};
 use crate::report::results::{Tool, tool};
-use crate::report::tables::{cell, markdown_table, part_cells};
+use crate::report::tables::{self, cell, markdown_table, part_cells};
 use crate::report::template::{self, Blocks, TemplateError, TemplateSource};
 use crate::report::view::escape;
 use crate::report::{OutputFile, html, tidy_blank_lines};
@@ -227,29 +227,22 @@ fn revision_view(r: &Revision) -> RevisionView {
     }
 }
 
-/// A requirement's value in its display form: dB for the gain, SI otherwise.
-fn requirement_show(r: &Value, v: f64) -> String {
-    if r["name"] == "midband_gain" && v > 0.0 {
-        format!("{} dB", plain(20.0 * v.log10(), 3))
-    } else {
-        si(v, r["unit"].as_str().unwrap_or(""), 4)
-    }
+/// A requirement of a results document: name and unit.
+fn name_unit(r: &Value) -> (&str, &str) {
+    (r["name"].as_str().unwrap_or(""), r["unit"].as_str().unwrap_or(""))
 }
 
 /// A requirement's nominal value as text.
 fn requirement_value(r: &Value) -> String {
-    r["value"].as_f64().map_or("not found".into(), |v| requirement_show(r, v))
+    let (name, unit) = name_unit(r);
+    r["value"].as_f64().map_or("not found".into(), |v| tables::requirement_value(name, unit, v))
 }
 
-/// A requirement's limits as text: `18 dB … 23 dB`, `≥ 900 kHz`, `≤ 1.2 kΩ`.
+/// A requirement's limits as text (`—` without limits).
 fn requirement_limit(r: &Value) -> String {
-    let show = |k: &str| r[k].as_f64().map(|v| requirement_show(r, v));
-    match (show("min"), show("max")) {
-        (Some(a), Some(b)) => format!("{a} … {b}"),
-        (Some(a), None) => format!("≥ {a}"),
-        (None, Some(b)) => format!("≤ {b}"),
-        (None, None) => "—".into(),
-    }
+    let (name, unit) = name_unit(r);
+    let limit = tables::requirement_limit(name, unit, r["min"].as_f64(), r["max"].as_f64());
+    if limit.is_empty() { "—".into() } else { limit }
 }
 
 fn requirements(v: &Value) -> Vec<Value> {

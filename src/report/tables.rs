@@ -393,22 +393,31 @@ pub fn sctc_rows(l: &crate::analysis::Low) -> Vec<Vec<String>> {
         .collect()
 }
 
-/// One requirement as text cells: name, limit, nominal, pass/FAIL, margin, worst corner,
-/// yield — shared by the report's table and the terminal.
-pub fn requirement_row(r: &RequirementCheck) -> Vec<String> {
-    let show = |v: f64| {
-        if r.name == "midband_gain" {
-            format!("{} dB", plain(20.0 * v.log10(), 3))
-        } else {
-            si(v, r.unit, 4)
-        }
-    };
-    let limit = match (r.min, r.max) {
+/// A requirement's value as it is stated: the gain in dB, anything else in SI.
+pub fn requirement_value(name: &str, unit: &str, v: f64) -> String {
+    if name == "midband_gain" && v > 0.0 {
+        format!("{} dB", plain(20.0 * v.log10(), 3))
+    } else {
+        si(v, unit, 4)
+    }
+}
+
+/// A requirement's limits: `18 dB … 23 dB`, `≥ 900 kHz`, `≤ 1.2 kΩ`; empty without limits.
+pub fn requirement_limit(name: &str, unit: &str, min: Option<f64>, max: Option<f64>) -> String {
+    let show = |v: f64| requirement_value(name, unit, v);
+    match (min, max) {
         (Some(a), Some(b)) => format!("{} … {}", show(a), show(b)),
         (Some(a), None) => format!("≥ {}", show(a)),
         (None, Some(b)) => format!("≤ {}", show(b)),
         (None, None) => String::new(),
-    };
+    }
+}
+
+/// One requirement as text cells: name, limit, nominal, pass/FAIL, margin, worst corner,
+/// yield — shared by the report's table and the terminal.
+pub fn requirement_row(r: &RequirementCheck) -> Vec<String> {
+    let show = |v: f64| requirement_value(r.name, r.unit, v);
+    let limit = requirement_limit(r.name, r.unit, r.min, r.max);
     vec![
         r.name.replace('_', " "),
         limit,
