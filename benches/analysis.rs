@@ -12,7 +12,12 @@ use tauweave::analysis::{self, poles, time_constants, tolerance};
 use tauweave::circuit::netlist::{CapReason, CapSet};
 use tauweave::circuit::small_signal::{Linear, LinearNetwork};
 use tauweave::design;
-use tauweave::report::{self, Formats, Inputs, template};
+use tauweave::report::export::{self, Exporter};
+use tauweave::report::{self, Inputs, template};
+use tauweave::review::{self, Review, ReviewOptions};
+
+/// The in-memory formats: HTML, Markdown with plots, results.json, sweep.csv.
+const FORMATS: [&dyn Exporter; 4] = [&export::Html, &export::Markdown, &export::Json, &export::Csv];
 
 fn median(mut f: impl FnMut(), budget: Duration, max_runs: usize) -> (Duration, usize) {
     let mut times = Vec::new();
@@ -80,7 +85,7 @@ fn main() {
         );
     }
     println!(
-        "\nrender of each example design (analysis, tables, plots, HTML, Markdown, JSON; no disk)"
+        "\nrender of each example design (analysis, requirement checks, cautions, explanation, tables, plots, HTML, Markdown, JSON; tolerance study done once beforehand; no disk)"
     );
     let mut names: Vec<_> =
         std::fs::read_dir(format!("{root}/designs")).unwrap().map(|e| e.unwrap().path()).collect();
@@ -98,11 +103,21 @@ fn main() {
             template: &tpl,
             built_in_template: true,
         };
-        let all = Formats { html: true, markdown: true, json: true, typst: None };
+        let study =
+            review::review(&d, &ReviewOptions { runs: 0, progress: &|_| {} }).unwrap().study;
         let (t, runs) = median(
             || {
-                let a = analysis::analyze(&d).unwrap();
-                drop(black_box(report::render(&d, &a, None, &inputs, all).unwrap()))
+                let analysis = analysis::analyze(&d).unwrap();
+                let mut requirements = analysis::requirements::check(&d.requirements, &analysis);
+                analysis::requirements::with_study(&mut requirements, &study);
+                let review = Review {
+                    cautions: report::cautions::cautions(&d, &analysis),
+                    explanation: report::explain::explain(&analysis, Some(&study)),
+                    analysis,
+                    study: study.clone(),
+                    requirements,
+                };
+                drop(black_box(report::render(&d, &review, &inputs, &FORMATS).unwrap()))
             },
             Duration::from_secs(2),
             500,
@@ -139,23 +154,14 @@ fn main() {
     let text = std::fs::read_to_string(format!("{root}/designs/rx-preamp-ce.yaml")).unwrap();
     let d = design::load(&text).design.unwrap();
     let t = Instant::now();
-    let a = analysis::analyze(&d).unwrap();
-    let nominal = analysis::metrics(&d).unwrap();
-    let study = tolerance::study(&d, &nominal, &["Q1".to_string()], 10_000, &|_| {});
+    let review = review::review(&d, &ReviewOptions { runs: 10_000, progress: &|_| {} }).unwrap();
     let inputs = Inputs {
         design_name: "d.yaml",
         design_text: &text,
         template: &tpl,
         built_in_template: true,
     };
-    let files = report::render(
-        &d,
-        &a,
-        Some(&study),
-        &inputs,
-        Formats { html: true, markdown: true, json: true, typst: None },
-    )
-    .unwrap();
+    let files = report::render(&d, &review, &inputs, &FORMATS).unwrap();
     println!(
         "\n  10,000-run render of rx-preamp-ce (analysis, sensitivities, worst case, Monte Carlo, all outputs): {:.3} s, {} files",
         t.elapsed().as_secs_f64(),

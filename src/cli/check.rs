@@ -12,6 +12,7 @@ use clap::Args;
 
 use crate::analysis::{Analysis, RootHz};
 use crate::circuit::operating_point::DeviceState;
+use crate::cli::progress;
 use crate::cli::source::{analysis_failure, load_file, plural};
 use crate::cli::table::{Align, render};
 use crate::cli::{Failure, Outcome};
@@ -34,14 +35,13 @@ pub fn run(args: &CheckArgs) -> Result<Outcome, Failure> {
     let design = file.design()?;
     eprint!("{}", file.report());
     print!("{}", summary(design, file.loaded.warnings()));
-    let analysis = crate::analysis::analyze(design).map_err(|e| analysis_failure(&file, &e))?;
-    print!("{}", analysis_text(&analysis));
-    let study = crate::cli::render::run_study(design, &analysis, args.runs)?;
-    let mut checks = crate::analysis::requirements::check(&design.requirements, &analysis);
-    crate::analysis::requirements::with_study(&mut checks, &study);
-    print!("{}", requirements_text(&checks, &study));
-    if checks.iter().any(|c| !c.pass) {
-        let failing: Vec<&str> = checks.iter().filter(|c| !c.pass).map(|c| c.name).collect();
+    let runs = args.runs.unwrap_or(design.analysis.monte_carlo_runs);
+    let review =
+        progress::review(design, runs).map_err(|e| Failure::Input(analysis_failure(&file, &e)))?;
+    print!("{}", analysis_text(&review.analysis));
+    print!("{}", requirements_text(&review.requirements, &review.study));
+    if review.failing() {
+        let failing = review.failing_names();
         eprintln!("{}: fails {} at nominal values", file.name, failing.join(", "));
         return Ok(Outcome::Failing);
     }

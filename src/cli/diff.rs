@@ -11,16 +11,17 @@ use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
 use clap::Args;
-use serde_json::Value;
+use sha2::{Digest, Sha256};
 
-use crate::cli::render::{BuildOptions, build, template_source};
-use crate::cli::source::{LoadedFile, load_file};
+use crate::cli::progress;
+use crate::cli::source::{LoadedFile, analysis_failure, load_file, template_source};
 use crate::cli::table::{Align, render};
 use crate::cli::{Failure, Outcome};
 use crate::report::change::{self, Change, Revision};
 use crate::report::manifest::sha256;
-use crate::report::template::TemplateSource;
-use crate::report::write;
+use crate::report::results::{self, Hashes, ResultsDocument};
+use crate::report::template::{self, TemplateSource};
+use crate::report::{hex, write};
 
 /// Flags of `tauweave diff`.
 #[derive(Debug, Args)]
@@ -47,7 +48,7 @@ pub struct DiffArgs {
 struct Side {
     file: Option<LoadedFile>,
     sha256: String,
-    results: Value,
+    results: ResultsDocument,
 }
 
 impl Side {
@@ -64,32 +65,39 @@ impl Side {
 fn side(path: &Path, runs: Option<u32>) -> Result<Side, Failure> {
     if path.extension().is_some_and(|e| e == "json") {
         let bytes = std::fs::read(path).map_err(|e| {
-            Failure::Input(format!("error: cannot read `{}`: {e}\n", path.display()))
+            Failure::input(format_args!("cannot read `{}`: {e}", path.display()), None)
         })?;
-        let results: Value = serde_json::from_slice(&bytes).map_err(|e| {
-            Failure::Input(format!(
-                "error: `{}` is not a results.json: {e}\n  help: give a design file or the results.json of a render\n",
-                path.display()
-            ))
+        let help = Some("give a design file or the results.json of a render");
+        let value: serde_json::Value = serde_json::from_slice(&bytes).map_err(|e| {
+            Failure::input(format_args!("`{}` is not a results.json: {e}", path.display()), help)
         })?;
-        if results.pointer("/tool/name").and_then(Value::as_str) != Some("tauweave") {
-            return Err(Failure::Input(format!(
-                "error: `{}` is JSON but not a tauweave results.json\n  help: give a design file or the results.json of a render\n",
-                path.display()
-            )));
+        if value.pointer("/tool/name").and_then(serde_json::Value::as_str) != Some("tauweave") {
+            return Err(Failure::input(
+                format_args!("`{}` is JSON but not a tauweave results.json", path.display()),
+                help,
+            ));
         }
+        let results = results::from_json(&bytes).map_err(|e| {
+            Failure::input(
+                format_args!("`{}` does not read as a results.json of this version: {e}", path.display()),
+                Some("render the design again with this version of tauweave, or give the design file"),
+            )
+        })?;
         return Ok(Side { file: None, sha256: sha256(&bytes), results });
     }
     let file = load_file(path)?;
-    let (template, _) = template_source(&None)?;
-    let built = build(&file, &template, true, &BuildOptions::json(runs))?;
-    let json = built
-        .files
-        .iter()
-        .find(|f| f.path == "results.json")
-        .map(|f| f.bytes.clone())
-        .ok_or_else(|| Failure::Internal("a render wrote no results.json".into()))?;
-    let results = serde_json::from_slice(&json).map_err(|e| Failure::Internal(e.to_string()))?;
+    let design = file.design()?;
+    eprint!("{}", file.report());
+    let runs = runs.unwrap_or(design.analysis.monte_carlo_runs);
+    let review =
+        progress::review(design, runs).map_err(|e| Failure::Input(analysis_failure(&file, &e)))?;
+    // The results document a render with the built-in template would write.
+    let hashes = Hashes {
+        design: hex(&Sha256::digest(file.text.as_bytes())),
+        template: Some(hex(&Sha256::digest(template::BUILT_IN.as_bytes()))),
+        template_name: None,
+    };
+    let results = results::document(design, &review, hashes, &file.name);
     Ok(Side { sha256: sha256(file.text.as_bytes()), file: Some(file), results })
 }
 
@@ -147,8 +155,8 @@ pub fn terminal(c: &Change) -> String {
 
 /// `out/<later design id>-change/`; an id that is not a plain name (a results.json can say
 /// anything) gives `out/change/`, so the report never lands outside `out/`.
-fn default_folder(results: &Value) -> PathBuf {
-    let id = results.pointer("/design/id").and_then(Value::as_str).unwrap_or("");
+fn default_folder(results: &ResultsDocument) -> PathBuf {
+    let id = results.design.id.as_str();
     let plain = !id.is_empty()
         && !id.starts_with('.')
         && id.chars().all(|c| c.is_ascii_alphanumeric() || "._-".contains(c));
@@ -173,12 +181,7 @@ pub fn run(args: &DiffArgs) -> Result<Outcome, Failure> {
         .map_err(|e| Failure::Input(format!("{}nothing was written\n", e.message)))?;
     if !args.no_write {
         let dir = args.out.clone().unwrap_or_else(|| default_folder(&new.results));
-        for f in &files {
-            let path = dir.join(&f.path);
-            write::atomic(&path, &f.bytes).map_err(|e| {
-                Failure::Input(format!("error: cannot write `{}`: {e}\n", path.display()))
-            })?;
-        }
+        write::all(&dir, &files).map_err(|e| Failure::input(e, None))?;
         eprintln!("wrote change.html, change.md into {}/", dir.display());
     }
     Ok(if c.now_failing { Outcome::Failing } else { Outcome::Done })

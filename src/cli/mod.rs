@@ -4,10 +4,12 @@
 //! for `main` to turn into an exit code. One file per subcommand. This is the only layer
 //! that reads files given by the user and prints to the terminal.
 
+pub mod build;
 pub mod check;
 pub mod diff;
 pub mod new;
 pub mod pdf;
+pub mod progress;
 pub mod render;
 pub mod schema;
 pub mod source;
@@ -36,6 +38,36 @@ pub enum Failure {
     Input(String),
     /// A bug: something that should not happen did.
     Internal(String),
+}
+
+impl Failure {
+    /// Bad input that has no place in a file, rendered by [`problem`].
+    pub fn input(what: impl std::fmt::Display, help: Option<&str>) -> Failure {
+        Failure::Input(problem(Level::Error, &what.to_string(), help))
+    }
+}
+
+/// How grave a problem is.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Level {
+    /// The command fails for it.
+    Error,
+    /// The command goes on.
+    Warning,
+}
+
+/// The one renderer of a problem that has no place in a file (a problem in a design file is
+/// a located diagnostic, `design::Diagnostic`): `error: WHAT` or `warning: WHAT`, then
+/// `  help: HELP` when there is one, each line ended.
+pub fn problem(level: Level, what: &str, help: Option<&str>) -> String {
+    let level = match level {
+        Level::Error => "error",
+        Level::Warning => "warning",
+    };
+    match help {
+        Some(help) => format!("{level}: {what}\n  help: {help}\n"),
+        None => format!("{level}: {what}\n"),
+    }
 }
 
 /// tauweave renders amplifier design-review documents from a YAML design file.
@@ -71,6 +103,7 @@ pub fn run() -> Result<Outcome, Failure> {
     let cli = Cli::try_parse().map_err(Failure::Usage)?;
     match cli.command {
         Command::Check(args) => check::run(&args),
+        Command::Render(args) if args.watch => watch::run(&args.job(), args.format),
         Command::Render(args) => render::run(&args),
         Command::Schema(args) => schema::run(&args),
         Command::Diff(args) => diff::run(&args),

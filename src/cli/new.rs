@@ -53,22 +53,23 @@ pub fn run(args: &NewArgs) -> Result<Outcome, Failure> {
     let ok = args.name.chars().next().is_some_and(|c| c.is_ascii_alphanumeric())
         && args.name.chars().all(|c| c.is_ascii_alphanumeric() || "-_.".contains(c));
     if !ok {
-        return Err(Failure::Input(format!(
-            "error: `{}` cannot be a design id\n  help: use letters, digits, '-', '_' and '.', e.g. `line-driver-2`\n",
-            args.name
-        )));
+        return Err(Failure::input(
+            format_args!("`{}` cannot be a design id", args.name),
+            Some("use letters, digits, '-', '_' and '.', e.g. `line-driver-2`"),
+        ));
     }
     let path = args.dir.join(format!("{}.yaml", args.name));
     if path.exists() {
-        return Err(Failure::Input(format!(
-            "error: `{}` exists already; nothing was written\n  help: pick another name or remove the file\n",
-            path.display()
-        )));
+        return Err(Failure::input(
+            format_args!("`{}` exists already; nothing was written", path.display()),
+            Some("pick another name or remove the file"),
+        ));
     }
     let (id, text) = args.kind.text();
     let text = text.replacen(&format!("  id: {id}\n"), &format!("  id: {}\n", args.name), 1);
-    crate::report::write::atomic(&path, text.as_bytes())
-        .map_err(|e| Failure::Input(format!("error: cannot write `{}`: {e}\n", path.display())))?;
+    crate::report::write::atomic(&path, text.as_bytes()).map_err(|e| {
+        Failure::input(format_args!("cannot write `{}`: {e}", path.display()), None)
+    })?;
     eprintln!(
         "wrote {} (a {} starter); check it with `tauweave check {}`",
         path.display(),

@@ -12,6 +12,7 @@
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
+use crate::cli::{Level, problem};
 use crate::report::OutputFile;
 
 /// The environment variable that names the typst program.
@@ -50,7 +51,7 @@ impl PdfProblem {
     /// The message for the terminal: an `error:` when `fatal` (the command fails for it),
     /// else a `warning:` (the command goes on).
     pub fn message(&self, fatal: bool) -> String {
-        let level = if fatal { "error" } else { "warning" };
+        let level = if fatal { Level::Error } else { Level::Warning };
         let help = match self {
             PdfProblem::Missing(_) => format!(
                 "install typst with `{INSTALL}` (about 20 minutes, once), or name the program \
@@ -61,7 +62,7 @@ impl PdfProblem {
                     .to_string()
             }
         };
-        format!("{level}: report.pdf was not made: {}\n  help: {help}\n", self.reason())
+        problem(level, &format!("report.pdf was not made: {}", self.reason()), Some(&help))
     }
 }
 

@@ -7,9 +7,10 @@ use std::io::IsTerminal;
 use std::path::Path;
 
 use crate::analysis::AnalysisError;
-use crate::cli::Failure;
+use crate::cli::{Failure, Level, problem};
 use crate::design::Diagnostic;
 use crate::design::{self, Design, Loaded};
+use crate::report::template::{BUILT_IN, BUILT_IN_NAME, TemplateSource};
 
 /// A design read from a file, with its findings rendered for the terminal.
 pub struct LoadedFile {
@@ -30,7 +31,7 @@ pub fn load_file(path: &Path) -> Result<LoadedFile, Failure> {
             std::io::ErrorKind::InvalidData => "the design file must be UTF-8 text",
             _ => "check that the file exists and can be read",
         };
-        Failure::Input(format!("error: cannot read `{name}`: {e}\n  help: {hint}\n"))
+        Failure::input(format_args!("cannot read `{name}`: {e}"), Some(hint))
     })?;
     let loaded = design::load(&text);
     Ok(LoadedFile { name, text, loaded })
@@ -70,8 +71,26 @@ pub fn plural(n: usize) -> &'static str {
     if n == 1 { "" } else { "s" }
 }
 
+/// Reads the template named on the command line, or the built-in one; true when built in.
+pub fn template_source(
+    path: &Option<std::path::PathBuf>,
+) -> Result<(TemplateSource, bool), Failure> {
+    match path {
+        None => Ok((TemplateSource { name: BUILT_IN_NAME.into(), text: BUILT_IN.into() }, true)),
+        Some(p) => {
+            let text = std::fs::read_to_string(p).map_err(|e| {
+                Failure::input(
+                    format_args!("cannot read template `{}`: {e}", p.display()),
+                    Some("check the path"),
+                )
+            })?;
+            Ok((TemplateSource { name: p.display().to_string(), text }, false))
+        }
+    }
+}
+
 /// An analysis failure as a located report when the design key at fault is known.
-pub fn analysis_failure(file: &LoadedFile, e: &AnalysisError) -> Failure {
+pub fn analysis_failure(file: &LoadedFile, e: &AnalysisError) -> String {
     let color = std::io::stderr().is_terminal() && std::env::var_os("NO_COLOR").is_none();
     let span = e
         .place
@@ -82,7 +101,7 @@ pub fn analysis_failure(file: &LoadedFile, e: &AnalysisError) -> Failure {
             .at(span, "here")
             .help(e.help.clone())
             .render(&file.name, &file.text, color),
-        None => format!("error: {}\n  help: {}\n", e.message, e.help),
+        None => problem(Level::Error, &e.message, Some(&e.help)),
     };
-    Failure::Input(format!("{text}{}: the analysis failed; nothing was written\n", file.name))
+    format!("{text}{}: the analysis failed; nothing was written\n", file.name)
 }

@@ -11,10 +11,10 @@ use std::path::PathBuf;
 
 use clap::Args;
 
+use crate::cli::build::{BuildOptions, Format, PaperSize, build};
 use crate::cli::pdf;
-use crate::cli::render::{BuildOptions, Format, PaperSize, build};
 use crate::cli::source::LoadedFile;
-use crate::cli::{Failure, Outcome};
+use crate::cli::{Failure, Level, Outcome, problem};
 use crate::report::manifest::{self, Manifest, sha256};
 use crate::report::template::{BUILT_IN, BUILT_IN_NAME, TemplateSource};
 
@@ -30,12 +30,13 @@ pub struct VerifyArgs {
 
 /// Runs the verification.
 pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
+    let help =
+        format!("verify a folder written by `tauweave render` (it holds {})", manifest::FILE);
     let unusable = |why: String| {
-        Failure::Input(format!(
-            "error: `{}` cannot be verified: {why}\n  help: verify a folder written by `tauweave render` (it holds {})\n",
-            args.dir.display(),
-            manifest::FILE
-        ))
+        Failure::input(
+            format_args!("`{}` cannot be verified: {why}", args.dir.display()),
+            Some(&help),
+        )
     };
     let text = std::fs::read_to_string(args.dir.join(manifest::FILE))
         .map_err(|e| unusable(format!("no readable {}: {e}", manifest::FILE)))?;
@@ -83,6 +84,7 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
         text: design_text,
     };
     let built = build(&file, &template.0, template.1, &options)?;
+    eprint!("{}", built.notes);
     // A report.pdf that cannot be rebuilt here (no typst, or it fails) is checked against
     // its SHA-256 only, and the verification is incomplete.
     let mut unverified = None;
@@ -141,17 +143,17 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
         println!("identical: {compared} outputs rebuilt from {dir} byte for byte");
         return Ok(Outcome::Done);
     }
-    let Some(problem) = unverified else { return Ok(Outcome::Failing) };
+    let Some(pdf_problem) = unverified else { return Ok(Outcome::Failing) };
     // Exit 1 when something differs, else 2: the verification is incomplete.
     let fatal = problems.is_empty();
-    let message = format!(
-        "{}: report.pdf cannot be verified here: {}\n  help: install the typst that made it \
-         with `{}`, or name the program with --typst PATH or {}\n",
-        if fatal { "error" } else { "warning" },
-        problem.reason(),
+    let level = if fatal { Level::Error } else { Level::Warning };
+    let help = format!(
+        "install the typst that made it with `{}`, or name the program with --typst PATH or {}",
         pdf::install_for(recipe.typst.as_deref()),
         pdf::ENV
     );
+    let what = format!("report.pdf cannot be verified here: {}", pdf_problem.reason());
+    let message = problem(level, &what, Some(&help));
     if fatal {
         return Err(Failure::Input(message));
     }

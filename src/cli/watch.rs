@@ -5,7 +5,7 @@
 //! so an editor that saves by renaming a temporary file over the original is seen), the filter
 //! that keeps only changes to those exact files (so the review written into a watched folder
 //! never triggers another render), and the one line printed per rebuild. Rendering and
-//! writing stay in `render.rs`. A render that fails on its input is reported and watching
+//! writing stay in `build.rs`. A render that fails on its input is reported and watching
 //! goes on; only a failing watcher or an internal error ends the loop, for `main` to report.
 //!
 //! The contents decide, not the events: the loop keeps the bytes of the design and template
@@ -29,27 +29,28 @@ use notify::{EventKind, RecursiveMode};
 use notify_debouncer_full::{DebounceEventResult, new_debouncer};
 use serde_json::Value;
 
-use crate::cli::render::{Format, RenderArgs, Written, pdf_fatal, render_and_write};
-use crate::cli::{Failure, Outcome};
+use crate::cli::build::{Format, RenderJob, Written, pdf_fatal, render_and_write};
+use crate::cli::{Failure, Level, Outcome, problem};
 use crate::notation::{plain, si};
 use crate::report::manifest::{DESIGN_COPY, TEMPLATE_COPY};
 
 /// How long the inputs must stay quiet before a rebuild: one save is often several writes.
 const QUIET: Duration = Duration::from_millis(200);
 
-/// Renders `args` and renders again on every change of its design or template file.
-/// Returns only when watching becomes impossible or a render hits an internal error.
-pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
+/// Renders `job` and renders again on every change of its design or template file; `format`
+/// decides whether a missing report.pdf is an error or a warning. Returns only when watching
+/// becomes impossible or a render hits an internal error.
+pub fn run(job: &RenderJob, format: Format) -> Result<Outcome, Failure> {
     let inputs: Vec<&Path> =
-        std::iter::once(args.design.as_path()).chain(args.template.as_deref()).collect();
+        std::iter::once(job.design.as_path()).chain(job.template.as_deref()).collect();
     let watched = inputs
         .iter()
         .map(|p| {
             watch_key(p).map_err(|e| {
-                Failure::Input(format!(
-                    "error: cannot watch `{}`: {e}\n  help: check that its folder exists\n",
-                    p.display()
-                ))
+                Failure::input(
+                    format_args!("cannot watch `{}`: {e}", p.display()),
+                    Some("check that its folder exists"),
+                )
             })
         })
         .collect::<Result<Vec<PathBuf>, Failure>>()?;
@@ -66,11 +67,12 @@ pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
     // The inputs' bytes as last rendered, and the last render's note on report.pdf.
     let mut rendered = read_inputs(&inputs);
     let mut pdf_shown = None;
-    match render_and_write(args) {
+    match render_and_write(job) {
         Ok(written) => {
+            eprint!("{}", written.notes);
             eprintln!("{}", written.summary());
             rendered = input_copies(&written, inputs.len());
-            pdf_note(&written, args.format, &mut pdf_shown);
+            pdf_note(&written, format, &mut pdf_shown);
         }
         Err(failure) => report_input_failure(failure)?,
     }
@@ -92,8 +94,9 @@ pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
         }
         // The clock is read for this line only; nothing written depends on it.
         let started = Instant::now();
-        match render_and_write(args) {
+        match render_and_write(job) {
             Ok(written) => {
+                eprint!("{}", written.notes);
                 eprintln!(
                     "rebuilt {} in {} ms: {}",
                     written.id,
@@ -101,7 +104,7 @@ pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
                     headline(written.file("results.json").unwrap_or_default())
                 );
                 rendered = input_copies(&written, inputs.len());
-                pdf_note(&written, args.format, &mut pdf_shown);
+                pdf_note(&written, format, &mut pdf_shown);
             }
             Err(failure) => {
                 rendered = now;
@@ -162,7 +165,7 @@ fn touches(batch: DebounceEventResult, watched: &[PathBuf]) -> bool {
         }),
         Err(errors) => {
             for e in errors {
-                eprintln!("warning: file watcher: {e}");
+                eprint!("{}", problem(Level::Warning, &format!("file watcher: {e}"), None));
             }
             false
         }
@@ -181,10 +184,10 @@ fn report_input_failure(failure: Failure) -> Result<(), Failure> {
 }
 
 fn watcher_failure(e: notify::Error) -> Failure {
-    Failure::Input(format!(
-        "error: cannot watch for changes: {e}\n  help: render without `--watch`, or raise the \
-         system's limit on watched folders\n"
-    ))
+    Failure::input(
+        format_args!("cannot watch for changes: {e}"),
+        Some("render without `--watch`, or raise the system's limit on watched folders"),
+    )
 }
 
 /// The headline numbers of a results.json: `gain 20.56 dB, f_high 1.275 MHz, f_low

@@ -2,7 +2,8 @@
 //! parts and model parameters added, removed or changed, and every reviewed figure that
 //! moved, old and new, in absolute and relative terms.
 //!
-//! In: each revision's results document (results.json as a JSON value) and, when the
+//! In: each revision's [`ResultsDocument`] (from a fresh review, or an earlier results.json
+//! read back into the same typed struct) and, when the
 //! revision was a design file, its validated [`Design`]. Out: a [`Change`] — the view model of
 //! the change template — and its named Markdown tables; `cli/diff.rs` prints the same rows
 //! on the terminal. No analysis and no I/O here: the caller analyses and reads files.
@@ -14,7 +15,9 @@ use serde_json::Value;
 
 use crate::design::{Design, Part, Toleranced};
 use crate::notation::{number, plain, si, signed_percent};
-use crate::report::results::{Tool, tool};
+use crate::report::results::{
+    DeviceBiasResults, RequirementResults, ResultsDocument, RootResults, Tool, tool,
+};
 use crate::report::tables::{self, cell, markdown_table, part_cells};
 use crate::report::template::{self, Blocks, TemplateError, TemplateSource};
 use crate::report::view::escape;
@@ -40,8 +43,8 @@ pub struct Revision<'a> {
     pub sha256: String,
     /// The validated design, when the revision is a design file.
     pub design: Option<&'a Design>,
-    /// Its results document (analysed here, or read from an earlier render).
-    pub results: &'a Value,
+    /// Its results document (reviewed here, or read from an earlier render).
+    pub results: &'a ResultsDocument,
 }
 
 /// A revision as the change template sees it.
@@ -161,7 +164,7 @@ pub fn compare(old: &Revision, new: &Revision) -> Change {
     };
     part_changes.extend(limit_changes(old.results, new.results));
     let (mut before, mut after) = (figures(old.results), figures(new.results));
-    let (poles_before, poles_after) = pole_figures(old.results, new.results);
+    let (poles_before, poles_after) = pole_figures(&old.results.poles, &new.results.poles);
     before.extend(poles_before);
     after.extend(poles_after);
     // The later revision's order, then what only the earlier one had.
@@ -213,69 +216,58 @@ pub fn compare(old: &Revision, new: &Revision) -> Change {
 }
 
 fn revision_view(r: &Revision) -> RevisionView {
-    let text = |k: &str| r.results.pointer(&format!("/design/{k}")).and_then(Value::as_str);
+    let d = &r.results.design;
     RevisionView {
         source: escape(r.source),
         source_text: r.source.to_string(),
         kind: if r.design.is_some() { "design" } else { "results" },
         sha256: r.sha256.clone(),
-        id: escape(text("id").unwrap_or("—")),
-        title: escape(text("title").unwrap_or("—")),
-        revision: escape(text("revision").unwrap_or("—")),
-        date: escape(text("date").unwrap_or("—")),
-        revision_text: text("revision").unwrap_or("—").to_string(),
+        id: escape(&d.id),
+        title: escape(&d.title),
+        revision: escape(&d.revision),
+        date: escape(&d.date),
+        revision_text: d.revision.clone(),
     }
 }
 
-/// A requirement of a results document: name and unit.
-fn name_unit(r: &Value) -> (&str, &str) {
-    (r["name"].as_str().unwrap_or(""), r["unit"].as_str().unwrap_or(""))
-}
-
 /// A requirement's nominal value as text.
-fn requirement_value(r: &Value) -> String {
-    let (name, unit) = name_unit(r);
-    r["value"].as_f64().map_or("not found".into(), |v| tables::requirement_value(name, unit, v))
+fn requirement_value(r: &RequirementResults) -> String {
+    r.value.map_or("not found".into(), |v| tables::requirement_value(&r.name, &r.unit, v))
 }
 
 /// A requirement's limits as text (`—` without limits).
-fn requirement_limit(r: &Value) -> String {
-    let (name, unit) = name_unit(r);
-    let limit = tables::requirement_limit(name, unit, r["min"].as_f64(), r["max"].as_f64());
+fn requirement_limit(r: &RequirementResults) -> String {
+    let limit = tables::requirement_limit(&r.name, &r.unit, r.min, r.max);
     if limit.is_empty() { "—".into() } else { limit }
 }
 
-fn requirements(v: &Value) -> Vec<Value> {
-    v["requirements"].as_array().cloned().unwrap_or_default()
-}
-
-fn find_requirement(list: &[Value], name: &str) -> Option<Value> {
-    list.iter().find(|r| r["name"] == name).cloned()
+fn find_requirement<'a>(
+    list: &'a [RequirementResults],
+    name: &str,
+) -> Option<&'a RequirementResults> {
+    list.iter().find(|r| r.name == name)
 }
 
 /// Requirements whose limits changed, were added or were removed.
-fn limit_changes(old: &Value, new: &Value) -> Vec<PartChange> {
-    let (ro, rn) = (requirements(old), requirements(new));
+fn limit_changes(old: &ResultsDocument, new: &ResultsDocument) -> Vec<PartChange> {
+    let (ro, rn) = (&old.requirements, &new.requirements);
     let mut out = Vec::new();
-    for r in &rn {
-        let name = r["name"].as_str().unwrap_or("?");
-        let before = find_requirement(&ro, name).map(|b| requirement_limit(&b));
+    for r in rn {
+        let before = find_requirement(ro, &r.name).map(requirement_limit);
         let after = requirement_limit(r);
         if before.as_deref() != Some(after.as_str()) {
             out.push(PartChange {
                 change: if before.is_some() { "changed" } else { "added" },
-                item: format!("requirement {}", name.replace('_', " ")),
+                item: format!("requirement {}", r.name.replace('_', " ")),
                 old: before,
                 new: Some(after),
             });
         }
     }
-    for r in
-        ro.iter().filter(|r| find_requirement(&rn, r["name"].as_str().unwrap_or("?")).is_none())
-    {
+    for r in ro.iter().filter(|r| find_requirement(rn, &r.name).is_none()) {
         out.push(PartChange {
             change: "removed",
-            item: format!("requirement {}", r["name"].as_str().unwrap_or("?").replace('_', " ")),
+            item: format!("requirement {}", r.name.replace('_', " ")),
             old: Some(requirement_limit(r)),
             new: None,
         });
@@ -283,30 +275,30 @@ fn limit_changes(old: &Value, new: &Value) -> Vec<PartChange> {
     out
 }
 
-fn status_changes(old: &Value, new: &Value) -> Vec<StatusChange> {
-    let (ro, rn) = (requirements(old), requirements(new));
+fn status_changes(old: &ResultsDocument, new: &ResultsDocument) -> Vec<StatusChange> {
+    let (ro, rn) = (&old.requirements, &new.requirements);
     let mut out = Vec::new();
-    for r in &rn {
-        let before = find_requirement(&ro, r["name"].as_str().unwrap_or("?"));
-        let old_pass = before.as_ref().and_then(|b| b["pass"].as_bool());
-        if old_pass != r["pass"].as_bool() {
-            out.push(status_change(before.as_ref(), Some(r)));
+    for r in rn {
+        let before = find_requirement(ro, &r.name);
+        if before.map(|b| b.pass) != Some(r.pass) {
+            out.push(status_change(before, Some(r)));
         }
     }
-    for r in
-        ro.iter().filter(|r| find_requirement(&rn, r["name"].as_str().unwrap_or("?")).is_none())
-    {
+    for r in ro.iter().filter(|r| find_requirement(rn, &r.name).is_none()) {
         out.push(status_change(Some(r), None));
     }
     out
 }
 
-fn status_change(old: Option<&Value>, new: Option<&Value>) -> StatusChange {
-    let name = old.or(new).and_then(|r| r["name"].as_str()).unwrap_or("?");
+fn status_change(
+    old: Option<&RequirementResults>,
+    new: Option<&RequirementResults>,
+) -> StatusChange {
+    let name = old.or(new).map_or("?", |r| r.name.as_str());
     StatusChange {
         requirement: name.to_string(),
-        old_pass: old.and_then(|r| r["pass"].as_bool()),
-        new_pass: new.and_then(|r| r["pass"].as_bool()),
+        old_pass: old.map(|r| r.pass),
+        new_pass: new.map(|r| r.pass),
         old_value: old.map_or("—".into(), requirement_value),
         new_value: new.map_or("—".into(), requirement_value),
         old_limit: old.map_or("—".into(), requirement_limit),
@@ -502,68 +494,76 @@ fn pole_text(re: f64, im: f64) -> String {
 
 /// The figures a reviewer follows in a results document, keyed by what they are (a part,
 /// a node, a requirement), so revisions that add or drop parts still line up.
-fn figures(v: &Value) -> Vec<Figure> {
+fn figures(doc: &ResultsDocument) -> Vec<Figure> {
     let mut out = Vec::new();
     let mut push = |key: String, label: String, unit: &'static str, value: Option<f64>| {
         if let Some(value) = value.filter(|x| x.is_finite()) {
             out.push(Figure { key, label, unit, value, shown: None });
         }
     };
-    let at = |p: &str| v.pointer(p).and_then(Value::as_f64);
-    push("gain".into(), "mid-band gain |A|".into(), "", at("/midband/gain").map(f64::abs));
-    push("gain_db".into(), "mid-band gain".into(), "dB", at("/midband/gain_db"));
-    for (key, label, unit) in [
-        ("/midband/input_resistance_ohm", "R_in", "Ω"),
-        ("/midband/output_resistance_ohm", "R_out", "Ω"),
-        ("/high/f3db_hz", "f_H exact", "Hz"),
-        ("/high/octc/f_estimate_hz", "f_H time-constant estimate", "Hz"),
-        ("/high/second_order_f_estimate_hz", "f_H second-order estimate", "Hz"),
-        ("/low/f3db_hz", "f_L exact", "Hz"),
-        ("/low/sctc/f_estimate_hz", "f_L time-constant estimate", "Hz"),
+    let (m, h, l) = (&doc.midband, &doc.high, &doc.low);
+    push("gain".into(), "mid-band gain |A|".into(), "", Some(m.gain.abs()));
+    push("gain_db".into(), "mid-band gain".into(), "dB", m.gain_db);
+    for (key, label, unit, value) in [
+        ("/midband/input_resistance_ohm", "R_in", "Ω", m.input_resistance_ohm),
+        ("/midband/output_resistance_ohm", "R_out", "Ω", m.output_resistance_ohm),
+        ("/high/f3db_hz", "f_H exact", "Hz", h.f3db_hz),
+        ("/high/octc/f_estimate_hz", "f_H time-constant estimate", "Hz", h.octc.f_estimate_hz),
+        (
+            "/high/second_order_f_estimate_hz",
+            "f_H second-order estimate",
+            "Hz",
+            h.second_order_f_estimate_hz,
+        ),
+        ("/low/f3db_hz", "f_L exact", "Hz", l.f3db_hz),
+        ("/low/sctc/f_estimate_hz", "f_L time-constant estimate", "Hz", l.sctc.f_estimate_hz),
     ] {
-        push(key.into(), label.into(), unit, at(key));
+        push(key.into(), label.into(), unit, value);
     }
-    if let Some(nodes) = v.pointer("/operating_point/nodes").and_then(Value::as_object) {
-        for (k, x) in nodes.iter().filter(|(k, _)| !k.contains('.') && *k != "source") {
-            push(format!("node {k}"), format!("V({k})"), "V", x.as_f64());
+    if let Some(op) = &doc.operating_point {
+        for (k, x) in op.nodes.iter().filter(|(k, _)| !k.contains('.') && *k != "source") {
+            push(format!("node {k}"), format!("V({k})"), "V", Some(*x));
+        }
+        for d in &op.devices {
+            let part = &d.part;
+            let current = match &d.bias {
+                DeviceBiasResults::Bjt { ic_a, .. } => *ic_a,
+                DeviceBiasResults::Mosfet { id_a, .. } => *id_a,
+            };
+            push(
+                format!("device {part} current"),
+                format!("{part} bias current"),
+                "A",
+                Some(current),
+            );
+            push(
+                format!("device {part} power"),
+                format!("{part} dissipation"),
+                "W",
+                Some(d.power_w),
+            );
         }
     }
-    for d in v.pointer("/operating_point/devices").and_then(Value::as_array).into_iter().flatten() {
-        let part = d["part"].as_str().unwrap_or("?");
-        let current = d.get("ic_a").or(d.get("id_a")).and_then(Value::as_f64);
-        push(format!("device {part} current"), format!("{part} bias current"), "A", current);
-        push(
-            format!("device {part} power"),
-            format!("{part} dissipation"),
-            "W",
-            d["power_w"].as_f64(),
-        );
+    let high_taus = h.octc.caps.iter().map(|c| ("high", &c.part, c.tau_s));
+    let low_taus = l.sctc.caps.iter().map(|c| ("low", &c.part, c.tau_s));
+    for (side, part, tau) in high_taus.chain(low_taus) {
+        push(format!("tau {side} {part}"), format!("τ {part}"), "s", Some(tau));
     }
-    for (side, list) in [("high", "octc"), ("low", "sctc")] {
-        let caps = v.pointer(&format!("/{side}/{list}/caps")).and_then(Value::as_array);
-        for c in caps.into_iter().flatten() {
-            let part = c["part"].as_str().unwrap_or("?");
-            push(format!("tau {side} {part}"), format!("τ {part}"), "s", c["tau_s"].as_f64());
-        }
-    }
-    for r in v.pointer("/requirements").and_then(Value::as_array).into_iter().flatten() {
-        let name = r["name"].as_str().unwrap_or("?");
+    for r in &doc.requirements {
+        let name = &r.name;
         let label = format!("yield, {}", name.replace('_', " "));
-        push(format!("yield {name}"), label, "%", r["yield_fraction"].as_f64());
+        push(format!("yield {name}"), label, "%", r.yield_fraction);
     }
-    let all = at("/tolerance/monte_carlo/yield_all");
+    let all = doc.tolerance.as_ref().and_then(|t| t.monte_carlo.as_ref()).and_then(|m| m.yield_all);
     push("yield all".into(), "yield, all requirements".into(), "%", all);
     out
 }
 
 /// The poles of a results document, a conjugate pair once, by distance from the origin.
-fn poles(v: &Value) -> Vec<(f64, f64)> {
-    let mut poles: Vec<(f64, f64)> = v
-        .pointer("/poles")
-        .and_then(Value::as_array)
-        .into_iter()
-        .flatten()
-        .filter_map(|p| Some((p["re_hz"].as_f64()?, p["im_hz"].as_f64()?)))
+fn poles(list: &[RootResults]) -> Vec<(f64, f64)> {
+    let mut poles: Vec<(f64, f64)> = list
+        .iter()
+        .map(|p| (p.re_hz, p.im_hz))
         .filter(|(re, im)| *im >= 0.0 && re.hypot(*im) > 0.0)
         .collect();
     poles.sort_by(|a, b| a.0.hypot(a.1).total_cmp(&b.0.hypot(b.1)));
@@ -574,7 +574,7 @@ fn poles(v: &Value) -> Vec<(f64, f64)> {
 /// nearest to it in log |p| (closest pairs first), so a pole that appears or goes away does
 /// not shift the pairing of the others. Later poles are numbered by |p|; an earlier pole
 /// left unpaired is listed as gone.
-fn pole_figures(old: &Value, new: &Value) -> (Vec<Figure>, Vec<Figure>) {
+fn pole_figures(old: &[RootResults], new: &[RootResults]) -> (Vec<Figure>, Vec<Figure>) {
     let (a, b) = (poles(old), poles(new));
     let magnitude = |p: &(f64, f64)| p.0.hypot(p.1);
     let mut pairs: Vec<(f64, usize, usize)> = Vec::new();
@@ -745,18 +745,17 @@ pub fn render(
 mod tests {
     use super::*;
 
-    fn with_poles(poles: &[(f64, f64)]) -> Value {
-        let list: Vec<Value> = poles
+    fn with_poles(poles: &[(f64, f64)]) -> Vec<RootResults> {
+        poles
             .iter()
             .flat_map(|&(re, im)| {
-                let mut v = vec![serde_json::json!({"re_hz": re, "im_hz": im})];
+                let mut v = vec![RootResults { re_hz: re, im_hz: im }];
                 if im != 0.0 {
-                    v.push(serde_json::json!({"re_hz": re, "im_hz": -im}));
+                    v.push(RootResults { re_hz: re, im_hz: -im });
                 }
                 v
             })
-            .collect();
-        serde_json::json!({ "poles": list })
+            .collect()
     }
 
     #[test]

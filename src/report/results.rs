@@ -1,24 +1,35 @@
-//! results.json: the machine-readable results contract (keys snake_case, SI units in the
-//! name; a value that does not exist is null, never NaN).
+//! results.json: the machine-readable results contract.
+//!
+//! Every key is written out here, in its own documented struct, so the contract changes only
+//! when this file does (and CHANGELOG.md says so): keys in snake_case with the SI unit in the
+//! name, a value that does not exist is null (or, for the few device keys that belong to one
+//! kind of transistor, absent), never NaN. The structs read back too: `tauweave diff` parses an
+//! earlier results.json into the same [`ResultsDocument`] it builds from a fresh review.
+//!
+//! In: a design and its [`Review`]. Out: a [`ResultsDocument`] and its JSON text. Enumerated
+//! values (regions, sets, distributions) are carried as the names the analysis gives them.
 
-use serde::Serialize;
+use std::collections::BTreeMap;
 
-use crate::analysis::Analysis;
-use crate::analysis::requirements::RequirementCheck;
-use crate::design::Design;
-use crate::report::cautions::Caution;
+use serde::{Deserialize, Serialize};
+
+use crate::analysis::tolerance::{MonteCarlo, Study};
+use crate::analysis::{Analysis, DeviceReport, RootHz};
+use crate::circuit::operating_point::DeviceState;
+use crate::design::{Design, Tolerance};
+use crate::review::Review;
 
 /// The tool that wrote the results.
-#[derive(Clone, Debug, Serialize)]
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct Tool {
     /// `tauweave`.
-    pub name: &'static str,
+    pub name: String,
     /// Its version.
-    pub version: &'static str,
+    pub version: String,
 }
 
 /// Which design the results are for.
-#[derive(Clone, Debug, Serialize)]
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct DesignId {
     /// Design id.
     pub id: String,
@@ -31,11 +42,11 @@ pub struct DesignId {
 }
 
 /// Where the results came from.
-#[derive(Clone, Debug, Serialize)]
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct Provenance {
     /// SHA-256 of the design file's bytes, hex.
     pub design_sha256: String,
-    /// SHA-256 of the template, hex (null until templates render).
+    /// SHA-256 of the template, hex.
     pub template_sha256: Option<String>,
     /// The Monte Carlo seed.
     pub seed: u64,
@@ -54,64 +65,468 @@ pub struct Hashes {
     pub template_name: Option<String>,
 }
 
-/// The whole results document.
-#[derive(Clone, Debug, Serialize)]
-pub struct ResultsDocument<'a> {
+/// `operating_point`: the bias.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct OperatingPointResults {
+    /// True when the bias settled.
+    pub converged: bool,
+    /// `newton`, `gmin_stepping` or `source_stepping`.
+    pub method: Option<String>,
+    /// Newton iterations.
+    pub iterations: usize,
+    /// Largest KCL imbalance, A.
+    pub kcl_residual_a: f64,
+    /// kT/q, V.
+    pub thermal_voltage_v: f64,
+    /// Node voltages by name, V (internal nodes such as `Q1.b'` included).
+    pub nodes: BTreeMap<String, f64>,
+    /// Each transistor.
+    pub devices: Vec<DeviceResults>,
+}
+
+/// One transistor at its operating point.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct DeviceResults {
+    /// Designator.
+    pub part: String,
+    /// `kind` (`bjt` or `mosfet`), region, currents and voltages.
+    #[serde(flatten)]
+    pub bias: DeviceBiasResults,
+    /// Dissipation, W.
+    pub power_w: f64,
+    /// The model's dissipation rating, W.
+    pub max_power_w: Option<f64>,
+    /// Small-signal parameters at this bias.
+    pub small_signal: SmallSignalResults,
+}
+
+/// A transistor's region, currents and voltages, by kind. Signs are real: a pnp has
+/// negative V_CE and I_C.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub enum DeviceBiasResults {
+    /// A bipolar transistor.
+    Bjt {
+        /// `active`, `saturation`, `cutoff` or `reverse`.
+        region: String,
+        /// Collector current, A.
+        ic_a: f64,
+        /// Base current, A.
+        ib_a: f64,
+        /// V_BE, V.
+        vbe_v: f64,
+        /// V_CE, V.
+        vce_v: f64,
+        /// V_CB, V.
+        vcb_v: f64,
+    },
+    /// A MOSFET.
+    Mosfet {
+        /// `saturation`, `triode` or `cutoff`.
+        region: String,
+        /// Drain current, A.
+        id_a: f64,
+        /// V_GS, V.
+        vgs_v: f64,
+        /// V_DS, V.
+        vds_v: f64,
+        /// Overdrive |V_GS| − |V_th|, V.
+        overdrive_v: f64,
+    },
+}
+
+/// Small-signal parameters of one transistor; keys of the other kind are absent.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct SmallSignalResults {
+    /// Designator.
+    pub part: String,
+    /// Transconductance, S.
+    pub gm_s: f64,
+    /// Output resistance, Ω (null when infinite).
+    pub ro_ohm: Option<f64>,
+    /// Bipolar: rπ, Ω.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub rpi_ohm: Option<f64>,
+    /// Bipolar: base resistance r_x, Ω.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub rx_ohm: Option<f64>,
+    /// Bipolar: small-signal current gain gm·rπ.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub beta_ac: Option<f64>,
+    /// Bipolar: Cπ, F.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cpi_f: Option<f64>,
+    /// Bipolar: Cμ, F.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cmu_f: Option<f64>,
+    /// Bipolar: the transit time used, s.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub transit_time_s: Option<f64>,
+    /// Bipolar: f_T at this bias, Hz.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub ft_hz: Option<f64>,
+    /// MOSFET: C_gs, F.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cgs_f: Option<f64>,
+    /// MOSFET: C_gd, F.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cgd_f: Option<f64>,
+    /// MOSFET: C_db, F.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cdb_f: Option<f64>,
+}
+
+/// One capacitor and the set it joined.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct CapacitorResults {
+    /// Designator (`C1`, `Q1.cmu`, `load.c`).
+    pub part: String,
+    /// Capacitance, F.
+    pub c_f: f64,
+    /// `low` (shorted at mid-band) or `high` (open at mid-band).
+    pub set: String,
+    /// Why: `role`, `value_rule` or `device`.
+    pub reason: String,
+}
+
+/// `midband`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct MidbandResults {
+    /// The frequency taken as mid-band, Hz.
+    pub frequency_hz: f64,
+    /// Signed voltage gain from the source EMF to the output.
+    pub gain: f64,
+    /// 20·log10|gain|.
+    pub gain_db: Option<f64>,
+    /// Looking into the input, source resistance excluded, Ω.
+    pub input_resistance_ohm: Option<f64>,
+    /// Looking into the output, load excluded, Ω.
+    pub output_resistance_ohm: Option<f64>,
+}
+
+/// One high-frequency capacitor's open-circuit time constant.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct OpenCircuitResults {
+    /// Designator.
+    pub part: String,
+    /// Capacitance, F.
+    pub c_f: f64,
+    /// Resistance it sees with the other high capacitors open, Ω.
+    pub r_ohm: f64,
+    /// R·C, s.
+    pub tau_s: f64,
+    /// Share of Σ τ.
+    pub share: f64,
+    /// R over the sum of the resistances from each terminal to ground (null when both
+    /// terminals are grounded at small signal).
+    pub miller_factor: Option<f64>,
+    /// Resistance from the first terminal to ground, Ω.
+    pub r_a_ohm: f64,
+    /// Resistance from the second terminal to ground, Ω.
+    pub r_b_ohm: f64,
+}
+
+/// `high.octc`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct OctcResults {
+    /// Each high-frequency capacitor.
+    pub caps: Vec<OpenCircuitResults>,
+    /// Σ τ, s.
+    pub sum_tau_s: Option<f64>,
+    /// 1/(2π Σ τ), Hz.
+    pub f_estimate_hz: Option<f64>,
+}
+
+/// Relative errors of the estimates: (estimate − exact)/exact.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct EstimateErrorResults {
+    /// Of the time-constant estimate.
+    pub time_constant: Option<f64>,
+    /// Of the second-order estimate (high side only).
+    pub second_order: Option<f64>,
+    /// Of the root-sum-square of the poles and zeros.
+    pub root_sum_square: Option<f64>,
+}
+
+/// `high.peaking`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct PeakingResults {
+    /// Highest |H| over |H_mid|, dB.
+    pub peak_db: f64,
+    /// Where, Hz.
+    pub at_hz: f64,
+    /// Crossings of the −3 dB level on the sweep.
+    pub crossings: usize,
+}
+
+/// A pole or zero, s/2π in Hz.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct RootResults {
+    /// Real part, Hz.
+    pub re_hz: f64,
+    /// Imaginary part, Hz.
+    pub im_hz: f64,
+}
+
+/// `high`: the upper cut-off and its estimates.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct HighResults {
+    /// Exact upper −3 dB frequency, Hz.
+    pub f3db_hz: Option<f64>,
+    /// b1 = Σ τ, s.
+    pub b1_s: Option<f64>,
+    /// b2, s².
+    pub b2_s2: Option<f64>,
+    /// |p2/p1| of the high-frequency network's two lowest poles.
+    pub dominance_ratio: Option<f64>,
+    /// Open-circuit time constants.
+    pub octc: OctcResults,
+    /// −3 dB of 1/(1 + b1 s + b2 s²), Hz.
+    pub second_order_f_estimate_hz: Option<f64>,
+    /// 1/√(Σ 1/f_p² − 2 Σ 1/f_z²), Hz.
+    pub rss_f_estimate_hz: Option<f64>,
+    /// Each estimate's error.
+    pub estimate_errors: EstimateErrorResults,
+    /// Peaking above the mid-band gain, when there is any.
+    pub peaking: Option<PeakingResults>,
+    /// Poles of the high-frequency network (low capacitors shorted).
+    pub poles_hz: Vec<RootResults>,
+    /// Its zeros.
+    pub zeros_hz: Vec<RootResults>,
+}
+
+/// One low-frequency capacitor's short-circuit time constant.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct ShortCircuitResults {
+    /// Designator (`C1`, or `C4 ∥ C5` for capacitors in parallel).
+    pub part: String,
+    /// Capacitance, F.
+    pub c_f: f64,
+    /// Resistance it sees with the other low capacitors shorted, Ω.
+    pub r_ohm: f64,
+    /// R·C, s.
+    pub tau_s: f64,
+    /// Share of Σ 1/τ.
+    pub share: f64,
+}
+
+/// `low.sctc`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct SctcResults {
+    /// Each low-frequency capacitor.
+    pub caps: Vec<ShortCircuitResults>,
+    /// Σ 1/(2π τ), Hz.
+    pub f_estimate_hz: Option<f64>,
+}
+
+/// `low`: the lower cut-off and its estimates.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct LowResults {
+    /// Exact lower −3 dB frequency, Hz.
+    pub f3db_hz: Option<f64>,
+    /// Short-circuit time constants.
+    pub sctc: SctcResults,
+    /// |p1/p2| of the low network's two highest poles.
+    pub dominance_ratio: Option<f64>,
+    /// √(Σ f_p² − 2 Σ f_z²), Hz.
+    pub rss_f_estimate_hz: Option<f64>,
+    /// Each estimate's error.
+    pub estimate_errors: EstimateErrorResults,
+    /// Poles of the low-frequency network (high capacitors open).
+    pub poles_hz: Vec<RootResults>,
+    /// Its zeros.
+    pub zeros_hz: Vec<RootResults>,
+}
+
+/// One requirement checked.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct RequirementResults {
+    /// `midband_gain`, `upper_cutoff`, `lower_cutoff`, `input_resistance`,
+    /// `output_resistance`.
+    pub name: String,
+    /// SI unit of the value (`""` for a gain in V/V).
+    pub unit: String,
+    /// Lowest allowed.
+    pub min: Option<f64>,
+    /// Highest allowed.
+    pub max: Option<f64>,
+    /// The computed value (|gain| for the gain).
+    pub value: Option<f64>,
+    /// True when within the limits at nominal values.
+    pub pass: bool,
+    /// Relative distance to the nearer limit, positive inside.
+    pub margin: Option<f64>,
+    /// The value at the tolerance corner toward the limit.
+    pub corner: Option<f64>,
+    /// True when that corner is within the limits.
+    pub corner_pass: Option<bool>,
+    /// Monte Carlo yield of this requirement.
+    pub yield_fraction: Option<f64>,
+}
+
+/// A lever's tolerance.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct ToleranceResults {
+    /// Half-width as a fraction of |nominal|.
+    pub fraction: f64,
+    /// `uniform` or `gaussian` (the tolerance is then 3σ).
+    pub distribution: String,
+    /// True when written as an absolute amount.
+    pub absolute: bool,
+}
+
+/// One lever and its sensitivities.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct LeverResults {
+    /// `R1`, `signal.resistance`, `vcc`, `temperature`, `RFN1.beta`.
+    pub name: String,
+    /// Nominal value, SI units.
+    pub nominal: f64,
+    /// Its tolerance, when it has one.
+    pub tolerance: Option<ToleranceResults>,
+    /// `resistance`, `capacitance`, `inverse_capacitance`, `inductance`,
+    /// `transconductance` or `other`.
+    pub class: String,
+    /// S = ∂ln y/∂ln x of each figure, in the order of `sensitivity.figures`.
+    pub s: Vec<Option<f64>>,
+}
+
+/// `sensitivity`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct SensitivityResults {
+    /// Relative step of the central differences.
+    pub step: f64,
+    /// Figure names, the order of each lever's `s`.
+    pub figures: Vec<String>,
+    /// Every lever.
+    pub levers: Vec<LeverResults>,
+}
+
+/// The worst case of one figure.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct WorstCaseResults {
+    /// The figure (`upper_cutoff`, `Q1.bias_current`, …).
+    pub figure: String,
+    /// Nominal value.
+    pub nominal: f64,
+    /// Linearised bound Σ|S_i|·t_i, relative.
+    pub linear_bound: f64,
+    /// Value at the corner that raises it, evaluated in full.
+    pub high_corner: Option<f64>,
+    /// Value at the corner that lowers it.
+    pub low_corner: Option<f64>,
+}
+
+/// The spread of one figure over the Monte Carlo runs.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct SpreadResults {
+    /// The figure.
+    pub figure: String,
+    /// Mean.
+    pub mean: f64,
+    /// Standard deviation (n − 1).
+    pub std_dev: f64,
+    /// 1st, 5th, 50th, 95th and 99th percentiles.
+    pub percentiles: [f64; 5],
+    /// Runs in which the figure existed.
+    pub count: usize,
+}
+
+/// `tolerance.monte_carlo`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct MonteCarloResults {
+    /// Runs.
+    pub runs: u32,
+    /// The seed.
+    pub seed: u64,
+    /// Indices of the runs whose evaluation failed.
+    pub failed_runs: Vec<u64>,
+    /// Spread of each figure.
+    pub spreads: Vec<SpreadResults>,
+    /// `[requirement name, fraction of all runs that pass]`.
+    pub yields: Vec<(String, f64)>,
+    /// Fraction of all runs that pass every requirement.
+    pub yield_all: Option<f64>,
+}
+
+/// `tolerance`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct ToleranceSummary {
+    /// Linearised bound and evaluated corners of each figure.
+    pub worst_case: Vec<WorstCaseResults>,
+    /// Monte Carlo, when it ran.
+    pub monte_carlo: Option<MonteCarloResults>,
+}
+
+/// One caution.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct CautionResults {
+    /// Stable key (`close_poles`, `hazardous_voltage`, …).
+    pub key: String,
+    /// `computed` or `standard`.
+    pub kind: String,
+    /// The caution.
+    pub text: String,
+}
+
+/// The whole results document: results.json.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct ResultsDocument {
     /// The tool.
     pub tool: Tool,
     /// The design.
     pub design: DesignId,
     /// Provenance.
     pub provenance: Provenance,
-    /// Everything computed.
-    #[serde(flatten)]
-    pub analysis: &'a Analysis,
-    /// Each requirement at nominal values, at the tolerance corners and its yield.
-    pub requirements: &'a [RequirementCheck],
-    /// Normalised sensitivities of every figure to every lever (null without a study).
-    pub sensitivity: Option<Sensitivity<'a>>,
-    /// Worst case and Monte Carlo (null without a study).
-    pub tolerance: Option<ToleranceSummary<'a>>,
+    /// The bias (null for a design without transistors).
+    pub operating_point: Option<OperatingPointResults>,
+    /// Every capacitor and its set.
+    pub capacitors: Vec<CapacitorResults>,
+    /// Mid-band gain and port resistances.
+    pub midband: MidbandResults,
+    /// The upper cut-off.
+    pub high: HighResults,
+    /// The lower cut-off.
+    pub low: LowResults,
+    /// Poles of the whole network.
+    pub poles: Vec<RootResults>,
+    /// Zeros from the source to the output.
+    pub zeros: Vec<RootResults>,
+    /// True when the network has inductors (the time constants treat them as wires).
+    pub has_inductors: bool,
+    /// Each requirement at nominal values, at its tolerance corner and its yield.
+    pub requirements: Vec<RequirementResults>,
+    /// Normalised sensitivities of every figure to every lever.
+    pub sensitivity: Option<SensitivityResults>,
+    /// Worst case and Monte Carlo.
+    pub tolerance: Option<ToleranceSummary>,
     /// The cautions that apply.
-    pub cautions: &'a [Caution],
-}
-
-/// The `sensitivity` key.
-#[derive(Clone, Debug, Serialize)]
-pub struct Sensitivity<'a> {
-    /// Relative step of the central differences.
-    pub step: f64,
-    /// Figure names, the order of each lever's `s`.
-    pub figures: &'a [String],
-    /// Every lever with S = ∂ln y/∂ln x for each figure.
-    pub levers: &'a [crate::analysis::tolerance::LeverSensitivity],
-}
-
-/// The `tolerance` key.
-#[derive(Clone, Debug, Serialize)]
-pub struct ToleranceSummary<'a> {
-    /// Linearised bound and evaluated corners of each figure.
-    pub worst_case: &'a [crate::analysis::tolerance::WorstCase],
-    /// Monte Carlo, when it ran.
-    pub monte_carlo: Option<&'a crate::analysis::tolerance::MonteCarlo>,
+    pub cautions: Vec<CautionResults>,
 }
 
 /// The tool's identity.
 pub fn tool() -> Tool {
-    Tool { name: "tauweave", version: env!("CARGO_PKG_VERSION") }
+    Tool { name: "tauweave".into(), version: env!("CARGO_PKG_VERSION").into() }
 }
 
-/// Builds the document for `design` whose file bytes hash to `design_sha256`.
-pub fn document<'a>(
+/// The name serde gives a unit-like enum value (`active`, `gaussian`, `value_rule`): the
+/// analysis types own their names, the contract carries them as text.
+fn name_of(value: &impl Serialize) -> String {
+    match serde_json::to_value(value) {
+        Ok(serde_json::Value::String(s)) => s,
+        _ => String::new(),
+    }
+}
+
+/// Builds the document of `review` for `design`, whose file hashes to `hashes.design`.
+pub fn document(
     design: &Design,
-    analysis: &'a Analysis,
-    requirements: &'a [RequirementCheck],
-    cautions: &'a [Caution],
-    study: Option<&'a crate::analysis::tolerance::Study>,
+    review: &Review,
     hashes: Hashes,
     design_name: &str,
-) -> ResultsDocument<'a> {
+) -> ResultsDocument {
     let m = &design.meta;
+    let a = &review.analysis;
     ResultsDocument {
         tool: tool(),
         design: DesignId {
@@ -129,18 +544,252 @@ pub fn document<'a>(
                 None => format!("tauweave render {design_name}"),
             },
         },
-        analysis,
-        requirements,
-        sensitivity: study.map(|s| Sensitivity {
-            step: s.step,
-            figures: &s.figures,
-            levers: &s.levers,
+        operating_point: a.operating_point.as_ref().map(|op| OperatingPointResults {
+            converged: op.converged,
+            method: op.method.as_ref().map(name_of),
+            iterations: op.iterations,
+            kcl_residual_a: op.kcl_residual_a,
+            thermal_voltage_v: op.thermal_voltage_v,
+            nodes: op.nodes.clone(),
+            devices: op.devices.iter().map(device).collect(),
         }),
-        tolerance: study.map(|s| ToleranceSummary {
-            worst_case: &s.worst_case,
-            monte_carlo: s.monte_carlo.as_ref(),
+        capacitors: a
+            .capacitors
+            .iter()
+            .map(|c| CapacitorResults {
+                part: c.part.clone(),
+                c_f: c.c_f,
+                set: name_of(&c.set),
+                reason: name_of(&c.reason),
+            })
+            .collect(),
+        midband: MidbandResults {
+            frequency_hz: a.midband.frequency_hz,
+            gain: a.midband.gain,
+            gain_db: a.midband.gain_db,
+            input_resistance_ohm: a.midband.input_resistance_ohm,
+            output_resistance_ohm: a.midband.output_resistance_ohm,
+        },
+        high: high(a),
+        low: low(a),
+        poles: roots(&a.poles),
+        zeros: roots(&a.zeros),
+        has_inductors: a.has_inductors,
+        requirements: review
+            .requirements
+            .iter()
+            .map(|c| RequirementResults {
+                name: c.name.into(),
+                unit: c.unit.into(),
+                min: c.min,
+                max: c.max,
+                value: c.value,
+                pass: c.pass,
+                margin: c.margin,
+                corner: c.corner,
+                corner_pass: c.corner_pass,
+                yield_fraction: c.yield_fraction,
+            })
+            .collect(),
+        sensitivity: Some(sensitivity(&review.study)),
+        tolerance: Some(ToleranceSummary {
+            worst_case: review
+                .study
+                .worst_case
+                .iter()
+                .map(|w| WorstCaseResults {
+                    figure: w.figure.clone(),
+                    nominal: w.nominal,
+                    linear_bound: w.linear_bound,
+                    high_corner: w.high_corner,
+                    low_corner: w.low_corner,
+                })
+                .collect(),
+            monte_carlo: review.study.monte_carlo.as_ref().map(monte_carlo),
         }),
-        cautions,
+        cautions: review
+            .cautions
+            .iter()
+            .map(|c| CautionResults {
+                key: c.key.into(),
+                kind: c.kind.into(),
+                text: c.text.clone(),
+            })
+            .collect(),
+    }
+}
+
+fn device(d: &DeviceReport) -> DeviceResults {
+    let b = &d.bias;
+    let bias = match &b.state {
+        DeviceState::Bjt { region, ic_a, ib_a, vbe_v, vce_v, vcb_v, .. } => {
+            DeviceBiasResults::Bjt {
+                region: name_of(region),
+                ic_a: *ic_a,
+                ib_a: *ib_a,
+                vbe_v: *vbe_v,
+                vce_v: *vce_v,
+                vcb_v: *vcb_v,
+            }
+        }
+        DeviceState::Mosfet { region, id_a, vgs_v, vds_v, overdrive_v, .. } => {
+            DeviceBiasResults::Mosfet {
+                region: name_of(region),
+                id_a: *id_a,
+                vgs_v: *vgs_v,
+                vds_v: *vds_v,
+                overdrive_v: *overdrive_v,
+            }
+        }
+    };
+    let s = &d.small_signal;
+    DeviceResults {
+        part: b.part.clone(),
+        bias,
+        power_w: b.power_w,
+        max_power_w: b.max_power_w,
+        small_signal: SmallSignalResults {
+            part: s.part.clone(),
+            gm_s: s.gm_s,
+            ro_ohm: s.ro_ohm,
+            rpi_ohm: s.rpi_ohm,
+            rx_ohm: s.rx_ohm,
+            beta_ac: s.beta_ac,
+            cpi_f: s.cpi_f,
+            cmu_f: s.cmu_f,
+            transit_time_s: s.transit_time_s,
+            ft_hz: s.ft_hz,
+            cgs_f: s.cgs_f,
+            cgd_f: s.cgd_f,
+            cdb_f: s.cdb_f,
+        },
+    }
+}
+
+fn roots(list: &[RootHz]) -> Vec<RootResults> {
+    list.iter().map(|r| RootResults { re_hz: r.re_hz, im_hz: r.im_hz }).collect()
+}
+
+fn high(a: &Analysis) -> HighResults {
+    let h = &a.high;
+    let e = &h.estimate_errors;
+    HighResults {
+        f3db_hz: h.f3db_hz,
+        b1_s: h.b1_s,
+        b2_s2: h.b2_s2,
+        dominance_ratio: h.dominance_ratio,
+        octc: OctcResults {
+            caps: h
+                .octc
+                .caps
+                .iter()
+                .map(|c| OpenCircuitResults {
+                    part: c.part.clone(),
+                    c_f: c.c_f,
+                    r_ohm: c.r_ohm,
+                    tau_s: c.tau_s,
+                    share: c.share,
+                    miller_factor: c.miller_factor,
+                    r_a_ohm: c.r_a_ohm,
+                    r_b_ohm: c.r_b_ohm,
+                })
+                .collect(),
+            sum_tau_s: h.octc.sum_tau_s,
+            f_estimate_hz: h.octc.f_estimate_hz,
+        },
+        second_order_f_estimate_hz: h.second_order_f_estimate_hz,
+        rss_f_estimate_hz: h.rss_f_estimate_hz,
+        estimate_errors: EstimateErrorResults {
+            time_constant: e.time_constant,
+            second_order: e.second_order,
+            root_sum_square: e.root_sum_square,
+        },
+        peaking: h.peaking.as_ref().map(|p| PeakingResults {
+            peak_db: p.peak_db,
+            at_hz: p.at_hz,
+            crossings: p.crossings,
+        }),
+        poles_hz: roots(&h.poles_hz),
+        zeros_hz: roots(&h.zeros_hz),
+    }
+}
+
+fn low(a: &Analysis) -> LowResults {
+    let l = &a.low;
+    let e = &l.estimate_errors;
+    LowResults {
+        f3db_hz: l.f3db_hz,
+        sctc: SctcResults {
+            caps: l
+                .sctc
+                .caps
+                .iter()
+                .map(|c| ShortCircuitResults {
+                    part: c.part.clone(),
+                    c_f: c.c_f,
+                    r_ohm: c.r_ohm,
+                    tau_s: c.tau_s,
+                    share: c.share,
+                })
+                .collect(),
+            f_estimate_hz: l.sctc.f_estimate_hz,
+        },
+        dominance_ratio: l.dominance_ratio,
+        rss_f_estimate_hz: l.rss_f_estimate_hz,
+        estimate_errors: EstimateErrorResults {
+            time_constant: e.time_constant,
+            second_order: e.second_order,
+            root_sum_square: e.root_sum_square,
+        },
+        poles_hz: roots(&l.poles_hz),
+        zeros_hz: roots(&l.zeros_hz),
+    }
+}
+
+fn tolerance(t: &Tolerance) -> ToleranceResults {
+    ToleranceResults {
+        fraction: t.fraction,
+        distribution: name_of(&t.distribution),
+        absolute: t.absolute,
+    }
+}
+
+fn sensitivity(study: &Study) -> SensitivityResults {
+    SensitivityResults {
+        step: study.step,
+        figures: study.figures.clone(),
+        levers: study
+            .levers
+            .iter()
+            .map(|l| LeverResults {
+                name: l.lever.name.clone(),
+                nominal: l.lever.nominal,
+                tolerance: l.lever.tolerance.as_ref().map(tolerance),
+                class: name_of(&l.lever.class),
+                s: l.s.clone(),
+            })
+            .collect(),
+    }
+}
+
+fn monte_carlo(mc: &MonteCarlo) -> MonteCarloResults {
+    MonteCarloResults {
+        runs: mc.runs,
+        seed: mc.seed,
+        failed_runs: mc.failed_runs.clone(),
+        spreads: mc
+            .spreads
+            .iter()
+            .map(|s| SpreadResults {
+                figure: s.figure.clone(),
+                mean: s.mean,
+                std_dev: s.std_dev,
+                percentiles: s.percentiles,
+                count: s.count,
+            })
+            .collect(),
+        yields: mc.yields.clone(),
+        yield_all: mc.yield_all,
     }
 }
 
@@ -150,4 +799,38 @@ pub fn to_json(doc: &ResultsDocument) -> String {
         serde_json::to_string_pretty(doc).unwrap_or_else(|e| format!("{{\"error\": \"{e}\"}}"));
     s.push('\n');
     s
+}
+
+/// Reads a results.json back.
+pub fn from_json(bytes: &[u8]) -> Result<ResultsDocument, serde_json::Error> {
+    serde_json::from_slice(bytes)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A results.json read back is the document written: the contract's types carry every
+    /// key both ways, the optional device keys and the nulls included.
+    #[test]
+    fn a_written_document_reads_back_unchanged() {
+        for name in ["rx-preamp-ce", "post-amp-cs"] {
+            let text = std::fs::read_to_string(format!("designs/{name}.yaml")).unwrap();
+            let design = crate::design::load(&text).design.unwrap();
+            let options = crate::review::ReviewOptions::quiet(&design, Some(20));
+            let review = crate::review::review(&design, &options).unwrap();
+            let hashes = Hashes { design: "0".repeat(64), template: None, template_name: None };
+            let doc = document(&design, &review, hashes, "x.yaml");
+            let json = to_json(&doc);
+            let back = from_json(json.as_bytes()).unwrap();
+            assert_eq!(back, doc, "{name}");
+            assert_eq!(to_json(&back), json, "{name}");
+            // The keys of the other kind of transistor are absent, not null.
+            let value: serde_json::Value = serde_json::from_str(&json).unwrap();
+            let ss = &value["operating_point"]["devices"][0]["small_signal"];
+            let bipolar = name == "rx-preamp-ce";
+            assert_eq!(ss.get("cpi_f").is_some(), bipolar, "{name}");
+            assert_eq!(ss.get("cgs_f").is_some(), !bipolar, "{name}");
+        }
+    }
 }

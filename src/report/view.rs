@@ -1,20 +1,21 @@
 //! The view model: what a template sees. This struct is the template API — its field names
 //! are stable, and renaming one is an interface change (docs/templates.md lists them).
 //!
-//! It holds the whole results document (every key of results.json, same names) plus the
-//! design's own description and the computed explanation. Free text from the design (title,
+//! It holds the whole results document (every key of results.json, same names, the same
+//! report-owned types) plus the design's own description and the computed explanation. Free text from the design (title,
 //! purpose, notes) is escaped here ([`escape`]), so it can never become markup, a block or a
 //! plot.
 
 use serde::Serialize;
 
-use crate::analysis::Analysis;
-use crate::analysis::requirements::RequirementCheck;
 use crate::design::Design;
 use crate::notation::si;
-use crate::report::cautions::Caution;
 use crate::report::explain::Explanation;
-use crate::report::results::{Provenance, ResultsDocument, Sensitivity, ToleranceSummary, Tool};
+use crate::report::results::{
+    CapacitorResults, CautionResults, HighResults, LowResults, MidbandResults,
+    OperatingPointResults, Provenance, RequirementResults, ResultsDocument, RootResults,
+    SensitivityResults, ToleranceSummary, Tool,
+};
 use crate::report::template::MARKER;
 
 /// Escapes text so it reads as text in Markdown and HTML, inline and block alike.
@@ -113,7 +114,9 @@ pub struct DesignView {
     pub output: String,
 }
 
-/// The template API: the keys of results.json, with `design` extended and escaped.
+/// The template API: the keys of results.json, with `design` extended and escaped and the
+/// explanation added. Every field is a report-owned type ([`crate::report::results`]), so
+/// the template sees exactly the results contract, nothing internal.
 #[derive(Clone, Debug, Serialize)]
 pub struct View<'a> {
     /// The tool.
@@ -122,17 +125,30 @@ pub struct View<'a> {
     pub design: DesignView,
     /// Provenance.
     pub provenance: &'a Provenance,
-    /// Every computed value (operating_point, midband, high, low, poles, zeros, …).
-    #[serde(flatten)]
-    pub analysis: &'a Analysis,
+    /// The bias (absent for a design without transistors).
+    pub operating_point: &'a Option<OperatingPointResults>,
+    /// Every capacitor and its set.
+    pub capacitors: &'a [CapacitorResults],
+    /// Mid-band gain and port resistances.
+    pub midband: &'a MidbandResults,
+    /// The upper cut-off.
+    pub high: &'a HighResults,
+    /// The lower cut-off.
+    pub low: &'a LowResults,
+    /// Poles of the whole network.
+    pub poles: &'a [RootResults],
+    /// Zeros from the source to the output.
+    pub zeros: &'a [RootResults],
+    /// True when the network has inductors.
+    pub has_inductors: bool,
     /// Requirements at nominal values, corners and yields.
-    pub requirements: &'a [RequirementCheck],
-    /// Sensitivities (absent without a study).
-    pub sensitivity: Option<&'a Sensitivity<'a>>,
-    /// Worst case and Monte Carlo (absent without a study).
-    pub tolerance: Option<&'a ToleranceSummary<'a>>,
+    pub requirements: &'a [RequirementResults],
+    /// Sensitivities.
+    pub sensitivity: &'a Option<SensitivityResults>,
+    /// Worst case and Monte Carlo.
+    pub tolerance: &'a Option<ToleranceSummary>,
     /// Cautions.
-    pub cautions: &'a [Caution],
+    pub cautions: &'a [CautionResults],
     /// Explanation paragraphs (Markdown).
     pub explanation: &'a Explanation,
 }
@@ -141,18 +157,25 @@ impl<'a> View<'a> {
     /// The view of a results document.
     pub fn new(
         design: &Design,
-        doc: &'a ResultsDocument<'a>,
+        doc: &'a ResultsDocument,
         explanation: &'a Explanation,
     ) -> View<'a> {
         View {
             tool: &doc.tool,
             design: design_view(design),
             provenance: &doc.provenance,
-            analysis: doc.analysis,
-            requirements: doc.requirements,
-            sensitivity: doc.sensitivity.as_ref(),
-            tolerance: doc.tolerance.as_ref(),
-            cautions: doc.cautions,
+            operating_point: &doc.operating_point,
+            capacitors: &doc.capacitors,
+            midband: &doc.midband,
+            high: &doc.high,
+            low: &doc.low,
+            poles: &doc.poles,
+            zeros: &doc.zeros,
+            has_inductors: doc.has_inductors,
+            requirements: &doc.requirements,
+            sensitivity: &doc.sensitivity,
+            tolerance: &doc.tolerance,
+            cautions: &doc.cautions,
             explanation,
         }
     }

@@ -19,3 +19,28 @@ pub fn atomic(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
     tmp.persist(path).map_err(|e| e.error)?;
     Ok(())
 }
+
+/// A file that could not be written.
+#[derive(Debug)]
+pub struct WriteError {
+    /// The file.
+    pub path: std::path::PathBuf,
+    /// Why.
+    pub source: std::io::Error,
+}
+
+impl std::fmt::Display for WriteError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "cannot write `{}`: {}", self.path.display(), self.source)
+    }
+}
+
+/// Writes every file into `dir` (paths relative to it), each atomically; stops at the first
+/// that fails.
+pub fn all(dir: &Path, files: &[crate::report::OutputFile]) -> Result<(), WriteError> {
+    for f in files {
+        let path = dir.join(&f.path);
+        atomic(&path, &f.bytes).map_err(|source| WriteError { path, source })?;
+    }
+    Ok(())
+}

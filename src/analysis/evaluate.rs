@@ -1,0 +1,528 @@
+//! The evaluation core: one design in, its figures out, computed one way for every caller —
+//! the nominal review, each sensitivity step, each worst-case corner and each Monte Carlo run.
+//!
+//! In: a validated [`Design`]. Out: [`Metrics`] (the lean figures tolerance work follows) or
+//! the whole [`Analysis`], both from the same [`Core`], so the two can never disagree; or one
+//! [`AnalysisError`] per failure, with one message. Computes only what is asked for: the
+//! figures stop after the exact cut-offs, the full analysis goes on to the poles and zeros of
+//! three networks, the sweep and the remaining estimates. No I/O, no formatting, no global
+//! settings: faer is built without its thread pool (Cargo.toml), so every factorisation runs
+//! on the calling thread and the same design gives the same bits on any machine.
+
+use std::f64::consts::PI;
+
+use crate::analysis::linear::Factor;
+use crate::analysis::mna::{self, Assembly, CapState, Mna};
+use crate::analysis::poles::{self, Root};
+use crate::analysis::response::{self, SweepPoint, Transfer};
+use crate::analysis::time_constants::{self, CapRef, OpenCircuit, ShortCircuitCap};
+use crate::analysis::{
+    Analysis, AnalysisError, CapacitorClass, DeviceReport, EstimateErrors, High, Low, Metrics,
+    Midband, Octc, OperatingPointReport, Peaking, RootHz, Sctc,
+};
+use crate::circuit::netlist::{CapSet, Netlist};
+use crate::circuit::operating_point::{self, DeviceState, OperatingPoint};
+use crate::circuit::small_signal::{self, Linear, LinearNetwork, SmallSignal};
+use crate::design::{AnalysisSettings, Design};
+
+/// Everything both depths of evaluation share: the bias, the mid-band network and its
+/// solution, both time-constant sums and the exact cut-offs.
+struct Core {
+    net: Netlist,
+    op: Option<OperatingPoint>,
+    small: Vec<SmallSignal>,
+    lin: LinearNetwork,
+    gain: f64,
+    input_resistance: Option<f64>,
+    output_resistance: Option<f64>,
+    high_caps: Vec<CapRef>,
+    octc: OpenCircuit,
+    sctc_caps: Vec<ShortCircuitCap>,
+    f_high_est: Option<f64>,
+    f_low_est: Option<f64>,
+    frequency_hz: f64,
+    full: Mna,
+    transfer: Transfer,
+    has_inductors: bool,
+    f_high: Option<f64>,
+    f_low: Option<f64>,
+}
+
+/// The lean evaluation tolerance work repeats: operating point, mid-band, the time-constant
+/// estimates and the exact cut-offs — the same numbers [`analyze`] gives, without the sweep
+/// and the eigenvalues.
+pub fn metrics(design: &Design) -> Result<Metrics, AnalysisError> {
+    Ok(core(design)?.metrics())
+}
+
+/// The whole analysis of a design at its nominal values.
+pub fn analyze(design: &Design) -> Result<Analysis, AnalysisError> {
+    core(design)?.complete(&design.analysis)
+}
+
+/// The shared part of every evaluation.
+fn core(design: &Design) -> Result<Core, AnalysisError> {
+    let net = Netlist::from_design(design);
+    let op = if net.has_devices() {
+        Some(operating_point::solve(&net).map_err(|e| AnalysisError {
+            help: format!(
+                "check the bias network around `{}` (resistor values, supply voltages) and the \
+                 model's saturation current and gain",
+                e.device.as_deref().unwrap_or(&e.node)
+            ),
+            place: e.device.as_ref().map(|d| format!("parts.{d}")),
+            message: e.message,
+        })?)
+    } else {
+        None
+    };
+    let (lin, small) = small_signal::linearize(&net, op.as_ref());
+    let state_mid = |i| match cap_set(&lin, i) {
+        Some(CapSet::Low) => CapState::Short,
+        Some(CapSet::High) => CapState::Open,
+        None => CapState::Present,
+    };
+    let mid = mna::assemble(&lin, state_mid, Assembly::default());
+    let g = Factor::new(&mid.g).map_err(|s| singular(&lin, &mid, s.unknown, "mid-band"))?;
+    let x = g.solve(&mid.b);
+    let gain: f64 = x.iter().zip(&mid.out).map(|(a, b)| a * b).sum();
+    let (input_resistance, output_resistance) = port_resistances(&lin, &x, state_mid);
+    let (high_caps, low_caps) = cap_refs(&lin, &mid);
+    let octc = time_constants::open_circuit(&mid, &g, &high_caps);
+    let (sctc_caps, inverse_tau_sum) = time_constants::short_circuit(&mid, &g, &low_caps);
+    let f_high_est = (octc.b1 > 0.0).then(|| 1.0 / (2.0 * PI * octc.b1));
+    let f_low_est = (inverse_tau_sum > 0.0).then(|| inverse_tau_sum / (2.0 * PI));
+    let settings = &design.analysis;
+    let frequency_hz = midband_frequency(f_low_est, f_high_est, settings);
+    let full = mna::assemble(&lin, |_| CapState::Present, Assembly::default());
+    let transfer = Transfer::new(&full);
+    let has_inductors = lin.elements.iter().any(|e| matches!(e, Linear::Inductor { .. }));
+    let sides = (!high_caps.is_empty() || has_inductors, !low_caps.is_empty() || has_inductors);
+    let (f_high, f_low) =
+        exact_cutoffs(&transfer, gain, frequency_hz, settings, sides, (f_low_est, f_high_est));
+    Ok(Core {
+        net,
+        op,
+        small,
+        lin,
+        gain,
+        input_resistance,
+        output_resistance,
+        high_caps,
+        octc,
+        sctc_caps,
+        f_high_est,
+        f_low_est,
+        frequency_hz,
+        full,
+        transfer,
+        has_inductors,
+        f_high,
+        f_low,
+    })
+}
+
+impl Core {
+    fn metrics(&self) -> Metrics {
+        let bias = self
+            .op
+            .as_ref()
+            .map(|o| o.devices.iter().map(|d| bias_current(&d.state)).collect())
+            .unwrap_or_default();
+        Metrics {
+            gain: self.gain.abs(),
+            f_high: self.f_high,
+            f_low: self.f_low,
+            r_in: self.input_resistance,
+            r_out: self.output_resistance,
+            bias,
+        }
+    }
+
+    /// The full analysis: the core's figures with the poles and zeros of the whole, the
+    /// high-frequency and the low-frequency networks, the sweep, the second-order and
+    /// root-sum-square estimates, their errors and any peaking.
+    fn complete(self, settings: &AnalysisSettings) -> Result<Analysis, AnalysisError> {
+        let roots = Roots::of(&self.lin, &self.full)?;
+        let frequencies = response::grid(
+            settings.sweep_start_hz,
+            settings.sweep_stop_hz,
+            settings.points_per_decade,
+        );
+        let sweep = response::sweep(&self.transfer, &frequencies);
+        let peaking = peaking(&sweep, self.gain.abs());
+        let has_high = !self.high_caps.is_empty();
+        let b1 = self.octc.b1;
+        let second_order =
+            time_constants::second_order_omega(b1, self.octc.b2).map(|w| w / (2.0 * PI));
+        let (rss_high, rss_low) = (roots.rss_high(), roots.rss_low());
+        let (f_high, f_low) = (self.f_high, self.f_low);
+        let capacitors = capacitor_classes(&self.lin);
+        let operating_point = self.operating_point_report();
+        Ok(Analysis {
+            operating_point,
+            capacitors,
+            midband: Midband {
+                frequency_hz: self.frequency_hz,
+                gain: self.gain,
+                gain_db: (self.gain != 0.0).then(|| 20.0 * self.gain.abs().log10()),
+                input_resistance_ohm: self.input_resistance,
+                output_resistance_ohm: self.output_resistance,
+            },
+            high: High {
+                f3db_hz: f_high,
+                b1_s: has_high.then_some(b1),
+                b2_s2: has_high.then_some(self.octc.b2),
+                dominance_ratio: (roots.high_poles.len() >= 2)
+                    .then(|| roots.high_poles[1].norm() / roots.high_poles[0].norm()),
+                octc: Octc {
+                    caps: self.octc.caps,
+                    sum_tau_s: has_high.then_some(b1),
+                    f_estimate_hz: self.f_high_est,
+                },
+                second_order_f_estimate_hz: second_order,
+                rss_f_estimate_hz: rss_high,
+                estimate_errors: EstimateErrors {
+                    time_constant: relative_error(self.f_high_est, f_high),
+                    second_order: relative_error(second_order, f_high),
+                    root_sum_square: relative_error(rss_high, f_high),
+                },
+                peaking,
+                poles_hz: hz(&roots.high_poles),
+                zeros_hz: hz(&roots.high_zeros),
+            },
+            low: Low {
+                f3db_hz: f_low,
+                sctc: Sctc { caps: self.sctc_caps, f_estimate_hz: self.f_low_est },
+                dominance_ratio: roots.low_dominance(),
+                rss_f_estimate_hz: rss_low,
+                estimate_errors: EstimateErrors {
+                    time_constant: relative_error(self.f_low_est, f_low),
+                    second_order: None,
+                    root_sum_square: relative_error(rss_low, f_low),
+                },
+                poles_hz: hz(&roots.low_poles),
+                zeros_hz: hz(&roots.low_zeros),
+            },
+            poles: hz(&roots.poles),
+            zeros: hz(&roots.zeros),
+            sweep,
+            has_inductors: self.has_inductors,
+        })
+    }
+
+    /// The bias as reported, node voltages by name (ground left out).
+    fn operating_point_report(&self) -> Option<OperatingPointReport> {
+        let op = self.op.as_ref()?;
+        Some(OperatingPointReport {
+            converged: op.converged,
+            method: Some(op.method),
+            iterations: op.iterations,
+            kcl_residual_a: op.kcl_residual_a,
+            thermal_voltage_v: op.thermal_voltage_v,
+            nodes: self
+                .net
+                .nodes
+                .iter()
+                .cloned()
+                .zip(op.node_voltages.iter().copied())
+                .skip(1)
+                .collect(),
+            devices: op
+                .devices
+                .iter()
+                .cloned()
+                .zip(self.small.iter().cloned())
+                .map(|(bias, small_signal)| DeviceReport { bias, small_signal })
+                .collect(),
+        })
+    }
+}
+
+/// |I_C| or |I_D|, A.
+pub(crate) fn bias_current(state: &DeviceState) -> f64 {
+    match state {
+        DeviceState::Bjt { ic_a, .. } => ic_a.abs(),
+        DeviceState::Mosfet { id_a, .. } => id_a.abs(),
+    }
+}
+
+/// (estimate − exact)/exact, when both exist.
+fn relative_error(estimate: Option<f64>, exact: Option<f64>) -> Option<f64> {
+    match (estimate, exact) {
+        (Some(e), Some(x)) if x > 0.0 => Some((e - x) / x),
+        _ => None,
+    }
+}
+
+/// Poles and zeros of the whole network, of the high-frequency network (low capacitors
+/// shorted) and of the low-frequency network (high capacitors open); inductors are wires in
+/// the two partial networks, as in the time constants.
+struct Roots {
+    poles: Vec<Root>,
+    zeros: Vec<Root>,
+    high_poles: Vec<Root>,
+    high_zeros: Vec<Root>,
+    low_poles: Vec<Root>,
+    low_zeros: Vec<Root>,
+}
+
+impl Roots {
+    fn of(lin: &LinearNetwork, full: &Mna) -> Result<Roots, AnalysisError> {
+        let partial = Assembly { inductors_shorted: true, ..Assembly::default() };
+        let high_net = mna::assemble(
+            lin,
+            |i| {
+                if cap_set(lin, i) == Some(CapSet::Low) {
+                    CapState::Short
+                } else {
+                    CapState::Present
+                }
+            },
+            partial,
+        );
+        let low_net = mna::assemble(
+            lin,
+            |i| {
+                if cap_set(lin, i) == Some(CapSet::High) {
+                    CapState::Open
+                } else {
+                    CapState::Present
+                }
+            },
+            partial,
+        );
+        let (poles, zeros) = poles_and_zeros(full)?;
+        let (high_poles, high_zeros) = poles_and_zeros(&high_net)?;
+        let (low_poles, low_zeros) = poles_and_zeros(&low_net)?;
+        Ok(Roots { poles, zeros, high_poles, high_zeros, low_poles, low_zeros })
+    }
+
+    /// 1/√(Σ 1/f_p² − 2 Σ 1/f_z²) of the high network, Hz.
+    fn rss_high(&self) -> Option<f64> {
+        let inverse_square = |r: &Root| 1.0 / (r.norm() / (2.0 * PI)).powi(2);
+        let s: f64 = self.high_poles.iter().map(inverse_square).sum::<f64>()
+            - 2.0
+                * self
+                    .high_zeros
+                    .iter()
+                    .filter(|z| z.norm() > 0.0)
+                    .map(inverse_square)
+                    .sum::<f64>();
+        (s > 0.0 && !self.high_poles.is_empty()).then(|| 1.0 / s.sqrt())
+    }
+
+    /// √(Σ f_p² − 2 Σ f_z²) of the low network, Hz.
+    fn rss_low(&self) -> Option<f64> {
+        let square = |r: &Root| (r.norm() / (2.0 * PI)).powi(2);
+        let s: f64 = self.low_poles.iter().map(square).sum::<f64>()
+            - 2.0 * self.low_zeros.iter().map(square).sum::<f64>();
+        (s > 0.0 && !self.low_poles.is_empty()).then(|| s.sqrt())
+    }
+
+    /// |p1/p2| of the low network's two highest poles.
+    fn low_dominance(&self) -> Option<f64> {
+        let n = self.low_poles.len();
+        (n >= 2).then(|| self.low_poles[n - 1].norm() / self.low_poles[n - 2].norm())
+    }
+}
+
+/// The poles of `m` and its zeros from the source to the output (zeros within rounding of
+/// the origin snapped onto it).
+fn poles_and_zeros(m: &Mna) -> Result<(Vec<Root>, Vec<Root>), AnalysisError> {
+    let qz_failed = || AnalysisError {
+        message: "the QZ eigenvalue iteration did not converge".into(),
+        help: "this is unusual; check for capacitances or resistances many decades apart".into(),
+        place: None,
+    };
+    let poles = poles::poles(m).ok_or_else(qz_failed)?;
+    let zeros = poles::snap_origin(poles::zeros(m).ok_or_else(qz_failed)?, &poles);
+    Ok((poles, zeros))
+}
+
+fn hz(roots: &[Root]) -> Vec<RootHz> {
+    roots.iter().map(RootHz::from).collect()
+}
+
+fn cap_set(lin: &LinearNetwork, i: usize) -> Option<CapSet> {
+    match &lin.elements[i] {
+        Linear::Capacitor { set, .. } => Some(*set),
+        _ => None,
+    }
+}
+
+/// Every capacitor of the network with the set it joined and why.
+fn capacitor_classes(lin: &LinearNetwork) -> Vec<CapacitorClass> {
+    lin.elements
+        .iter()
+        .filter_map(|el| match el {
+            Linear::Capacitor { name, c, set, reason, .. } => {
+                Some(CapacitorClass { part: name.clone(), c_f: *c, set: *set, reason: *reason })
+            }
+            _ => None,
+        })
+        .collect()
+}
+
+fn singular(lin: &LinearNetwork, m: &Mna, unknown: usize, what: &str) -> AnalysisError {
+    let node = if unknown < m.nodes { Some(lin.nodes[unknown + 1].clone()) } else { None };
+    let floating = floating_nodes(lin, m);
+    let named = if floating.is_empty() { node.into_iter().collect() } else { floating };
+    if named.is_empty() {
+        return AnalysisError {
+            message: format!(
+                "the {what} network is singular: voltage-defined elements (voltage amplifiers, \
+                 supplies, shorted coupling capacitors) form a loop or drive one node pair twice"
+            ),
+            help: "check that no two voltage amplifiers or supplies set the same nodes, and that \
+                   coupling and bypass capacitors do not close a loop with them"
+                .into(),
+            place: None,
+        };
+    }
+    AnalysisError {
+        message: format!(
+            "the {what} network is singular: {} has no path to ground there",
+            named.iter().map(|n| format!("`{n}`")).collect::<Vec<_>>().join(", ")
+        ),
+        help: "a node reached only through open capacitors or current sources floats; give it \
+               a resistive path, or check the capacitor roles"
+            .into(),
+        place: None,
+    }
+}
+
+/// Nodes whose row and column of G are empty.
+fn floating_nodes(lin: &LinearNetwork, m: &Mna) -> Vec<String> {
+    (0..m.nodes)
+        .filter(|&r| (0..m.size()).all(|c| m.g[(r, c)] == 0.0 && m.g[(c, r)] == 0.0))
+        .map(|r| lin.nodes[r + 1].clone())
+        .collect()
+}
+
+/// The exact −3 dB points: searched outward from mid-band (or, when |H| is already below
+/// the level there, from the sweep's highest point) and refined by Brent's method.
+fn exact_cutoffs(
+    transfer: &Transfer,
+    gain: f64,
+    frequency_hz: f64,
+    settings: &AnalysisSettings,
+    (has_high, has_low): (bool, bool),
+    (low_estimate, high_estimate): (Option<f64>, Option<f64>),
+) -> (Option<f64>, Option<f64>) {
+    let level = gain.abs() / std::f64::consts::SQRT_2;
+    let (start_hz, stop_hz) = (settings.sweep_start_hz, settings.sweep_stop_hz);
+    let start = match transfer.at(frequency_hz) {
+        Some(h) if h.norm() >= level => frequency_hz,
+        _ => response::grid(start_hz, stop_hz, settings.points_per_decade)
+            .into_iter()
+            .filter_map(|f| transfer.at(f).map(|h| (f, h.norm())))
+            .max_by(|a, b| a.1.total_cmp(&b.1))
+            .map_or(frequency_hz, |p| p.0),
+    };
+    let per_decade = settings.points_per_decade.max(20);
+    let search = |upward: bool, limit: f64, estimate: Option<f64>| {
+        response::crossing(transfer, start, level, upward, per_decade, limit, estimate)
+    };
+    let f_high = has_high.then(|| search(true, stop_hz * 1e3, high_estimate)).flatten();
+    let f_low = has_low.then(|| search(false, start_hz / 1e3, low_estimate)).flatten();
+    (f_high, f_low)
+}
+
+/// R_in (source resistance excluded) and R_out (load excluded) of the mid-band network,
+/// given its solution `x` for a unit source EMF.
+fn port_resistances(
+    lin: &LinearNetwork,
+    x: &[f64],
+    state_mid: impl Fn(usize) -> CapState,
+) -> (Option<f64>, Option<f64>) {
+    let v = |node: usize| Mna::row(node).map_or(0.0, |r| x[r]);
+    let (sp, rs) = lin.source_terminal;
+    let (emf, ret) = lin.source;
+    let i_in = (v(emf) - v(sp)) / rs;
+    let v_in = v(sp) - v(ret);
+    let input = (i_in.abs() > 0.0).then(|| v_in / i_in).filter(|r| r.is_finite());
+    let unloaded =
+        mna::assemble(lin, state_mid, Assembly { without_load: true, ..Assembly::default() });
+    let output = Factor::new(&unloaded.g).ok().and_then(|f| {
+        let mut inject = vec![0.0; unloaded.size()];
+        let (op, on) = lin.output;
+        if let Some(r) = Mna::row(op) {
+            inject[r] += 1.0;
+        }
+        if let Some(r) = Mna::row(on) {
+            inject[r] -= 1.0;
+        }
+        let y = f.solve(&inject);
+        let r: f64 = y.iter().zip(&unloaded.out).map(|(a, b)| a * b).sum();
+        r.is_finite().then_some(r)
+    });
+    (input, output)
+}
+
+/// The high and low capacitors as time-constant references. Low capacitors in parallel
+/// (supplies taken as ground) act as one; one across a supply does nothing and is left out.
+fn cap_refs(lin: &LinearNetwork, mid: &Mna) -> (Vec<CapRef>, Vec<CapRef>) {
+    let mut high_caps = Vec::new();
+    let mut low_caps: Vec<CapRef> = Vec::new();
+    let mut low_keys: Vec<(usize, usize)> = Vec::new();
+    let mut rails = mna::Wires::new(lin.nodes.len());
+    for el in &lin.elements {
+        if let Linear::Grounded { node } = el {
+            rails.join(*node, 0);
+        }
+    }
+    for (i, el) in lin.elements.iter().enumerate() {
+        if let Linear::Capacitor { name, a, b, c, set, .. } = el {
+            let r = CapRef { name: name.clone(), c: *c, a: *a, b: *b, branch: mid.branch[i] };
+            match set {
+                CapSet::High => high_caps.push(r),
+                CapSet::Low => {
+                    let (ka, kb) = (rails.find(*a), rails.find(*b));
+                    let key = (ka.min(kb), ka.max(kb));
+                    if ka == kb {
+                        continue;
+                    }
+                    if let Some(k) = low_keys.iter().position(|x| *x == key) {
+                        let group = &mut low_caps[k];
+                        group.name = format!("{} ∥ {}", group.name, r.name);
+                        group.c += r.c;
+                        group.branch = group.branch.or(r.branch);
+                    } else {
+                        low_keys.push(key);
+                        low_caps.push(r);
+                    }
+                }
+            }
+        }
+    }
+    (high_caps, low_caps.into_iter().filter(|c| c.branch.is_some()).collect())
+}
+
+fn midband_frequency(low: Option<f64>, high: Option<f64>, settings: &AnalysisSettings) -> f64 {
+    match (low, high) {
+        (Some(l), Some(h)) => (l * h).sqrt(),
+        (None, Some(h)) => h / 100.0,
+        (Some(l), None) => l * 100.0,
+        (None, None) => (settings.sweep_start_hz * settings.sweep_stop_hz).sqrt(),
+    }
+}
+
+/// Peaking: |H| above |H_mid| by more than 0.01 dB anywhere on the sweep.
+fn peaking(sweep: &[SweepPoint], mid: f64) -> Option<Peaking> {
+    if mid <= 0.0 {
+        return None;
+    }
+    let mid_db = 20.0 * mid.log10();
+    let top = sweep.iter().max_by(|a, b| a.magnitude_db.total_cmp(&b.magnitude_db))?;
+    let level = mid_db - 20.0 * std::f64::consts::SQRT_2.log10();
+    let crossings = sweep
+        .windows(2)
+        .filter(|w| (w[0].magnitude_db - level).signum() != (w[1].magnitude_db - level).signum())
+        .count();
+    (top.magnitude_db - mid_db > 0.01).then_some(Peaking {
+        peak_db: top.magnitude_db - mid_db,
+        at_hz: top.frequency_hz,
+        crossings,
+    })
+}

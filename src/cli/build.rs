@@ -1,0 +1,282 @@
+//! The render pipeline in memory, shared by `render`, watch mode and `verify`: a loaded
+//! design and a template in, every file of the review out — the review (from
+//! [`crate::review`]), each format's exporter, report.pdf through typst (`pdf.rs`), the input
+//! copies and the manifest — and then, for `render` and watch mode, the folder written.
+//!
+//! Prints nothing: what a build has to say (the design's warnings, typst's warnings) comes
+//! back in [`Built::notes`] or inside the [`Failure`], for the command to print.
+
+use std::path::PathBuf;
+
+use clap::ValueEnum;
+
+use crate::cli::Failure;
+use crate::cli::pdf::{self, PdfProblem};
+use crate::cli::progress;
+use crate::cli::source::{LoadedFile, analysis_failure, load_file, template_source};
+use crate::report::export::{self, Exporter};
+use crate::report::manifest::{self, Recipe};
+use crate::report::template::TemplateSource;
+use crate::report::typst::Paper;
+use crate::report::{self, Inputs, OutputFile, write};
+
+/// Output formats.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum Format {
+    /// Everything: HTML, Markdown with plots, PDF (when typst is found), results.json, sweep.csv.
+    All,
+    /// report.html, self-contained (and results.json, sweep.csv).
+    Html,
+    /// report.md with plots/*.svg (and results.json, sweep.csv).
+    Md,
+    /// report.pdf through typst, with report.typ and plots/*.svg (and results.json, sweep.csv).
+    Pdf,
+    /// results.json and sweep.csv only.
+    Json,
+}
+
+impl Format {
+    /// Its name on the command line and in the manifest.
+    pub fn name(self) -> &'static str {
+        match self {
+            Format::All => "all",
+            Format::Html => "html",
+            Format::Md => "md",
+            Format::Pdf => "pdf",
+            Format::Json => "json",
+        }
+    }
+
+    /// The format named `name` (as in a manifest).
+    pub fn from_name(name: &str) -> Option<Format> {
+        Format::value_variants().iter().copied().find(|f| f.name() == name)
+    }
+
+    /// True when report.pdf is one of the outputs.
+    pub fn has_pdf(self) -> bool {
+        matches!(self, Format::All | Format::Pdf)
+    }
+
+    /// The exporters that write this format's files; results.json and sweep.csv come with
+    /// every format.
+    fn exporters(self, paper: Paper) -> Vec<Box<dyn Exporter>> {
+        let mut out: Vec<Box<dyn Exporter>> = vec![Box::new(export::Json), Box::new(export::Csv)];
+        if matches!(self, Format::All | Format::Md) {
+            out.push(Box::new(export::Markdown));
+        }
+        if matches!(self, Format::All | Format::Html) {
+            out.push(Box::new(export::Html));
+        }
+        if self.has_pdf() {
+            out.push(Box::new(export::Typst { paper }));
+        }
+        out
+    }
+}
+
+/// Paper sizes of the PDF packet.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum PaperSize {
+    /// ISO A4 (210 mm × 297 mm).
+    A4,
+    /// US Letter (8.5 in × 11 in).
+    UsLetter,
+}
+
+impl PaperSize {
+    /// Its name on the command line and in the manifest: typst's own name for the paper
+    /// (clap derives the same spelling for the flag).
+    pub fn name(self) -> &'static str {
+        self.paper().typst_name()
+    }
+
+    /// The paper named `name` (as in a manifest).
+    pub fn from_name(name: &str) -> Option<PaperSize> {
+        PaperSize::value_variants().iter().copied().find(|p| p.name() == name)
+    }
+
+    fn paper(self) -> Paper {
+        match self {
+            PaperSize::A4 => Paper::A4,
+            PaperSize::UsLetter => Paper::UsLetter,
+        }
+    }
+}
+
+/// How to build: what a rebuild must repeat (recorded in the manifest), and which typst.
+#[derive(Clone, Debug)]
+pub struct BuildOptions {
+    /// What to write.
+    pub format: Format,
+    /// Monte Carlo runs (default: the design's own).
+    pub runs: Option<u32>,
+    /// Paper of the PDF packet.
+    pub paper: PaperSize,
+    /// The typst program, when named on the command line.
+    pub typst: Option<PathBuf>,
+}
+
+/// A render in memory.
+pub struct Built {
+    /// The design id.
+    pub id: String,
+    /// Every file, the manifest and the input copies included, sorted by path.
+    pub files: Vec<OutputFile>,
+    /// Why report.pdf is not among them, when it was asked for.
+    pub pdf_problem: Option<PdfProblem>,
+    /// What the typst that made report.pdf said of its version (as in the manifest).
+    pub typst_version: Option<String>,
+    /// What to tell the user: the design's warnings, typst's warnings.
+    pub notes: String,
+}
+
+/// Everything a render writes, in memory. A missing or failing typst leaves the PDF out and
+/// says why in the result; nothing else is left out.
+pub fn build(
+    file: &LoadedFile,
+    template: &TemplateSource,
+    built_in: bool,
+    options: &BuildOptions,
+) -> Result<Built, Failure> {
+    let design = file.design()?;
+    let mut notes = file.report();
+    let runs = options.runs.unwrap_or(design.analysis.monte_carlo_runs);
+    let review = progress::review(design, runs)
+        .map_err(|e| Failure::Input(format!("{notes}{}", analysis_failure(file, &e))))?;
+    let inputs = Inputs {
+        design_name: &file.name,
+        design_text: &file.text,
+        template,
+        built_in_template: built_in,
+    };
+    let exporters = options.format.exporters(options.paper.paper());
+    let exporters: Vec<&dyn Exporter> = exporters.iter().map(Box::as_ref).collect();
+    let mut files = report::render(design, &review, &inputs, &exporters)
+        .map_err(|e| Failure::Input(format!("{notes}{}nothing was written\n", e.message)))?;
+    let mut pdf_problem = None;
+    let mut typst_version = None;
+    if options.format.has_pdf() {
+        match make_pdf(&files, options, &design.meta.date) {
+            Ok((version, pdf)) => {
+                if !pdf.warnings.is_empty() {
+                    notes.push_str(&format!(
+                        "typst warnings while making report.pdf:\n{}\n",
+                        pdf.warnings
+                    ));
+                }
+                typst_version = Some(version);
+                files.push(OutputFile { path: report::PDF_FILE.into(), bytes: pdf.bytes });
+                files.sort_by(|a, b| a.path.cmp(&b.path));
+            }
+            Err(problem) => pdf_problem = Some(problem),
+        }
+    }
+    let recipe = Recipe {
+        design_name: file.name.clone(),
+        template_name: (!built_in).then(|| template.name.clone()),
+        format: options.format.name().into(),
+        runs,
+        paper: options.paper.name().into(),
+        typst: typst_version.clone(),
+    };
+    let files = manifest::seal(files, recipe, &file.text, (!built_in).then_some(&*template.text));
+    Ok(Built { id: design.meta.id.clone(), files, pdf_problem, typst_version, notes })
+}
+
+/// report.pdf from the render's report.typ and plots, with the version of the typst that
+/// made it.
+fn make_pdf(
+    files: &[OutputFile],
+    options: &BuildOptions,
+    date: &str,
+) -> Result<(String, pdf::Compiled), PdfProblem> {
+    let typst = pdf::find(options.typst.as_deref())?;
+    let sources: Vec<OutputFile> = files
+        .iter()
+        .filter(|f| f.path == report::TYPST_FILE || f.path.starts_with("plots/"))
+        .cloned()
+        .collect();
+    let pdf = pdf::compile(&typst, &sources, date)?;
+    Ok((typst.version, pdf))
+}
+
+/// True when a PDF problem fails the render: always, except a missing typst when the PDF
+/// was one format among several (`all`).
+pub fn pdf_fatal(format: Format, problem: &PdfProblem) -> bool {
+    !(format == Format::All && matches!(problem, PdfProblem::Missing(_)))
+}
+
+/// A render to do: the files it reads as they are when it runs, and where it writes.
+#[derive(Clone, Debug)]
+pub struct RenderJob {
+    /// The design file.
+    pub design: PathBuf,
+    /// The user's template, if any.
+    pub template: Option<PathBuf>,
+    /// The output folder (default: out/<design id>/).
+    pub out: Option<PathBuf>,
+    /// How to build.
+    pub options: BuildOptions,
+}
+
+/// A render written to disk.
+pub struct Written {
+    /// The design id.
+    pub id: String,
+    /// The output folder.
+    pub dir: PathBuf,
+    /// The files written, paths relative to `dir`.
+    pub files: Vec<OutputFile>,
+    /// Why report.pdf was not made, when it was asked for and is missing.
+    pub pdf_problem: Option<PdfProblem>,
+    /// What the build had to say (warnings), printed before the summary.
+    pub notes: String,
+}
+
+impl Written {
+    /// `wrote report.html, … into DIR/`.
+    pub fn summary(&self) -> String {
+        let names: Vec<&str> = self.files.iter().map(|f| f.path.as_str()).collect();
+        format!("wrote {} into {}/", names.join(", "), self.dir.display())
+    }
+
+    /// The bytes written to `path` (relative to the output folder), if it was written.
+    pub fn file(&self, path: &str) -> Option<&[u8]> {
+        self.files.iter().find(|f| f.path == path).map(|f| f.bytes.as_slice())
+    }
+}
+
+/// One render: reads the design and the template as they are now, builds the review and
+/// writes every file into the output folder. Nothing is written when the build fails.
+pub fn render_and_write(job: &RenderJob) -> Result<Written, Failure> {
+    let file = load_file(&job.design)?;
+    let (template, built_in) = template_source(&job.template)?;
+    let built = build(&file, &template, built_in, &job.options)?;
+    let dir = job.out.clone().unwrap_or_else(|| PathBuf::from("out").join(&built.id));
+    write::all(&dir, &built.files).map_err(|e| Failure::input(e, None))?;
+    Ok(Written {
+        id: built.id,
+        dir,
+        files: built.files,
+        pdf_problem: built.pdf_problem,
+        notes: built.notes,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn paper_names_match_the_flag_and_round_trip() {
+        for p in PaperSize::value_variants() {
+            let flag = p.to_possible_value().unwrap();
+            assert_eq!(flag.get_name(), p.name());
+            assert_eq!(PaperSize::from_name(p.name()), Some(*p));
+        }
+        for f in Format::value_variants() {
+            assert_eq!(f.to_possible_value().unwrap().get_name(), f.name());
+            assert_eq!(Format::from_name(f.name()), Some(*f));
+        }
+    }
+}

@@ -1,0 +1,93 @@
+//! The library's entry point: a validated design in, its whole [`Review`] out — the
+//! analysis, the tolerance study (sensitivities, worst case, Monte Carlo), the requirement
+//! checks with their corners and yields, the cautions that apply and the computed
+//! explanation of both cut-offs.
+//!
+//! It drives the stages in order (analysis, then the report stage's cautions and
+//! explanation) and does no I/O: no files, no terminal, no clock. Every command of the CLI
+//! that needs a review (`check`, `render`, `diff`, `verify`, watch mode) gets it here, and
+//! every output format is written from it.
+
+use crate::analysis::requirements::{self, RequirementCheck};
+use crate::analysis::tolerance::{self, Study};
+use crate::analysis::{self, Analysis, AnalysisError};
+use crate::design::Design;
+use crate::report::cautions::{self, Caution};
+use crate::report::explain::{self, Explanation};
+
+/// How to review.
+pub struct ReviewOptions<'a> {
+    /// Monte Carlo runs (0 skips Monte Carlo; the sensitivities and worst case still run).
+    pub runs: u32,
+    /// Called now and then during Monte Carlo with the number of runs done.
+    pub progress: &'a (dyn Fn(u64) + Sync),
+}
+
+impl ReviewOptions<'_> {
+    /// The design's own Monte Carlo count, or `runs` when given, with no progress report.
+    pub fn quiet(design: &Design, runs: Option<u32>) -> ReviewOptions<'static> {
+        ReviewOptions { runs: runs.unwrap_or(design.analysis.monte_carlo_runs), progress: &|_| {} }
+    }
+}
+
+/// Everything the review says of a design.
+#[derive(Clone, Debug)]
+pub struct Review {
+    /// The nominal analysis.
+    pub analysis: Analysis,
+    /// Sensitivities, worst case and Monte Carlo.
+    pub study: Study,
+    /// Each requirement at nominal values, at its tolerance corner and as a yield.
+    pub requirements: Vec<RequirementCheck>,
+    /// The cautions that apply.
+    pub cautions: Vec<Caution>,
+    /// Which capacitor sets each cut-off, and which estimate to trust.
+    pub explanation: Explanation,
+}
+
+impl Review {
+    /// True when a requirement fails at nominal values.
+    pub fn failing(&self) -> bool {
+        self.requirements.iter().any(|c| !c.pass)
+    }
+
+    /// The names of the requirements that fail at nominal values.
+    pub fn failing_names(&self) -> Vec<&'static str> {
+        self.requirements.iter().filter(|c| !c.pass).map(|c| c.name).collect()
+    }
+}
+
+/// Reviews `design`: one nominal analysis, the tolerance study around it, the requirement
+/// checks, the cautions and the explanation.
+pub fn review(design: &Design, options: &ReviewOptions) -> Result<Review, AnalysisError> {
+    let analysis = analysis::analyze(design)?;
+    let nominal = analysis.metrics();
+    let names = analysis.device_names();
+    let study = tolerance::study(design, &nominal, &names, options.runs, options.progress);
+    let mut checks = requirements::check(&design.requirements, &analysis);
+    requirements::with_study(&mut checks, &study);
+    let cautions = cautions::cautions(design, &analysis);
+    let explanation = explain::explain(&analysis, Some(&study));
+    Ok(Review { analysis, study, requirements: checks, cautions, explanation })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The nominal figures the study starts from are read off the analysis; they must be the
+    /// numbers the lean evaluation computes for the same design, on every example.
+    #[test]
+    fn the_analysis_and_the_lean_evaluation_agree_on_every_example() {
+        for entry in std::fs::read_dir("designs").unwrap() {
+            let path = entry.unwrap().path();
+            let design = crate::design::load(&std::fs::read_to_string(&path).unwrap())
+                .design
+                .unwrap_or_else(|| panic!("{} reads", path.display()));
+            let full = analysis::analyze(&design).unwrap();
+            let lean = analysis::metrics(&design).unwrap();
+            assert_eq!(full.metrics(), lean, "{}", path.display());
+            assert!(lean.f_high.is_some() && lean.gain > 0.0, "{}", path.display());
+        }
+    }
+}
