@@ -1,14 +1,22 @@
 //! Engineering notation: SI-prefixed numbers for people to read.
 //!
 //! The one place floats become text outside results.json. In: a value in SI units and its
-//! unit symbol. Out: `4.7 kΩ`, `12.5 MHz`, `250 pF`; a value that is not finite prints as
-//! `—`, never `NaN`. No I/O.
+//! unit symbol. Out: `4.7 kΩ`, `12.5 MHz`, `250 pF`; a value that is absent or not finite
+//! prints as [`ABSENT`], never `NaN`. No I/O.
+
+/// What a value that does not exist (or is not finite) prints as, everywhere: an em dash.
+pub const ABSENT: &str = "—";
+
+/// [`ABSENT`] as a `String`: the default of `value.map_or_else(absent, |v| si(v, "Hz", 4))`.
+pub fn absent() -> String {
+    ABSENT.to_string()
+}
 
 /// Formats `value` with an SI prefix and `digits` significant digits, trailing zeros
 /// dropped: `si(47e3, "Ω", 3)` → `47 kΩ`.
 pub fn si(value: f64, unit: &str, digits: usize) -> String {
     if !value.is_finite() {
-        return "—".to_string();
+        return absent();
     }
     if value == 0.0 {
         let space = if unit.is_empty() { "" } else { " " };
@@ -54,7 +62,7 @@ fn round_significant(value: f64, digits: usize, magnitude: i32) -> f64 {
 /// Formats a plain number with `digits` significant digits, no prefix (`3.14`, `120`).
 pub fn plain(value: f64, digits: usize) -> String {
     if !value.is_finite() {
-        return "—".to_string();
+        return absent();
     }
     if value == 0.0 {
         return "0".to_string();
@@ -86,7 +94,7 @@ pub fn number(value: f64, digits: usize) -> String {
 /// Scientific notation for values whose unit takes no prefix (s², 1/V²): `1.083×10⁻¹⁴ s²`.
 pub fn scientific(value: f64, unit: &str, digits: usize) -> String {
     if !value.is_finite() {
-        return "—".to_string();
+        return absent();
     }
     if value == 0.0 {
         return format!("0 {unit}").trim_end().to_string();

@@ -526,3 +526,99 @@ fn peaking(sweep: &[SweepPoint], mid: f64) -> Option<Peaking> {
         crossings,
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::design;
+
+    fn load(parts: &str, signal: &str, output: &str) -> Design {
+        let text = format!(
+            "tauweave: 1\ndesign: {{id: t, title: core test, revision: A, date: 2026-12-01}}\n\
+             signal: {signal}\noutput: {output}\nparts:\n{parts}"
+        );
+        let loaded = design::load(&text);
+        loaded.design.unwrap_or_else(|| panic!("{:?}", loaded.diagnostics))
+    }
+
+    fn close(a: f64, b: f64, tolerance: f64, what: &str) {
+        assert!((a - b).abs() <= tolerance * b.abs(), "{what}: {a} vs {b}");
+    }
+
+    /// Source resistance R_s, a coupling capacitor C_c into a load R_L, and C_L across the
+    /// load: two poles three decades apart and a divider in the band.
+    fn band_pass() -> Design {
+        load(
+            "  CC: {kind: capacitor, value: 1 uF, between: [in, out], role: coupling}\n\
+             \x20 RL: {kind: resistor, value: 9k, between: [out, gnd]}\n\
+             \x20 CL: {kind: capacitor, value: 10 pF, between: [out, gnd], role: load}\n",
+            "{at: in, resistance: 1k}",
+            "{at: out}",
+        )
+    }
+
+    #[test]
+    fn a_divider_with_one_pole_each_side_matches_its_closed_forms() {
+        // Common practice (first-order RC sections): mid-band gain R_L/(R_s + R_L); the
+        // coupling capacitor sees R_s + R_L, so f_L,SC = 1/(2π(R_s + R_L)C_c); the load
+        // capacitor sees R_s ∥ R_L, so f_H,OC = 1/(2π(R_s ∥ R_L)C_L).
+        let a = analyze(&band_pass()).unwrap();
+        let (rs, rl, cc, cl) = (1e3, 9e3, 1e-6, 10e-12);
+        let pi2 = 2.0 * PI;
+        close(a.midband.gain, rl / (rs + rl), 1e-6, "gain");
+        close(a.low.sctc.f_estimate_hz.unwrap(), 1.0 / (pi2 * (rs + rl) * cc), 1e-12, "f_L est");
+        let parallel = rs * rl / (rs + rl);
+        close(a.high.octc.f_estimate_hz.unwrap(), 1.0 / (pi2 * parallel * cl), 1e-12, "f_H est");
+        // With the poles 10⁶ apart the exact −3 dB points sit on the single-pole values to
+        // about the square of their ratio (common practice: separated real poles).
+        close(a.low.f3db_hz.unwrap(), 1.0 / (pi2 * (rs + rl) * cc), 1e-5, "f_L exact");
+        close(a.high.f3db_hz.unwrap(), 1.0 / (pi2 * parallel * cl), 1e-5, "f_H exact");
+        assert_eq!(a.poles.len(), 2);
+        assert!(a.operating_point.is_none() && !a.has_inductors);
+    }
+
+    #[test]
+    fn the_lean_figures_are_the_full_analysis_figures() {
+        let d = band_pass();
+        assert_eq!(metrics(&d).unwrap(), analyze(&d).unwrap().metrics());
+    }
+
+    #[test]
+    fn a_singular_network_fails_with_one_message_at_either_depth() {
+        // Two ideal voltage amplifiers both set `out`: the nodal matrix is singular.
+        let d = load(
+            "  RL: {kind: resistor, value: 1k, between: [out, gnd]}\n\
+             \x20 RI: {kind: resistor, value: 1k, between: [in, gnd]}\n\
+             \x20 E1: {kind: voltage_amplifier, value: 2, between: [out, gnd], control: [in, gnd]}\n\
+             \x20 E2: {kind: voltage_amplifier, value: 3, between: [out, gnd], control: [in, gnd]}\n",
+            "{at: in, resistance: 50}",
+            "{at: out}",
+        );
+        let e = metrics(&d).unwrap_err();
+        assert!(e.message.contains("singular") && e.message.contains("mid-band"), "{e}");
+        assert_eq!(analyze(&d).unwrap_err(), e);
+    }
+
+    #[test]
+    fn relative_errors_need_both_values_and_a_positive_exact() {
+        assert_eq!(relative_error(Some(1.1), Some(1.0)), Some(0.10000000000000009));
+        assert_eq!(relative_error(None, Some(1.0)), None);
+        assert_eq!(relative_error(Some(1.0), None), None);
+        assert_eq!(relative_error(Some(1.0), Some(0.0)), None);
+    }
+
+    #[test]
+    fn the_midband_frequency_is_the_geometric_mean_of_the_estimates() {
+        let d = band_pass();
+        let s = &d.analysis;
+        assert_eq!(midband_frequency(Some(100.0), Some(1e6), s), 1e4);
+        assert_eq!(midband_frequency(None, Some(1e6), s), 1e4);
+        assert_eq!(midband_frequency(Some(100.0), None, s), 1e4);
+        close(
+            midband_frequency(None, None, s),
+            (s.sweep_start_hz * s.sweep_stop_hz).sqrt(),
+            1e-15,
+            "sweep centre",
+        );
+    }
+}

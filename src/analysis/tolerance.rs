@@ -355,3 +355,97 @@ pub fn study(
         monte_carlo: mc,
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::design::{Tolerance, load};
+
+    fn rc_low_pass(tolerance: &str) -> Design {
+        let text = format!(
+            "tauweave: 1\ndesign: {{id: t, title: tolerance test, revision: A, date: 2026-12-01}}\n\
+             signal: {{at: in, resistance: 1k}}\noutput: {{at: out}}\nparts:\n\
+             \x20 R1: {{kind: resistor, value: 9k, between: [in, out], {tolerance}}}\n\
+             \x20 RL: {{kind: resistor, value: 90k, between: [out, gnd]}}\n\
+             \x20 C1: {{kind: capacitor, value: 1n, between: [out, gnd], role: load, tolerance: 10 %}}\n"
+        );
+        load(&text).design.expect("the test design reads")
+    }
+
+    #[test]
+    fn percentiles_interpolate_between_order_statistics() {
+        // numpy.percentile's default ("linear") method, from its documentation: the value at
+        // rank p/100·(n − 1), interpolated between neighbours.
+        let x = [1.0, 2.0, 3.0, 4.0];
+        assert_eq!(percentile(&x, 0.0), 1.0);
+        assert_eq!(percentile(&x, 25.0), 1.75);
+        assert_eq!(percentile(&x, 50.0), 2.5);
+        assert_eq!(percentile(&x, 100.0), 4.0);
+        assert!(percentile(&[], 50.0).is_nan());
+    }
+
+    #[test]
+    fn a_run_draws_the_same_factors_every_time_and_stays_inside_a_uniform_tolerance() {
+        let d = rc_low_pass("tolerance: 5 %, distribution: uniform");
+        let all = levers(&d);
+        for run in 0..200 {
+            let a = draw(&all, 7, run);
+            assert_eq!(a, draw(&all, 7, run));
+            for (i, factor) in a {
+                let t: Tolerance = all[i].tolerance.unwrap();
+                if t.distribution == Distribution::Uniform {
+                    assert!((factor - 1.0).abs() <= t.fraction, "{factor}");
+                }
+            }
+        }
+        assert_ne!(draw(&all, 7, 0), draw(&all, 7, 1), "each run has its own stream");
+    }
+
+    #[test]
+    fn a_single_pole_moves_inversely_with_its_resistance_and_capacitance() {
+        // Common practice: f_H = 1/(2π R C) with R = (R_s + R1) ∥ R_L, so S(f_H, C1) = −1
+        // exactly, and the mid-band gain does not depend on C1 at all: S(gain, C1) = 0.
+        let d = rc_low_pass("tolerance: 1 %");
+        let all = levers(&d);
+        let nominal = metrics(&d).unwrap();
+        let figs = figures(&nominal);
+        let s = sensitivities(&d, &all, &figs);
+        let c1 = all.iter().position(|l| l.name == "C1").unwrap();
+        let k = figs.iter().position(|f| *f == Figure::FHigh).unwrap();
+        let g = figs.iter().position(|f| *f == Figure::Gain).unwrap();
+        assert!((s[c1][k].unwrap() + 1.0).abs() < 1e-6, "{:?}", s[c1][k]);
+        assert!(s[c1][g].unwrap().abs() < 1e-9, "{:?}", s[c1][g]);
+    }
+
+    #[test]
+    fn the_worst_corners_of_a_single_pole_take_every_part_to_its_limit() {
+        // Common practice: f_H = 1/(2π R C) with R = (R_s + R1) ∥ R_L. Raising any resistance
+        // or C1 lowers f_H, so the low corner has each toleranced lever at +t and the high
+        // corner each at −t; with one pole the exact −3 dB point is 1/(2π R C) itself.
+        let d = rc_low_pass("tolerance: 1 %");
+        let all = levers(&d);
+        let nominal = metrics(&d).unwrap();
+        let figs = figures(&nominal);
+        let s = sensitivities(&d, &all, &figs);
+        let w = worst_case(&d, &all, &figs, &s, &nominal, &[]);
+        let fh = w.iter().find(|w| w.figure == "upper_cutoff").unwrap();
+        let t = |name: &str| {
+            all.iter()
+                .find(|l| l.name == name)
+                .and_then(|l| l.tolerance)
+                .map_or(0.0, |t| t.fraction)
+        };
+        let f_at = |sign: f64| {
+            let k = |name: &str| 1.0 + sign * t(name);
+            let series = 1e3 * k("signal.resistance") + 9e3 * k("R1");
+            let load = 90e3 * k("RL");
+            let r = series * load / (series + load);
+            1.0 / (2.0 * std::f64::consts::PI * r * 1e-9 * k("C1"))
+        };
+        assert_eq!(t("C1"), 0.1);
+        assert_eq!(t("R1"), 0.01);
+        let low = fh.low_corner.unwrap() / f_at(1.0);
+        let high = fh.high_corner.unwrap() / f_at(-1.0);
+        assert!((low - 1.0).abs() < 1e-6 && (high - 1.0).abs() < 1e-6, "{low} {high}");
+    }
+}

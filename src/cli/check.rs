@@ -17,7 +17,7 @@ use crate::cli::source::{analysis_failure, load_file, plural};
 use crate::cli::table::{Align, render};
 use crate::cli::{Failure, Outcome};
 use crate::design::{Design, DeviceModel, Limits, PartKind};
-use crate::notation::{plain, scientific, si};
+use crate::notation::{absent, plain, scientific, si};
 
 /// Flags of `tauweave check`.
 #[derive(Debug, Args)]
@@ -80,14 +80,14 @@ pub fn requirements_text(
             mc.runs,
             mc.seed,
             mc.failed_runs.len(),
-            mc.yield_all.map_or("—".into(), |y| format!("{} %", plain(y * 100.0, 4)))
+            mc.yield_all.map_or_else(absent, |y| format!("{} %", plain(y * 100.0, 4)))
         );
     }
     out
 }
 
 fn opt_si(v: Option<f64>, unit: &str) -> String {
-    v.map_or("—".to_string(), |v| si(v, unit, 4))
+    v.map_or_else(absent, |v| si(v, unit, 4))
 }
 
 fn roots(list: &[RootHz]) -> String {
@@ -166,7 +166,7 @@ pub fn analysis_text(a: &Analysis) -> String {
                 voltage,
                 power,
                 si(ss.gm_s, "S", 3),
-                ss.rpi_ohm.map_or("—".into(), |r| si(r, "Ω", 3)),
+                ss.rpi_ohm.map_or_else(absent, |r| si(r, "Ω", 3)),
                 ss.ro_ohm.map_or("∞".into(), |r| si(r, "Ω", 3)),
                 c1,
                 c2,
@@ -210,8 +210,8 @@ pub fn analysis_text(a: &Analysis) -> String {
             out,
             "  |p2/p1| = {}   b1 = {}   b2 = {}",
             plain(d, 3),
-            h.b1_s.map_or("—".into(), |b| si(b, "s", 4)),
-            h.b2_s2.map_or("—".into(), |b| scientific(b, "s²", 4))
+            h.b1_s.map_or_else(absent, |b| si(b, "s", 4)),
+            h.b2_s2.map_or_else(absent, |b| scientific(b, "s²", 4))
         );
     }
     if let Some(p) = &h.peaking {

@@ -15,6 +15,7 @@ use crate::cli::build::{BuildOptions, Format, PaperSize, build};
 use crate::cli::pdf;
 use crate::cli::source::LoadedFile;
 use crate::cli::{Failure, Level, Outcome, problem};
+use crate::notation::ABSENT;
 use crate::report::manifest::{self, Manifest, sha256};
 use crate::report::template::{BUILT_IN, BUILT_IN_NAME, TemplateSource};
 
@@ -94,7 +95,7 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
             None if built.typst_version != recipe.typst => eprintln!(
                 "note: report.pdf was made by {}, rebuilt by {}",
                 recipe.typst.as_deref().unwrap_or("an unknown typst"),
-                built.typst_version.as_deref().unwrap_or("—")
+                built.typst_version.as_deref().unwrap_or(ABSENT)
             ),
             None => {}
         }

@@ -31,7 +31,7 @@ use serde_json::Value;
 
 use crate::cli::build::{Format, RenderJob, Written, pdf_fatal, render_and_write};
 use crate::cli::{Failure, Level, Outcome, problem};
-use crate::notation::{plain, si};
+use crate::notation::{absent, plain, si};
 use crate::report::manifest::{DESIGN_COPY, TEMPLATE_COPY};
 
 /// How long the inputs must stay quiet before a rebuild: one save is often several writes.
@@ -195,9 +195,9 @@ fn watcher_failure(e: notify::Error) -> Failure {
 fn headline(results_json: &[u8]) -> String {
     let results: Value = serde_json::from_slice(results_json).unwrap_or_default();
     let number = |pointer: &str| results.pointer(pointer).and_then(Value::as_f64);
-    let gain = number("/midband/gain_db").map_or("—".into(), |g| format!("{} dB", plain(g, 4)));
-    let f_high = number("/high/f3db_hz").map_or("—".into(), |f| si(f, "Hz", 4));
-    let f_low = number("/low/f3db_hz").map_or("—".into(), |f| si(f, "Hz", 4));
+    let gain = number("/midband/gain_db").map_or_else(absent, |g| format!("{} dB", plain(g, 4)));
+    let f_high = number("/high/f3db_hz").map_or_else(absent, |f| si(f, "Hz", 4));
+    let f_low = number("/low/f3db_hz").map_or_else(absent, |f| si(f, "Hz", 4));
     let checks = results["requirements"].as_array().map_or(&[][..], Vec::as_slice);
     let passed = checks.iter().filter(|c| c["pass"] == true).count();
     format!(
