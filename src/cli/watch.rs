@@ -27,12 +27,12 @@ use std::time::{Duration, Instant};
 use notify::event::{AccessKind, AccessMode};
 use notify::{EventKind, RecursiveMode};
 use notify_debouncer_full::{DebounceEventResult, new_debouncer};
-use serde_json::Value;
 
 use crate::cli::build::{Format, RenderJob, Written, pdf_fatal, render_and_write};
 use crate::cli::{Failure, Level, Outcome, problem};
 use crate::notation::{absent, plain, si};
 use crate::report::manifest::{DESIGN_COPY, TEMPLATE_COPY};
+use crate::report::results;
 
 /// How long the inputs must stay quiet before a rebuild: one save is often several writes.
 const QUIET: Duration = Duration::from_millis(200);
@@ -193,15 +193,17 @@ fn watcher_failure(e: notify::Error) -> Failure {
 /// The headline numbers of a results.json: `gain 20.56 dB, f_high 1.275 MHz, f_low
 /// 2.224 kHz, requirements 5/5 pass`. A missing value prints `—`.
 fn headline(results_json: &[u8]) -> String {
-    let results: Value = serde_json::from_slice(results_json).unwrap_or_default();
-    let number = |pointer: &str| results.pointer(pointer).and_then(Value::as_f64);
-    let gain = number("/midband/gain_db").map_or_else(absent, |g| format!("{} dB", plain(g, 4)));
-    let f_high = number("/high/f3db_hz").map_or_else(absent, |f| si(f, "Hz", 4));
-    let f_low = number("/low/f3db_hz").map_or_else(absent, |f| si(f, "Hz", 4));
-    let checks = results["requirements"].as_array().map_or(&[][..], Vec::as_slice);
-    let passed = checks.iter().filter(|c| c["pass"] == true).count();
+    let doc = results::from_json(results_json).ok();
+    let gain = doc.as_ref().and_then(|d| d.midband.gain_db);
+    let f_high = doc.as_ref().and_then(|d| d.high.f3db_hz);
+    let f_low = doc.as_ref().and_then(|d| d.low.f3db_hz);
+    let checks = doc.as_ref().map_or(&[][..], |d| d.requirements.as_slice());
+    let passed = checks.iter().filter(|c| c.pass).count();
     format!(
-        "gain {gain}, f_high {f_high}, f_low {f_low}, requirements {passed}/{} pass",
+        "gain {}, f_high {}, f_low {}, requirements {passed}/{} pass",
+        gain.map_or_else(absent, |g| format!("{} dB", plain(g, 4))),
+        f_high.map_or_else(absent, |f| si(f, "Hz", 4)),
+        f_low.map_or_else(absent, |f| si(f, "Hz", 4)),
         checks.len()
     )
 }
@@ -210,21 +212,38 @@ fn headline(results_json: &[u8]) -> String {
 mod tests {
     use super::*;
 
+    /// A results document of a real design with the headline values set by hand.
+    fn document(gain_db: Option<f64>, f_high: Option<f64>, passes: &[bool]) -> Vec<u8> {
+        let text = std::fs::read_to_string("designs/rx-preamp-ce.yaml").unwrap();
+        let design = crate::design::load(&text).design.unwrap();
+        let options = crate::review::ReviewOptions::quiet(&design, Some(0));
+        let review = crate::review::review(&design, &options).unwrap();
+        let hashes = results::Hashes { design: String::new(), template: None, template_name: None };
+        let mut doc = results::document(&design, &review, hashes, "d.yaml");
+        doc.midband.gain_db = gain_db;
+        doc.high.f3db_hz = f_high;
+        doc.low.f3db_hz = Some(2224.4);
+        let template = doc.requirements[0].clone();
+        doc.requirements = passes
+            .iter()
+            .map(|&pass| results::RequirementResults { pass, ..template.clone() })
+            .collect();
+        results::to_json(&doc).into_bytes()
+    }
+
     #[test]
     fn headline_reads_the_numbers_and_counts_passes() {
-        let json = br#"{"midband": {"gain_db": 20.5634}, "high": {"f3db_hz": 1275123.0},
-            "low": {"f3db_hz": 2224.4}, "requirements": [{"pass": true}, {"pass": false}]}"#;
+        let json = document(Some(20.5634), Some(1275123.0), &[true, false]);
         assert_eq!(
-            headline(json),
+            headline(&json),
             "gain 20.56 dB, f_high 1.275 MHz, f_low 2.224 kHz, requirements 1/2 pass"
         );
     }
 
     #[test]
     fn headline_prints_a_dash_for_missing_values() {
-        let json = br#"{"midband": {"gain_db": null}, "high": {"f3db_hz": null},
-            "low": null, "requirements": []}"#;
-        assert_eq!(headline(json), "gain —, f_high —, f_low —, requirements 0/0 pass");
+        let json = document(None, None, &[]);
+        assert_eq!(headline(&json), "gain —, f_high —, f_low 2.224 kHz, requirements 0/0 pass");
         assert_eq!(headline(b"not json"), "gain —, f_high —, f_low —, requirements 0/0 pass");
     }
 
