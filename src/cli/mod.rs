@@ -112,3 +112,40 @@ pub fn run() -> Result<Outcome, Failure> {
         Command::Verify(args) => verify::run(&args),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Each subcommand is a thin user of the library and of the shared cli modules; none
+    /// reaches into another subcommand's file.
+    #[test]
+    fn no_subcommand_imports_another() {
+        let subcommands = ["check", "diff", "new", "render", "schema", "template", "verify"];
+        for entry in std::fs::read_dir("src/cli").unwrap() {
+            let path = entry.unwrap().path();
+            let text = std::fs::read_to_string(&path).unwrap();
+            let own = path.file_stem().unwrap().to_string_lossy().to_string();
+            if own == "mod" {
+                continue;
+            }
+            for other in subcommands.iter().filter(|s| **s != own) {
+                for pattern in [format!("cli::{other}::"), format!("cli::{other};")] {
+                    assert!(!text.contains(&pattern), "{} uses {pattern}", path.display());
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn a_problem_reads_error_then_help() {
+        assert_eq!(
+            problem(Level::Error, "cannot read `x`", Some("check the path")),
+            "error: cannot read `x`\n  help: check the path\n"
+        );
+        assert_eq!(
+            problem(Level::Warning, "file watcher: gone", None),
+            "warning: file watcher: gone\n"
+        );
+    }
+}
