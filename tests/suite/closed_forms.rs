@@ -1,6 +1,7 @@
 //! The general netlist code against published closed forms (METHODS §4): common emitter
-//! with and without degeneration, common source, emitter follower, and a published
-//! common-source problem. Linear equivalents (transconductances, resistors, capacitors)
+//! with and without degeneration, common source, emitter follower, a published
+//! common-source problem, and the errors of the estimates for two real poles against their
+//! separation. Linear equivalents (transconductances, resistors, capacitors)
 //! stand for the transistors, so the closed forms hold exactly; r_o is left out as the
 //! closed forms assume. Agreement to 1e-9 relative.
 
@@ -170,4 +171,41 @@ fn published_common_source_problem() {
     let octc = a.high.octc.f_estimate_hz.unwrap();
     assert!((octc / 259e3 - 1.0).abs() < 0.01, "OCTC estimate {octc}");
     assert!(octc < miller);
+}
+
+#[test]
+fn estimate_errors_against_the_separation_of_two_real_poles() {
+    // Two RC sections isolated by a unity buffer: H = 1/((1 + sτ1)(1 + sτ2)) exactly, no zeros.
+    // The exact cut-off solves (1 + ω²τ1²)(1 + ω²τ2²) = 2, a quadratic in ω²; the time-constant
+    // sum gives 1/(τ1 + τ2), the root-sum-square 1/√(τ1² + τ2²), and the second-order
+    // estimate is exact here [derived]. For k = τ1/τ2 = 1, 2, 4, 10, 100 the sum is
+    // −22.3, −20.4, −15.4, −8.2, −1.0 % off and the root-sum-square +9.9, +6.8, +2.6, +0.5, 0 %.
+    for k in [1.0f64, 2.0, 4.0, 10.0, 100.0] {
+        let c2 = 10e-12 / k;
+        let text = design(
+            &format!(
+                "  C1: {{kind: capacitor, value: 10 pF, between: [a, gnd], role: parasitic}}\n\
+                 \x20 E1: {{kind: voltage_amplifier, value: 1, between: [b, gnd], control: [a, gnd]}}\n\
+                 \x20 R2: {{kind: resistor, value: 1k, between: [b, c]}}\n\
+                 \x20 C2: {{kind: capacitor, value: {c2:e}, between: [c, gnd], role: parasitic}}\n"
+            ),
+            "{at: a, resistance: 1k}",
+            "{at: c}",
+        );
+        let a = analyse(&text);
+        let (t1, t2) = (1e3 * 10e-12, 1e3 * c2);
+        let (p, q) = (t1 * t1 + t2 * t2, t1 * t1 * t2 * t2);
+        let w = ((-p + (p * p + 4.0 * q).sqrt()) / (2.0 * q)).sqrt();
+        let f = w / (2.0 * std::f64::consts::PI);
+        close(a.high.f3db_hz.unwrap(), f, &format!("k = {k}: exact cut-off"));
+        let e = &a.high.estimate_errors;
+        let err = |estimate_w: f64| estimate_w / w - 1.0;
+        let near = |got: Option<f64>, want: f64, what: &str| {
+            let got = got.unwrap_or_else(|| panic!("k = {k}: no {what} error"));
+            assert!((got - want).abs() < 1e-9, "k = {k}: {what} error {got} vs {want}");
+        };
+        near(e.time_constant, err(1.0 / (t1 + t2)), "time-constant");
+        near(e.root_sum_square, err(1.0 / p.sqrt()), "root-sum-square");
+        near(e.second_order, 0.0, "second-order");
+    }
 }
