@@ -1,9 +1,9 @@
-//! The general netlist code against published closed forms (METHODS §4): common emitter
-//! with and without degeneration, common source, emitter follower, a published
-//! common-source problem, and the errors of the estimates for two real poles against their
-//! separation. Linear equivalents (transconductances, resistors, capacitors)
-//! stand for the transistors, so the closed forms hold exactly; r_o is left out as the
-//! closed forms assume. Agreement to 1e-9 relative.
+//! The general netlist code against published closed forms (docs/methods.md, Closed forms):
+//! common emitter with and without degeneration, common source, emitter follower, a
+//! published common-source problem, and the errors of the estimates for two real poles
+//! against their separation (docs/methods.md, Estimates). Linear equivalents
+//! (transconductances, resistors, capacitors) stand for the transistors, so the closed forms
+//! hold exactly; r_o is left out as the closed forms assume. Agreement to 1e-9 relative.
 
 use tauweave::analysis::{self, Analysis};
 use tauweave::design;
@@ -72,7 +72,7 @@ fn common_emitter_without_degeneration() {
 
 #[test]
 fn common_emitter_with_emitter_resistance() {
-    // Sedra & Smith (degenerated CE; METHODS §4, derived exact):
+    // Sedra & Smith (degenerated CE; derived exact; docs/methods.md, Closed forms):
     // R_π0 = rπ ∥ (R_s' + R_E)/(1 + gm R_E); R_μ0 = R_B(1 + G_m R_L') + R_L',
     // R_B = R_s' ∥ (rπ + (β+1)R_E), G_m = β/(rπ + (β+1)R_E), β = gm rπ.
     let (rs, rpi, gm, re, rl) = (600.0, 3e3, 50e-3, 100.0, 1.5e3);
@@ -122,7 +122,7 @@ fn common_source() {
 
 #[test]
 fn emitter_follower() {
-    // Sedra & Smith (emitter follower; METHODS §4, derived):
+    // Sedra & Smith (emitter follower; derived; docs/methods.md, Closed forms):
     // R_π0 = rπ ∥ (R_s' + R_L)/(1 + gm R_L); R_μ0 = R_s' ∥ (rπ + (β+1)R_L).
     let (rs, rpi, gm, rl) = (2.2e3, 2.5e3, 40e-3, 500.0);
     let text = design(

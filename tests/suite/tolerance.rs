@@ -1,8 +1,8 @@
 //! Sensitivities and Monte Carlo against outside values: a single-pole cut-off's
 //! sensitivity to R and C is −1 each (common practice); the frequency-scaling and
-//! impedance-scaling identities of METHODS §5 hold on every example; Monte Carlo of an RC
-//! low-pass reproduces the analytic mean and spread within the sampling error; and runs are
-//! bit-identical on one thread and two.
+//! impedance-scaling identities (docs/methods.md, Sensitivity) hold on every example; Monte
+//! Carlo of an RC low-pass reproduces the analytic mean and spread within the sampling error;
+//! and runs are bit-identical on one thread and two.
 
 use tauweave::analysis::metrics;
 use tauweave::analysis::tolerance::{self, LeverClass, Study};
@@ -47,9 +47,9 @@ fn single_pole_sensitivities_are_minus_one() {
 
 #[test]
 fn scaling_identities_hold_on_every_example() {
-    // Frequency scaling (METHODS §5, derived): Σ over every capacitance (and inductance, which
-    // scales with it) of S^f = −1 for any cut-off (a transition frequency scales as 1/C and
-    // counts with the opposite sign).
+    // Frequency scaling (derived; docs/methods.md, Sensitivity): Σ over every capacitance
+    // (and inductance, which scales with it) of S^f = −1 for any cut-off (a transition
+    // frequency scales as 1/C and counts with the opposite sign).
     // Impedance scaling, for linear networks: Σ S_R + Σ S_L − Σ S_C − Σ S_gm = 0.
     let mut designs = files(&root().join("designs"), "yaml");
     designs.extend(files(&root().join("tests/reference/designs"), "yaml"));
