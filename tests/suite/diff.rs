@@ -104,11 +104,15 @@ fn printed(cell: &str, unit: &str) -> f64 {
 }
 
 /// Asserts that `cell` prints `want` to its `digits` significant digits: the printed number
-/// is within half a unit of its last digit, i.e. 5·10^−digits relative (plus a rounding hair).
+/// is within half a unit of its last digit (plus a rounding hair).
 fn prints(cell: &str, unit: &str, want: f64, digits: i32, what: &str) {
     let got = printed(cell, unit);
-    let allowed = 5.0 * 10f64.powi(-digits) * want.abs() * (1.0 + 1e-9);
-    assert!((got - want).abs() <= allowed, "{what}: `{cell}` does not print {want:e}");
+    let magnitude = want.abs().max(got.abs()).log10().floor() as i32;
+    let half_unit = 0.5 * 10f64.powi(magnitude - (digits - 1));
+    assert!(
+        (got - want).abs() <= half_unit * (1.0 + 1e-9),
+        "{what}: `{cell}` does not print {want:e} to {digits} digits"
+    );
 }
 
 /// A before / after / change / relative row against the values it should show.
