@@ -178,7 +178,7 @@ pub fn short_circuit(mna: &Mna, g: &Factor, caps: &[CapRef]) -> (Vec<ShortCircui
 }
 
 /// The −3 dB angular frequency of 1/(1 + b1 s + b2 s²): ω² = 2/(B + √(B² + 4 b2²)),
-/// B = b1² − 2 b2 (this arrangement avoids cancellation; METHODS §4, derived).
+/// B = b1² − 2 b2 (this arrangement avoids cancellation; derived, docs/methods.md, Estimates).
 pub fn second_order_omega(b1: f64, b2: f64) -> Option<f64> {
     if b1 <= 0.0 {
         return None;

@@ -246,7 +246,8 @@ mod tests {
 
     #[test]
     fn thermal_voltage_at_300_k() {
-        // V_T(300 K) = 25.852 mV from the exact SI constants (METHODS §2, derived).
+        // V_T(300 K) = 25.852 mV from the exact SI constants (derived; docs/methods.md, Device
+        // equations).
         assert!((thermal_voltage(300.0) - 0.025852).abs() < 5e-7);
     }
 

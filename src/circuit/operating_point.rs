@@ -575,3 +575,212 @@ fn finish(
         thermal_voltage_v: vt,
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Boltzmann constant and elementary charge, exact in the SI since 2019 (BIPM SI
+    /// Brochure, 9th ed.): V_T = kT/q (common practice).
+    fn thermal(kelvin: f64) -> f64 {
+        1.380649e-23 * kelvin / 1.602176634e-19
+    }
+
+    /// 27 °C in kelvin (0 °C = 273.15 K, SI Brochure, 9th ed.).
+    const ROOM_K: f64 = 300.15;
+
+    /// A design with `parts` and `models` around a signal source behind a coupling
+    /// capacitor (an open circuit at DC), through the crate's own loader, and its bias.
+    fn bias(supplies: &str, parts: &str, models: &str) -> (Netlist, OperatingPoint) {
+        let text = format!(
+            "tauweave: 1\n\
+             design: {{id: bias, title: operating point case, revision: A, date: 2026-12-01}}\n\
+             environment: {{temperature: 27 °C}}\n\
+             supplies: {{{supplies}}}\n\
+             signal: {{at: in, resistance: 50}}\n\
+             output: {{at: out}}\n\
+             parts:\n\
+             \x20 CIN: {{kind: capacitor, value: 1 µF, between: [in, out], role: coupling}}\n\
+             {parts}\
+             models:\n{models}"
+        );
+        let loaded = crate::design::load(&text);
+        let design = loaded.design.unwrap_or_else(|| panic!("{:?}\n{text}", loaded.diagnostics));
+        let net = Netlist::from_design(&design);
+        let op = solve(&net).unwrap_or_else(|e| panic!("{e}\n{text}"));
+        (net, op)
+    }
+
+    fn node(net: &Netlist, op: &OperatingPoint, name: &str) -> f64 {
+        let i = net.nodes.iter().position(|n| n == name).unwrap_or_else(|| panic!("{name}"));
+        op.node_voltages[i]
+    }
+
+    /// The root of `f` in [lo, hi] by bisection, to the last bit (f changes sign there).
+    fn bisect(f: impl Fn(f64) -> f64, mut lo: f64, mut hi: f64) -> f64 {
+        let low_sign = f(lo) > 0.0;
+        assert_ne!(low_sign, f(hi) > 0.0, "no sign change in [{lo}, {hi}]");
+        for _ in 0..2000 {
+            let mid = 0.5 * (lo + hi);
+            if mid <= lo || mid >= hi {
+                break;
+            }
+            if (f(mid) > 0.0) == low_sign {
+                lo = mid;
+            } else {
+                hi = mid;
+            }
+        }
+        0.5 * (lo + hi)
+    }
+
+    fn close(got: f64, want: f64, abs: f64, what: &str) {
+        assert!((got - want).abs() <= abs, "{what}: {got} vs hand solution {want}");
+    }
+
+    #[test]
+    fn divider_biased_npn_with_emitter_resistor_matches_the_hand_solution() {
+        let (vcc, r1, r2, rc, re, beta, is) = (12.0, 47e3, 10e3, 3.3e3, 1e3, 150.0, 1e-14);
+        let (net, op) = bias(
+            "vcc: 12 V",
+            "  R1: {kind: resistor, value: 47k, between: [vcc, out]}\n\
+             \x20 R2: {kind: resistor, value: 10k, between: [out, gnd]}\n\
+             \x20 RC: {kind: resistor, value: 3k3, between: [vcc, coll]}\n\
+             \x20 RE: {kind: resistor, value: 1k, between: [emit, gnd]}\n\
+             \x20 Q1: {kind: bjt, model: N, c: coll, b: out, e: emit}\n",
+            "  N: {type: npn, beta: 150, saturation_current: 1e-14 A}\n",
+        );
+        // By hand, in the forward-active region with the Shockley law I_C = I_S·e^(V_BE/V_T)
+        // and I_B = I_C/β (common practice): the divider's Thévenin source V_TH = V_cc·R2/(R1 + R2)
+        // behind R_TH = R1 ∥ R2 drives the base loop
+        //   V_TH = I_B·R_TH + V_BE + (I_C + I_B)·R_E,
+        // one equation in V_BE, solved by bisection.
+        let vt = thermal(ROOM_K);
+        let (vth, rth) = (vcc * r2 / (r1 + r2), r1 * r2 / (r1 + r2));
+        let ic_of = |vbe: f64| is * (vbe / vt).exp();
+        let vbe =
+            bisect(|vbe| vth - vbe - ic_of(vbe) * (rth / beta + re * (1.0 + 1.0 / beta)), 0.0, vth);
+        let (ic, ib) = (ic_of(vbe), ic_of(vbe) / beta);
+        // The hand solution leaves out the reverse terms (of order I_S = 10 fA) and the 1 pS
+        // shunts across the junctions (devices::GMIN, a few pA at these voltages): a few pA
+        // in I_B, tens of nV at the base through R_TH.
+        close(node(&net, &op, "out"), vth - ib * rth, 1e-6, "V_B");
+        close(node(&net, &op, "emit"), (ic + ib) * re, 1e-6, "V_E");
+        close(node(&net, &op, "coll"), vcc - ic * rc, 1e-6, "V_C");
+        close(node(&net, &op, "vcc"), vcc, 1e-12, "the supply");
+        let DeviceState::Bjt { region, ic_a, ib_a, vbe_v, .. } = op.devices[0].state else {
+            panic!("not a bipolar transistor")
+        };
+        assert_eq!(region, BjtRegion::Active);
+        close(ic_a, ic, 1e-6 * ic, "I_C");
+        close(ib_a, ib, 1e-6 * ib, "I_B");
+        close(vbe_v, vbe, 1e-6, "V_BE");
+        assert!(op.converged);
+        assert!(op.kcl_residual_a < 1e-12, "KCL residual {} A", op.kcl_residual_a);
+        close(op.thermal_voltage_v, vt, 1e-15, "V_T");
+        // Its dissipation: I_C·V_CE + I_B·V_BE.
+        let vce = vcc - ic * rc - (ic + ib) * re;
+        close(op.devices[0].power_w, ic * vce + ib * vbe, 1e-6 * ic * vce, "P");
+    }
+
+    #[test]
+    fn diode_connected_transistor_fed_through_a_resistor_follows_the_shockley_law() {
+        let (vcc, r, beta, is) = (5.0, 4.3e3, 100.0, 2e-15);
+        let (net, op) = bias(
+            "vcc: 5 V",
+            "  R1: {kind: resistor, value: 4k3, between: [vcc, out]}\n\
+             \x20 Q1: {kind: bjt, model: N, c: out, b: out, e: gnd}\n",
+            "  N: {type: npn, beta: 100, saturation_current: 2 fA}\n",
+        );
+        // With V_BC = 0 the transistor is a diode, I = I_S(1 + 1/β)(e^(V/V_T) − 1) (Shockley,
+        // common practice), fed from V_cc through R: (V_cc − V)/R = I, solved by bisection.
+        // The 1 pS junction shunt adds under 1e-11 relative to I and is left out.
+        let vt = thermal(ROOM_K);
+        let diode = |v: f64| is * (1.0 + 1.0 / beta) * ((v / vt).exp() - 1.0);
+        let v = bisect(|v| (vcc - v) / r - diode(v), 0.0, vcc);
+        close(node(&net, &op, "out"), v, 1e-9, "V");
+        let DeviceState::Bjt { ic_a, ib_a, vcb_v, .. } = op.devices[0].state else {
+            panic!("not a bipolar transistor")
+        };
+        assert_eq!(vcb_v, 0.0);
+        close(ic_a + ib_a, (vcc - v) / r, 1e-9 * (vcc - v) / r, "the resistor's current");
+        close(ic_a / ib_a, beta, 1e-6 * beta, "I_C/I_B");
+        assert!(op.kcl_residual_a < 1e-12, "KCL residual {} A", op.kcl_residual_a);
+    }
+
+    /// I_D of a square-law MOSFET in saturation, ½·k′(W/L)·V_ov²·(1 + λ V_DS) (common
+    /// practice; `process_transconductance` is k′ = µC_ox, docs/design-format.md), with its
+    /// source resistor R_S, drain resistor R_D and gate at V_G (all magnitudes, so the same
+    /// for either polarity): solved by bisection for I on [0, (V_G − V_t)/R_S].
+    fn square_law_bias(k: f64, vt: f64, lambda: f64, vdd: f64, vg: f64, rs: f64, rd: f64) -> f64 {
+        let id = |i: f64| {
+            let vov = vg - i * rs - vt;
+            0.5 * k * vov * vov * (1.0 + lambda * (vdd - i * (rs + rd)))
+        };
+        bisect(|i| id(i) - i, 0.0, (vg - vt) / rs)
+    }
+
+    #[test]
+    fn nmos_in_saturation_follows_the_square_law() {
+        let (vdd, r1, r2, rd, rs) = (10.0, 1e6, 500e3, 3.3e3, 1e3);
+        let (net, op) = bias(
+            "vdd: 10 V",
+            "  R1: {kind: resistor, value: 1M, between: [vdd, out]}\n\
+             \x20 R2: {kind: resistor, value: 500k, between: [out, gnd]}\n\
+             \x20 RD: {kind: resistor, value: 3k3, between: [vdd, drain]}\n\
+             \x20 RS: {kind: resistor, value: 1k, between: [src, gnd]}\n\
+             \x20 M1: {kind: mosfet, model: N, d: drain, g: out, s: src}\n",
+            "  N: {type: nmos, process_transconductance: 100 µA/V², width: 20 µm, \
+             length: 2 µm, threshold: 1 V, channel_length_modulation: 0.02 1/V}\n",
+        );
+        // k = k′·W/L = 1 mA/V²; no gate current, so V_G is the divider's.
+        let vg = vdd * r2 / (r1 + r2);
+        let id = square_law_bias(1e-3, 1.0, 0.02, vdd, vg, rs, rd);
+        // The 1 pS channel shunt (devices::GMIN) adds 6 pA, 6e-9 of I_D.
+        close(node(&net, &op, "out"), vg, 1e-9, "V_G");
+        close(node(&net, &op, "src"), id * rs, 1e-7, "V_S");
+        close(node(&net, &op, "drain"), vdd - id * rd, 1e-7, "V_D");
+        let DeviceState::Mosfet { region, id_a, vgs_v, vds_v, overdrive_v, .. } =
+            op.devices[0].state
+        else {
+            panic!("not a MOSFET")
+        };
+        assert_eq!(region, MosRegion::Saturation);
+        close(id_a, id, 1e-8 * id, "I_D");
+        close(vgs_v, vg - id * rs, 1e-7, "V_GS");
+        close(overdrive_v, vg - id * rs - 1.0, 1e-7, "V_ov");
+        assert!(vds_v > overdrive_v, "V_DS {vds_v} V at V_ov {overdrive_v} V");
+        assert!(op.kcl_residual_a < 1e-12, "KCL residual {} A", op.kcl_residual_a);
+    }
+
+    #[test]
+    fn pmos_in_saturation_has_the_signs_of_the_real_device() {
+        // The nmos case mirrored: source to V_DD through R_S, drain to ground through R_D,
+        // threshold written negative (docs/design-format.md). Magnitudes follow the same
+        // square law; the reported V_GS, V_DS and I_D carry the real (negative) signs.
+        let (vdd, r1, r2, rd, rs) = (10.0, 500e3, 1e6, 3.3e3, 1e3);
+        let (net, op) = bias(
+            "vdd: 10 V",
+            "  R1: {kind: resistor, value: 500k, between: [vdd, out]}\n\
+             \x20 R2: {kind: resistor, value: 1M, between: [out, gnd]}\n\
+             \x20 RS: {kind: resistor, value: 1k, between: [vdd, src]}\n\
+             \x20 RD: {kind: resistor, value: 3k3, between: [drain, gnd]}\n\
+             \x20 M1: {kind: mosfet, model: P, d: drain, g: out, s: src}\n",
+            "  P: {type: pmos, process_transconductance: 100 µA/V², width: 20 µm, \
+             length: 2 µm, threshold: -1 V, channel_length_modulation: 0.02 1/V}\n",
+        );
+        // |V_G| measured from V_DD: V_DD·R1/(R1 + R2).
+        let vsg_open = vdd * r1 / (r1 + r2);
+        let id = square_law_bias(1e-3, 1.0, 0.02, vdd, vsg_open, rs, rd);
+        close(node(&net, &op, "src"), vdd - id * rs, 1e-7, "V_S");
+        close(node(&net, &op, "drain"), id * rd, 1e-7, "V_D");
+        let DeviceState::Mosfet { region, id_a, vgs_v, vds_v, .. } = op.devices[0].state else {
+            panic!("not a MOSFET")
+        };
+        assert_eq!(region, MosRegion::Saturation);
+        close(id_a, -id, 1e-8 * id, "I_D (into the drain)");
+        close(vgs_v, -(vsg_open - id * rs), 1e-7, "V_GS");
+        close(vds_v, -(vdd - id * (rs + rd)), 1e-7, "V_DS");
+        assert!(op.kcl_residual_a < 1e-12, "KCL residual {} A", op.kcl_residual_a);
+    }
+}

@@ -13,7 +13,7 @@ use crate::notation::{plain, si};
 use crate::report::tables::cell;
 
 /// Pole separation at or above which one pole dominates (common practice: the nearest
-/// other pole or zero at least 4× away; METHODS §4).
+/// other pole or zero at least 4× away; docs/methods.md, Estimates).
 pub const DOMINANT_RATIO: f64 = 4.0;
 /// Relative error within which an estimate is called trustworthy in the explanation.
 pub const TRUSTED_ERROR: f64 = 0.05;

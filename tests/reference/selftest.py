@@ -3,7 +3,7 @@
 
 Run: python3 tests/reference/selftest.py   (exit 0 when every check holds, 1 otherwise)
 
-Sources are named beside each check; the tags follow /work/shared/METHODS.md: [pub] stated in
+Sources are named beside each check; the tags follow docs/methods.md: [pub] stated in
 the named publication, [derived] follows from the algebra and is checked numerically here.
 """
 
@@ -153,7 +153,7 @@ def check_ce_gray_meyer():
     close("CE R_mu0 = R_s''(1 + gm R_L') + R_L'", octc(res, "CMU")["r_ohm"], rs2 * (1 + gm * rl1) + rl1)
     close("CE R_CL0 = R_L'", octc(res, "load.c")["r_ohm"], rl1)
     # Miller factor R_mu0/(R_a + R_b) with R_a = R_s'', R_b = R_L' the terminal resistances to
-    # ground [derived from the Gray–Meyer R_mu0 above; METHODS §4, Miller's theorem].
+    # ground [derived from the Gray–Meyer R_mu0 above; docs/methods.md, Time constants].
     close("CE Cmu miller factor", octc(res, "CMU")["miller_factor"], (rs2 * (1 + gm * rl1) + rl1) / (rs2 + rl1))
     b1 = rs2 * (cpi + cmu * (1 + gm * rl1)) + rl1 * (cmu + cl)
     close("CE b1 = R_s''(Cpi + Cmu(1 + gm R_L')) + R_L'(Cmu + C_L)", res["high"]["b1_s"], b1)
@@ -175,7 +175,7 @@ def check_ce_gray_meyer():
     close("CE midband gain", res["midband"]["gain"], -(rin / (rin + rsig)) * gm * rl1)
     close("CE input resistance = R_B ∥ rπ", res["midband"]["input_resistance_ohm"], rin)
     close("CE output resistance = R_C", res["midband"]["output_resistance_ohm"], rc)
-    # Frequency scaling: doubling every capacitor halves every cut-off [derived, METHODS §5].
+    # Frequency scaling: doubling every capacitor halves every cut-off [derived, docs/methods.md, Sensitivity].
     scaled = {k: ({**v, "value": 2 * v["value"]} if v["kind"] == "capacitor" else v) for k, v in parts.items()}
     res2 = ref.analyze(design(scaled, rsig=rsig, load_r=rl, load_c=2 * cl, supplies={"vcc": "12 V"}))
     close("CE capacitance scaling: f_H", res2["high"]["f3db_hz"], res["high"]["f3db_hz"] / 2, 1e-9)
@@ -191,7 +191,7 @@ def check_ce_degenerated():
              "RC": R("vcc", "c", rc)}
     res = ref.analyze(design(parts, rsig=rsig, out="c", supplies={"vcc": 9}))
     rs1 = par(rsig, 1e9)
-    # [pub: Sedra & Smith; derived exact, METHODS §4]
+    # [pub: Sedra & Smith; derived exact, docs/methods.md, Closed forms]
     close("CE+RE R_pi0 = rπ ∥ (R_s' + R_E)/(1 + gm R_E)", octc(res, "CPI")["r_ohm"],
           par(rpi, (rs1 + re) / (1 + gm * re)))
     rb = par(rs1, rpi + (beta + 1) * re)
@@ -239,7 +239,7 @@ def check_follower():
              "RE": R("out", "gnd", rlo)}
     res = ref.analyze(design(parts, rsig=rsig, supplies={"vcc": 5}, load_c=470e-12))
     rs1 = rsig + rx  # R_s' includes r_x
-    # [pub: Sedra & Smith; derived, METHODS §4]
+    # [pub: Sedra & Smith; derived, docs/methods.md, Closed forms]
     close("EF R_pi0 = rπ ∥ (R_s' + R_L)/(1 + gm R_L)", octc(res, "CPI")["r_ohm"],
           par(rpi, (rs1 + rlo) / (1 + gm * rlo)))
     close("EF R_mu0 = R_s' ∥ (rπ + (β+1)R_L)", octc(res, "CMU")["r_ohm"], par(rs1, rpi + (beta + 1) * rlo))
@@ -249,7 +249,7 @@ def check_follower():
 
 def check_isolated_sections():
     # n identical isolated real poles at f_p: f_3dB = f_p sqrt(2^(1/n) - 1); time-constant sum
-    # gives f_p/n [derived, METHODS §4: 0.6436, 0.5098, 0.4350 for n = 2, 3, 4].
+    # gives f_p/n [derived, docs/methods.md, Estimates: 0.6436, 0.5098, 0.4350 for n = 2, 3, 4].
     r, c = 1e3, 1e-9
     fp = 1 / (2 * math.pi * r * c)
     for n, table in [(1, 1.0), (2, 0.6436), (3, 0.5098), (4, 0.4350)]:
@@ -266,11 +266,11 @@ def check_isolated_sections():
         close(f"{n} isolated sections: table value", round(ratio, 4), table, 1e-12)
         close(f"{n} isolated sections: OCTC = f_p/n", res["high"]["octc"]["f_estimate_hz"], fp / n)
         # RSS of n equal poles and no zeros: f_p/√n [memory: Sedra & Smith, frequency-response
-        # chapter; section not verified — the check follows the formula as METHODS §4 states it].
+        # chapter; section not verified — the check follows the formula as docs/methods.md, Estimates states it].
         close(f"{n} isolated sections: RSS = f_p/√n", res["high"]["rss_f_estimate_hz"], fp / math.sqrt(n))
     # Two isolated sections with different time constants and no zeros: H = 1/(1 + b1 s + b2 s²)
     # exactly, so the two-pole −3 dB formula is exact, b2 = τ1 τ2 and the poles are -1/τ1, -1/τ2
-    # [derived, METHODS §4 two-pole view].
+    # [derived, docs/methods.md, Estimates: the second-order estimate].
     t1, t2 = 1e3 * 1e-9, 3e3 * 10e-9
     parts = {"C0": Cap("in", "gnd", 1e-9, "parasitic"), "E1": Amp("o1", "gnd", "in", "gnd", 1),
              "R1": R("o1", "n1", 3e3), "C1": Cap("n1", "gnd", 10e-9, "parasitic")}
@@ -306,7 +306,7 @@ def check_classification():
 def check_identities():
     # Over every reference design: b1 = -Σ 1/p_k and b2 = Σ_{i<j} 1/(p_i p_j) over the HIGH
     # network's poles (Vieta on 1 + b1 s + b2 s² + … = Π(1 - s/p_k)); Σ 1/τ_sctc = -Σ p_k over
-    # the LOW network's poles [derived, METHODS §4; b1 = Σ R_i0 C_i: pub Hajimiri, IEEE TCAS-I
+    # the LOW network's poles [derived, docs/methods.md, Time constants; b1 = Σ R_i0 C_i: pub Hajimiri, IEEE TCAS-I
     # 57(6) 2010; b2 by Cochrun & Grabel, IEEE Trans. Circuit Theory CT-20(1) 1973].
     files = sorted(glob.glob(os.path.join(HERE, "designs", "*.yaml")))
     truth("at least 5 reference designs", len(files) >= 5, files)
@@ -339,7 +339,7 @@ def check_identities():
 def check_random_networks():
     # The same identities on seeded random R/C/gm/voltage-amplifier networks (stable ones with
     # positive time constants), so they are not tuned to the hand-made designs [derived,
-    # METHODS §4].
+    # docs/methods.md, Time constants].
     import random
     done = 0
     for seed in range(60):

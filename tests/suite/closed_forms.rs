@@ -1,8 +1,9 @@
-//! The general netlist code against published closed forms (METHODS §4): common emitter
-//! with and without degeneration, common source, emitter follower, and a published
-//! common-source problem. Linear equivalents (transconductances, resistors, capacitors)
-//! stand for the transistors, so the closed forms hold exactly; r_o is left out as the
-//! closed forms assume. Agreement to 1e-9 relative.
+//! The general netlist code against published closed forms (docs/methods.md, Closed forms):
+//! common emitter with and without degeneration, common source, emitter follower, a
+//! published common-source problem, and the errors of the estimates for two real poles
+//! against their separation (docs/methods.md, Estimates). Linear equivalents
+//! (transconductances, resistors, capacitors) stand for the transistors, so the closed forms
+//! hold exactly; r_o is left out as the closed forms assume. Agreement to 1e-9 relative.
 
 use tauweave::analysis::{self, Analysis};
 use tauweave::design;
@@ -71,7 +72,7 @@ fn common_emitter_without_degeneration() {
 
 #[test]
 fn common_emitter_with_emitter_resistance() {
-    // Sedra & Smith (degenerated CE; METHODS §4, derived exact):
+    // Sedra & Smith (degenerated CE; derived exact; docs/methods.md, Closed forms):
     // R_π0 = rπ ∥ (R_s' + R_E)/(1 + gm R_E); R_μ0 = R_B(1 + G_m R_L') + R_L',
     // R_B = R_s' ∥ (rπ + (β+1)R_E), G_m = β/(rπ + (β+1)R_E), β = gm rπ.
     let (rs, rpi, gm, re, rl) = (600.0, 3e3, 50e-3, 100.0, 1.5e3);
@@ -121,7 +122,7 @@ fn common_source() {
 
 #[test]
 fn emitter_follower() {
-    // Sedra & Smith (emitter follower; METHODS §4, derived):
+    // Sedra & Smith (emitter follower; derived; docs/methods.md, Closed forms):
     // R_π0 = rπ ∥ (R_s' + R_L)/(1 + gm R_L); R_μ0 = R_s' ∥ (rπ + (β+1)R_L).
     let (rs, rpi, gm, rl) = (2.2e3, 2.5e3, 40e-3, 500.0);
     let text = design(
@@ -156,14 +157,55 @@ fn published_common_source_problem() {
     );
     let a = analyse(&text);
     assert!((a.midband.gain - -27.8).abs() < 0.05, "A_M = {}", a.midband.gain);
-    // The Miller estimate from the same resistances: C_in = Cgs + Cgd(1 + gm R_L'),
-    // f_H = 1/(2π R_sig' C_in), R_sig' = R_sig ∥ R_in, R_L' = r_o ∥ R_L.
-    let (rsig, rl) = (par(100e3, 100e3), par(25e3, 20e3));
+    // The book's Miller estimate, f_H = 1/(2π R_sig' C_in) with C_in = Cgs + Cgd(1 + gm R_L'),
+    // R_sig' = R_sig ∥ R_in, R_L' = r_o ∥ R_L, made from the tool's own numbers: R_sig' is the
+    // resistance C_gs sees, and gm R_L' = |A_M|·(R_sig + R_in)/R_in = 2|A_M| from its gain.
+    // It must give the book's 259 kHz to the book's three digits.
+    let rsig = par(100e3, 100e3);
     close(cap_r(&a, "CGS"), rsig, "R_gs0 = R_sig'");
-    let miller = 1.0 / (2.0 * std::f64::consts::PI * rsig * (1e-12 + 0.2e-12 * (1.0 + 5e-3 * rl)));
-    assert!((miller / 259e3 - 1.0).abs() < 0.002, "Miller estimate {miller}");
+    let gm_rl = 2.0 * a.midband.gain.abs();
+    let c_in = 1e-12 + 0.2e-12 * (1.0 + gm_rl);
+    let miller = 1.0 / (2.0 * std::f64::consts::PI * cap_r(&a, "CGS") * c_in);
+    assert!((miller / 259e3 - 1.0).abs() < 0.5e3 / 259e3, "Miller estimate {miller}");
     // The time-constant sum adds C_gd's R_L' term the Miller estimate leaves out: within 1 %.
     let octc = a.high.octc.f_estimate_hz.unwrap();
     assert!((octc / 259e3 - 1.0).abs() < 0.01, "OCTC estimate {octc}");
     assert!(octc < miller);
+}
+
+#[test]
+fn estimate_errors_against_the_separation_of_two_real_poles() {
+    // Two RC sections isolated by a unity buffer: H = 1/((1 + sτ1)(1 + sτ2)) exactly, no zeros.
+    // The exact cut-off solves (1 + ω²τ1²)(1 + ω²τ2²) = 2, a quadratic in ω²; the time-constant
+    // sum gives 1/(τ1 + τ2), the root-sum-square 1/√(τ1² + τ2²), and the second-order
+    // estimate is exact here [derived]. For k = τ1/τ2 = 1, 2, 4, 10, 100 the sum is
+    // −22.3, −20.4, −15.4, −8.2, −1.0 % off and the root-sum-square +9.9, +6.8, +2.6, +0.5, 0 %.
+    for k in [1.0f64, 2.0, 4.0, 10.0, 100.0] {
+        let c2 = 10e-12 / k;
+        let text = design(
+            &format!(
+                "  C1: {{kind: capacitor, value: 10 pF, between: [a, gnd], role: parasitic}}\n\
+                 \x20 E1: {{kind: voltage_amplifier, value: 1, between: [b, gnd], control: [a, gnd]}}\n\
+                 \x20 R2: {{kind: resistor, value: 1k, between: [b, c]}}\n\
+                 \x20 C2: {{kind: capacitor, value: {c2:e}, between: [c, gnd], role: parasitic}}\n"
+            ),
+            "{at: a, resistance: 1k}",
+            "{at: c}",
+        );
+        let a = analyse(&text);
+        let (t1, t2) = (1e3 * 10e-12, 1e3 * c2);
+        let (p, q) = (t1 * t1 + t2 * t2, t1 * t1 * t2 * t2);
+        let w = ((-p + (p * p + 4.0 * q).sqrt()) / (2.0 * q)).sqrt();
+        let f = w / (2.0 * std::f64::consts::PI);
+        close(a.high.f3db_hz.unwrap(), f, &format!("k = {k}: exact cut-off"));
+        let e = &a.high.estimate_errors;
+        let err = |estimate_w: f64| estimate_w / w - 1.0;
+        let near = |got: Option<f64>, want: f64, what: &str| {
+            let got = got.unwrap_or_else(|| panic!("k = {k}: no {what} error"));
+            assert!((got - want).abs() < 1e-9, "k = {k}: {what} error {got} vs {want}");
+        };
+        near(e.time_constant, err(1.0 / (t1 + t2)), "time-constant");
+        near(e.root_sum_square, err(1.0 / p.sqrt()), "root-sum-square");
+        near(e.second_order, 0.0, "second-order");
+    }
 }

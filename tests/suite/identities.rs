@@ -1,5 +1,5 @@
-//! Identities that tie the time constants to the poles (METHODS §4, derived): on every
-//! example design and on random networks,
+//! Identities that tie the time constants to the poles (derived; docs/methods.md, Time
+//! constants): on every example design and on random networks,
 //! Σ R_i0 C_i = b1 = −Σ 1/p over the high-frequency poles,
 //! b2 = Σ_{i<j} 1/(p_i p_j) over the same poles,
 //! Σ 1/(R_is C_i) = −Σ p over the low-frequency poles — all to 1e-9 relative.

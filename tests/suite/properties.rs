@@ -1,9 +1,9 @@
 //! Property tests (proptest): on random passive RC networks whose zeros are real, the
 //! open-circuit time-constant estimate never exceeds the exact upper cut-off (with real poles
-//! and zeros, Π(1 + ω²τ_i²) ≤ 2 at ω = 1/Στ — METHODS §4, derived; a bridged RC network can
-//! have complex zeros, a notch, and then the bound does not hold, so those are set aside);
-//! on random resistor–transistor bias networks the
-//! operating point balances KCL to below 1e-12 A at every node.
+//! and zeros, Π(1 + ω²τ_i²) ≤ 2 at ω = 1/Στ — derived, docs/methods.md, Estimates; a
+//! bridged RC network can have complex zeros, a notch, and then the bound does not hold, so
+//! those are set aside); on random resistor–transistor bias networks the operating point
+//! balances KCL to below 1e-12 A at every node.
 
 use proptest::prelude::*;
 

@@ -256,7 +256,7 @@ fn the_explanation_follows_the_circuit() {
     assert!(text.starts_with("The upper cut-off") && text.contains("Warning"), "{text}");
     assert!(text.contains("second-order estimate"), "{text}");
     // n = 2 identical poles: the time-constant sum gives f_p/2 against the exact
-    // f_p·√(√2 − 1) = 0.6436 f_p (METHODS §4, derived): −22.3 %.
+    // f_p·√(√2 − 1) = 0.6436 f_p (derived; docs/methods.md, Estimates): −22.3 %.
     let err = a.high.estimate_errors.time_constant.unwrap();
     assert!((err - (0.5 / (2f64.sqrt() - 1.0).sqrt() - 1.0)).abs() < 1e-6, "{err}");
     // The load capacitance dominating: the explanation names it.

@@ -29,6 +29,29 @@ pub fn typst() -> PathBuf {
     )
 }
 
+/// Runs `python3` with `args` in the repository root. A test that needs it fails, never
+/// skips, when python3 or the packages of tests/requirements.txt are missing.
+pub fn python(args: &[&str]) -> Output {
+    Command::new("python3")
+        .args(args)
+        .current_dir(root())
+        .output()
+        .expect("python3 runs; run scripts/test, which installs numpy, scipy and PyYAML")
+}
+
+/// What the independent reference, tests/reference/mna_reference.py, computes for the
+/// linear design at `design`: the results.json keys it knows, from its own nodal analysis.
+pub fn reference_results(design: &Path) -> serde_json::Value {
+    let out = python(&["tests/reference/mna_reference.py", design.to_str().unwrap()]);
+    assert!(
+        out.status.success(),
+        "{}: the reference failed (run scripts/test for numpy, scipy and PyYAML):\n{}",
+        design.display(),
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).expect("the reference prints JSON")
+}
+
 /// Runs `tauweave` with `args` in the working directory `cwd`. The typst program found by
 /// [`find_typst`] is named through `TAUWEAVE_TYPST`, so renders make their PDF.
 pub fn run_in(cwd: &Path, args: &[&str]) -> Output {

@@ -1,11 +1,11 @@
 //! Sensitivities and Monte Carlo against outside values: a single-pole cut-off's
 //! sensitivity to R and C is −1 each (common practice); the frequency-scaling and
-//! impedance-scaling identities of METHODS §5 hold on every example; Monte Carlo of an RC
-//! low-pass reproduces the analytic mean and spread within the sampling error; and runs are
-//! bit-identical on one thread and two.
+//! impedance-scaling identities (docs/methods.md, Sensitivity) hold on every example; Monte
+//! Carlo of an RC low-pass reproduces the analytic mean and spread within the sampling error;
+//! and runs are bit-identical on one thread and two.
 
+use tauweave::analysis::metrics;
 use tauweave::analysis::tolerance::{self, LeverClass, Study};
-use tauweave::analysis::{self, metrics};
 use tauweave::design;
 
 use crate::support::{files, root};
@@ -47,9 +47,9 @@ fn single_pole_sensitivities_are_minus_one() {
 
 #[test]
 fn scaling_identities_hold_on_every_example() {
-    // Frequency scaling (METHODS §5, derived): Σ over every capacitance (and inductance, which
-    // scales with it) of S^f = −1 for any cut-off (a transition frequency scales as 1/C and
-    // counts with the opposite sign).
+    // Frequency scaling (derived; docs/methods.md, Sensitivity): Σ over every capacitance
+    // (and inductance, which scales with it) of S^f = −1 for any cut-off (a transition
+    // frequency scales as 1/C and counts with the opposite sign).
     // Impedance scaling, for linear networks: Σ S_R + Σ S_L − Σ S_C − Σ S_gm = 0.
     let mut designs = files(&root().join("designs"), "yaml");
     designs.extend(files(&root().join("tests/reference/designs"), "yaml"));
@@ -96,20 +96,43 @@ fn scaling_identities_hold_on_every_example() {
     }
 }
 
-/// Mean and standard deviation of f = f0/(x·y) with x, y independent factors, from the
-/// moments E[1/x], E[1/x²].
-fn analytic(m1x: f64, m2x: f64, m1y: f64, m2y: f64, f0: f64) -> (f64, f64) {
-    let mean = f0 * m1x * m1y;
-    let second = f0 * f0 * m2x * m2y;
-    (mean, (second - mean * mean).sqrt())
+/// E[x^−k] for k = 0…4 of a factor x with tolerance `t`: uniform on [1 − t, 1 + t], the
+/// integrals of x^−k, ((1 − t)^(1−k) − (1 + t)^(1−k))/((k − 1)·2t) and ln((1 + t)/(1 − t))/(2t)
+/// for k = 1; gaussian with σ = t/3, the Taylor moments of a normal variable,
+/// E[(1 + e)^−k] = Σ_m C(k + 2m − 1, 2m)·(2m − 1)!!·σ^2m, to m = 4 (the next term is below
+/// 1e-9 for σ ≤ 0.034, k ≤ 4).
+fn inverse_moments(dist: &str, t: f64) -> [f64; 5] {
+    let mut m = [1.0; 5];
+    for (k, slot) in m.iter_mut().enumerate().skip(1) {
+        *slot = if dist == "uniform" {
+            if k == 1 {
+                ((1.0 + t) / (1.0 - t)).ln() / (2.0 * t)
+            } else {
+                let e = 1 - k as i32;
+                ((1.0 - t).powi(e) - (1.0 + t).powi(e)) / ((k as f64 - 1.0) * 2.0 * t)
+            }
+        } else {
+            let s2 = (t / 3.0).powi(2);
+            let choose =
+                |n: u64, r: u64| (0..r).fold(1.0, |a, i| a * (n - i) as f64 / (i + 1) as f64);
+            let double_factorial = [1.0, 1.0, 3.0, 15.0, 105.0];
+            (0..=4u64)
+                .map(|j| {
+                    choose(k as u64 + 2 * j - 1, 2 * j)
+                        * double_factorial[j as usize]
+                        * s2.powi(j as i32)
+                })
+                .sum()
+        };
+    }
+    m
 }
 
 #[test]
 fn monte_carlo_reproduces_the_analytic_spread_of_an_rc_cutoff() {
-    // f = 1/(2π R C) (the 1 Ω source is counted in f0 exactly). For a factor x uniform on
-    // [1 − t, 1 + t]: E[1/x] = ln((1+t)/(1−t))/(2t), E[1/x²] = 1/(1 − t²) (integrals of
-    // 1/x and 1/x²). For x gaussian with σ = t/3: E[1/x] ≈ 1 + σ² + 3σ⁴, E[1/x²] ≈ 1 + 3σ² + 15σ⁴
-    // (Taylor moments of a normal variable; σ ≤ 0.033 keeps the next terms below 1e-8).
+    // f = f0/(x·y) with f0 = 1/(2π R C) (the 1 Ω source is counted in f0 exactly) and x, y
+    // the independent factors of R and C, so E[f^k] = f0^k·E[x^−k]·E[y^−k]: the mean, the
+    // variance σ² and the fourth central moment μ4 follow from the raw moments.
     let runs = 4000;
     let f0 = 1.0 / (2.0 * std::f64::consts::PI * (1e4 + 1.0) * 1e-9);
     for (dist, t) in [("uniform", 0.10f64), ("gaussian", 0.10f64)] {
@@ -123,23 +146,27 @@ fn monte_carlo_reproduces_the_analytic_spread_of_an_rc_cutoff() {
         assert!(mc.failed_runs.is_empty());
         let spread = mc.spreads.iter().find(|x| x.figure == "upper_cutoff").unwrap();
         // The source resistance is exact and 1e-4 of R: fold it into the R factor's moments.
-        let (m1, m2) = if dist == "uniform" {
-            (((1.0 + t) / (1.0 - t)).ln() / (2.0 * t), 1.0 / (1.0 - t * t))
-        } else {
-            let s2 = (t / 3.0f64).powi(2);
-            (1.0 + s2 + 3.0 * s2 * s2, 1.0 + 3.0 * s2 + 15.0 * s2 * s2)
-        };
-        let (mean, sd) = analytic(m1, m2, m1, m2, f0);
+        let m = inverse_moments(dist, t);
+        // Raw moments of f/f0 (R and C carry the same tolerance and distribution).
+        let raw: Vec<f64> = m.iter().map(|x| x * x).collect();
+        let mean = raw[1];
+        let var = raw[2] - mean * mean;
+        let mu4 = raw[4] - 4.0 * raw[3] * mean + 6.0 * raw[2] * mean * mean - 3.0 * mean.powi(4);
+        let (mean, sd) = (f0 * mean, f0 * var.sqrt());
         let n = runs as f64;
-        // Within four standard errors of the mean and of the standard deviation.
+        // Within four standard errors: of the mean, σ/√n; of the sample standard deviation,
+        // √((μ4 − σ⁴)/n)/(2σ) — Var(s²) ≈ (μ4 − σ⁴)/n and s = √(s²) by the delta method
+        // (common practice). This is σ/√(2n) for a normal figure; the spread of f is not
+        // normal (nearly triangular in ln f for the uniform parts), so μ4 is taken exactly.
+        let se_sd = f0 * ((mu4 - var * var) / n).sqrt() / (2.0 * var.sqrt());
         assert!(
             (spread.mean - mean).abs() < 4.0 * sd / n.sqrt(),
             "{dist}: mean {} vs {mean}",
             spread.mean
         );
         assert!(
-            (spread.std_dev - sd).abs() < 4.0 * sd / (2.0 * (n - 1.0)).sqrt() * 1.5,
-            "{dist}: sd {} vs {sd}",
+            (spread.std_dev - sd).abs() < 4.0 * se_sd,
+            "{dist}: sd {} vs {sd} (standard error {se_sd})",
             spread.std_dev
         );
     }
@@ -154,8 +181,14 @@ fn monte_carlo_is_bit_identical_on_one_and_two_threads() {
             serde_json::to_string(&s).unwrap()
         })
     };
-    assert_eq!(run(1), run(2));
-    let _ = analysis::analyze(&d).unwrap();
+    let (one, two) = (run(1), run(2));
+    assert_eq!(one, two);
+    // The runs compared really differ from each other: all 200 converged and spread out.
+    let s: serde_json::Value = serde_json::from_str(&one).unwrap();
+    let mc = &s["monte_carlo"];
+    assert_eq!(mc["failed_runs"].as_array().map(Vec::len), Some(0), "{mc}");
+    let spreads = mc["spreads"].as_array().unwrap();
+    assert!(spreads.iter().all(|x| x["count"] == 200 && x["std_dev"].as_f64() > Some(0.0)));
 }
 
 #[test]
