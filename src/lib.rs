@@ -13,3 +13,4 @@ pub mod design;
 pub mod notation;
 pub mod report;
 pub mod review;
+pub mod union_find;

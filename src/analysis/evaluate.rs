@@ -24,6 +24,7 @@ use crate::circuit::netlist::{CapSet, Netlist};
 use crate::circuit::operating_point::{self, DeviceState, OperatingPoint};
 use crate::circuit::small_signal::{self, Linear, LinearNetwork, SmallSignal};
 use crate::design::{AnalysisSettings, Design};
+use crate::union_find::UnionFind;
 
 /// Everything both depths of evaluation share: the bias, the mid-band network and its
 /// solution, both time-constant sums and the exact cut-offs.
@@ -466,7 +467,7 @@ fn cap_refs(lin: &LinearNetwork, mid: &Mna) -> (Vec<CapRef>, Vec<CapRef>) {
     let mut high_caps = Vec::new();
     let mut low_caps: Vec<CapRef> = Vec::new();
     let mut low_keys: Vec<(usize, usize)> = Vec::new();
-    let mut rails = mna::Wires::new(lin.nodes.len());
+    let mut rails = UnionFind::new(lin.nodes.len());
     for el in &lin.elements {
         if let Linear::Grounded { node } = el {
             rails.join(*node, 0);

@@ -9,6 +9,7 @@
 use faer::Mat;
 
 use crate::circuit::small_signal::{Linear, LinearNetwork};
+use crate::union_find::UnionFind;
 
 /// What a capacitor is in one network.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -82,7 +83,7 @@ pub fn assemble(net: &LinearNetwork, state: impl Fn(usize) -> CapState, opts: As
     // Ideal wires (grounded supplies, shorted capacitors) joined so far: a short across
     // nodes already joined would close a loop of 0 V branches and make G singular, and
     // changes nothing, so it is left out (its branch stays None).
-    let mut wires = Wires::new(net.nodes.len());
+    let mut wires = UnionFind::new(net.nodes.len());
     for el in &net.elements {
         if let Linear::Grounded { node } = el {
             wires.join(*node, 0);
@@ -174,35 +175,4 @@ pub fn assemble(net: &LinearNetwork, state: impl Fn(usize) -> CapState, opts: As
         out[r] -= 1.0;
     }
     Mna { g, c, b, out, nodes, branch }
-}
-
-/// Union–find over nodes joined by ideal wires.
-pub struct Wires {
-    parent: Vec<usize>,
-}
-
-impl Wires {
-    /// Every node on its own.
-    pub fn new(n: usize) -> Wires {
-        Wires { parent: (0..n).collect() }
-    }
-
-    /// The representative of `x`'s group.
-    pub fn find(&mut self, mut x: usize) -> usize {
-        while self.parent[x] != x {
-            self.parent[x] = self.parent[self.parent[x]];
-            x = self.parent[x];
-        }
-        x
-    }
-
-    /// Joins `a` and `b`; false when they were joined already.
-    pub fn join(&mut self, a: usize, b: usize) -> bool {
-        let (ra, rb) = (self.find(a), self.find(b));
-        if ra == rb {
-            return false;
-        }
-        self.parent[ra.max(rb)] = ra.min(rb);
-        true
-    }
 }

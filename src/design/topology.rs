@@ -9,6 +9,7 @@ use std::collections::BTreeMap;
 use crate::design::diagnostic::{Diagnostic, Span};
 use crate::design::suggest::nearest;
 use crate::design::types::{Design, GROUND, PartKind};
+use crate::union_find::UnionFind;
 
 /// Runs every topology check.
 pub fn check(design: &Design) -> Vec<Diagnostic> {
@@ -80,20 +81,9 @@ fn dc_paths(design: &Design, out: &mut Vec<Diagnostic>) {
     let nodes = design.nodes();
     let index: BTreeMap<&str, usize> =
         nodes.iter().enumerate().map(|(i, n)| (n.as_str(), i)).collect();
-    let mut parent: Vec<usize> = (0..nodes.len()).collect();
-    fn find(parent: &mut [usize], mut i: usize) -> usize {
-        while parent[i] != i {
-            parent[i] = parent[parent[i]];
-            i = parent[i];
-        }
-        i
-    }
+    let mut conducting = UnionFind::new(nodes.len());
     let mut join = |a: &str, b: &str| {
-        let (ia, ib) = (index[a], index[b]);
-        let (ra, rb) = (find(&mut parent, ia), find(&mut parent, ib));
-        if ra != rb {
-            parent[ra.max(rb)] = ra.min(rb);
-        }
+        conducting.join(index[a], index[b]);
     };
     for s in &design.supplies {
         join(&s.node, GROUND);
@@ -114,10 +104,10 @@ fn dc_paths(design: &Design, out: &mut Vec<Diagnostic>) {
             PartKind::Capacitor { .. } | PartKind::Transconductance { .. } => {}
         }
     }
-    let ground_root = find(&mut parent, 0);
+    let ground_root = conducting.find(0);
     let mut groups: BTreeMap<usize, Vec<usize>> = BTreeMap::new();
     for i in 0..nodes.len() {
-        let r = find(&mut parent, i);
+        let r = conducting.find(i);
         if r != ground_root {
             groups.entry(r).or_default().push(i);
         }
