@@ -7,8 +7,8 @@
 
 use serde::Serialize;
 
-use crate::design::Design;
-use crate::design::{DeviceModel, PartKind, Tolerance, TransitSpec};
+use crate::design::toleranced::{ModelParameter, Scaling};
+use crate::design::{Design, PartKind, Tolerance};
 
 /// What kind of quantity a lever is (for the scaling identities).
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
@@ -29,6 +29,17 @@ pub enum LeverClass {
     Other,
 }
 
+impl From<Scaling> for LeverClass {
+    fn from(s: Scaling) -> LeverClass {
+        match s {
+            Scaling::Resistance => LeverClass::Resistance,
+            Scaling::Capacitance => LeverClass::Capacitance,
+            Scaling::InverseCapacitance => LeverClass::InverseCapacitance,
+            Scaling::Other => LeverClass::Other,
+        }
+    }
+}
+
 /// Where a lever acts.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 enum Target {
@@ -36,7 +47,7 @@ enum Target {
     SourceResistance,
     Supply(usize),
     Temperature,
-    Model(usize, &'static str),
+    Model(usize, ModelParameter),
 }
 
 /// A quantity tolerance analysis can move.
@@ -67,48 +78,9 @@ fn slot(design: &mut Design, target: Target) -> Option<&mut f64> {
         Target::SourceResistance => Some(&mut design.signal.resistance.nominal),
         Target::Supply(i) => Some(&mut design.supplies[i].voltage.nominal),
         Target::Temperature => Some(&mut design.temperature_k),
-        Target::Model(i, key) => match &mut design.models[i].device {
-            DeviceModel::Bipolar(b) => match key {
-                "beta" => Some(&mut b.beta.nominal),
-                "saturation_current" => Some(&mut b.saturation_current.nominal),
-                "early_voltage" => b.early_voltage.as_mut().map(|v| &mut v.nominal),
-                "base_resistance" => Some(&mut b.base_resistance.nominal),
-                "transit_time" => match &mut b.transit {
-                    Some(TransitSpec::TransitTime(t)) => Some(&mut t.nominal),
-                    _ => None,
-                },
-                "transition_frequency" => match &mut b.transit {
-                    Some(TransitSpec::TransitionFrequency { frequency, .. }) => {
-                        Some(&mut frequency.nominal)
-                    }
-                    _ => None,
-                },
-                "emitter_junction" => {
-                    b.emitter_junction.as_mut().map(|j| &mut j.capacitance.nominal)
-                }
-                "collector_junction" => {
-                    b.collector_junction.as_mut().map(|j| &mut j.capacitance.nominal)
-                }
-                _ => None,
-            },
-            DeviceModel::Mos(m) => match key {
-                "process_transconductance" => Some(&mut m.process_transconductance.nominal),
-                "threshold" => Some(&mut m.threshold.nominal),
-                "channel_length_modulation" => Some(&mut m.channel_length_modulation.nominal),
-                "oxide_capacitance" => m.oxide_capacitance.as_mut().map(|c| &mut c.nominal),
-                "overlap_capacitance" => m.overlap_capacitance.as_mut().map(|c| &mut c.nominal),
-                "gate_source_capacitance" => {
-                    m.gate_source_capacitance.as_mut().map(|c| &mut c.nominal)
-                }
-                "gate_drain_capacitance" => {
-                    m.gate_drain_capacitance.as_mut().map(|c| &mut c.nominal)
-                }
-                "drain_body_capacitance" => {
-                    m.drain_body_capacitance.as_mut().map(|c| &mut c.nominal)
-                }
-                _ => None,
-            },
-        },
+        Target::Model(i, parameter) => {
+            parameter.get_mut(&mut design.models[i].device).map(|t| &mut t.nominal)
+        }
     }
 }
 
@@ -158,76 +130,15 @@ pub fn levers(design: &Design) -> Vec<Lever> {
         target: Target::Temperature,
     });
     for (i, m) in design.models.iter().enumerate() {
-        let mut add =
-            |key: &'static str, t: Option<&crate::design::Toleranced>, class: LeverClass| {
-                if let Some(t) = t {
-                    if t.nominal != 0.0 {
-                        out.push(Lever {
-                            name: format!("{}.{key}", m.name),
-                            nominal: t.nominal,
-                            tolerance: t.tolerance,
-                            class,
-                            target: Target::Model(i, key),
-                        });
-                    }
-                }
-            };
-        match &m.device {
-            DeviceModel::Bipolar(b) => {
-                add("beta", Some(&b.beta), LeverClass::Other);
-                add("saturation_current", Some(&b.saturation_current), LeverClass::Other);
-                add("early_voltage", b.early_voltage.as_ref(), LeverClass::Other);
-                add("base_resistance", Some(&b.base_resistance), LeverClass::Resistance);
-                match &b.transit {
-                    Some(TransitSpec::TransitTime(t)) => {
-                        add("transit_time", Some(t), LeverClass::Capacitance)
-                    }
-                    Some(TransitSpec::TransitionFrequency { frequency, .. }) => {
-                        add("transition_frequency", Some(frequency), LeverClass::InverseCapacitance)
-                    }
-                    None => {}
-                }
-                add(
-                    "emitter_junction",
-                    b.emitter_junction.as_ref().map(|j| &j.capacitance),
-                    LeverClass::Capacitance,
-                );
-                add(
-                    "collector_junction",
-                    b.collector_junction.as_ref().map(|j| &j.capacitance),
-                    LeverClass::Capacitance,
-                );
-            }
-            DeviceModel::Mos(x) => {
-                add(
-                    "process_transconductance",
-                    Some(&x.process_transconductance),
-                    LeverClass::Other,
-                );
-                add("threshold", Some(&x.threshold), LeverClass::Other);
-                add(
-                    "channel_length_modulation",
-                    Some(&x.channel_length_modulation),
-                    LeverClass::Other,
-                );
-                add("oxide_capacitance", x.oxide_capacitance.as_ref(), LeverClass::Capacitance);
-                add("overlap_capacitance", x.overlap_capacitance.as_ref(), LeverClass::Capacitance);
-                add(
-                    "gate_source_capacitance",
-                    x.gate_source_capacitance.as_ref(),
-                    LeverClass::Capacitance,
-                );
-                add(
-                    "gate_drain_capacitance",
-                    x.gate_drain_capacitance.as_ref(),
-                    LeverClass::Capacitance,
-                );
-                add(
-                    "drain_body_capacitance",
-                    x.drain_body_capacitance.as_ref(),
-                    LeverClass::Capacitance,
-                );
-            }
+        for &parameter in ModelParameter::of(&m.device) {
+            let Some(t) = parameter.get(&m.device).filter(|t| t.nominal != 0.0) else { continue };
+            out.push(Lever {
+                name: format!("{}.{}", m.name, parameter.key()),
+                nominal: t.nominal,
+                tolerance: t.tolerance,
+                class: LeverClass::from(parameter.scaling()),
+                target: Target::Model(i, parameter),
+            });
         }
     }
     out

@@ -11,6 +11,7 @@ pub mod quantity;
 pub mod reader;
 pub mod schema;
 pub mod suggest;
+pub mod toleranced;
 pub mod topology;
 pub mod types;
 pub mod yaml;
