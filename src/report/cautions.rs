@@ -5,7 +5,7 @@
 
 use serde::Serialize;
 
-use crate::analysis::Analysis;
+use crate::analysis::{Analysis, OperatingPointReport};
 use crate::circuit::devices::{BjtRegion, MosRegion};
 use crate::circuit::operating_point::DeviceState;
 use crate::design::Design;
@@ -46,6 +46,32 @@ fn standard(key: &'static str, text: &str) -> Caution {
 /// Every caution that applies to `design`.
 pub fn cautions(design: &Design, a: &Analysis) -> Vec<Caution> {
     let mut out = Vec::new();
+    response_cautions(a, &mut out);
+    if let Some(op) = &a.operating_point {
+        bias_cautions(op, design.temperature_k, &mut out);
+    }
+    if a.has_inductors {
+        let gap = a
+            .high
+            .estimate_errors
+            .time_constant
+            .map_or("—".into(), |e| format!("{} %", plain(e * 100.0, 2)));
+        out.push(computed(
+            "inductors",
+            format!(
+                "The network has inductors: the time-constant estimates treat them as wires, so \
+                 they can be far from the exact response here (the upper estimate is off by {gap}). \
+                 Use the exact cut-offs."
+            ),
+        ));
+    }
+    standard_cautions(design, &mut out);
+    out
+}
+
+/// Computed cautions on the response: poles too close for the estimates, complex poles,
+/// peaking, a right-half-plane zero near the band.
+fn response_cautions(a: &Analysis, out: &mut Vec<Caution>) {
     let h = &a.high;
     if let Some(k) = h.dominance_ratio.filter(|k| *k < DOMINANT_RATIO) {
         if h.poles_hz.first().is_some_and(|p| p.im_hz == 0.0) {
@@ -101,73 +127,66 @@ pub fn cautions(design: &Design, a: &Analysis) -> Vec<Caution> {
             ));
         }
     }
-    if let Some(op) = &a.operating_point {
-        for d in &op.devices {
-            let part = &d.bias.part;
-            match &d.bias.state {
-                DeviceState::Bjt { region, vce_v, .. } => match region {
-                    BjtRegion::Active if vce_v.abs() < VCE_EDGE_V => out.push(computed(
-                        "bias_edge",
-                        format!("{part} has V_CE = {}: close to saturation, its gain and Cμ will move with signal swing.", si(*vce_v, "V", 3)),
-                    )),
-                    BjtRegion::Active => {}
-                    other => out.push(computed(
-                        "bias_region",
-                        format!("{part} is not in the active region ({}); the small-signal figures do not describe an amplifier.", other.label()),
-                    )),
-                },
-                DeviceState::Mosfet { region, vds_v, overdrive_v, .. } => match region {
-                    MosRegion::Saturation if vds_v.abs() - overdrive_v < VDS_EDGE_V => out.push(computed(
-                        "bias_edge",
-                        format!("{part} has V_DS = {} against an overdrive of {}: close to the triode edge.", si(*vds_v, "V", 3), si(*overdrive_v, "V", 3)),
-                    )),
-                    MosRegion::Saturation => {}
-                    other => out.push(computed(
-                        "bias_region",
-                        format!("{part} is not in saturation ({}); the small-signal figures do not describe an amplifier.", other.label()),
-                    )),
-                },
-            }
-            if let Some(max) = d.bias.max_power_w {
-                if d.bias.power_w > DISSIPATION_FLAG * max {
-                    out.push(computed(
-                        "dissipation",
-                        format!(
-                            "{part} dissipates {} of its {} rating ({} %); check the derating at \
-                             the highest ambient temperature.",
-                            si(d.bias.power_w, "W", 3),
-                            si(max, "W", 3),
-                            plain(d.bias.power_w / max * 100.0, 3)
-                        ),
-                    ));
-                }
-            }
+}
+
+/// Computed cautions on the bias: regions, dissipation against ratings, capacitances that
+/// hold only at this bias.
+fn bias_cautions(op: &OperatingPointReport, temperature_k: f64, out: &mut Vec<Caution>) {
+    for d in &op.devices {
+        let part = &d.bias.part;
+        match &d.bias.state {
+            DeviceState::Bjt { region, vce_v, .. } => match region {
+                BjtRegion::Active if vce_v.abs() < VCE_EDGE_V => out.push(computed(
+                    "bias_edge",
+                    format!("{part} has V_CE = {}: close to saturation, its gain and Cμ will move with signal swing.", si(*vce_v, "V", 3)),
+                )),
+                BjtRegion::Active => {}
+                other => out.push(computed(
+                    "bias_region",
+                    format!("{part} is not in the active region ({}); the small-signal figures do not describe an amplifier.", other.label()),
+                )),
+            },
+            DeviceState::Mosfet { region, vds_v, overdrive_v, .. } => match region {
+                MosRegion::Saturation if vds_v.abs() - overdrive_v < VDS_EDGE_V => out.push(computed(
+                    "bias_edge",
+                    format!("{part} has V_DS = {} against an overdrive of {}: close to the triode edge.", si(*vds_v, "V", 3), si(*overdrive_v, "V", 3)),
+                )),
+                MosRegion::Saturation => {}
+                other => out.push(computed(
+                    "bias_region",
+                    format!("{part} is not in saturation ({}); the small-signal figures do not describe an amplifier.", other.label()),
+                )),
+            },
         }
-        if !op.devices.is_empty() {
-            out.push(computed(
-                "bias_dependent_capacitance",
-                format!(
-                    "Device capacitances and gm hold at this operating point and {} °C only; a bias \
-                     or temperature change moves them.",
-                    plain(design.temperature_k - 273.15, 4)
-                ),
-            ));
+        if let Some(max) = d.bias.max_power_w {
+            if d.bias.power_w > DISSIPATION_FLAG * max {
+                out.push(computed(
+                    "dissipation",
+                    format!(
+                        "{part} dissipates {} of its {} rating ({} %); check the derating at \
+                         the highest ambient temperature.",
+                        si(d.bias.power_w, "W", 3),
+                        si(max, "W", 3),
+                        plain(d.bias.power_w / max * 100.0, 3)
+                    ),
+                ));
+            }
         }
     }
-    if a.has_inductors {
-        let gap = h
-            .estimate_errors
-            .time_constant
-            .map_or("—".into(), |e| format!("{} %", plain(e * 100.0, 2)));
+    if !op.devices.is_empty() {
         out.push(computed(
-            "inductors",
+            "bias_dependent_capacitance",
             format!(
-                "The network has inductors: the time-constant estimates treat them as wires, so \
-                 they can be far from the exact response here (the upper estimate is off by {gap}). \
-                 Use the exact cut-offs."
+                "Device capacitances and gm hold at this operating point and {} °C only; a bias \
+                 or temperature change moves them.",
+                plain(temperature_k - 273.15, 4)
             ),
         ));
     }
+}
+
+/// The standard notes, and the hazardous-voltage caution when the supplies call for it.
+fn standard_cautions(design: &Design, out: &mut Vec<Caution>) {
     out.push(standard(
         "small_signal",
         "These are small-signal results for the stated models; confirm gain and bandwidth by \
@@ -200,5 +219,4 @@ pub fn cautions(design: &Design, a: &Analysis) -> Vec<Caution> {
              precedence over this document.",
         ));
     }
-    out
 }

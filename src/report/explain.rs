@@ -7,8 +7,9 @@
 
 use serde::Serialize;
 
+use crate::analysis::time_constants::OpenCircuitCap;
 use crate::analysis::tolerance::Study;
-use crate::analysis::{Analysis, RootHz};
+use crate::analysis::{Analysis, High, RootHz};
 use crate::notation::{plain, si};
 use crate::report::tables::cell;
 
@@ -76,13 +77,23 @@ fn levers(s: &Study, figure: &str, symbol: &str, up: bool) -> Option<String> {
 
 fn high(a: &Analysis) -> Vec<String> {
     let h = &a.high;
-    let mut out = Vec::new();
     let mut caps: Vec<_> = h.octc.caps.iter().collect();
     if caps.is_empty() {
-        out.push("No capacitor limits the bandwidth at the high end: the design has no high-frequency capacitances.".to_string());
-        return out;
+        return vec!["No capacitor limits the bandwidth at the high end: the design has no high-frequency capacitances.".to_string()];
     }
     caps.sort_by(|x, y| y.share.total_cmp(&x.share));
+    let mut out = vec![high_cause(h, &caps)];
+    out.push(high_estimate_accuracy(a));
+    if let Some(text) = right_half_plane_zero(a) {
+        out.push(text);
+    }
+    out.push(high_lever(caps[0]));
+    out
+}
+
+/// Which capacitor sets the upper cut-off, with what share, and whether Miller
+/// multiplication is why; `caps` sorted by share, largest first.
+fn high_cause(h: &High, caps: &[&OpenCircuitCap]) -> String {
     let top = caps[0];
     let mut lead = format!(
         "The upper cut-off is set mainly by **{}**: it holds {} of the time-constant sum Στ = {} \
@@ -114,9 +125,12 @@ fn high(a: &Analysis) -> Vec<String> {
             pct(caps[1].share)
         ));
     }
-    out.push(lead);
+    lead
+}
 
-    // Which estimate to trust, and why.
+/// Which estimate of the upper cut-off to trust, and why.
+fn high_estimate_accuracy(a: &Analysis) -> String {
+    let h = &a.high;
     let exact = h.f3db_hz;
     let e = &h.estimate_errors;
     let exact_text = exact.map_or("—".into(), |f| si(f, "Hz", 4));
@@ -131,27 +145,27 @@ fn high(a: &Analysis) -> Vec<String> {
     let complex = h.poles_hz.first().is_some_and(|p| p.im_hz != 0.0);
     let tc_ok = e.time_constant.is_some_and(|x| x.abs() <= TRUSTED_ERROR);
     if exact.is_none() {
-        out.push("No upper −3 dB point was found within three decades above the sweep: the response does not fall by 3 dB there.".to_string());
+        "No upper −3 dB point was found within three decades above the sweep: the response does not fall by 3 dB there.".to_string()
     } else if complex {
         let q = quality(&h.poles_hz[0]);
-        out.push(format!(
+        format!(
             "The two lowest high-frequency poles form a complex pair (Q = {}), so no single pole dominates; \
              the time-constant sum is {} off the exact {exact_text}.{best_text} Check the response for peaking.",
             plain(q, 3),
             e.time_constant.map_or("—".into(), signed_pct),
-        ));
+        )
     } else if tc_ok && h.dominance_ratio.is_none_or(|k| k >= DOMINANT_RATIO) {
         match h.dominance_ratio {
-            Some(k) => out.push(format!(
+            Some(k) => format!(
                 "The next pole is {}× higher, so the single-pole estimate holds: the time-constant sum \
                  is within {} of the exact {exact_text}.",
                 plain(k, 3),
                 e.time_constant.map_or("—".into(), signed_pct),
-            )),
-            None => out.push(format!(
+            ),
+            None => format!(
                 "There is one high-frequency pole; the time-constant sum is within {} of the exact {exact_text}.",
                 e.time_constant.map_or("—".into(), signed_pct),
-            )),
+            ),
         }
     } else {
         let cause = match h.dominance_ratio {
@@ -179,41 +193,41 @@ fn high(a: &Analysis) -> Vec<String> {
                 }
             }
         };
-        out.push(format!(
+        format!(
             "Warning: the time-constant sum misses the exact {exact_text} by {}, because {cause}.{best_text}",
             e.time_constant.map_or("—".into(), signed_pct),
-        ));
+        )
     }
+}
 
-    // Right-half-plane zeros.
-    if let Some(z) = h
+/// Where the nearest right-half-plane zero sits against the upper cut-off, if there is one.
+fn right_half_plane_zero(a: &Analysis) -> Option<String> {
+    let h = &a.high;
+    let exact = h.f3db_hz;
+    let z = h
         .zeros_hz
         .iter()
         .filter(|z| z.re_hz > 0.0)
-        .min_by(|x, y| x.magnitude_hz().total_cmp(&y.magnitude_hz()))
-    {
-        let f_z = z.magnitude_hz();
-        let place = match exact.map(|f| f_z / f) {
-            Some(r) if r < 1.0 => "below the upper cut-off, inside the band".to_string(),
-            Some(r) if r < 10.0 => format!(
-                "only {}× above the cut-off, close enough to shape the band edge",
-                plain(r, 3)
-            ),
-            Some(r) => format!("{}× above the cut-off, well clear of the band", plain(r, 3)),
-            None => "beyond the band".to_string(),
-        };
-        let effect = if a.midband.gain < 0.0 {
-            "above it the stage stops inverting and the phase keeps falling"
-        } else {
-            "above it the phase keeps falling"
-        };
-        out.push(format!(
-            "A right-half-plane zero sits at {}, {place}; {effect}.",
-            si(f_z, "Hz", 4)
-        ));
-    }
+        .min_by(|x, y| x.magnitude_hz().total_cmp(&y.magnitude_hz()))?;
+    let f_z = z.magnitude_hz();
+    let place = match exact.map(|f| f_z / f) {
+        Some(r) if r < 1.0 => "below the upper cut-off, inside the band".to_string(),
+        Some(r) if r < 10.0 => {
+            format!("only {}× above the cut-off, close enough to shape the band edge", plain(r, 3))
+        }
+        Some(r) => format!("{}× above the cut-off, well clear of the band", plain(r, 3)),
+        None => "beyond the band".to_string(),
+    };
+    let effect = if a.midband.gain < 0.0 {
+        "above it the stage stops inverting and the phase keeps falling"
+    } else {
+        "above it the phase keeps falling"
+    };
+    Some(format!("A right-half-plane zero sits at {}, {place}; {effect}.", si(f_z, "Hz", 4)))
+}
 
-    // What would move it.
+/// What would raise the upper cut-off, from the capacitor that sets it.
+fn high_lever(top: &OpenCircuitCap) -> String {
     let lever = if top.miller_factor.is_some_and(|m| m >= 2.0) {
         format!(
             "lower the gain across {} or the resistance driving its input side, or shrink the \
@@ -228,17 +242,16 @@ fn high(a: &Analysis) -> Vec<String> {
         )
     };
     if top.share >= 0.8 {
-        out.push(format!(
+        format!(
             "To raise f_H, {lever}: with {} of the sum it sets f_H almost in proportion.",
             pct(top.share)
-        ));
+        )
     } else {
-        out.push(format!(
+        format!(
             "To raise f_H, {lever}: the time-constant estimate moves by about {} % per % change of its time constant.",
             plain(top.share * 100.0, 2)
-        ));
+        )
     }
-    out
 }
 
 /// The estimate with the smallest error, if any has one.

@@ -13,8 +13,9 @@ use std::collections::BTreeMap;
 
 use serde::{Deserialize, Serialize};
 
+use crate::analysis::requirements::RequirementCheck;
 use crate::analysis::tolerance::{MonteCarlo, Study};
-use crate::analysis::{Analysis, DeviceReport, RootHz};
+use crate::analysis::{Analysis, DeviceReport, OperatingPointReport, RootHz};
 use crate::circuit::operating_point::DeviceState;
 use crate::design::{Design, Tolerance};
 use crate::review::Review;
@@ -544,15 +545,7 @@ pub fn document(
                 None => format!("tauweave render {design_name}"),
             },
         },
-        operating_point: a.operating_point.as_ref().map(|op| OperatingPointResults {
-            converged: op.converged,
-            method: op.method.as_ref().map(name_of),
-            iterations: op.iterations,
-            kcl_residual_a: op.kcl_residual_a,
-            thermal_voltage_v: op.thermal_voltage_v,
-            nodes: op.nodes.clone(),
-            devices: op.devices.iter().map(device).collect(),
-        }),
+        operating_point: a.operating_point.as_ref().map(operating_point),
         capacitors: a
             .capacitors
             .iter()
@@ -575,38 +568,9 @@ pub fn document(
         poles: roots(&a.poles),
         zeros: roots(&a.zeros),
         has_inductors: a.has_inductors,
-        requirements: review
-            .requirements
-            .iter()
-            .map(|c| RequirementResults {
-                name: c.name.into(),
-                unit: c.unit.into(),
-                min: c.min,
-                max: c.max,
-                value: c.value,
-                pass: c.pass,
-                margin: c.margin,
-                corner: c.corner,
-                corner_pass: c.corner_pass,
-                yield_fraction: c.yield_fraction,
-            })
-            .collect(),
+        requirements: review.requirements.iter().map(requirement).collect(),
         sensitivity: Some(sensitivity(&review.study)),
-        tolerance: Some(ToleranceSummary {
-            worst_case: review
-                .study
-                .worst_case
-                .iter()
-                .map(|w| WorstCaseResults {
-                    figure: w.figure.clone(),
-                    nominal: w.nominal,
-                    linear_bound: w.linear_bound,
-                    high_corner: w.high_corner,
-                    low_corner: w.low_corner,
-                })
-                .collect(),
-            monte_carlo: review.study.monte_carlo.as_ref().map(monte_carlo),
-        }),
+        tolerance: Some(tolerance_summary(&review.study)),
         cautions: review
             .cautions
             .iter()
@@ -616,6 +580,50 @@ pub fn document(
                 text: c.text.clone(),
             })
             .collect(),
+    }
+}
+
+fn operating_point(op: &OperatingPointReport) -> OperatingPointResults {
+    OperatingPointResults {
+        converged: op.converged,
+        method: op.method.as_ref().map(name_of),
+        iterations: op.iterations,
+        kcl_residual_a: op.kcl_residual_a,
+        thermal_voltage_v: op.thermal_voltage_v,
+        nodes: op.nodes.clone(),
+        devices: op.devices.iter().map(device).collect(),
+    }
+}
+
+fn requirement(c: &RequirementCheck) -> RequirementResults {
+    RequirementResults {
+        name: c.name.into(),
+        unit: c.unit.into(),
+        min: c.min,
+        max: c.max,
+        value: c.value,
+        pass: c.pass,
+        margin: c.margin,
+        corner: c.corner,
+        corner_pass: c.corner_pass,
+        yield_fraction: c.yield_fraction,
+    }
+}
+
+fn tolerance_summary(study: &Study) -> ToleranceSummary {
+    ToleranceSummary {
+        worst_case: study
+            .worst_case
+            .iter()
+            .map(|w| WorstCaseResults {
+                figure: w.figure.clone(),
+                nominal: w.nominal,
+                linear_bound: w.linear_bound,
+                high_corner: w.high_corner,
+                low_corner: w.low_corner,
+            })
+            .collect(),
+        monte_carlo: study.monte_carlo.as_ref().map(monte_carlo),
     }
 }
 

@@ -7,8 +7,8 @@
 use std::collections::BTreeMap;
 
 use crate::analysis::requirements::RequirementCheck;
-use crate::analysis::tolerance::Study;
-use crate::analysis::{Analysis, RootHz};
+use crate::analysis::tolerance::{MonteCarlo, Study};
+use crate::analysis::{Analysis, OperatingPointReport, RootHz};
 use crate::circuit::operating_point::DeviceState;
 use crate::design::{Design, Part, PartKind, Tolerance, Toleranced};
 use crate::notation::{plain, scientific, si};
@@ -140,6 +140,22 @@ pub fn all(
     study: Option<&Study>,
 ) -> BTreeMap<&'static str, String> {
     let mut t = BTreeMap::new();
+    t.insert("parts", parts_table(design));
+    if let Some(op) = &a.operating_point {
+        operating_point_tables(&mut t, op);
+    }
+    t.insert("capacitors", capacitors_table(a));
+    cut_off_tables(&mut t, a);
+    t.insert("poles_zeros", poles_zeros_table(a));
+    t.insert("requirements", requirements_table(reqs));
+    if let Some(s) = study {
+        study_tables(&mut t, s);
+    }
+    t
+}
+
+/// `parts`: every part with its kind, value, tolerance, connections and note.
+fn parts_table(design: &Design) -> String {
     let parts = design
         .parts
         .iter()
@@ -149,81 +165,78 @@ pub fn all(
             row
         })
         .collect();
+    markdown_table(&["part", "kind", "value", "tolerance", "connects", "note"], "llllll", parts)
+}
+
+/// `nodes` and `devices`: node voltages and each transistor's bias and small-signal model.
+fn operating_point_tables(t: &mut BTreeMap<&'static str, String>, op: &OperatingPointReport) {
+    let nodes = op
+        .nodes
+        .iter()
+        .filter(|(n, _)| !n.contains('.') && n.as_str() != "source")
+        .map(|(n, v)| vec![cell(n), si(*v, "V", 4)])
+        .collect();
+    t.insert("nodes", markdown_table(&["node", "voltage"], "lr", nodes));
+    let devices = op
+        .devices
+        .iter()
+        .map(|d| {
+            let ss = &d.small_signal;
+            let (region, bias, caps) = match &d.bias.state {
+                DeviceState::Bjt { region, ic_a, vce_v, vbe_v, .. } => (
+                    region.label().to_string(),
+                    format!(
+                        "I_C {}, V_CE {}, V_BE {}",
+                        si(*ic_a, "A", 3),
+                        si(*vce_v, "V", 3),
+                        si(*vbe_v, "V", 4)
+                    ),
+                    format!("Cπ {}, Cμ {}", opt(ss.cpi_f, "F"), opt(ss.cmu_f, "F")),
+                ),
+                DeviceState::Mosfet { region, id_a, vds_v, vgs_v, .. } => (
+                    region.label().to_string(),
+                    format!(
+                        "I_D {}, V_DS {}, V_GS {}",
+                        si(*id_a, "A", 3),
+                        si(*vds_v, "V", 3),
+                        si(*vgs_v, "V", 4)
+                    ),
+                    format!(
+                        "Cgs {}, Cgd {}, Cdb {}",
+                        opt(ss.cgs_f, "F"),
+                        opt(ss.cgd_f, "F"),
+                        opt(ss.cdb_f, "F")
+                    ),
+                ),
+            };
+            let power = match d.bias.max_power_w {
+                Some(m) => format!("{} of {}", si(d.bias.power_w, "W", 3), si(m, "W", 3)),
+                None => si(d.bias.power_w, "W", 3),
+            };
+            let rpi = ss.rpi_ohm.map_or(String::new(), |r| format!(", rπ {}", si(r, "Ω", 3)));
+            let ro = ss.ro_ohm.map_or("∞".into(), |r| si(r, "Ω", 3));
+            vec![
+                cell(&d.bias.part),
+                region,
+                bias,
+                power,
+                format!("gm {}{rpi}, ro {ro}", si(ss.gm_s, "S", 3)),
+                caps,
+            ]
+        })
+        .collect();
     t.insert(
-        "parts",
+        "devices",
         markdown_table(
-            &["part", "kind", "value", "tolerance", "connects", "note"],
+            &["device", "region", "bias", "dissipation", "small signal", "capacitances"],
             "llllll",
-            parts,
+            devices,
         ),
     );
+}
 
-    if let Some(op) = &a.operating_point {
-        let nodes = op
-            .nodes
-            .iter()
-            .filter(|(n, _)| !n.contains('.') && n.as_str() != "source")
-            .map(|(n, v)| vec![cell(n), si(*v, "V", 4)])
-            .collect();
-        t.insert("nodes", markdown_table(&["node", "voltage"], "lr", nodes));
-        let devices = op
-            .devices
-            .iter()
-            .map(|d| {
-                let ss = &d.small_signal;
-                let (region, bias, caps) = match &d.bias.state {
-                    DeviceState::Bjt { region, ic_a, vce_v, vbe_v, .. } => (
-                        region.label().to_string(),
-                        format!(
-                            "I_C {}, V_CE {}, V_BE {}",
-                            si(*ic_a, "A", 3),
-                            si(*vce_v, "V", 3),
-                            si(*vbe_v, "V", 4)
-                        ),
-                        format!("Cπ {}, Cμ {}", opt(ss.cpi_f, "F"), opt(ss.cmu_f, "F")),
-                    ),
-                    DeviceState::Mosfet { region, id_a, vds_v, vgs_v, .. } => (
-                        region.label().to_string(),
-                        format!(
-                            "I_D {}, V_DS {}, V_GS {}",
-                            si(*id_a, "A", 3),
-                            si(*vds_v, "V", 3),
-                            si(*vgs_v, "V", 4)
-                        ),
-                        format!(
-                            "Cgs {}, Cgd {}, Cdb {}",
-                            opt(ss.cgs_f, "F"),
-                            opt(ss.cgd_f, "F"),
-                            opt(ss.cdb_f, "F")
-                        ),
-                    ),
-                };
-                let power = match d.bias.max_power_w {
-                    Some(m) => format!("{} of {}", si(d.bias.power_w, "W", 3), si(m, "W", 3)),
-                    None => si(d.bias.power_w, "W", 3),
-                };
-                let rpi = ss.rpi_ohm.map_or(String::new(), |r| format!(", rπ {}", si(r, "Ω", 3)));
-                let ro = ss.ro_ohm.map_or("∞".into(), |r| si(r, "Ω", 3));
-                vec![
-                    cell(&d.bias.part),
-                    region,
-                    bias,
-                    power,
-                    format!("gm {}{rpi}, ro {ro}", si(ss.gm_s, "S", 3)),
-                    caps,
-                ]
-            })
-            .collect();
-        t.insert(
-            "devices",
-            markdown_table(
-                &["device", "region", "bias", "dissipation", "small signal", "capacitances"],
-                "llllll",
-                devices,
-            ),
-        );
-    }
-
+/// `capacitors`: every capacitor, its set and why.
+fn capacitors_table(a: &Analysis) -> String {
     let caps = a
         .capacitors
         .iter()
@@ -240,8 +253,12 @@ pub fn all(
             ]
         })
         .collect();
-    t.insert("capacitors", markdown_table(&["capacitor", "value", "set", "because"], "lrll", caps));
+    markdown_table(&["capacitor", "value", "set", "because"], "lrll", caps)
+}
 
+/// `high_estimates`, `octc`, `low_estimates` and `sctc`: both cut-offs with their estimates
+/// and time-constant tables.
+fn cut_off_tables(t: &mut BTreeMap<&'static str, String>, a: &Analysis) {
     let h = &a.high;
     let mut high_est =
         markdown_table(&["upper cut-off", "f_H", "error"], "lrr", high_estimate_rows(h));
@@ -279,7 +296,10 @@ pub fn all(
             escaped(sctc_rows(l)),
         ),
     );
+}
 
+/// `poles_zeros`: the whole network's poles and zeros side by side.
+fn poles_zeros_table(a: &Analysis) -> String {
     let n = a.poles.len().max(a.zeros.len());
     let pz = (0..n)
         .map(|i| {
@@ -289,8 +309,11 @@ pub fn all(
             ]
         })
         .collect();
-    t.insert("poles_zeros", markdown_table(&["poles (s/2π)", "zeros (s/2π)"], "rr", pz));
+    markdown_table(&["poles (s/2π)", "zeros (s/2π)"], "rr", pz)
+}
 
+/// `requirements`: each requirement, failures in bold.
+fn requirements_table(reqs: &[RequirementCheck]) -> String {
     let req = reqs
         .iter()
         .map(|r| {
@@ -304,18 +327,11 @@ pub fn all(
             row
         })
         .collect();
-    t.insert(
-        "requirements",
-        markdown_table(
-            &["requirement", "limit", "nominal", "result", "margin", "worst corner", "yield"],
-            "llrlrrr",
-            req,
-        ),
-    );
-    if let Some(s) = study {
-        study_tables(&mut t, s);
-    }
-    t
+    markdown_table(
+        &["requirement", "limit", "nominal", "result", "margin", "worst corner", "yield"],
+        "llrlrrr",
+        req,
+    )
 }
 
 /// The upper cut-off's exact value and estimates: label, f_H, error (shared with the
@@ -453,6 +469,15 @@ fn figure_value(key: &str, v: f64) -> String {
 }
 
 fn study_tables(t: &mut BTreeMap<&'static str, String>, s: &Study) {
+    t.insert("sensitivity", sensitivity_table(s));
+    t.insert("worst_case", worst_case_table(s));
+    if let Some(mc) = &s.monte_carlo {
+        t.insert("monte_carlo", monte_carlo_table(mc));
+    }
+}
+
+/// `sensitivity`: the levers that move a headline figure, strongest first.
+fn sensitivity_table(s: &Study) -> String {
     let shown: Vec<usize> = s
         .figures
         .iter()
@@ -491,8 +516,11 @@ fn study_tables(t: &mut BTreeMap<&'static str, String>, s: &Study) {
         "\nS = ∂ln y/∂ln x by central differences (step {}), the operating point re-solved at each step.\n",
         plain(s.step, 2)
     ));
-    t.insert("sensitivity", text);
+    text
+}
 
+/// `worst_case`: the linearised bound and the evaluated corners of each figure.
+fn worst_case_table(s: &Study) -> String {
     let wc = s
         .worst_case
         .iter()
@@ -511,51 +539,49 @@ fn study_tables(t: &mut BTreeMap<&'static str, String>, s: &Study) {
             ]
         })
         .collect();
-    t.insert(
-        "worst_case",
-        markdown_table(
-            &["figure", "nominal", "linear bound Σ\\|S\\|·t", "low corner", "high corner"],
-            "lrrrr",
-            wc,
-        ),
-    );
+    markdown_table(
+        &["figure", "nominal", "linear bound Σ\\|S\\|·t", "low corner", "high corner"],
+        "lrrrr",
+        wc,
+    )
+}
 
-    if let Some(mc) = &s.monte_carlo {
-        let rows = mc
-            .spreads
-            .iter()
-            .map(|sp| {
-                let mut row = vec![
-                    figure_label(&sp.figure),
-                    figure_value(&sp.figure, sp.mean),
-                    format!("{} %", plain(sp.std_dev / sp.mean * 100.0, 3)),
-                ];
-                row.extend(sp.percentiles.iter().map(|p| figure_value(&sp.figure, *p)));
-                row
-            })
-            .collect();
-        let mut text = markdown_table(
-            &["figure", "mean", "σ/mean", "1 %", "5 %", "50 %", "95 %", "99 %"],
-            "lrrrrrrr",
-            rows,
-        );
-        let failed = if mc.failed_runs.is_empty() {
-            String::new()
-        } else {
-            let list: Vec<String> = mc.failed_runs.iter().take(20).map(|r| r.to_string()).collect();
-            format!(" (runs {})", list.join(", "))
-        };
-        text.push_str(&format!(
-            "\n{} runs, seed {}; {} run{} did not converge{failed}.{}\n",
-            mc.runs,
-            mc.seed,
-            mc.failed_runs.len(),
-            if mc.failed_runs.len() == 1 { "" } else { "s" },
-            mc.yield_all.map_or(String::new(), |y| format!(
-                " Yield of all requirements together: **{} %**.",
-                plain(y * 100.0, 4)
-            ))
-        ));
-        t.insert("monte_carlo", text);
-    }
+/// `monte_carlo`: the spread of each figure and the joint yield.
+fn monte_carlo_table(mc: &MonteCarlo) -> String {
+    let rows = mc
+        .spreads
+        .iter()
+        .map(|sp| {
+            let mut row = vec![
+                figure_label(&sp.figure),
+                figure_value(&sp.figure, sp.mean),
+                format!("{} %", plain(sp.std_dev / sp.mean * 100.0, 3)),
+            ];
+            row.extend(sp.percentiles.iter().map(|p| figure_value(&sp.figure, *p)));
+            row
+        })
+        .collect();
+    let mut text = markdown_table(
+        &["figure", "mean", "σ/mean", "1 %", "5 %", "50 %", "95 %", "99 %"],
+        "lrrrrrrr",
+        rows,
+    );
+    let failed = if mc.failed_runs.is_empty() {
+        String::new()
+    } else {
+        let list: Vec<String> = mc.failed_runs.iter().take(20).map(|r| r.to_string()).collect();
+        format!(" (runs {})", list.join(", "))
+    };
+    text.push_str(&format!(
+        "\n{} runs, seed {}; {} run{} did not converge{failed}.{}\n",
+        mc.runs,
+        mc.seed,
+        mc.failed_runs.len(),
+        if mc.failed_runs.len() == 1 { "" } else { "s" },
+        mc.yield_all.map_or(String::new(), |y| format!(
+            " Yield of all requirements together: **{} %**.",
+            plain(y * 100.0, 4)
+        ))
+    ));
+    text
 }
