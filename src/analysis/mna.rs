@@ -74,6 +74,10 @@ pub struct Assembly {
 }
 
 /// Assembles the network with each capacitor as `state` says (by element index).
+///
+/// Long because it is one match over the element kinds, each arm the stamp of that element
+/// into G, C and the branch rows; split, the stamps would lose sight of the shared unknown
+/// numbering they all write into.
 pub fn assemble(net: &LinearNetwork, state: impl Fn(usize) -> CapState, opts: Assembly) -> Mna {
     let nodes = net.nodes.len() - 1;
     let mut next = nodes;

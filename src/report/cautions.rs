@@ -9,7 +9,7 @@ use crate::analysis::{Analysis, OperatingPointReport};
 use crate::circuit::devices::{BjtRegion, MosRegion};
 use crate::circuit::operating_point::DeviceState;
 use crate::design::Design;
-use crate::notation::{plain, si};
+use crate::notation::{absent, plain, si};
 use crate::report::explain::DOMINANT_RATIO;
 
 /// Supply magnitude from which the hazard caution is raised, V. 60 V DC is the usual
@@ -55,7 +55,7 @@ pub fn cautions(design: &Design, a: &Analysis) -> Vec<Caution> {
             .high
             .estimate_errors
             .time_constant
-            .map_or("—".into(), |e| format!("{} %", plain(e * 100.0, 2)));
+            .map_or_else(absent, |e| format!("{} %", plain(e * 100.0, 2)));
         out.push(computed(
             "inductors",
             format!(
@@ -82,7 +82,7 @@ fn response_cautions(a: &Analysis, out: &mut Vec<Caution>) {
                      estimate of f_H is off by {}; use the exact value or the second-order estimate.",
                     plain(k, 3),
                     plain(DOMINANT_RATIO, 2),
-                    h.estimate_errors.time_constant.map_or("—".into(), |e| format!("{} %", plain(e * 100.0, 2)))
+                    h.estimate_errors.time_constant.map_or_else(absent, |e| format!("{} %", plain(e * 100.0, 2)))
                 ),
             ));
         }

@@ -14,7 +14,7 @@ use serde::Serialize;
 use serde_json::Value;
 
 use crate::design::{Design, Part, Toleranced};
-use crate::notation::{number, plain, si, signed_percent};
+use crate::notation::{ABSENT, absent, number, plain, si, signed_percent};
 use crate::report::results::{
     DeviceBiasResults, RequirementResults, ResultsDocument, RootResults, Tool, tool,
 };
@@ -178,7 +178,7 @@ pub fn compare(old: &Revision, new: &Revision) -> Change {
         let (a, b) = (find(&before, key), find(&after, key));
         let Some(any) = b.as_ref().or(a.as_ref()) else { continue };
         let (x, y) = (a.as_ref().map(|f| f.value), b.as_ref().map(|f| f.value));
-        let text = |f: &Option<Figure>| f.as_ref().map_or("—".to_string(), Figure::text);
+        let text = |f: &Option<Figure>| f.as_ref().map_or_else(absent, Figure::text);
         let (old_text, new_text) = (text(&a), text(&b));
         if x == y && old_text == new_text {
             continue;
@@ -238,7 +238,7 @@ fn requirement_value(r: &RequirementResults) -> String {
 /// A requirement's limits as text (`—` without limits).
 fn requirement_limit(r: &RequirementResults) -> String {
     let limit = tables::requirement_limit(&r.name, &r.unit, r.min, r.max);
-    if limit.is_empty() { "—".into() } else { limit }
+    if limit.is_empty() { absent() } else { limit }
 }
 
 fn find_requirement<'a>(
@@ -299,10 +299,10 @@ fn status_change(
         requirement: name.to_string(),
         old_pass: old.map(|r| r.pass),
         new_pass: new.map(|r| r.pass),
-        old_value: old.map_or("—".into(), requirement_value),
-        new_value: new.map_or("—".into(), requirement_value),
-        old_limit: old.map_or("—".into(), requirement_limit),
-        new_limit: new.map_or("—".into(), requirement_limit),
+        old_value: old.map_or_else(absent, requirement_value),
+        new_value: new.map_or_else(absent, requirement_value),
+        old_limit: old.map_or_else(absent, requirement_limit),
+        new_limit: new.map_or_else(absent, requirement_limit),
     }
 }
 
@@ -341,7 +341,7 @@ fn model_parameters(v: &Value) -> BTreeMap<String, String> {
     fn walk(v: &Value, path: &str, out: &mut BTreeMap<String, String>) {
         match v {
             Value::Object(m) if m.contains_key("nominal") => {
-                let n = m["nominal"].as_f64().map_or("—".into(), |x| number(x, 4));
+                let n = m["nominal"].as_f64().map_or_else(absent, |x| number(x, 4));
                 let t = m
                     .get("tolerance")
                     .and_then(|t| t["fraction"].as_f64())
@@ -355,7 +355,7 @@ fn model_parameters(v: &Value) -> BTreeMap<String, String> {
                 }
             }
             Value::Number(n) => {
-                out.insert(path.to_string(), n.as_f64().map_or("—".into(), |x| number(x, 4)));
+                out.insert(path.to_string(), n.as_f64().map_or_else(absent, |x| number(x, 4)));
             }
             Value::Null => {}
             other => {
@@ -370,6 +370,14 @@ fn model_parameters(v: &Value) -> BTreeMap<String, String> {
 
 fn part_changes(old: &Design, new: &Design) -> Vec<PartChange> {
     let mut out = Vec::new();
+    changed_parts(old, new, &mut out);
+    changed_models(old, new, &mut out);
+    changed_settings(old, new, &mut out);
+    out
+}
+
+/// Parts added, removed or changed, by designator.
+fn changed_parts(old: &Design, new: &Design, out: &mut Vec<PartChange>) {
     for p in &new.parts {
         let after = part_summary(p, new);
         match old.parts.iter().find(|q| q.name == p.name) {
@@ -400,6 +408,10 @@ fn part_changes(old: &Design, new: &Design) -> Vec<PartChange> {
             new: None,
         });
     }
+}
+
+/// Models added or removed, and each parameter of a model on both sides that changed.
+fn changed_models(old: &Design, new: &Design, out: &mut Vec<PartChange>) {
     for m in &new.models {
         let after = model_parameters(&serde_json::to_value(&m.device).unwrap_or_default());
         let Some(o) = old.models.iter().find(|o| o.name == m.name) else {
@@ -438,6 +450,10 @@ fn part_changes(old: &Design, new: &Design) -> Vec<PartChange> {
             new: None,
         });
     }
+}
+
+/// Supplies, signal, output, temperature and Monte Carlo settings that changed.
+fn changed_settings(old: &Design, new: &Design, out: &mut Vec<PartChange>) {
     let (before, after) = (settings(old), settings(new));
     let keys: std::collections::BTreeSet<&String> = before.keys().chain(after.keys()).collect();
     for k in keys {
@@ -455,7 +471,6 @@ fn part_changes(old: &Design, new: &Design) -> Vec<PartChange> {
             });
         }
     }
-    out
 }
 
 /// One reviewed figure of one revision.
@@ -618,7 +633,7 @@ fn pole_figures(old: &[RootResults], new: &[RootResults]) -> (Vec<Figure>, Vec<F
 /// A value in its unit: engineering notation, V/V plain, dB, a fraction as per cent.
 fn show(v: Option<f64>, unit: &str) -> String {
     match (v, unit) {
-        (None, _) => "—".into(),
+        (None, _) => absent(),
         (Some(v), "%") => format!("{} %", plain(v * 100.0, 4)),
         (Some(v), "") => format!("{} V/V", plain(v, 4)),
         (Some(v), "dB") => format!("{} dB", plain(v, 4)),
@@ -635,13 +650,13 @@ pub fn moved_rows(c: &Change) -> Vec<Vec<String>> {
     c.moved
         .iter()
         .map(|m| {
-            let absolute = m.absolute.map_or("—".into(), |d| match m.unit {
+            let absolute = m.absolute.map_or_else(absent, |d| match m.unit {
                 // A yield moves in percentage points.
                 "%" => signed(format!("{} pt", plain(d * 100.0, 3)), d > 0.0),
                 "dB" => signed(format!("{} dB", plain(d, 3)), d > 0.0),
                 unit => signed(show(Some(d), unit), d > 0.0),
             });
-            let relative = m.relative.map_or("—".into(), |r| signed_percent(r, 3));
+            let relative = m.relative.map_or_else(absent, |r| signed_percent(r, 3));
             vec![m.label.clone(), m.old_text.clone(), m.new_text.clone(), absolute, relative]
         })
         .collect()
@@ -651,7 +666,7 @@ fn pass_text(p: Option<bool>) -> &'static str {
     match p {
         Some(true) => "pass",
         Some(false) => "FAIL",
-        None => "—",
+        None => ABSENT,
     }
 }
 
@@ -683,8 +698,8 @@ pub fn part_rows(c: &Change) -> Vec<Vec<String>> {
             vec![
                 p.change.to_string(),
                 p.item.clone(),
-                p.old.clone().unwrap_or_else(|| "—".into()),
-                p.new.clone().unwrap_or_else(|| "—".into()),
+                p.old.clone().unwrap_or_else(absent),
+                p.new.clone().unwrap_or_else(absent),
             ]
         })
         .collect()

@@ -10,7 +10,7 @@ use serde::Serialize;
 use crate::analysis::time_constants::OpenCircuitCap;
 use crate::analysis::tolerance::Study;
 use crate::analysis::{Analysis, High, RootHz};
-use crate::notation::{plain, si};
+use crate::notation::{absent, plain, si};
 use crate::report::tables::cell;
 
 /// Pole separation at or above which one pole dominates (common practice: the nearest
@@ -100,8 +100,8 @@ fn high_cause(h: &High, caps: &[&OpenCircuitCap]) -> String {
          (f_H ≈ {} from the sum), with {} seeing {}.",
         cell(&top.part),
         pct(top.share),
-        h.b1_s.map_or("—".into(), |b| si(b, "s", 4)),
-        h.octc.f_estimate_hz.map_or("—".into(), |f| si(f, "Hz", 4)),
+        h.b1_s.map_or_else(absent, |b| si(b, "s", 4)),
+        h.octc.f_estimate_hz.map_or_else(absent, |f| si(f, "Hz", 4)),
         si(top.c_f, "F", 3),
         si(top.r_ohm, "Ω", 4),
     );
@@ -133,7 +133,7 @@ fn high_estimate_accuracy(a: &Analysis) -> String {
     let h = &a.high;
     let exact = h.f3db_hz;
     let e = &h.estimate_errors;
-    let exact_text = exact.map_or("—".into(), |f| si(f, "Hz", 4));
+    let exact_text = exact.map_or_else(absent, |f| si(f, "Hz", 4));
     let best = best_of(&[
         ("the time-constant sum", e.time_constant),
         ("the second-order estimate from b1 and b2", e.second_order),
@@ -152,7 +152,7 @@ fn high_estimate_accuracy(a: &Analysis) -> String {
             "The two lowest high-frequency poles form a complex pair (Q = {}), so no single pole dominates; \
              the time-constant sum is {} off the exact {exact_text}.{best_text} Check the response for peaking.",
             plain(q, 3),
-            e.time_constant.map_or("—".into(), signed_pct),
+            e.time_constant.map_or_else(absent, signed_pct),
         )
     } else if tc_ok && h.dominance_ratio.is_none_or(|k| k >= DOMINANT_RATIO) {
         match h.dominance_ratio {
@@ -160,11 +160,11 @@ fn high_estimate_accuracy(a: &Analysis) -> String {
                 "The next pole is {}× higher, so the single-pole estimate holds: the time-constant sum \
                  is within {} of the exact {exact_text}.",
                 plain(k, 3),
-                e.time_constant.map_or("—".into(), signed_pct),
+                e.time_constant.map_or_else(absent, signed_pct),
             ),
             None => format!(
                 "There is one high-frequency pole; the time-constant sum is within {} of the exact {exact_text}.",
-                e.time_constant.map_or("—".into(), signed_pct),
+                e.time_constant.map_or_else(absent, signed_pct),
             ),
         }
     } else {
@@ -195,7 +195,7 @@ fn high_estimate_accuracy(a: &Analysis) -> String {
         };
         format!(
             "Warning: the time-constant sum misses the exact {exact_text} by {}, because {cause}.{best_text}",
-            e.time_constant.map_or("—".into(), signed_pct),
+            e.time_constant.map_or_else(absent, signed_pct),
         )
     }
 }
@@ -283,10 +283,10 @@ fn low(a: &Analysis) -> Vec<String> {
         si(top.c_f, "F", 3),
         si(top.r_ohm, "Ω", 4),
         pct(top.share),
-        l.sctc.f_estimate_hz.map_or("—".into(), |f| si(f, "Hz", 4))
+        l.sctc.f_estimate_hz.map_or_else(absent, |f| si(f, "Hz", 4))
     ));
-    let exact = l.f3db_hz.map_or("—".into(), |f| si(f, "Hz", 4));
-    let err = l.estimate_errors.time_constant.map_or("—".into(), signed_pct);
+    let exact = l.f3db_hz.map_or_else(absent, |f| si(f, "Hz", 4));
+    let err = l.estimate_errors.time_constant.map_or_else(absent, signed_pct);
     let tc = l.estimate_errors.time_constant;
     let one_pole_no_zero =
         l.poles_hz.len() == 1 && l.zeros_hz.iter().all(|z| z.magnitude_hz() == 0.0);

@@ -136,6 +136,11 @@ fn tornado(s: &Study) -> Option<String> {
     Some(finish(svg))
 }
 
+/// The Monte Carlo histograms, one panel per figure, each requirement limit marked.
+///
+/// Long because it is one plotters drawing sequence threading the same drawing area and
+/// chart contexts from the panel layout to the labels; the plot rework of the review
+/// document (its own issue) replaces it.
 fn histograms(s: &Study, requirements: &[RequirementCheck]) -> Option<String> {
     let mc = s.monte_carlo.as_ref()?;
     let panels: Vec<(&str, &str, Vec<f64>)> =
@@ -246,6 +251,11 @@ fn decade_label(v: f64, unit: &str) -> String {
     si(v, unit, 3)
 }
 
+/// The Bode plot: magnitude and phase of the exact response with the −3 dB points, the
+/// time-constant estimates and the requirement limits marked.
+///
+/// Long because it is one plotters drawing sequence: both panels share the frequency axis
+/// and the markers, and splitting it would pass the chart contexts through every helper.
 fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
     let sweep = &a.sweep;
     if sweep.len() < 2 {
@@ -374,6 +384,10 @@ fn unslog(v: f64, unit: f64) -> f64 {
     if v.abs() <= 1.0 { v * unit } else { v.signum() * unit * 10f64.powf(v.abs() - 1.0) }
 }
 
+/// The pole–zero map on signed-log axes.
+///
+/// Long because it is one plotters drawing sequence (axes, grid, poles, zeros, labels on
+/// one chart context).
 fn pole_zero(a: &Analysis) -> Option<String> {
     let all: Vec<&RootHz> = a.poles.iter().chain(a.zeros.iter()).collect();
     if all.is_empty() {

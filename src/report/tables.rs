@@ -11,7 +11,7 @@ use crate::analysis::tolerance::{MonteCarlo, Study};
 use crate::analysis::{Analysis, OperatingPointReport, RootHz};
 use crate::circuit::operating_point::DeviceState;
 use crate::design::{Design, Part, PartKind, Tolerance, Toleranced};
-use crate::notation::{plain, scientific, si};
+use crate::notation::{absent, plain, scientific, si};
 
 /// The names `table()` accepts, with what each holds.
 pub const TABLES: &[(&str, &str)] = &[
@@ -69,11 +69,11 @@ fn value(v: &Toleranced, unit: &str) -> String {
 }
 
 fn pct(e: Option<f64>) -> String {
-    e.map_or("—".into(), |e| crate::notation::signed_percent(e, 2))
+    e.map_or_else(absent, |e| crate::notation::signed_percent(e, 2))
 }
 
 fn opt(v: Option<f64>, unit: &str) -> String {
-    v.map_or("—".into(), |v| si(v, unit, 4))
+    v.map_or_else(absent, |v| si(v, unit, 4))
 }
 
 fn root(r: &RootHz) -> String {
@@ -264,9 +264,9 @@ fn cut_off_tables(t: &mut BTreeMap<&'static str, String>, a: &Analysis) {
         markdown_table(&["upper cut-off", "f_H", "error"], "lrr", high_estimate_rows(h));
     high_est.push_str(&format!(
         "\nb1 = {}, b2 = {}, pole separation |p2/p1| = {}.\n",
-        h.b1_s.map_or("—".into(), |b| si(b, "s", 4)),
-        h.b2_s2.map_or("—".into(), |b| scientific(b, "s²", 4)),
-        h.dominance_ratio.map_or("—".into(), |d| plain(d, 3))
+        h.b1_s.map_or_else(absent, |b| si(b, "s", 4)),
+        h.b2_s2.map_or_else(absent, |b| scientific(b, "s²", 4)),
+        h.dominance_ratio.map_or_else(absent, |d| plain(d, 3))
     ));
     t.insert("high_estimates", high_est);
     let escaped = |mut rows: Vec<Vec<String>>| {
@@ -386,7 +386,7 @@ pub fn octc_rows(h: &crate::analysis::High) -> Vec<Vec<String>> {
                 si(c.r_ohm, "Ω", 4),
                 si(c.tau_s, "s", 3),
                 format!("{} %", plain(c.share * 100.0, 3)),
-                c.miller_factor.map_or("—".into(), |m| plain(m, 3)),
+                c.miller_factor.map_or_else(absent, |m| plain(m, 3)),
             ]
         })
         .collect()
@@ -439,12 +439,12 @@ pub fn requirement_row(r: &RequirementCheck) -> Vec<String> {
         limit,
         r.value.map_or("not found".into(), show),
         if r.pass { "pass".into() } else { "FAIL".into() },
-        r.margin.map_or("—".into(), |m| pct(Some(m))),
+        r.margin.map_or_else(absent, |m| pct(Some(m))),
         match (r.corner, r.corner_pass) {
             (Some(v), Some(p)) => format!("{} {}", show(v), if p { "pass" } else { "fail" }),
-            _ => "—".into(),
+            _ => absent(),
         },
-        r.yield_fraction.map_or("—".into(), |y| format!("{} %", plain(y * 100.0, 4))),
+        r.yield_fraction.map_or_else(absent, |y| format!("{} %", plain(y * 100.0, 4))),
     ]
 }
 
@@ -500,7 +500,8 @@ fn sensitivity_table(s: &Study) -> String {
                     .map_or("exact".into(), |t| format!("±{} %", plain(t.fraction * 100.0, 3))),
             ];
             row.extend(shown.iter().map(|&k| {
-                l.s[k].map_or("—".into(), |v| if v.abs() < 5e-5 { "0".into() } else { plain(v, 3) })
+                l.s[k]
+                    .map_or_else(absent, |v| if v.abs() < 5e-5 { "0".into() } else { plain(v, 3) })
             }));
             (biggest, row)
         })
@@ -526,7 +527,7 @@ fn worst_case_table(s: &Study) -> String {
         .iter()
         .map(|w| {
             let rel = |v: Option<f64>| {
-                v.map_or("—".into(), |v| {
+                v.map_or_else(absent, |v| {
                     format!("{} ({})", figure_value(&w.figure, v), pct(Some(v / w.nominal - 1.0)))
                 })
             };

@@ -11,7 +11,7 @@ use std::sync::Arc;
 
 use tera::{Context, Kwargs, State, Tera, TeraResult, Value};
 
-use crate::notation::{plain, si};
+use crate::notation::{absent, plain, si};
 
 /// The built-in review template.
 pub const BUILT_IN: &str = include_str!("../../templates/review.md");
@@ -76,6 +76,32 @@ fn number(v: &Value) -> Option<f64> {
     v.as_number().map(|n| n.as_float())
 }
 
+/// The number filters: `si`, `db`, `percent`, `sig`; an absent value prints `—`.
+fn register_filters(tera: &mut Tera) {
+    tera.register_filter("si", |v: &Value, kwargs: Kwargs, _: &State| -> TeraResult<String> {
+        let unit: String = kwargs.get("unit")?.unwrap_or_default();
+        let digits: Option<i64> = kwargs.get("digits")?;
+        Ok(number(v)
+            .map_or_else(absent, |x| si(x, &unit, digits.unwrap_or(4).clamp(1, 12) as usize)))
+    });
+    tera.register_filter("db", |v: &Value, kwargs: Kwargs, _: &State| -> TeraResult<String> {
+        let digits: Option<i64> = kwargs.get("digits")?;
+        Ok(number(v).filter(|x| *x != 0.0).map_or_else(absent, |x| {
+            format!("{} dB", plain(20.0 * x.abs().log10(), digits.unwrap_or(4) as usize))
+        }))
+    });
+    tera.register_filter("percent", |v: &Value, kwargs: Kwargs, _: &State| -> TeraResult<String> {
+        let digits: Option<i64> = kwargs.get("digits")?;
+        Ok(number(v).map_or_else(absent, |x| {
+            format!("{} %", plain(x * 100.0, digits.unwrap_or(3) as usize))
+        }))
+    });
+    tera.register_filter("sig", |v: &Value, kwargs: Kwargs, _: &State| -> TeraResult<String> {
+        let digits: Option<i64> = kwargs.get("digits")?;
+        Ok(number(v).map_or_else(absent, |x| plain(x, digits.unwrap_or(4) as usize)))
+    });
+}
+
 /// Renders `source` against `view` (any serialisable view model) and `blocks`.
 pub fn render(
     source: &TemplateSource,
@@ -83,28 +109,7 @@ pub fn render(
     blocks: Blocks,
 ) -> Result<String, TemplateError> {
     let mut tera = Tera::default();
-    tera.register_filter("si", |v: &Value, kwargs: Kwargs, _: &State| -> TeraResult<String> {
-        let unit: String = kwargs.get("unit")?.unwrap_or_default();
-        let digits: Option<i64> = kwargs.get("digits")?;
-        Ok(number(v)
-            .map_or("—".into(), |x| si(x, &unit, digits.unwrap_or(4).clamp(1, 12) as usize)))
-    });
-    tera.register_filter("db", |v: &Value, kwargs: Kwargs, _: &State| -> TeraResult<String> {
-        let digits: Option<i64> = kwargs.get("digits")?;
-        Ok(number(v).filter(|x| *x != 0.0).map_or("—".into(), |x| {
-            format!("{} dB", plain(20.0 * x.abs().log10(), digits.unwrap_or(4) as usize))
-        }))
-    });
-    tera.register_filter("percent", |v: &Value, kwargs: Kwargs, _: &State| -> TeraResult<String> {
-        let digits: Option<i64> = kwargs.get("digits")?;
-        Ok(number(v).map_or("—".into(), |x| {
-            format!("{} %", plain(x * 100.0, digits.unwrap_or(3) as usize))
-        }))
-    });
-    tera.register_filter("sig", |v: &Value, kwargs: Kwargs, _: &State| -> TeraResult<String> {
-        let digits: Option<i64> = kwargs.get("digits")?;
-        Ok(number(v).map_or("—".into(), |x| plain(x, digits.unwrap_or(4) as usize)))
-    });
+    register_filters(&mut tera);
     let tables = Arc::new(blocks.tables);
     let known_tables = blocks.known_tables;
     tera.register_function("table", move |kwargs: Kwargs, _: &State| -> TeraResult<Value> {

@@ -402,6 +402,10 @@ impl<'p> Writer<'p> {
         }
     }
 
+    /// The typst markup that opens `tag`.
+    ///
+    /// Long because it is one match over pulldown-cmark's block and inline tags, most arms a
+    /// line or two; the table arm is the one with state of its own.
     fn start(&mut self, tag: &Tag) {
         match tag {
             Tag::Paragraph | Tag::HtmlBlock | Tag::DefinitionList => self.begin_block(),
