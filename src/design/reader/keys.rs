@@ -1,0 +1,108 @@
+//! Every key list of the design format, in the order the JSON Schema and the did-you-mean
+//! suggestions use. Adding a key to the format starts here (DEVELOPERS.md).
+
+/// Keys of the top level.
+pub const TOP_KEYS: &[&str] = &[
+    "tauweave",
+    "design",
+    "environment",
+    "params",
+    "supplies",
+    "signal",
+    "output",
+    "tolerances",
+    "parts",
+    "models",
+    "requirements",
+    "analysis",
+];
+/// Keys of `design`.
+pub const META_KEYS: &[&str] = &["id", "title", "revision", "date", "author", "purpose"];
+/// Keys of `environment`.
+pub const ENVIRONMENT_KEYS: &[&str] = &["temperature"];
+/// Keys of `signal`.
+pub const SIGNAL_KEYS: &[&str] = &["at", "resistance"];
+/// Keys of `output`.
+pub const OUTPUT_KEYS: &[&str] = &["at", "load_resistance", "load_capacitance"];
+/// Keys of a supply written as a mapping.
+pub const SUPPLY_KEYS: &[&str] = &["voltage", "tolerance", "distribution"];
+/// Keys of a toleranced model parameter written as a mapping.
+pub const TOLERANCED_KEYS: &[&str] = &["value", "tolerance", "distribution"];
+/// Keys of a default tolerance written as a mapping.
+pub const DEFAULT_TOLERANCE_KEYS: &[&str] = &["tolerance", "distribution"];
+/// Part kinds a default tolerance may be set for.
+pub const TOLERANCE_KINDS: &[&str] =
+    &["resistor", "capacitor", "inductor", "transconductance", "voltage_amplifier", "supply"];
+/// Part kinds.
+pub const PART_KINDS: &[&str] = &[
+    "resistor",
+    "capacitor",
+    "inductor",
+    "transconductance",
+    "voltage_amplifier",
+    "bjt",
+    "mosfet",
+];
+/// Keys of a resistor or inductor.
+pub const TWO_TERMINAL_KEYS: &[&str] =
+    &["kind", "value", "between", "tolerance", "distribution", "note"];
+/// Keys of a capacitor.
+pub const CAPACITOR_KEYS: &[&str] =
+    &["kind", "value", "between", "role", "tolerance", "distribution", "note"];
+/// Keys of a controlled source.
+pub const CONTROLLED_KEYS: &[&str] =
+    &["kind", "value", "between", "control", "tolerance", "distribution", "note"];
+/// Keys of a bjt part.
+pub const BJT_KEYS: &[&str] = &["kind", "model", "c", "b", "e", "note"];
+/// Keys of a mosfet part.
+pub const MOSFET_KEYS: &[&str] = &["kind", "model", "d", "g", "s", "note"];
+/// Capacitor roles.
+pub const ROLES: &[&str] = &["coupling", "bypass", "parasitic", "load"];
+/// Model types.
+pub const MODEL_TYPES: &[&str] = &["npn", "pnp", "nmos", "pmos"];
+/// Keys of a bipolar model.
+pub const BIPOLAR_KEYS: &[&str] = &[
+    "type",
+    "beta",
+    "beta_reverse",
+    "early_voltage",
+    "saturation_current",
+    "base_resistance",
+    "transit_time",
+    "transition_frequency",
+    "emitter_junction",
+    "collector_junction",
+    "max_power",
+];
+/// Keys of a MOSFET model.
+pub const MOS_KEYS: &[&str] = &[
+    "type",
+    "process_transconductance",
+    "width",
+    "length",
+    "threshold",
+    "channel_length_modulation",
+    "oxide_capacitance",
+    "overlap_capacitance",
+    "gate_source_capacitance",
+    "gate_drain_capacitance",
+    "drain_body_capacitance",
+    "max_power",
+];
+/// Keys of a junction.
+pub const JUNCTION_KEYS: &[&str] = &["capacitance", "potential", "grading"];
+/// Keys of `transition_frequency`.
+pub const FT_KEYS: &[&str] = &["frequency", "collector_current"];
+/// Keys of `requirements`.
+pub const REQUIREMENT_KEYS: &[&str] =
+    &["midband_gain", "upper_cutoff", "lower_cutoff", "input_resistance", "output_resistance"];
+/// Keys of one requirement.
+pub const LIMIT_KEYS: &[&str] = &["min", "max"];
+/// Keys of `analysis`.
+pub const ANALYSIS_KEYS: &[&str] = &["sweep", "monte_carlo"];
+/// Keys of `analysis.sweep`.
+pub const SWEEP_KEYS: &[&str] = &["start", "stop", "points_per_decade"];
+/// Keys of `analysis.monte_carlo`.
+pub const MONTE_CARLO_KEYS: &[&str] = &["runs", "seed"];
+/// Distributions.
+pub const DISTRIBUTIONS: &[&str] = &["uniform", "gaussian"];

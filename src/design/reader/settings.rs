@@ -1,0 +1,191 @@
+//! Requirements (limits on gain, cut-offs and port resistances) and the analysis settings
+//! (sweep, Monte Carlo runs and seed).
+
+use super::*;
+
+impl Reader<'_> {
+    pub(super) fn requirements(&mut self, entry: Option<(&Key, &Node)>) -> Requirements {
+        let mut out = Requirements::default();
+        let Some((key, node)) = entry else { return out };
+        let Some(mut f) = Fields::open(
+            node,
+            "the `requirements` section",
+            REQUIREMENT_KEYS,
+            key.span,
+            &mut self.diagnostics,
+        ) else {
+            return out;
+        };
+        for &name in REQUIREMENT_KEYS {
+            let Some((k, n)) = f.get_entry(name) else { continue };
+            let place = match name {
+                "midband_gain" => GAIN_LIMIT,
+                "upper_cutoff" | "lower_cutoff" => FREQUENCY,
+                _ => RESISTANCE,
+            };
+            let limits = self.limits(name, k, n, place);
+            match name {
+                "midband_gain" => out.midband_gain = limits,
+                "upper_cutoff" => out.upper_cutoff = limits,
+                "lower_cutoff" => out.lower_cutoff = limits,
+                "input_resistance" => out.input_resistance = limits,
+                _ => out.output_resistance = limits,
+            }
+        }
+        f.finish(&mut self.diagnostics);
+        out
+    }
+
+    pub(super) fn limits(
+        &mut self,
+        name: &str,
+        key: &Key,
+        node: &Node,
+        place: Place,
+    ) -> Option<Limits> {
+        let mut f = Fields::open(
+            node,
+            format!("requirement `{name}`"),
+            LIMIT_KEYS,
+            key.span,
+            &mut self.diagnostics,
+        )?;
+        let min_node = f.get("min");
+        let max_node = f.get("max");
+        if min_node.is_none() && max_node.is_none() {
+            self.push(
+                Diagnostic::error(
+                    "missing_key",
+                    format!("requirement `{name}` needs `min`, `max` or both"),
+                )
+                .at(key.span, "no limit given")
+                .help(format!("e.g. `{name}: {{min: {}}}`", example(place))),
+            );
+        }
+        let min = min_node.and_then(|n| self.quantity(n, place));
+        let max = max_node.and_then(|n| self.quantity(n, place));
+        f.finish(&mut self.diagnostics);
+        if let (Some(lo), Some(hi), Some(n)) = (min, max, min_node) {
+            if lo > hi {
+                self.push(
+                    Diagnostic::error(
+                        "limits",
+                        format!("requirement `{name}` has its min above its max"),
+                    )
+                    .at(n.span, "min is larger than max")
+                    .also(max_node.map_or(n.span, |m| m.span), "max")
+                    .help("swap them, or widen the window"),
+                );
+                return None;
+            }
+        }
+        if (min_node.is_some() && min.is_none()) || (max_node.is_some() && max.is_none()) {
+            return None;
+        }
+        if min.is_none() && max.is_none() {
+            return None;
+        }
+        Some(Limits { min, max })
+    }
+
+    pub(super) fn analysis(&mut self, entry: Option<(&Key, &Node)>) -> Option<AnalysisSettings> {
+        let mut out = AnalysisSettings::defaults();
+        let Some((key, node)) = entry else { return Some(out) };
+        let mut f = Fields::open(
+            node,
+            "the `analysis` section",
+            ANALYSIS_KEYS,
+            key.span,
+            &mut self.diagnostics,
+        )?;
+        let mut ok = true;
+        if let Some((k, n)) = f.get_entry("sweep") {
+            if let Some(mut s) =
+                Fields::open(n, "`analysis.sweep`", SWEEP_KEYS, k.span, &mut self.diagnostics)
+            {
+                let start_node = s.get("start");
+                if let Some(n) = start_node {
+                    match self.quantity(n, FREQUENCY) {
+                        Some(v) => out.sweep_start_hz = v,
+                        None => ok = false,
+                    }
+                }
+                if let Some(n) = s.get("stop") {
+                    match self.quantity(n, FREQUENCY) {
+                        Some(v) => out.sweep_stop_hz = v,
+                        None => ok = false,
+                    }
+                }
+                if let Some(n) = s.get("points_per_decade") {
+                    match self.integer(n, 1, 1000, "`points_per_decade`") {
+                        Some(v) => out.points_per_decade = v as u32,
+                        None => ok = false,
+                    }
+                }
+                if ok && out.sweep_stop_hz <= out.sweep_start_hz * 10.0 {
+                    self.push(
+                        Diagnostic::error("out_of_range", "the sweep must span at least one decade")
+                            .at(start_node.map_or(k.span, |n| n.span), "start is not below stop/10")
+                            .help("set `start` well below the low cut-off and `stop` well above the high one"),
+                    );
+                    ok = false;
+                }
+                s.finish(&mut self.diagnostics);
+            }
+        }
+        if let Some((k, n)) = f.get_entry("monte_carlo") {
+            if let Some(mut m) = Fields::open(
+                n,
+                "`analysis.monte_carlo`",
+                MONTE_CARLO_KEYS,
+                k.span,
+                &mut self.diagnostics,
+            ) {
+                if let Some(n) = m.get("runs") {
+                    match self.integer(n, 0, 1_000_000, "`runs`") {
+                        Some(v) => out.monte_carlo_runs = v as u32,
+                        None => ok = false,
+                    }
+                }
+                if let Some(n) = m.get("seed") {
+                    match self.integer(n, 0, u64::MAX, "`seed`") {
+                        Some(v) => out.seed = v,
+                        None => ok = false,
+                    }
+                }
+                m.finish(&mut self.diagnostics);
+            }
+        }
+        f.finish(&mut self.diagnostics);
+        ok.then_some(out)
+    }
+
+    pub(super) fn integer(&mut self, node: &Node, lo: u64, hi: u64, what: &str) -> Option<u64> {
+        let text = node.scalar().unwrap_or("").replace('_', "");
+        match text.parse::<i128>() {
+            Ok(v) if (lo as i128..=hi as i128).contains(&v) => Some(v as u64),
+            Ok(_) => {
+                self.push(
+                    Diagnostic::error(
+                        "out_of_range",
+                        format!("{what} must lie between {lo} and {hi}"),
+                    )
+                    .at(node.span, "out of range")
+                    .help(format!("give a whole number from {lo} to {hi}")),
+                );
+                None
+            }
+            Err(_) => {
+                self.push(
+                    Diagnostic::error(
+                        "quantity",
+                        format!("{what} must be a whole number, not `{}`", self.show(node)),
+                    )
+                    .at(node.span, "not a whole number")
+                    .help(format!("give a whole number from {lo} to {hi}")),
+                );
+                None
+            }
+        }
+    }
+}
