@@ -15,7 +15,7 @@ use crate::circuit::operating_point::DeviceState;
 use crate::cli::progress;
 use crate::cli::source::{analysis_failure, load_file, plural};
 use crate::cli::table::{Align, render};
-use crate::cli::{Failure, Outcome};
+use crate::cli::{Failure, Outcome, out};
 use crate::design::{Design, DeviceModel, Limits, PartKind};
 use crate::notation::{absent, plain, scientific, si};
 
@@ -34,12 +34,12 @@ pub fn run(args: &CheckArgs) -> Result<Outcome, Failure> {
     let file = load_file(&args.design)?;
     let design = file.design()?;
     eprint!("{}", file.report());
-    print!("{}", summary(design, file.loaded.warnings()));
+    out(&summary(design, file.loaded.warnings()))?;
     let runs = args.runs.unwrap_or(design.analysis.monte_carlo_runs);
     let review =
         progress::review(design, runs).map_err(|e| Failure::Input(analysis_failure(&file, &e)))?;
-    print!("{}", analysis_text(&review.analysis));
-    print!("{}", requirements_text(&review.requirements, &review.study));
+    out(&analysis_text(&review.analysis))?;
+    out(&requirements_text(&review.requirements, &review.study))?;
     if review.failing() {
         let failing = review.failing_names();
         eprintln!("{}: fails {} at nominal values", file.name, failing.join(", "));

@@ -16,7 +16,7 @@ use sha2::{Digest, Sha256};
 use crate::cli::progress;
 use crate::cli::source::{LoadedFile, analysis_failure, load_file, template_source};
 use crate::cli::table::{Align, render};
-use crate::cli::{Failure, Outcome};
+use crate::cli::{Failure, Outcome, out};
 use crate::report::change::{self, Change, Revision};
 use crate::report::manifest::sha256;
 use crate::report::results::{self, Hashes, ResultsDocument};
@@ -175,7 +175,7 @@ pub fn run(args: &DiffArgs) -> Result<Outcome, Failure> {
     let new = side(&args.new, args.runs)?;
     let (old_name, new_name) = (args.old.display().to_string(), args.new.display().to_string());
     let c = change::compare(&old.revision(&old_name), &new.revision(&new_name));
-    print!("{}", terminal(&c));
+    out(&terminal(&c))?;
     // Rendered even with --no-write, so a broken change template is reported either way.
     let files = change::render(&c, &template)
         .map_err(|e| Failure::Input(format!("{}nothing was written\n", e.message)))?;

@@ -47,6 +47,20 @@ impl Failure {
     }
 }
 
+/// Writes `text` to standard output. A reader that went away (a closed pipe, as in
+/// `tauweave schema | head`) is no failure: the rest of the output is dropped quietly and the
+/// command goes on to its own exit code. Any other write error is reported.
+pub fn out(text: &str) -> Result<(), Failure> {
+    use std::io::Write;
+    let mut stdout = std::io::stdout().lock();
+    match stdout.write_all(text.as_bytes()).and_then(|()| stdout.flush()) {
+        Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => {
+            Err(Failure::Internal(format!("cannot write to standard output: {e}")))
+        }
+        _ => Ok(()),
+    }
+}
+
 /// How grave a problem is.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum Level {

@@ -13,6 +13,6 @@ pub struct SchemaArgs {}
 pub fn run(_args: &SchemaArgs) -> Result<Outcome, Failure> {
     let text = serde_json::to_string_pretty(&design_schema())
         .map_err(|e| Failure::Internal(format!("schema did not serialise: {e}")))?;
-    println!("{text}");
+    crate::cli::out(&format!("{text}\n"))?;
     Ok(Outcome::Done)
 }

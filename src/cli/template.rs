@@ -37,8 +37,8 @@ pub enum TemplateAction {
 /// Runs the action.
 pub fn run(args: &TemplateArgs) -> Result<Outcome, Failure> {
     match args.action {
-        TemplateAction::Show { which: Which::Review } => print!("{}", template::BUILT_IN),
-        TemplateAction::Show { which: Which::Change } => print!("{}", change::BUILT_IN),
+        TemplateAction::Show { which: Which::Review } => crate::cli::out(template::BUILT_IN)?,
+        TemplateAction::Show { which: Which::Change } => crate::cli::out(change::BUILT_IN)?,
     }
     Ok(Outcome::Done)
 }

@@ -14,7 +14,7 @@ use clap::Args;
 use crate::cli::build::{BuildOptions, Format, PaperSize, build};
 use crate::cli::pdf;
 use crate::cli::source::LoadedFile;
-use crate::cli::{Failure, Level, Outcome, problem};
+use crate::cli::{Failure, Level, Outcome, out, problem};
 use crate::notation::ABSENT;
 use crate::report::manifest::{self, Manifest, sha256};
 use crate::report::template::{BUILT_IN, BUILT_IN_NAME, TemplateSource};
@@ -132,16 +132,16 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
     let compared = m.outputs.len() - usize::from(unverified.is_some());
     if !problems.is_empty() {
         let s = if problems.len() == 1 { "" } else { "s" };
-        println!("differs: {} problem{s} in {dir}", problems.len());
+        out(&format!("differs: {} problem{s} in {dir}\n", problems.len()))?;
         for p in &problems {
-            println!("  {p}");
+            out(&format!("  {p}\n"))?;
         }
     } else if unverified.is_some() {
-        println!(
-            "incomplete: report.pdf not verified, the other {compared} outputs identical in {dir}"
-        );
+        out(&format!(
+            "incomplete: report.pdf not verified, the other {compared} outputs identical in {dir}\n"
+        ))?;
     } else {
-        println!("identical: {compared} outputs rebuilt from {dir} byte for byte");
+        out(&format!("identical: {compared} outputs rebuilt from {dir} byte for byte\n"))?;
         return Ok(Outcome::Done);
     }
     let Some(pdf_problem) = unverified else { return Ok(Outcome::Failing) };

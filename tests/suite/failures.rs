@@ -92,3 +92,32 @@ fn render_writes_results_json_with_the_contract_keys() {
     assert!(again.status.success());
     assert_eq!(text, std::fs::read_to_string(dir.join("again/results.json")).unwrap());
 }
+
+/// Issue 12, broken pipes: a reader that closes the pipe early (`tauweave schema | head`,
+/// `tauweave check x.yaml | head -1`) ends the command quietly with its own exit code.
+#[test]
+fn a_closed_pipe_ends_quietly_issue_12() {
+    use std::process::{Command, Stdio};
+    let design = crate::support::root().join("designs/rx-preamp-ce.yaml");
+    for args in [
+        vec!["schema"],
+        vec!["template", "show"],
+        vec!["check", design.to_str().unwrap(), "--runs", "0"],
+    ] {
+        let mut child = Command::new(crate::support::binary())
+            .args(&args)
+            .stdout(Stdio::piped())
+            .stderr(Stdio::piped())
+            .spawn()
+            .unwrap();
+        // Close the reading end before the command writes: every write then fails with EPIPE.
+        drop(child.stdout.take());
+        let out = child.wait_with_output().unwrap();
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(0), "{args:?}: {stderr}");
+        assert!(
+            !stderr.contains("panicked") && !stderr.contains("Broken pipe"),
+            "{args:?}: {stderr}"
+        );
+    }
+}
