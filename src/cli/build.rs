@@ -128,6 +128,8 @@ pub struct Built {
     pub typst_version: Option<String>,
     /// What to tell the user: the design's warnings, typst's warnings.
     pub notes: String,
+    /// The requirements that fail at nominal values.
+    pub failing: Vec<&'static str>,
 }
 
 /// Everything a render writes, in memory. A missing or failing typst leaves the PDF out and
@@ -180,7 +182,8 @@ pub fn build(
         typst: typst_version.clone(),
     };
     let files = manifest::seal(files, recipe, &file.text, (!built_in).then_some(&*template.text));
-    Ok(Built { id: design.meta.id.clone(), files, pdf_problem, typst_version, notes })
+    let failing = review.failing_names();
+    Ok(Built { id: design.meta.id.clone(), files, pdf_problem, typst_version, notes, failing })
 }
 
 /// report.pdf from the render's report.typ and plots, with the version of the typst that
@@ -231,6 +234,8 @@ pub struct Written {
     pub pdf_problem: Option<PdfProblem>,
     /// What the build had to say (warnings), printed before the summary.
     pub notes: String,
+    /// The requirements that fail at nominal values.
+    pub failing: Vec<&'static str>,
 }
 
 impl Written {
@@ -260,6 +265,7 @@ pub fn render_and_write(job: &RenderJob) -> Result<Written, Failure> {
         files: built.files,
         pdf_problem: built.pdf_problem,
         notes: built.notes,
+        failing: built.failing,
     })
 }
 

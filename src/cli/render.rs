@@ -57,17 +57,20 @@ impl RenderArgs {
     }
 }
 
-/// Runs one render.
+/// Runs one render. Everything is written first; then a requirement that fails at nominal
+/// values makes the exit code 1, as `check`'s does, with one line saying which.
 pub fn run(args: &RenderArgs) -> Result<Outcome, Failure> {
     let written = render_and_write(&args.job())?;
     eprint!("{}", written.notes);
     eprintln!("{}", written.summary());
     match &written.pdf_problem {
-        None => Ok(Outcome::Done),
-        Some(p) if !pdf_fatal(args.format, p) => {
-            eprint!("{}", p.message(false));
-            Ok(Outcome::Done)
-        }
-        Some(p) => Err(Failure::Input(p.message(true))),
+        Some(p) if pdf_fatal(args.format, p) => return Err(Failure::Input(p.message(true))),
+        Some(p) => eprint!("{}", p.message(false)),
+        None => {}
     }
+    if written.failing.is_empty() {
+        return Ok(Outcome::Done);
+    }
+    eprintln!("{}: fails {} at nominal values", args.design.display(), written.failing.join(", "));
+    Ok(Outcome::Failing)
 }

@@ -121,3 +121,25 @@ fn a_closed_pipe_ends_quietly_issue_12() {
         );
     }
 }
+
+/// Issue 12, item 4: `render` writes everything, then exits 1 when a requirement fails at
+/// nominal values, with one line saying which (as `check` does).
+#[test]
+fn render_exits_1_after_writing_when_a_requirement_fails_issue_12() {
+    // The demo drives 250 pF of cable from about 0.5 kΩ: R·C ≈ 125 ns puts the upper cut-off
+    // near 1.3 MHz by hand (single pole, common practice), far below a 100 MHz minimum.
+    let text = std::fs::read_to_string(crate::support::root().join("designs/rx-preamp-ce.yaml"))
+        .unwrap()
+        .replace("upper_cutoff: {min: 900 kHz}", "upper_cutoff: {min: 100 MHz}");
+    assert!(text.contains("100 MHz"));
+    let dir = scratch("render-failing");
+    std::fs::write(dir.join("narrow.yaml"), text).unwrap();
+    let out =
+        run_in(&dir, &["render", "narrow.yaml", "--format", "md", "--runs", "0", "--out", "o"]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(1), "{stderr}");
+    assert!(stderr.contains("narrow.yaml: fails upper_cutoff at nominal values"), "{stderr}");
+    let report = std::fs::read_to_string(dir.join("o/report.md")).unwrap();
+    assert!(report.contains("**FAIL**"), "the report is written and shows the failure");
+    assert!(dir.join("o/results.json").exists() && dir.join("o/manifest.json").exists());
+}
