@@ -28,12 +28,16 @@ pub struct RequirementCheck {
     /// Relative distance to the nearer limit, positive inside: (value − min)/min or
     /// (max − value)/max.
     pub margin: Option<f64>,
-    /// The value at the tolerance corner that pushes it toward the limit, when a study ran:
-    /// the low corner for a minimum, the high corner for a maximum (the worse of the two
-    /// when both limits are set).
+    /// The value at the tolerance corner that pushes it toward a limit, when a study ran:
+    /// the low corner for a minimum, the high corner for a maximum; with both limits set, the
+    /// corner that comes nearer to its limit (a failing one first).
     pub corner: Option<f64>,
-    /// True when the corner value is within the limits.
+    /// True when every corner that matters is within the limits.
     pub corner_pass: Option<bool>,
+    /// The corner toward the minimum, when there is a minimum.
+    pub low_corner: Option<f64>,
+    /// The corner toward the maximum, when there is a maximum.
+    pub high_corner: Option<f64>,
     /// Monte Carlo yield of this requirement.
     pub yield_fraction: Option<f64>,
 }
@@ -43,10 +47,15 @@ pub fn with_study(checks: &mut [RequirementCheck], study: &crate::analysis::tole
     for c in checks.iter_mut() {
         let Some(w) = study.worst_case.iter().find(|w| w.figure == c.name) else { continue };
         let inside = |v: f64| c.min.is_none_or(|lo| v >= lo) && c.max.is_none_or(|hi| v <= hi);
-        let candidates: Vec<f64> =
-            [c.min.and(w.low_corner), c.max.and(w.high_corner)].into_iter().flatten().collect();
-        c.corner = candidates.iter().copied().find(|v| !inside(*v)).or(candidates.first().copied());
-        c.corner_pass = c.corner.map(inside);
+        c.low_corner = c.min.and(w.low_corner);
+        c.high_corner = c.max.and(w.high_corner);
+        // The corner nearer its limit, relative to that limit (negative: outside).
+        let to_min = c.low_corner.zip(c.min).map(|(v, lo)| (v, (v - lo) / lo));
+        let to_max = c.high_corner.zip(c.max).map(|(v, hi)| (v, (hi - v) / hi));
+        let nearest = [to_min, to_max].into_iter().flatten().min_by(|a, b| a.1.total_cmp(&b.1));
+        c.corner = nearest.map(|(v, _)| v);
+        let corners = [c.low_corner, c.high_corner];
+        c.corner_pass = c.corner.map(|_| corners.iter().flatten().all(|v| inside(*v)));
         if let Some(mc) = &study.monte_carlo {
             c.yield_fraction = mc.yields.iter().find(|(n, _)| n == c.name).map(|(_, y)| *y);
         }
@@ -84,8 +93,70 @@ pub fn check(req: &Requirements, a: &Analysis) -> Vec<RequirementCheck> {
                 margin,
                 corner: None,
                 corner_pass: None,
+                low_corner: None,
+                high_corner: None,
                 yield_fraction: None,
             })
         })
         .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::analysis::tolerance::{Study, WorstCase};
+
+    fn study(low: f64, high: f64) -> Study {
+        Study {
+            step: 1e-4,
+            figures: vec!["midband_gain".into()],
+            levers: Vec::new(),
+            worst_case: vec![WorstCase {
+                figure: "midband_gain".into(),
+                nominal: 11.0,
+                linear_bound: 0.1,
+                high_corner: Some(high),
+                low_corner: Some(low),
+            }],
+            monte_carlo: None,
+        }
+    }
+
+    fn gain_check(min: Option<f64>, max: Option<f64>) -> RequirementCheck {
+        RequirementCheck {
+            name: "midband_gain",
+            unit: "",
+            min,
+            max,
+            value: Some(11.0),
+            pass: true,
+            margin: None,
+            corner: None,
+            corner_pass: None,
+            low_corner: None,
+            high_corner: None,
+            yield_fraction: None,
+        }
+    }
+
+    #[test]
+    fn a_window_shows_both_corners_and_names_the_one_nearer_its_limit() {
+        // 8 … 14 V/V: the low corner 9 is 12.5 % above the minimum, the high corner 13.5 is
+        // 3.6 % below the maximum, so the high corner is the worst.
+        let mut c = [gain_check(Some(8.0), Some(14.0))];
+        with_study(&mut c, &study(9.0, 13.5));
+        assert_eq!((c[0].low_corner, c[0].high_corner), (Some(9.0), Some(13.5)));
+        assert_eq!((c[0].corner, c[0].corner_pass), (Some(13.5), Some(true)));
+        // A high corner past the maximum fails the corner check, whatever the low one does.
+        with_study(&mut c, &study(9.0, 14.5));
+        assert_eq!((c[0].corner, c[0].corner_pass), (Some(14.5), Some(false)));
+    }
+
+    #[test]
+    fn a_one_sided_limit_has_only_the_corner_toward_it() {
+        let mut c = [gain_check(Some(8.0), None)];
+        with_study(&mut c, &study(7.5, 13.5));
+        assert_eq!((c[0].low_corner, c[0].high_corner), (Some(7.5), None));
+        assert_eq!((c[0].corner, c[0].corner_pass), (Some(7.5), Some(false)));
+    }
 }

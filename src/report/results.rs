@@ -359,8 +359,12 @@ pub struct RequirementResults {
     pub margin: Option<f64>,
     /// The value at the tolerance corner toward the limit.
     pub corner: Option<f64>,
-    /// True when that corner is within the limits.
+    /// True when every corner that matters is within the limits.
     pub corner_pass: Option<bool>,
+    /// The value at the corner toward the minimum (null without a minimum).
+    pub low_corner: Option<f64>,
+    /// The value at the corner toward the maximum (null without a maximum).
+    pub high_corner: Option<f64>,
     /// Monte Carlo yield of this requirement.
     pub yield_fraction: Option<f64>,
 }
@@ -606,6 +610,8 @@ fn requirement(c: &RequirementCheck) -> RequirementResults {
         margin: c.margin,
         corner: c.corner,
         corner_pass: c.corner_pass,
+        low_corner: c.low_corner,
+        high_corner: c.high_corner,
         yield_fraction: c.yield_fraction,
     }
 }

@@ -440,8 +440,12 @@ pub fn requirement_row(r: &RequirementCheck) -> Vec<String> {
         r.value.map_or("not found".into(), show),
         if r.pass { "pass".into() } else { "FAIL".into() },
         r.margin.map_or_else(absent, |m| pct(Some(m))),
-        match (r.corner, r.corner_pass) {
-            (Some(v), Some(p)) => format!("{} {}", show(v), if p { "pass" } else { "fail" }),
+        match (r.low_corner, r.high_corner, r.corner, r.corner_pass) {
+            // A window: both corners, low … high, each against its own limit.
+            (Some(lo), Some(hi), _, Some(p)) => {
+                format!("{} … {} {}", show(lo), show(hi), if p { "pass" } else { "fail" })
+            }
+            (_, _, Some(v), Some(p)) => format!("{} {}", show(v), if p { "pass" } else { "fail" }),
             _ => absent(),
         },
         r.yield_fraction.map_or_else(absent, |y| format!("{} %", plain(y * 100.0, 4))),
