@@ -276,7 +276,8 @@ impl Netlist {
                     }
                 }
                 PartKind::Bjt { c, b, e, model } => {
-                    let mut params = bjt_params(&design.models[*model].device);
+                    let mut params =
+                        bjt_params(&design.models[*model].device, design.temperature_k);
                     let mut base = index(b);
                     if params.rb > 0.0 {
                         let inner = format!("{name}.b'");
@@ -299,7 +300,7 @@ impl Netlist {
                     d: index(d),
                     g: index(g),
                     s: index(s),
-                    params: mos_params(&design.models[*model].device),
+                    params: mos_params(&design.models[*model].device, design.temperature_k),
                 },
             };
             elements.push(el);
@@ -326,17 +327,28 @@ impl Netlist {
     }
 }
 
-fn bjt_params(device: &DeviceModel) -> BjtParams {
+/// The bipolar model's numbers at `temperature_k`. The saturation current follows
+/// I_S(T) = I_S(T0)·(T/T0)^η·exp((E_g/V_T(T))·(T/T0 − 1)) and the current gain
+/// β(T) = β(T0)·(T/T0)^x, both normalised at the model's reference temperature T0
+/// (docs/methods.md, Device equations). Junction capacitances and potentials are taken as
+/// given: their drift is small beside these.
+fn bjt_params(device: &DeviceModel, temperature_k: f64) -> BjtParams {
     let DeviceModel::Bipolar(m) = device else {
         unreachable!("validated: bjt part, bipolar model")
     };
+    let ratio = temperature_k / m.reference_temperature_k;
+    let is = m.saturation_current.nominal
+        * ratio.powf(m.saturation_current_exponent)
+        * ((m.band_gap_v / crate::circuit::devices::thermal_voltage(temperature_k))
+            * (ratio - 1.0))
+            .exp();
     let junction = |j: &Option<design::Junction>| {
         j.map_or((0.0, 0.75, 0.33), |j| (j.capacitance.nominal, j.potential, j.grading))
     };
     BjtParams {
         sign: if m.polarity == BipolarType::Npn { 1.0 } else { -1.0 },
-        is: m.saturation_current.nominal,
-        beta_f: m.beta.nominal,
+        is,
+        beta_f: m.beta.nominal * ratio.powf(m.beta_exponent),
         beta_r: m.beta_reverse,
         early_voltage: m.early_voltage.map_or(f64::INFINITY, |v| v.nominal),
         rb: m.base_resistance.nominal,
@@ -354,13 +366,20 @@ fn bjt_params(device: &DeviceModel) -> BjtParams {
     }
 }
 
-fn mos_params(device: &DeviceModel) -> MosParams {
+/// The MOSFET model's numbers at `temperature_k`: the threshold drifts linearly, its
+/// magnitude falling as the device warms (V_th(T) = V_th(T0) + s·dV_th/dT·(T − T0), s = +1
+/// for n-channel, −1 for p-channel), and the mobility, hence k′, follows (T/T0)^x
+/// (docs/methods.md, Device equations).
+fn mos_params(device: &DeviceModel, temperature_k: f64) -> MosParams {
     let DeviceModel::Mos(m) = device else { unreachable!("validated: mosfet part, MOS model") };
     let wl = m.width * m.length;
+    let sign = if m.polarity == MosType::Nmos { 1.0 } else { -1.0 };
+    let warming = temperature_k - m.reference_temperature_k;
+    let mobility = (temperature_k / m.reference_temperature_k).powf(m.mobility_exponent);
     MosParams {
-        sign: if m.polarity == MosType::Nmos { 1.0 } else { -1.0 },
-        k: m.process_transconductance.nominal * m.width / m.length,
-        vth: m.threshold.nominal,
+        sign,
+        k: m.process_transconductance.nominal * m.width / m.length * mobility,
+        vth: m.threshold.nominal + sign * m.threshold_drift_v_per_k * warming,
         lambda: m.channel_length_modulation.nominal,
         gate_oxide_f: m.oxide_capacitance.map_or(0.0, |c| c.nominal * wl),
         overlap_f: m.overlap_capacitance.map_or(0.0, |c| c.nominal * m.width),
@@ -368,5 +387,67 @@ fn mos_params(device: &DeviceModel) -> MosParams {
         cgd_direct: m.gate_drain_capacitance.map(|c| c.nominal),
         cdb: m.drain_body_capacitance.map_or(0.0, |c| c.nominal),
         max_power: m.max_power,
+    }
+}
+
+#[cfg(test)]
+mod temperature_tests {
+    use super::*;
+    use crate::circuit::devices::thermal_voltage;
+
+    fn demo_model() -> DeviceModel {
+        let text = std::fs::read_to_string("designs/rx-preamp-ce.yaml").unwrap();
+        crate::design::load(&text).design.unwrap().models[0].device.clone()
+    }
+
+    /// V_BE of the model at collector current `ic` and temperature `t`.
+    fn vbe(model: &DeviceModel, ic: f64, t: f64) -> f64 {
+        let p = bjt_params(model, t);
+        thermal_voltage(t) * (ic / p.is).ln()
+    }
+
+    #[test]
+    fn base_emitter_voltage_falls_about_two_millivolts_per_kelvin_at_constant_current() {
+        // Common practice (Gray, Hurst, Lewis & Meyer, ch. 1, from memory): dV_BE/dT at
+        // constant I_C is −(V_g0 − V_BE + η·V_T)/T, about −2 mV/K for silicon near 300 K.
+        // The rule's −1.5 … −2.5 mV/K band holds where V_BE is near its usual 0.6–0.7 V
+        // (100 µA here); at the demo's 4.24 mA this small-area device runs at V_BE ≈ 0.77 V,
+        // where the same law gives about −1.4 mV/K: the closed form is checked there.
+        let model = demo_model();
+        let slope = (vbe(&model, 100e-6, 301.15) - vbe(&model, 100e-6, 299.15)) / 2.0;
+        assert!((-2.5e-3..=-1.5e-3).contains(&slope), "{slope} V/K");
+        for ic in [100e-6, 4.24e-3] {
+            let slope = (vbe(&model, ic, 301.15) - vbe(&model, ic, 299.15)) / 2.0;
+            // The closed form, to 1 %.
+            let t = 300.15;
+            let v = vbe(&model, ic, t);
+            let closed = -(1.11 - v + 3.0 * thermal_voltage(t)) / t;
+            assert!((slope / closed - 1.0).abs() < 0.01, "{slope} vs {closed}");
+        }
+    }
+
+    #[test]
+    fn at_the_reference_temperature_the_model_is_as_written() {
+        let model = demo_model();
+        let DeviceModel::Bipolar(b) = &model else { unreachable!() };
+        let p = bjt_params(&model, b.reference_temperature_k);
+        assert_eq!(p.is, b.saturation_current.nominal);
+        assert_eq!(p.beta_f, b.beta.nominal);
+        // β grows as (T/T0)^1.5 by default: +0.5 %/K near 300 K (common practice).
+        let warm = bjt_params(&model, b.reference_temperature_k + 1.0);
+        assert!((warm.beta_f / p.beta_f - 1.0 - 1.5 / 300.15).abs() < 1e-4);
+    }
+
+    #[test]
+    fn a_mosfet_threshold_magnitude_falls_and_its_mobility_drops_as_it_warms() {
+        // Common practice: |V_th| falls by about 2 mV/K and mobility goes as T^−1.5.
+        let text = std::fs::read_to_string("designs/post-amp-cs.yaml").unwrap();
+        let design = crate::design::load(&text).design.unwrap();
+        let model = &design.models[0].device;
+        let DeviceModel::Mos(m) = model else { panic!("a MOS model") };
+        let t0 = m.reference_temperature_k;
+        let (cold, warm) = (mos_params(model, t0), mos_params(model, t0 + 10.0));
+        assert!((cold.vth.abs() - warm.vth.abs() - 0.02).abs() < 1e-12);
+        assert!((warm.k / cold.k - ((t0 + 10.0) / t0).powf(-1.5)).abs() < 1e-12);
     }
 }

@@ -344,7 +344,9 @@ impl Parser<'_> {
             Some('-' | '−') => {
                 self.pos += 1;
                 let v = self.unary()?;
-                Ok(Value { si: -v.si, ..v })
+                // −40 °C is (−40) °C: the kelvin offset stays where it is.
+                let si = if v.mark == Mark::Celsius { 2.0 * 273.15 - v.si } else { -v.si };
+                Ok(Value { si, ..v })
             }
             Some('+') => {
                 self.pos += 1;

@@ -108,6 +108,14 @@ fn model(types: &[&str]) -> Value {
             "frequency" => toleranced("f_T"),
             _ => quantity("the collector current f_T was measured at"),
         }),
+        "reference_temperature" => {
+            quantity("the temperature the parameters hold at, default 27 °C")
+        }
+        "saturation_current_exponent" => quantity("η of I_S ∝ T^η·exp(−E_g/kT), default 3"),
+        "band_gap_voltage" => quantity("E_g/q of the I_S temperature law, default 1.11 V"),
+        "beta_exponent" => quantity("x of β ∝ T^x, default 1.5"),
+        "threshold_drift" => quantity("dV_th/dT of an n-channel device, default −2 mV/K"),
+        "mobility_exponent" => quantity("x of k′ ∝ T^x, default −1.5"),
         _ => toleranced(k),
     })
 }

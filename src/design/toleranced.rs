@@ -194,7 +194,19 @@ mod tests {
     fn every_model_key_is_toleranced_or_a_plain_setting() {
         // The keys read as plain numbers (no tolerance travels to a lever): the type, the
         // reverse gain, the geometry and the dissipation rating.
-        let plain = ["type", "beta_reverse", "width", "length", "max_power"];
+        let plain = [
+            "type",
+            "beta_reverse",
+            "width",
+            "length",
+            "max_power",
+            "reference_temperature",
+            "saturation_current_exponent",
+            "band_gap_voltage",
+            "beta_exponent",
+            "threshold_drift",
+            "mobility_exponent",
+        ];
         for key in BIPOLAR_KEYS.iter().chain(MOS_KEYS) {
             let toleranced =
                 ModelParameter::BIPOLAR.iter().chain(&ModelParameter::MOS).any(|p| p.key() == *key);

@@ -352,6 +352,14 @@ pub struct BipolarModel {
     pub collector_junction: Option<Junction>,
     /// Dissipation rating, W.
     pub max_power: Option<f64>,
+    /// The temperature the parameters were measured at, K (default 27 °C).
+    pub reference_temperature_k: f64,
+    /// Exponent η of I_S ∝ T^η·exp(−E_g/(kT)) (default 3).
+    pub saturation_current_exponent: f64,
+    /// Band-gap voltage E_g/q of that law, V (default 1.11 V, silicon).
+    pub band_gap_v: f64,
+    /// Exponent of β ∝ T^x (default 1.5).
+    pub beta_exponent: f64,
 }
 
 /// MOSFET parameters (square law with channel-length modulation).
@@ -381,6 +389,13 @@ pub struct MosModel {
     pub drain_body_capacitance: Option<Toleranced>,
     /// Dissipation rating, W.
     pub max_power: Option<f64>,
+    /// The temperature the parameters were measured at, K (default 27 °C).
+    pub reference_temperature_k: f64,
+    /// dV_th/dT of an n-channel device, V/K (default −2 mV/K; mirrored for p-channel, so
+    /// the threshold's magnitude falls as the device warms).
+    pub threshold_drift_v_per_k: f64,
+    /// Exponent of k′ ∝ T^x, the mobility's temperature law (default −1.5).
+    pub mobility_exponent: f64,
 }
 
 /// A min and/or max.

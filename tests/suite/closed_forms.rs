@@ -209,3 +209,26 @@ fn estimate_errors_against_the_separation_of_two_real_poles() {
         near(e.second_order, 0.0, "second-order");
     }
 }
+
+/// Issue 12, temperature: a junction's V_BE falls as it warms (docs/methods.md, Device
+/// equations), so the demo's bias current rises from −40 °C to 85 °C; every industrial
+/// temperature reads (−40 °C was refused as "not positive" before).
+#[test]
+fn the_demo_draws_more_current_when_warm() {
+    let text =
+        std::fs::read_to_string(crate::support::root().join("designs/rx-preamp-ce.yaml")).unwrap();
+    let at = |t: &str| {
+        let changed = text.replace("temperature: 27 °C", &format!("temperature: {t}"));
+        assert!(changed.contains(t));
+        let loaded = design::load(&changed);
+        let d = loaded.design.unwrap_or_else(|| panic!("{t}: {:?}", loaded.diagnostics));
+        assert!(
+            (d.temperature_k - 273.15 - t.trim_end_matches(" °C").parse::<f64>().unwrap()).abs()
+                < 1e-9
+        );
+        let a = analysis::analyze(&d).expect("analysis");
+        a.metrics().bias[0]
+    };
+    let (cold, room, hot) = (at("-40 °C"), at("27 °C"), at("85 °C"));
+    assert!(cold < room && room < hot, "{cold} {room} {hot}");
+}

@@ -73,6 +73,10 @@ pub const BIPOLAR_KEYS: &[&str] = &[
     "emitter_junction",
     "collector_junction",
     "max_power",
+    "reference_temperature",
+    "saturation_current_exponent",
+    "band_gap_voltage",
+    "beta_exponent",
 ];
 /// Keys of a MOSFET model.
 pub const MOS_KEYS: &[&str] = &[
@@ -88,6 +92,9 @@ pub const MOS_KEYS: &[&str] = &[
     "gate_drain_capacitance",
     "drain_body_capacitance",
     "max_power",
+    "reference_temperature",
+    "threshold_drift",
+    "mobility_exponent",
 ];
 /// Keys of a junction.
 pub const JUNCTION_KEYS: &[&str] = &["capacitance", "potential", "grading"];

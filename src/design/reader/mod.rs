@@ -66,6 +66,13 @@ const RATIO: Place =
 const GAIN_LIMIT: Place =
     Place { what: "a voltage gain", dim: Dim::NONE, positive: true, decibels: true };
 
+/// A temperature exponent: any sign, no unit.
+const EXPONENT: Place =
+    Place { what: "an exponent", dim: Dim::NONE, positive: false, decibels: false };
+
+/// The reference temperature of a model, K, when it gives none: 27 °C.
+const REFERENCE_TEMPERATURE_K: f64 = 300.15;
+
 fn per_volt() -> Dim {
     Dim::VOLT.powi(-1)
 }

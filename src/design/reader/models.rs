@@ -174,6 +174,17 @@ impl Reader<'_> {
             None => None,
         };
         let max_power = self.param_at(f, name, "max_power", POWER).map(|t| t.nominal);
+        let plain =
+            |r: &mut Self, f: &mut Fields, key: &'static str, place: Place, default: f64| {
+                r.param_at(f, name, key, place).map_or(default, |t| t.nominal)
+            };
+        let reference_temperature_k =
+            plain(self, f, "reference_temperature", TEMPERATURE, REFERENCE_TEMPERATURE_K);
+        let saturation_current_exponent =
+            plain(self, f, "saturation_current_exponent", EXPONENT, 3.0);
+        let band_gap_v =
+            plain(self, f, "band_gap_voltage", Place { positive: true, ..VOLTAGE }, 1.11);
+        let beta_exponent = plain(self, f, "beta_exponent", EXPONENT, 1.5);
         Some(BipolarModel {
             polarity: if npn { BipolarType::Npn } else { BipolarType::Pnp },
             beta: beta?,
@@ -185,6 +196,10 @@ impl Reader<'_> {
             emitter_junction: cje,
             collector_junction: cjc,
             max_power,
+            reference_temperature_k,
+            saturation_current_exponent,
+            band_gap_v,
+            beta_exponent,
         })
     }
 
@@ -396,6 +411,19 @@ impl Reader<'_> {
             }
         }
         let max_power = self.param_at(f, name, "max_power", POWER).map(|t| t.nominal);
+        let reference_temperature_k = self
+            .param_at(f, name, "reference_temperature", TEMPERATURE)
+            .map_or(REFERENCE_TEMPERATURE_K, |t| t.nominal);
+        let drift = Place {
+            what: "a temperature drift",
+            dim: Dim::VOLT.per(Dim::KELVIN),
+            positive: false,
+            decibels: false,
+        };
+        let threshold_drift_v_per_k =
+            self.param_at(f, name, "threshold_drift", drift).map_or(-2e-3, |t| t.nominal);
+        let mobility_exponent =
+            self.param_at(f, name, "mobility_exponent", EXPONENT).map_or(-1.5, |t| t.nominal);
         Some(MosModel {
             polarity: if nmos { MosType::Nmos } else { MosType::Pmos },
             process_transconductance: kp?,
@@ -409,6 +437,9 @@ impl Reader<'_> {
             gate_drain_capacitance: cgd,
             drain_body_capacitance: cdb,
             max_power,
+            reference_temperature_k,
+            threshold_drift_v_per_k,
+            mobility_exponent,
         })
     }
 
