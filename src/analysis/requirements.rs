@@ -28,6 +28,10 @@ pub struct RequirementCheck {
     /// Relative distance to the nearer limit, positive inside: (value − min)/min or
     /// (max − value)/max.
     pub margin: Option<f64>,
+    /// For a gain, the distance to the nearer limit in dB, positive inside.
+    pub margin_db: Option<f64>,
+    /// Which limit is nearer: `min` or `max`.
+    pub nearest_limit: Option<&'static str>,
     /// The value at the tolerance corner that pushes it toward a limit, when a study ran:
     /// the low corner for a minimum, the high corner for a maximum; with both limits set, the
     /// corner that comes nearer to its limit (a failing one first).
@@ -75,13 +79,23 @@ pub fn check(req: &Requirements, a: &Analysis) -> Vec<RequirementCheck> {
         .into_iter()
         .filter_map(|(name, unit, limits, value)| {
             let l = limits?;
-            let margins: Vec<f64> = [
-                l.min.zip(value).map(|(lo, v)| (v - lo) / lo),
-                l.max.zip(value).map(|(hi, v)| (hi - v) / hi),
-            ]
-            .into_iter()
-            .flatten()
-            .collect();
+            // Relative distance to each limit, positive inside; a gain also in dB, where its
+            // window is written.
+            let to_min = l.min.zip(value).map(|(lo, v)| (v - lo) / lo);
+            let to_max = l.max.zip(value).map(|(hi, v)| (hi - v) / hi);
+            let in_db = name == "midband_gain";
+            let db = |a: f64, b: f64| (a > 0.0 && b > 0.0).then(|| 20.0 * (a / b).log10());
+            let db_to_min = l.min.zip(value).and_then(|(lo, v)| db(v, lo));
+            let db_to_max = l.max.zip(value).and_then(|(hi, v)| db(hi, v));
+            let (judge_min, judge_max) =
+                if in_db { (db_to_min, db_to_max) } else { (to_min, to_max) };
+            let nearest = match (judge_min, judge_max) {
+                (Some(a), Some(b)) if b < a => Some(("max", b)),
+                (Some(a), _) => Some(("min", a)),
+                (None, Some(b)) => Some(("max", b)),
+                (None, None) => None,
+            };
+            let margins: Vec<f64> = [to_min, to_max].into_iter().flatten().collect();
             let margin = margins.iter().copied().reduce(f64::min);
             Some(RequirementCheck {
                 name,
@@ -91,6 +105,8 @@ pub fn check(req: &Requirements, a: &Analysis) -> Vec<RequirementCheck> {
                 value,
                 pass: value.is_some() && margin.is_some_and(|m| m >= 0.0),
                 margin,
+                margin_db: if in_db { nearest.map(|(_, m)| m) } else { None },
+                nearest_limit: nearest.map(|(side, _)| side),
                 corner: None,
                 corner_pass: None,
                 low_corner: None,
@@ -131,6 +147,8 @@ mod tests {
             value: Some(11.0),
             pass: true,
             margin: None,
+            margin_db: None,
+            nearest_limit: None,
             corner: None,
             corner_pass: None,
             low_corner: None,
@@ -158,5 +176,40 @@ mod tests {
         with_study(&mut c, &study(7.5, 13.5));
         assert_eq!((c[0].low_corner, c[0].high_corner), (Some(7.5), None));
         assert_eq!((c[0].corner, c[0].corner_pass), (Some(7.5), Some(false)));
+    }
+}
+
+#[cfg(test)]
+mod margin_tests {
+    use super::*;
+
+    fn analysis_with(gain: f64, f_high: f64) -> Analysis {
+        let text = std::fs::read_to_string("designs/rx-preamp-ce.yaml").unwrap();
+        let design = crate::design::load(&text).design.unwrap();
+        let mut a = crate::analysis::analyze(&design).unwrap();
+        a.midband.gain = gain;
+        a.high.f3db_hz = Some(f_high);
+        a
+    }
+
+    #[test]
+    fn a_gain_window_is_judged_in_db_and_names_the_nearer_limit() {
+        // 18 … 23 dB around 20 dB (10 V/V): 2 dB to the minimum, 3 dB to the maximum.
+        let l = Limits { min: Some(10f64.powf(18.0 / 20.0)), max: Some(10f64.powf(23.0 / 20.0)) };
+        let req = Requirements { midband_gain: Some(l), ..Requirements::default() };
+        let c = &check(&req, &analysis_with(-10.0, 1e6))[0];
+        assert_eq!(c.nearest_limit, Some("min"));
+        assert!((c.margin_db.unwrap() - 2.0).abs() < 1e-12, "{:?}", c.margin_db);
+    }
+
+    #[test]
+    fn a_one_sided_limit_has_a_relative_margin_and_no_db() {
+        let req = Requirements {
+            upper_cutoff: Some(Limits { min: Some(8e5), max: None }),
+            ..Requirements::default()
+        };
+        let c = &check(&req, &analysis_with(-10.0, 1e6))[0];
+        assert_eq!((c.nearest_limit, c.margin_db), (Some("min"), None));
+        assert!((c.margin.unwrap() - 0.25).abs() < 1e-12);
     }
 }

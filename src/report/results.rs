@@ -357,6 +357,10 @@ pub struct RequirementResults {
     pub pass: bool,
     /// Relative distance to the nearer limit, positive inside.
     pub margin: Option<f64>,
+    /// For `midband_gain`, the distance to the nearer limit in dB, positive inside.
+    pub margin_db: Option<f64>,
+    /// The nearer limit: `min` or `max`.
+    pub nearest_limit: Option<String>,
     /// The value at the tolerance corner toward the limit.
     pub corner: Option<f64>,
     /// True when every corner that matters is within the limits.
@@ -608,6 +612,8 @@ fn requirement(c: &RequirementCheck) -> RequirementResults {
         value: c.value,
         pass: c.pass,
         margin: c.margin,
+        margin_db: c.margin_db,
+        nearest_limit: c.nearest_limit.map(String::from),
         corner: c.corner,
         corner_pass: c.corner_pass,
         low_corner: c.low_corner,

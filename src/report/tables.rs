@@ -434,22 +434,59 @@ pub fn requirement_limit(name: &str, unit: &str, min: Option<f64>, max: Option<f
 pub fn requirement_row(r: &RequirementCheck) -> Vec<String> {
     let show = |v: f64| requirement_value(r.name, r.unit, v);
     let limit = requirement_limit(r.name, r.unit, r.min, r.max);
+    let margin = match (r.margin_db, r.margin, r.nearest_limit) {
+        (Some(db), _, Some(side)) => format!("{} dB to {side}", signed(plain(db, 3), db)),
+        (None, Some(m), Some(side)) => format!("{} to {side}", pct(Some(m))),
+        _ => absent(),
+    };
     vec![
         r.name.replace('_', " "),
         limit,
         r.value.map_or("not found".into(), show),
         if r.pass { "pass".into() } else { "FAIL".into() },
-        r.margin.map_or_else(absent, |m| pct(Some(m))),
-        match (r.low_corner, r.high_corner, r.corner, r.corner_pass) {
-            // A window: both corners, low … high, each against its own limit.
-            (Some(lo), Some(hi), _, Some(p)) => {
-                format!("{} … {} {}", show(lo), show(hi), if p { "pass" } else { "fail" })
-            }
-            (_, _, Some(v), Some(p)) => format!("{} {}", show(v), if p { "pass" } else { "fail" }),
-            _ => absent(),
-        },
+        margin,
+        corner_text(r),
         r.yield_fraction.map_or_else(absent, |y| format!("{} %", plain(y * 100.0, 4))),
     ]
+}
+
+/// `+` before a positive number's text.
+fn signed(text: String, value: f64) -> String {
+    if value > 0.0 && text != "0" { format!("+{text}") } else { text }
+}
+
+/// The worst-corner cell: the corner (both, `low … high`, for a window), then `pass`, or
+/// `fail by` how far the failing corner lies outside its limit (in dB for a gain).
+fn corner_text(r: &RequirementCheck) -> String {
+    let show = |v: f64| requirement_value(r.name, r.unit, v);
+    let shown = match (r.low_corner, r.high_corner, r.corner) {
+        (Some(lo), Some(hi), _) => format!("{} … {}", show(lo), show(hi)),
+        (_, _, Some(v)) => show(v),
+        _ => return absent(),
+    };
+    let Some(pass) = r.corner_pass else { return absent() };
+    if pass {
+        return format!("{shown} pass");
+    }
+    // How far outside: the worse of a low corner under the minimum and a high one over the
+    // maximum, relative to that limit.
+    let in_db = r.name == "midband_gain";
+    let outside = |v: f64, limit: f64, below: bool| {
+        let ratio = if below { limit / v } else { v / limit };
+        if in_db { 20.0 * ratio.log10() } else { ratio - 1.0 }
+    };
+    let excess = [
+        r.low_corner.zip(r.min).filter(|(v, lo)| v < lo).map(|(v, lo)| outside(v, lo, true)),
+        r.high_corner.zip(r.max).filter(|(v, hi)| v > hi).map(|(v, hi)| outside(v, hi, false)),
+    ]
+    .into_iter()
+    .flatten()
+    .reduce(f64::max);
+    match excess {
+        Some(e) if in_db => format!("{shown} fail by {} dB", plain(e, 2)),
+        Some(e) => format!("{shown} fail by {} %", plain(e * 100.0, 2)),
+        None => format!("{shown} fail"),
+    }
 }
 
 fn figure_label(key: &str) -> String {
@@ -589,4 +626,38 @@ fn monte_carlo_table(mc: &MonteCarlo) -> String {
         ))
     ));
     text
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn output_resistance(value: f64, corner: f64) -> RequirementCheck {
+        RequirementCheck {
+            name: "output_resistance",
+            unit: "Ω",
+            min: None,
+            max: Some(1200.0),
+            value: Some(value),
+            pass: value <= 1200.0,
+            margin: Some((1200.0 - value) / 1200.0),
+            margin_db: None,
+            nearest_limit: Some("max"),
+            corner: Some(corner),
+            corner_pass: Some(corner <= 1200.0),
+            low_corner: None,
+            high_corner: Some(corner),
+            yield_fraction: None,
+        }
+    }
+
+    #[test]
+    fn a_failing_corner_says_how_far_outside_its_limit_it_lies() {
+        // 1260 Ω against a 1.2 kΩ maximum: 5 % over.
+        let row = requirement_row(&output_resistance(1100.0, 1260.0));
+        assert_eq!(row[4], "+8.3 % to max");
+        assert_eq!(row[5], "1.26 kΩ fail by 5 %");
+        let row = requirement_row(&output_resistance(1100.0, 1150.0));
+        assert_eq!(row[5], "1.15 kΩ pass");
+    }
 }
