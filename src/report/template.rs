@@ -72,33 +72,77 @@ pub struct TemplateError {
     pub message: String,
 }
 
-fn number(v: &Value) -> Option<f64> {
-    v.as_number().map(|n| n.as_float())
+/// The number a filter formats. Null is a value that legitimately does not exist and prints
+/// `—`; a name the view does not have (`midband.gian`) or a value that is not a number is a
+/// mistake in the template, reported at its place.
+fn number(v: &Value, filter: &str) -> TeraResult<Option<f64>> {
+    if v.is_undefined() {
+        return Err(tera::Error::message(format!(
+            "`{filter}` was given a value the review does not have; check the name (docs/templates.md lists every value)"
+        )));
+    }
+    if v.is_none() {
+        return Ok(None);
+    }
+    match v.as_number() {
+        Some(n) => Ok(Some(n.as_float())),
+        None => Err(tera::Error::message(format!(
+            "`{filter}` formats numbers, and this is a {}",
+            v.name()
+        ))),
+    }
 }
 
-/// The number filters: `si`, `db`, `percent`, `sig`; an absent value prints `—`.
+/// Refuses keyword arguments a filter does not take, naming the ones it does.
+fn known_arguments(kwargs: &Kwargs, filter: &str, known: &[&str]) -> TeraResult<()> {
+    for (key, _) in kwargs.iter() {
+        let name = key.to_string();
+        if !known.contains(&name.as_str()) {
+            let takes = known.iter().map(|k| format!("`{k}`")).collect::<Vec<_>>().join(", ");
+            return Err(tera::Error::message(format!(
+                "`{filter}` takes {takes}; `{name}` is not one of them"
+            )));
+        }
+    }
+    Ok(())
+}
+
+/// The `digits` argument: significant digits, 1 to 12.
+fn digits(kwargs: &Kwargs, default: usize) -> TeraResult<usize> {
+    match kwargs.get::<i64>("digits")? {
+        None => Ok(default),
+        Some(d) if (1..=12).contains(&d) => Ok(d as usize),
+        Some(d) => Err(tera::Error::message(format!(
+            "`digits={d}` is out of range: give 1 to 12 significant digits"
+        ))),
+    }
+}
+
+/// The number filters: `si`, `db`, `percent`, `sig`. An absent (null) value prints `—`; an
+/// unknown name, an unknown argument or digits out of range are template errors.
 fn register_filters(tera: &mut Tera) {
     tera.register_filter("si", |v: &Value, kwargs: Kwargs, _: &State| -> TeraResult<String> {
+        known_arguments(&kwargs, "si", &["unit", "digits"])?;
         let unit: String = kwargs.get("unit")?.unwrap_or_default();
-        let digits: Option<i64> = kwargs.get("digits")?;
-        Ok(number(v)
-            .map_or_else(absent, |x| si(x, &unit, digits.unwrap_or(4).clamp(1, 12) as usize)))
+        let digits = digits(&kwargs, 4)?;
+        Ok(number(v, "si")?.map_or_else(absent, |x| si(x, &unit, digits)))
     });
     tera.register_filter("db", |v: &Value, kwargs: Kwargs, _: &State| -> TeraResult<String> {
-        let digits: Option<i64> = kwargs.get("digits")?;
-        Ok(number(v).filter(|x| *x != 0.0).map_or_else(absent, |x| {
-            format!("{} dB", plain(20.0 * x.abs().log10(), digits.unwrap_or(4) as usize))
-        }))
+        known_arguments(&kwargs, "db", &["digits"])?;
+        let digits = digits(&kwargs, 4)?;
+        Ok(number(v, "db")?
+            .filter(|x| *x != 0.0)
+            .map_or_else(absent, |x| format!("{} dB", plain(20.0 * x.abs().log10(), digits))))
     });
     tera.register_filter("percent", |v: &Value, kwargs: Kwargs, _: &State| -> TeraResult<String> {
-        let digits: Option<i64> = kwargs.get("digits")?;
-        Ok(number(v).map_or_else(absent, |x| {
-            format!("{} %", plain(x * 100.0, digits.unwrap_or(3) as usize))
-        }))
+        known_arguments(&kwargs, "percent", &["digits"])?;
+        let digits = digits(&kwargs, 3)?;
+        Ok(number(v, "percent")?.map_or_else(absent, |x| format!("{} %", plain(x * 100.0, digits))))
     });
     tera.register_filter("sig", |v: &Value, kwargs: Kwargs, _: &State| -> TeraResult<String> {
-        let digits: Option<i64> = kwargs.get("digits")?;
-        Ok(number(v).map_or_else(absent, |x| plain(x, digits.unwrap_or(4) as usize)))
+        known_arguments(&kwargs, "sig", &["digits"])?;
+        let digits = digits(&kwargs, 4)?;
+        Ok(number(v, "sig")?.map_or_else(absent, |x| plain(x, digits)))
     });
 }
 

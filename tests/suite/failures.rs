@@ -143,3 +143,38 @@ fn render_exits_1_after_writing_when_a_requirement_fails_issue_12() {
     assert!(report.contains("**FAIL**"), "the report is written and shows the failure");
     assert!(dir.join("o/results.json").exists() && dir.join("o/manifest.json").exists());
 }
+
+/// Issue 12, item 6: templates are strict. A misspelt name under a filter, an argument the
+/// filter does not take and digits out of range are located errors (exit 2, nothing written),
+/// never a silent `—` or a panic; a null value still prints `—`.
+#[test]
+fn template_mistakes_are_located_errors_issue_12() {
+    let design = crate::support::root().join("designs/rx-preamp-ce.yaml");
+    let dir = scratch("strict-template");
+    for (line, expect) in [
+        ("{{ midband.gian | si(unit=\"Ω\") }}", "the review does not have"),
+        ("{{ high.f3db_hz | si(units=\"Hz\") }}", "`units` is not one of them"),
+        ("{{ high.f3db_hz | sig(digits=1000000) }}", "out of range"),
+        ("{{ high.f3db_hz | db(digits=0) }}", "out of range"),
+        ("{{ design.title | percent }}", "formats numbers"),
+    ] {
+        std::fs::write(dir.join("mine.md"), format!("# Review\n\n{line}\n")).unwrap();
+        let out = run_in(
+            &dir,
+            &["render", design.to_str().unwrap(), "--template", "mine.md", "--out", "o"],
+        );
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{line}: {stderr}");
+        assert!(stderr.contains(expect), "{line}: {stderr}");
+        assert!(stderr.contains("--> mine.md:3:"), "{line}: the place is named: {stderr}");
+        assert!(!stderr.contains("panicked") && !dir.join("o").exists(), "{line}");
+    }
+    // A value that legitimately does not exist (no peaking here) prints the dash.
+    std::fs::write(dir.join("mine.md"), "# Review\n\npeak {{ high.peaking | si(unit=\"dB\") }}\n")
+        .unwrap();
+    let args = ["render", design.to_str().unwrap(), "--template", "mine.md", "--format", "md"];
+    let out = run_in(&dir, &[&args[..], &["--runs", "0", "--out", "ok"]].concat());
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let md = std::fs::read_to_string(dir.join("ok/report.md")).unwrap();
+    assert!(md.contains("peak —"), "{md}");
+}
