@@ -77,6 +77,9 @@ pub struct RevisionView {
 pub struct StatusChange {
     /// Requirement name (`upper_cutoff`, …).
     pub requirement: String,
+    /// What changed status: `nominal` (the value itself), `worst corner` (the tolerance
+    /// corner) or `yield` (every Monte Carlo run passing, or not).
+    pub aspect: &'static str,
     /// Pass at nominal values in the earlier revision; null when it did not exist there.
     pub old_pass: Option<bool>,
     /// Pass at nominal values in the later revision; null when it no longer exists.
@@ -282,12 +285,58 @@ fn status_changes(old: &ResultsDocument, new: &ResultsDocument) -> Vec<StatusCha
         let before = find_requirement(ro, &r.name);
         if before.map(|b| b.pass) != Some(r.pass) {
             out.push(status_change(before, Some(r)));
+            continue;
+        }
+        // Still passing (or failing) at nominal values: a corner or a yield can still turn.
+        let Some(b) = before else { continue };
+        if let (Some(x), Some(y)) = (b.corner_pass, r.corner_pass) {
+            if x != y {
+                out.push(aspect_change(b, r, "worst corner", |q| corner_value(q)));
+            }
+        }
+        let all_pass = |q: &RequirementResults| q.yield_fraction.map(|y| y >= 1.0);
+        if let (Some(x), Some(y)) = (all_pass(b), all_pass(r)) {
+            if x != y {
+                let text = |q: &RequirementResults| {
+                    q.yield_fraction.map_or_else(absent, |y| format!("{} %", plain(y * 100.0, 4)))
+                };
+                out.push(aspect_change(b, r, "yield", text));
+            }
         }
     }
     for r in ro.iter().filter(|r| find_requirement(rn, &r.name).is_none()) {
         out.push(status_change(Some(r), None));
     }
     out
+}
+
+/// The worst-corner value of a requirement, as text.
+fn corner_value(r: &RequirementResults) -> String {
+    r.corner.map_or_else(absent, |v| tables::requirement_value(&r.name, &r.unit, v))
+}
+
+/// A requirement that keeps its nominal verdict but whose corner or yield turned: passing
+/// here means every corner, or every Monte Carlo run, within the limits.
+fn aspect_change(
+    old: &RequirementResults,
+    new: &RequirementResults,
+    aspect: &'static str,
+    value: impl Fn(&RequirementResults) -> String,
+) -> StatusChange {
+    let passes = |r: &RequirementResults| match aspect {
+        "worst corner" => r.corner_pass,
+        _ => r.yield_fraction.map(|y| y >= 1.0),
+    };
+    StatusChange {
+        requirement: old.name.clone(),
+        aspect,
+        old_pass: passes(old),
+        new_pass: passes(new),
+        old_value: value(old),
+        new_value: value(new),
+        old_limit: requirement_limit(old),
+        new_limit: requirement_limit(new),
+    }
 }
 
 fn status_change(
@@ -297,6 +346,7 @@ fn status_change(
     let name = old.or(new).map_or("?", |r| r.name.as_str());
     StatusChange {
         requirement: name.to_string(),
+        aspect: "nominal",
         old_pass: old.map(|r| r.pass),
         new_pass: new.map(|r| r.pass),
         old_value: old.map_or_else(absent, requirement_value),
@@ -566,8 +616,19 @@ fn figures(doc: &ResultsDocument) -> Vec<Figure> {
     }
     for r in &doc.requirements {
         let name = &r.name;
-        let label = format!("yield, {}", name.replace('_', " "));
-        push(format!("yield {name}"), label, "%", r.yield_fraction);
+        let spaced = name.replace('_', " ");
+        // The margin in the requirement's own terms (dB for a gain), and the worst corner.
+        match r.margin_db {
+            Some(db) => push(format!("margin {name}"), format!("margin, {spaced}"), "dB", Some(db)),
+            None => push(format!("margin {name}"), format!("margin, {spaced}"), "%", r.margin),
+        }
+        let unit = match r.unit.as_str() {
+            "Hz" => "Hz",
+            "Ω" => "Ω",
+            _ => "",
+        };
+        push(format!("corner {name}"), format!("worst corner, {spaced}"), unit, r.corner);
+        push(format!("yield {name}"), format!("yield, {spaced}"), "%", r.yield_fraction);
     }
     let all = doc.tolerance.as_ref().and_then(|t| t.monte_carlo.as_ref()).and_then(|m| m.yield_all);
     push("yield all".into(), "yield, all requirements".into(), "%", all);
@@ -680,8 +741,13 @@ pub fn status_rows(c: &Change) -> Vec<Vec<String>> {
             } else {
                 format!("{} → {}", s.old_limit, s.new_limit)
             };
+            let requirement = s.requirement.replace('_', " ");
             vec![
-                s.requirement.replace('_', " "),
+                if s.aspect == "nominal" {
+                    requirement
+                } else {
+                    format!("{requirement}, {}", s.aspect)
+                },
                 limit,
                 format!("{} {}", s.old_value, pass_text(s.old_pass)),
                 format!("{} {}", s.new_value, pass_text(s.new_pass)),
