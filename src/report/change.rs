@@ -291,7 +291,7 @@ fn status_changes(old: &ResultsDocument, new: &ResultsDocument) -> Vec<StatusCha
         let Some(b) = before else { continue };
         if let (Some(x), Some(y)) = (b.corner_pass, r.corner_pass) {
             if x != y {
-                out.push(aspect_change(b, r, "worst corner", |q| corner_value(q)));
+                out.push(aspect_change(b, r, "worst corner", corner_value));
             }
         }
         let all_pass = |q: &RequirementResults| q.yield_fraction.map(|y| y >= 1.0);
