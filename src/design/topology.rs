@@ -162,15 +162,29 @@ fn lonely_nodes(
         }
         let total = parts.len() + external.get(node.as_str()).copied().unwrap_or(0);
         if total < 2 {
+            // A misspelling is the usual cause: name the well-connected node it is nearest to.
+            let others: Vec<&str> = touches
+                .iter()
+                .filter(|(n, p)| {
+                    *n != node && p.len() + external.get(n.as_str()).copied().unwrap_or(0) >= 2
+                })
+                .map(|(n, _)| n.as_str())
+                .collect();
+            let help = match nearest(node, &others) {
+                Some(near) => {
+                    format!("a node needs two connections to carry current: did you mean `{near}`?")
+                }
+                None => "a node needs two connections to carry current: check for a misspelt \
+                         node name"
+                    .to_string(),
+            };
             out.push(
                 Diagnostic::warning(
                     "single_connection",
                     format!("node `{node}` is touched only by `{}`", parts[0]),
                 )
                 .at(part_span(design, &parts[0]), format!("the only connection to `{node}`"))
-                .help(
-                    "a node needs two connections to carry current: check for a misspelt node name",
-                ),
+                .help(help),
             );
         }
     }

@@ -2,6 +2,7 @@
 //! part with its kind, value, tolerance, connections and model reference.
 
 use super::*;
+use crate::notation::{plain, si};
 
 impl Reader<'_> {
     pub(super) fn node_name(&mut self, node: &Node, what: &str) -> Option<String> {
@@ -344,7 +345,9 @@ impl Reader<'_> {
         };
         let value = f.require("value", &mut self.diagnostics).and_then(|n| {
             self.places.insert(format!("parts.{name}.value"), n.span);
-            self.quantity(n, place)
+            let v = self.quantity(n, place)?;
+            self.plausible(n, kind, v);
+            Some(v)
         });
         let between = f
             .require("between", &mut self.diagnostics)
@@ -495,5 +498,36 @@ impl Reader<'_> {
             return None;
         }
         Some(i)
+    }
+
+    /// Warns about a part value far outside what amplifier stages use, where a prefix is the
+    /// likely slip: a resistor under 10 mΩ (`1m` for `1M`), a capacitor of 0.1 F or more
+    /// (`10 F` for `10 µF`). A warning, not an error: such parts exist, rarely.
+    pub(super) fn plausible(&mut self, node: &Node, kind: &str, value: f64) {
+        let text = self.show(node);
+        let (what, help) = match kind {
+            "resistor" if value < 0.01 => {
+                let upper = text.replacen('m', "M", 1);
+                let help = if upper != text {
+                    format!("`m` is milli; did you mean `{upper}` (mega)?")
+                } else {
+                    "check the value and its prefix".to_string()
+                };
+                (
+                    format!("{}, far below any resistor in an amplifier stage", si(value, "Ω", 3)),
+                    help,
+                )
+            }
+            "capacitor" if value >= 0.1 => (
+                format!("{}, far above any capacitor in a signal path", si(value, "F", 3)),
+                format!("did you mean `{} µF`?", plain(value, 4)),
+            ),
+            _ => return,
+        };
+        self.push(
+            Diagnostic::warning("implausible_value", format!("`{text}` is {what}"))
+                .at(node.span, "unusual for this part")
+                .help(help),
+        );
     }
 }

@@ -519,4 +519,23 @@ mod tests {
         assert_eq!(found.iter().filter(|c| *c == "duplicate_part").count(), 1, "{found:?}");
         assert_eq!(found.iter().filter(|c| *c == "unit").count(), 1, "{found:?}");
     }
+
+    #[test]
+    fn implausible_values_warn_with_the_likely_prefix_issue_12() {
+        // Common practice: amplifier resistors run from ohms to megohms and signal-path
+        // capacitors from picofarads to millifarads; `m` (milli) for `M` (mega) is the usual slip.
+        let text = stage(
+            "  R1: {kind: resistor, value: 1m, between: [in, out]}\n\
+             \x20 R2: {kind: resistor, value: 1M, between: [out, gnd]}\n\
+             \x20 C1: {kind: capacitor, value: 10 F, between: [out, gnd], role: load}\n",
+            "",
+        );
+        let loaded = load(&text);
+        assert!(loaded.design.is_some(), "warnings only");
+        let found: Vec<_> =
+            loaded.diagnostics.iter().filter(|d| d.code == "implausible_value").collect();
+        assert_eq!(found.len(), 2, "{found:?}");
+        assert!(found[0].help.as_deref().unwrap().contains("`1M`"), "{:?}", found[0]);
+        assert!(found[1].help.as_deref().unwrap().contains("`10 µF`"), "{:?}", found[1]);
+    }
 }
