@@ -15,6 +15,8 @@ mod keys;
 mod models;
 mod params;
 mod settings;
+#[cfg(test)]
+mod unit_tests;
 mod values;
 
 pub use keys::*;
