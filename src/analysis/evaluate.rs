@@ -167,6 +167,12 @@ impl Core {
                 frequency_hz: self.frequency_hz,
                 gain: self.gain,
                 gain_db: (self.gain != 0.0).then(|| 20.0 * self.gain.abs().log10()),
+                exact_gain_db: self
+                    .transfer
+                    .at(self.frequency_hz)
+                    .map(|h| h.norm())
+                    .filter(|m| *m > 0.0)
+                    .map(|m| 20.0 * m.log10()),
                 input_resistance_ohm: self.input_resistance,
                 output_resistance_ohm: self.output_resistance,
             },
@@ -576,6 +582,10 @@ mod tests {
         close(a.high.f3db_hz.unwrap(), 1.0 / (pi2 * parallel * cl), 1e-5, "f_H exact");
         assert_eq!(a.poles.len(), 2);
         assert!(a.operating_point.is_none() && !a.has_inductors);
+        // At the geometric mean of two poles 10⁶ apart the exact response sits on the
+        // idealised gain to about 1/10⁶ of the level (|H| = A/√(1 + (f/f_H)²)/√(1 + (f_L/f)²)).
+        let ideal_db = 20.0 * (rl / (rs + rl)).log10();
+        assert!((a.midband.exact_gain_db.unwrap() - ideal_db).abs() < 1e-4, "{a:?}");
     }
 
     #[test]

@@ -118,6 +118,9 @@ pub struct Midband {
     pub gain: f64,
     /// 20·log10|gain|.
     pub gain_db: Option<f64>,
+    /// 20·log10|H(j2πf)| of the exact response at `frequency_hz`, every capacitor present:
+    /// what the stage really gives there, beside the idealised `gain`.
+    pub exact_gain_db: Option<f64>,
     /// Looking into the input, source resistance excluded, Ω.
     pub input_resistance_ohm: Option<f64>,
     /// Looking into the output with the source at rest, load excluded, Ω.

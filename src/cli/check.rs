@@ -193,7 +193,14 @@ pub fn analysis_text(a: &Analysis) -> String {
     let m = &a.midband;
     let _ = writeln!(out, "\nmid-band  (taken at {})", si(m.frequency_hz, "Hz", 3));
     let gain_db = m.gain_db.map_or(String::new(), |g| format!("  ({} dB)", plain(g, 4)));
-    let _ = writeln!(out, "  gain    {} V/V{gain_db}", plain(m.gain, 4));
+    let _ = writeln!(
+        out,
+        "  gain    {} V/V{gain_db}  idealised: coupling shorted, device caps open",
+        plain(m.gain, 4)
+    );
+    if let Some(exact) = m.exact_gain_db {
+        let _ = writeln!(out, "  exact   {} dB with every capacitor present", plain(exact, 4));
+    }
     let _ = writeln!(out, "  R_in    {}", opt_si(m.input_resistance_ohm, "Ω"));
     let _ = writeln!(out, "  R_out   {}", opt_si(m.output_resistance_ohm, "Ω"));
 

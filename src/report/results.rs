@@ -199,6 +199,8 @@ pub struct MidbandResults {
     pub gain: f64,
     /// 20·log10|gain|.
     pub gain_db: Option<f64>,
+    /// The exact response at `frequency_hz`, every capacitor present, dB.
+    pub exact_gain_db: Option<f64>,
     /// Looking into the input, source resistance excluded, Ω.
     pub input_resistance_ohm: Option<f64>,
     /// Looking into the output, load excluded, Ω.
@@ -568,6 +570,7 @@ pub fn document(
             frequency_hz: a.midband.frequency_hz,
             gain: a.midband.gain,
             gain_db: a.midband.gain_db,
+            exact_gain_db: a.midband.exact_gain_db,
             input_resistance_ohm: a.midband.input_resistance_ohm,
             output_resistance_ohm: a.midband.output_resistance_ohm,
         },
