@@ -195,7 +195,7 @@ pub fn analysis_text(a: &Analysis) -> String {
     let gain_db = m.gain_db.map_or(String::new(), |g| format!("  ({} dB)", plain(g, 4)));
     let _ = writeln!(
         out,
-        "  gain    {} V/V{gain_db}  idealised: coupling shorted, device caps open",
+        "  gain    {} V/V{gain_db}  idealised: coupling and bypass shorted, device caps open",
         plain(m.gain, 4)
     );
     if let Some(exact) = m.exact_gain_db {
