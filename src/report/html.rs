@@ -152,6 +152,7 @@ h2 { font-size: 1.25rem; margin: 2.2rem 0 0.6rem; border-bottom: 1px solid var(-
 h3 { font-size: 1.05rem; margin: 1.5rem 0 0.4rem; }
 table { border-collapse: collapse; margin: 0.8rem 0; font-size: 13.5px; font-variant-numeric: tabular-nums; }
 th, td { padding: 0.25rem 0.7rem; border-bottom: 1px solid var(--rule); vertical-align: top; }
+td[style*="right"], th[style*="right"] { white-space: nowrap; }
 th { border-bottom: 2px solid var(--ink); text-align: left; font-weight: 600; }
 tbody tr:nth-child(even) { background: var(--pale); }
 figure.plot { margin: 1.2rem 0; }
