@@ -14,16 +14,16 @@ use std::f64::consts::PI;
 use crate::analysis::linear::Factor;
 use crate::analysis::mna::{self, Assembly, CapState, Mna};
 use crate::analysis::poles::{self, Root};
-use crate::analysis::response::{self, SweepPoint, Transfer};
+use crate::analysis::response::{self, BandResponse, SweepPoint, Transfer};
 use crate::analysis::time_constants::{self, CapRef, OpenCircuit, ShortCircuitCap};
 use crate::analysis::{
-    Analysis, AnalysisError, CapacitorClass, DeviceReport, EstimateErrors, High, Low, Metrics,
-    Midband, Octc, OperatingPointReport, Peaking, RootHz, Sctc,
+    Analysis, AnalysisError, BandReport, CapacitorClass, DeviceReport, EstimateErrors, High, Low,
+    Metrics, Midband, Octc, OperatingPointReport, Peaking, RootHz, Sctc,
 };
 use crate::circuit::netlist::{CapSet, Netlist};
 use crate::circuit::operating_point::{self, DeviceState, OperatingPoint};
 use crate::circuit::small_signal::{self, Linear, LinearNetwork, SmallSignal};
-use crate::design::{AnalysisSettings, Design};
+use crate::design::{AnalysisSettings, Band, Design};
 use crate::union_find::UnionFind;
 
 /// Everything both depths of evaluation share: the bias, the mid-band network and its
@@ -47,6 +47,8 @@ struct Core {
     has_inductors: bool,
     f_high: Option<f64>,
     f_low: Option<f64>,
+    /// |H| across the design's operating band, when it states one.
+    band: Option<(Band, BandResponse)>,
 }
 
 /// The lean evaluation tolerance work repeats: operating point, mid-band, the time-constant
@@ -101,6 +103,8 @@ fn core(design: &Design) -> Result<Core, AnalysisError> {
     let sides = (!high_caps.is_empty() || has_inductors, !low_caps.is_empty() || has_inductors);
     let (f_high, f_low) =
         exact_cutoffs(&transfer, gain, frequency_hz, settings, sides, (f_low_est, f_high_est));
+    let band =
+        design.signal.band.and_then(|b| response::band_response(&transfer, b).map(|r| (b, r)));
     Ok(Core {
         net,
         op,
@@ -120,6 +124,7 @@ fn core(design: &Design) -> Result<Core, AnalysisError> {
         has_inductors,
         f_high,
         f_low,
+        band,
     })
 }
 
@@ -131,7 +136,8 @@ impl Core {
             .map(|o| o.devices.iter().map(|d| bias_current(&d.state)).collect())
             .unwrap_or_default();
         Metrics {
-            gain: self.gain.abs(),
+            gain: self.band.map_or(self.gain.abs(), |(_, r)| r.centre),
+            flatness_db: self.band.map(|(_, r)| r.flatness_db()),
             f_high: self.f_high,
             f_low: self.f_low,
             r_in: self.input_resistance,
@@ -160,16 +166,19 @@ impl Core {
         let (f_high, f_low) = (self.f_high, self.f_low);
         let capacitors = capacitor_classes(&self.lin);
         let operating_point = self.operating_point_report();
+        // With a stated band, mid-band is its centre; otherwise between the estimates.
+        let frequency_hz = self.band.map_or(self.frequency_hz, |(b, _)| b.centre_hz());
         Ok(Analysis {
             operating_point,
             capacitors,
             midband: Midband {
-                frequency_hz: self.frequency_hz,
+                frequency_hz,
                 gain: self.gain,
                 gain_db: (self.gain != 0.0).then(|| 20.0 * self.gain.abs().log10()),
+                band: self.band.map(|(b, r)| band_report(b, &r)),
                 exact_gain_db: self
                     .transfer
-                    .at(self.frequency_hz)
+                    .at(frequency_hz)
                     .map(|h| h.norm())
                     .filter(|m| *m > 0.0)
                     .map(|m| 20.0 * m.log10()),
@@ -243,6 +252,23 @@ impl Core {
                 .map(|(bias, small_signal)| DeviceReport { bias, small_signal })
                 .collect(),
         })
+    }
+}
+
+/// The band as reported: edges, centre and the extremes in dB.
+fn band_report(band: Band, r: &BandResponse) -> BandReport {
+    let db = |v: f64| 20.0 * v.log10();
+    BandReport {
+        from_hz: band.from_hz,
+        to_hz: band.to_hz,
+        centre_hz: band.centre_hz(),
+        centre_gain: r.centre,
+        centre_gain_db: db(r.centre),
+        lowest_gain_db: db(r.lowest.1),
+        lowest_at_hz: r.lowest.0,
+        highest_gain_db: db(r.highest.1),
+        highest_at_hz: r.highest.0,
+        flatness_db: r.flatness_db(),
     }
 }
 

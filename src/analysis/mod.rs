@@ -112,12 +112,16 @@ pub struct CapacitorClass {
 /// Mid-band figures.
 #[derive(Clone, Debug, Serialize)]
 pub struct Midband {
-    /// The frequency taken as mid-band: √(f_L,est · f_H,est), Hz.
+    /// The frequency taken as mid-band: the centre of the design's operating band when it
+    /// states one, else √(f_L,est · f_H,est), Hz.
     pub frequency_hz: f64,
-    /// Signed voltage gain from the source EMF to the output.
+    /// Signed voltage gain from the source EMF to the output, idealised: coupling and bypass
+    /// capacitors shorted, device and other high-frequency capacitors open.
     pub gain: f64,
     /// 20·log10|gain|.
     pub gain_db: Option<f64>,
+    /// The exact gain across the operating band, when the design states one.
+    pub band: Option<BandReport>,
     /// 20·log10|H(j2πf)| of the exact response at `frequency_hz`, every capacitor present:
     /// what the stage really gives there, beside the idealised `gain`.
     pub exact_gain_db: Option<f64>,
@@ -125,6 +129,31 @@ pub struct Midband {
     pub input_resistance_ohm: Option<f64>,
     /// Looking into the output with the source at rest, load excluded, Ω.
     pub output_resistance_ohm: Option<f64>,
+}
+
+/// The exact gain across the design's operating band.
+#[derive(Clone, Debug, Serialize)]
+pub struct BandReport {
+    /// Lower band edge, Hz.
+    pub from_hz: f64,
+    /// Upper band edge, Hz.
+    pub to_hz: f64,
+    /// Geometric centre, Hz.
+    pub centre_hz: f64,
+    /// |H| at the centre, V/V: the mid-band gain when a band is stated.
+    pub centre_gain: f64,
+    /// The same in dB.
+    pub centre_gain_db: f64,
+    /// The lowest gain in the band, dB.
+    pub lowest_gain_db: f64,
+    /// Where, Hz.
+    pub lowest_at_hz: f64,
+    /// The highest gain in the band, dB.
+    pub highest_gain_db: f64,
+    /// Where, Hz.
+    pub highest_at_hz: f64,
+    /// Highest − lowest, dB.
+    pub flatness_db: f64,
 }
 
 /// Relative errors of the estimates against the exact cut-off: (estimate − exact)/exact.
@@ -242,8 +271,11 @@ pub struct Analysis {
 /// The figures tolerance analysis follows, from one evaluation of a design.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct Metrics {
-    /// |mid-band gain|, V/V.
+    /// |mid-band gain|, V/V: the exact gain at the operating band's centre when the design
+    /// states a band, else the idealised gain.
     pub gain: f64,
+    /// Gain flatness over the operating band, dB, when the design states one.
+    pub flatness_db: Option<f64>,
     /// Exact upper −3 dB frequency, Hz.
     pub f_high: Option<f64>,
     /// Exact lower −3 dB frequency, Hz.
@@ -260,8 +292,10 @@ impl Analysis {
     /// The figures tolerance work follows, read off this analysis: the same values
     /// [`metrics`] computes for the same design (a unit test holds the two together).
     pub fn metrics(&self) -> Metrics {
+        let band = self.midband.band.as_ref();
         Metrics {
-            gain: self.midband.gain.abs(),
+            gain: band.map_or(self.midband.gain.abs(), |b| b.centre_gain),
+            flatness_db: band.map(|b| b.flatness_db),
             f_high: self.high.f3db_hz,
             f_low: self.low.f3db_hz,
             r_in: self.midband.input_resistance_ohm,

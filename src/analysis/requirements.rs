@@ -8,14 +8,15 @@
 use serde::Serialize;
 
 use crate::analysis::Analysis;
-use crate::design::{Limits, Requirements};
+use crate::design::Requirements;
 
 /// One checked requirement.
 #[derive(Clone, Debug, Serialize)]
 pub struct RequirementCheck {
-    /// `midband_gain`, `upper_cutoff`, `lower_cutoff`, `input_resistance`, `output_resistance`.
+    /// `midband_gain`, `gain_flatness`, `upper_cutoff`, `lower_cutoff`, `input_resistance`,
+    /// `output_resistance`.
     pub name: &'static str,
-    /// SI unit of the value ("" for a gain in V/V).
+    /// SI unit of the value ("" for a gain in V/V, "dB" for the flatness).
     pub unit: &'static str,
     /// Lowest allowed.
     pub min: Option<f64>,
@@ -25,10 +26,10 @@ pub struct RequirementCheck {
     pub value: Option<f64>,
     /// True when within the limits.
     pub pass: bool,
-    /// Relative distance to the nearer limit, positive inside: (value − min)/min or
-    /// (max − value)/max.
+    /// Relative distance to the nearer limit, positive inside: (value − min)/|min| or
+    /// (max − value)/|max|.
     pub margin: Option<f64>,
-    /// For a gain, the distance to the nearer limit in dB, positive inside.
+    /// For a gain or a flatness, the distance to the nearer limit in dB, positive inside.
     pub margin_db: Option<f64>,
     /// Which limit is nearer: `min` or `max`.
     pub nearest_limit: Option<&'static str>,
@@ -66,27 +67,63 @@ pub fn with_study(checks: &mut [RequirementCheck], study: &crate::analysis::tole
     }
 }
 
+/// How a requirement's distance to its limits is judged.
+#[derive(Clone, Copy, PartialEq)]
+enum Scale {
+    /// A ratio shown in dB (the gain): distances in dB.
+    RatioDb,
+    /// A figure already in dB (the flatness): distances in dB, by subtraction.
+    Db,
+    /// Everything else: relative distances.
+    Relative,
+}
+
+/// The SI unit a requirement's value is in: `""` for the gain (V/V), `dB` for the flatness.
+pub fn unit_of(name: &str) -> &'static str {
+    match name {
+        "midband_gain" => "",
+        "gain_flatness" => "dB",
+        "upper_cutoff" | "lower_cutoff" => "Hz",
+        _ => "Ω",
+    }
+}
+
+/// The computed value and scale of the requirement called `name`.
+fn quantity(name: &str, a: &Analysis) -> (Option<f64>, Scale) {
+    let m = &a.midband;
+    match name {
+        "midband_gain" => {
+            (Some(m.band.as_ref().map_or(m.gain.abs(), |b| b.centre_gain)), Scale::RatioDb)
+        }
+        "gain_flatness" => (m.band.as_ref().map(|b| b.flatness_db), Scale::Db),
+        "upper_cutoff" => (a.high.f3db_hz, Scale::Relative),
+        "lower_cutoff" => (a.low.f3db_hz, Scale::Relative),
+        "input_resistance" => (m.input_resistance_ohm, Scale::Relative),
+        _ => (m.output_resistance_ohm, Scale::Relative),
+    }
+}
+
 /// Checks every requirement against the nominal analysis.
 pub fn check(req: &Requirements, a: &Analysis) -> Vec<RequirementCheck> {
-    let items: [(&'static str, &'static str, Option<Limits>, Option<f64>); 5] = [
-        ("midband_gain", "", req.midband_gain, Some(a.midband.gain.abs())),
-        ("upper_cutoff", "Hz", req.upper_cutoff, a.high.f3db_hz),
-        ("lower_cutoff", "Hz", req.lower_cutoff, a.low.f3db_hz),
-        ("input_resistance", "Ω", req.input_resistance, a.midband.input_resistance_ohm),
-        ("output_resistance", "Ω", req.output_resistance, a.midband.output_resistance_ohm),
-    ];
-    items
+    req.items()
         .into_iter()
-        .filter_map(|(name, unit, limits, value)| {
+        .filter_map(|(name, limits)| {
             let l = limits?;
-            // Relative distance to each limit, positive inside; a gain also in dB, where its
-            // window is written.
-            let to_min = l.min.zip(value).map(|(lo, v)| (v - lo) / lo);
-            let to_max = l.max.zip(value).map(|(hi, v)| (hi - v) / hi);
-            let in_db = name == "midband_gain";
-            let db = |a: f64, b: f64| (a > 0.0 && b > 0.0).then(|| 20.0 * (a / b).log10());
+            let (value, scale) = quantity(name, a);
+            let unit = unit_of(name);
+            // Relative distance to each limit, positive inside (for a dB figure, relative to
+            // the limit's dB value); a gain and a flatness also in dB, where they are written.
+            let relative = |lo: f64, v: f64| Some((v - lo) / lo.abs()).filter(|m| m.is_finite());
+            let to_min = l.min.zip(value).and_then(|(lo, v)| relative(lo, v));
+            let to_max = l.max.zip(value).and_then(|(hi, v)| relative(hi, v).map(|m| -m));
+            let db = |a: f64, b: f64| match scale {
+                Scale::RatioDb => (a > 0.0 && b > 0.0).then(|| 20.0 * (a / b).log10()),
+                Scale::Db => Some(a - b),
+                Scale::Relative => None,
+            };
             let db_to_min = l.min.zip(value).and_then(|(lo, v)| db(v, lo));
             let db_to_max = l.max.zip(value).and_then(|(hi, v)| db(hi, v));
+            let in_db = scale != Scale::Relative;
             let (judge_min, judge_max) =
                 if in_db { (db_to_min, db_to_max) } else { (to_min, to_max) };
             let nearest = match (judge_min, judge_max) {
@@ -95,16 +132,16 @@ pub fn check(req: &Requirements, a: &Analysis) -> Vec<RequirementCheck> {
                 (None, Some(b)) => Some(("max", b)),
                 (None, None) => None,
             };
-            let margins: Vec<f64> = [to_min, to_max].into_iter().flatten().collect();
-            let margin = margins.iter().copied().reduce(f64::min);
+            let margins: Vec<f64> = [judge_min, judge_max].into_iter().flatten().collect();
+            let inside = margins.iter().copied().reduce(f64::min);
             Some(RequirementCheck {
                 name,
                 unit,
                 min: l.min,
                 max: l.max,
                 value,
-                pass: value.is_some() && margin.is_some_and(|m| m >= 0.0),
-                margin,
+                pass: value.is_some() && inside.is_some_and(|m| m >= 0.0),
+                margin: [to_min, to_max].into_iter().flatten().reduce(f64::min),
                 margin_db: if in_db { nearest.map(|(_, m)| m) } else { None },
                 nearest_limit: nearest.map(|(side, _)| side),
                 corner: None,
@@ -182,12 +219,14 @@ mod tests {
 #[cfg(test)]
 mod margin_tests {
     use super::*;
+    use crate::design::Limits;
 
     fn analysis_with(gain: f64, f_high: f64) -> Analysis {
         let text = std::fs::read_to_string("designs/rx-preamp-ce.yaml").unwrap();
         let design = crate::design::load(&text).design.unwrap();
         let mut a = crate::analysis::analyze(&design).unwrap();
         a.midband.gain = gain;
+        a.midband.band = None; // judged on the idealised gain set here
         a.high.f3db_hz = Some(f_high);
         a
     }
@@ -211,5 +250,35 @@ mod margin_tests {
         let c = &check(&req, &analysis_with(-10.0, 1e6))[0];
         assert_eq!((c.nearest_limit, c.margin_db), (Some("min"), None));
         assert!((c.margin.unwrap() - 0.25).abs() < 1e-12);
+    }
+
+    #[test]
+    fn a_flatness_is_judged_in_db_by_subtraction() {
+        // ≤ 1 dB with 0.6 dB across the band: 0.4 dB to the maximum; the gain is judged on
+        // the exact centre gain (9 V/V), not the idealised 10 V/V.
+        let mut a = analysis_with(-10.0, 1e6);
+        a.midband.band = Some(crate::analysis::BandReport {
+            from_hz: 1e5,
+            to_hz: 1e6,
+            centre_hz: 1e5 * 10f64.sqrt(),
+            centre_gain: 9.0,
+            centre_gain_db: 20.0 * 9f64.log10(),
+            lowest_gain_db: 19.0,
+            lowest_at_hz: 1e6,
+            highest_gain_db: 19.6,
+            highest_at_hz: 1e5,
+            flatness_db: 0.6,
+        });
+        let req = Requirements {
+            gain_flatness: Some(Limits { min: None, max: Some(1.0) }),
+            midband_gain: Some(Limits { min: Some(8.0), max: None }),
+            ..Requirements::default()
+        };
+        let checks = check(&req, &a);
+        let gain = checks.iter().find(|c| c.name == "midband_gain").unwrap();
+        assert_eq!(gain.value, Some(9.0));
+        let flat = checks.iter().find(|c| c.name == "gain_flatness").unwrap();
+        assert_eq!((flat.unit, flat.nearest_limit, flat.pass), ("dB", Some("max"), true));
+        assert!((flat.margin_db.unwrap() - 0.4).abs() < 1e-12, "{:?}", flat.margin_db);
     }
 }

@@ -1,5 +1,6 @@
 //! The exact frequency response: a log-spaced sweep of H(j2πf), the exact −3 dB points
-//! (bracketed on a log grid, refined by Brent's method) and peaking.
+//! (bracketed on a log grid, refined by Brent's method), peaking, and the gain across a
+//! stated operating band (its centre, its lowest and highest point).
 //!
 //! In: an assembled [`Mna`] and the mid-band gain. Out: sweep points and cut-offs. No I/O.
 
@@ -12,6 +13,7 @@ use faer::Mat;
 
 use crate::analysis::linear::{Factor, brent, transfer};
 use crate::analysis::mna::Mna;
+use crate::design::Band;
 
 /// One sweep point.
 #[derive(Clone, Copy, Debug, Serialize)]
@@ -158,4 +160,75 @@ pub fn crossing(
         }
         f_prev = f;
     }
+}
+
+/// |H| across an operating band.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct BandResponse {
+    /// |H| at the band's geometric centre, V/V.
+    pub centre: f64,
+    /// The lowest |H| in the band: (frequency Hz, V/V).
+    pub lowest: (f64, f64),
+    /// The highest |H| in the band: (frequency Hz, V/V).
+    pub highest: (f64, f64),
+}
+
+impl BandResponse {
+    /// Highest over lowest, dB: the gain flatness.
+    pub fn flatness_db(&self) -> f64 {
+        20.0 * (self.highest.1 / self.lowest.1).log10()
+    }
+}
+
+/// Log-spaced points a decade on the grid that brackets the band's extremes.
+const BAND_POINTS_PER_DECADE: f64 = 64.0;
+
+/// The centre, lowest and highest |H| over `band`: |H| on a log grid (both edges included,
+/// at least 17 points), each extreme that falls inside the band refined by a golden-section
+/// search in log frequency between its grid neighbours. None when H cannot be evaluated
+/// somewhere in the band or vanishes there.
+pub fn band_response(m: &Transfer, band: Band) -> Option<BandResponse> {
+    let magnitude = |f: f64| m.at(f).map(|h| h.norm()).filter(|v| *v > 0.0 && v.is_finite());
+    let (a, b) = (band.from_hz.log10(), band.to_hz.log10());
+    let steps = ((b - a) * BAND_POINTS_PER_DECADE).ceil().max(16.0) as usize;
+    let x: Vec<f64> = (0..=steps).map(|k| a + (b - a) * k as f64 / steps as f64).collect();
+    let y: Vec<f64> = x.iter().map(|&x| magnitude(10f64.powf(x))).collect::<Option<_>>()?;
+    let extreme = |sign: f64| {
+        let k = (0..y.len()).max_by(|&i, &j| (sign * y[i]).total_cmp(&(sign * y[j])))?;
+        if k == 0 || k == steps {
+            return Some((10f64.powf(x[k]), y[k]));
+        }
+        let at = golden(|x| magnitude(10f64.powf(x)).map(|v| sign * v), x[k - 1], x[k + 1])?;
+        let v = magnitude(10f64.powf(at))?;
+        // The refined point can only improve on the grid's best.
+        Some(if sign * v >= sign * y[k] { (10f64.powf(at), v) } else { (10f64.powf(x[k]), y[k]) })
+    };
+    Some(BandResponse {
+        centre: magnitude(band.centre_hz())?,
+        lowest: extreme(-1.0)?,
+        highest: extreme(1.0)?,
+    })
+}
+
+/// The maximiser of a unimodal `f` on [lo, hi] by golden-section search (Kiefer, 1953), to
+/// 1e-6 of the interval: near a smooth extreme the value's error is the square of that.
+fn golden(mut f: impl FnMut(f64) -> Option<f64>, mut lo: f64, mut hi: f64) -> Option<f64> {
+    let r = (5f64.sqrt() - 1.0) / 2.0;
+    let (mut c, mut d) = (hi - r * (hi - lo), lo + r * (hi - lo));
+    let (mut fc, mut fd) = (f(c)?, f(d)?);
+    let width = hi - lo;
+    while hi - lo > 1e-6 * width {
+        if fc > fd {
+            hi = d;
+            (d, fd) = (c, fc);
+            c = hi - r * (hi - lo);
+            fc = f(c)?;
+        } else {
+            lo = c;
+            (c, fc) = (d, fd);
+            d = lo + r * (hi - lo);
+            fd = f(d)?;
+        }
+    }
+    Some((lo + hi) / 2.0)
 }

@@ -25,6 +25,8 @@ pub use crate::analysis::levers::{Lever, LeverClass, levers, perturbed};
 pub enum Figure {
     /// |mid-band gain|.
     Gain,
+    /// Gain flatness over the operating band, dB.
+    Flatness,
     /// Upper cut-off.
     FHigh,
     /// Lower cut-off.
@@ -42,6 +44,7 @@ impl Figure {
     pub fn of(self, m: &Metrics) -> Option<f64> {
         match self {
             Figure::Gain => Some(m.gain),
+            Figure::Flatness => m.flatness_db,
             Figure::FHigh => m.f_high,
             Figure::FLow => m.f_low,
             Figure::RIn => m.r_in,
@@ -54,6 +57,7 @@ impl Figure {
     pub fn key(self, device_names: &[String]) -> String {
         match self {
             Figure::Gain => "midband_gain".into(),
+            Figure::Flatness => "gain_flatness".into(),
             Figure::FHigh => "upper_cutoff".into(),
             Figure::FLow => "lower_cutoff".into(),
             Figure::RIn => "input_resistance".into(),
@@ -65,10 +69,24 @@ impl Figure {
     }
 }
 
+impl Figure {
+    /// The figure a requirement (by its design-file name) limits.
+    pub fn of_requirement(name: &str) -> Figure {
+        match name {
+            "midband_gain" => Figure::Gain,
+            "gain_flatness" => Figure::Flatness,
+            "upper_cutoff" => Figure::FHigh,
+            "lower_cutoff" => Figure::FLow,
+            "input_resistance" => Figure::RIn,
+            _ => Figure::ROut,
+        }
+    }
+}
+
 /// The figures of a nominal evaluation that exist.
 pub fn figures(nominal: &Metrics) -> Vec<Figure> {
     let mut out: Vec<Figure> =
-        [Figure::Gain, Figure::FHigh, Figure::FLow, Figure::RIn, Figure::ROut]
+        [Figure::Gain, Figure::Flatness, Figure::FHigh, Figure::FLow, Figure::RIn, Figure::ROut]
             .into_iter()
             .filter(|f| f.of(nominal).is_some_and(|v| v > 0.0))
             .collect();
@@ -266,13 +284,11 @@ pub fn monte_carlo(
             })
         })
         .collect();
-    let checks: Vec<(&str, Option<crate::design::Limits>, Figure)> = vec![
-        ("midband_gain", requirements.midband_gain, Figure::Gain),
-        ("upper_cutoff", requirements.upper_cutoff, Figure::FHigh),
-        ("lower_cutoff", requirements.lower_cutoff, Figure::FLow),
-        ("input_resistance", requirements.input_resistance, Figure::RIn),
-        ("output_resistance", requirements.output_resistance, Figure::ROut),
-    ];
+    let checks: Vec<(&str, Option<crate::design::Limits>, Figure)> = requirements
+        .items()
+        .into_iter()
+        .map(|(name, limits)| (name, limits, Figure::of_requirement(name)))
+        .collect();
     let within = |l: &crate::design::Limits, v: Option<f64>| {
         v.is_some_and(|v| l.min.is_none_or(|lo| v >= lo) && l.max.is_none_or(|hi| v <= hi))
     };

@@ -16,7 +16,7 @@ use crate::cli::progress;
 use crate::cli::source::{analysis_failure, load_file, plural};
 use crate::cli::table::{Align, render};
 use crate::cli::{Failure, Outcome, out};
-use crate::design::{Design, DeviceModel, Limits, PartKind};
+use crate::design::{Design, DeviceModel, PartKind};
 use crate::notation::{absent, plain, scientific, si};
 
 /// Flags of `tauweave check`.
@@ -191,7 +191,16 @@ pub fn analysis_text(a: &Analysis) -> String {
         ));
     }
     let m = &a.midband;
-    let _ = writeln!(out, "\nmid-band  (taken at {})", si(m.frequency_hz, "Hz", 3));
+    let taken = match &m.band {
+        Some(b) => format!(
+            "taken at {}, the centre of the {} … {} band",
+            si(m.frequency_hz, "Hz", 3),
+            si(b.from_hz, "Hz", 3),
+            si(b.to_hz, "Hz", 3)
+        ),
+        None => format!("taken at {}", si(m.frequency_hz, "Hz", 3)),
+    };
+    let _ = writeln!(out, "\nmid-band  ({taken})");
     let gain_db = m.gain_db.map_or(String::new(), |g| format!("  ({} dB)", plain(g, 4)));
     let _ = writeln!(
         out,
@@ -200,6 +209,17 @@ pub fn analysis_text(a: &Analysis) -> String {
     );
     if let Some(exact) = m.exact_gain_db {
         let _ = writeln!(out, "  exact   {} dB with every capacitor present", plain(exact, 4));
+    }
+    if let Some(b) = &m.band {
+        let _ = writeln!(
+            out,
+            "  band    {} dB at {} … {} dB at {}: flatness {} dB",
+            plain(b.lowest_gain_db, 4),
+            si(b.lowest_at_hz, "Hz", 3),
+            plain(b.highest_gain_db, 4),
+            si(b.highest_at_hz, "Hz", 3),
+            plain(b.flatness_db, 3)
+        );
     }
     let _ = writeln!(out, "  R_in    {}", opt_si(m.input_resistance_ohm, "Ω"));
     let _ = writeln!(out, "  R_out   {}", opt_si(m.output_resistance_ohm, "Ω"));
@@ -361,31 +381,17 @@ pub fn summary(design: &Design, warnings: usize) -> String {
             .collect();
         rows.push(("params", params.len().to_string(), params.join(", ")));
     }
-    let r = &design.requirements;
-    let mut reqs = Vec::new();
-    let mut add = |name: &str, l: &Option<Limits>, unit: &str, db: bool| {
-        if let Some(l) = l {
-            let show = |v: f64| {
-                if db {
-                    format!("{} dB", crate::notation::plain(20.0 * v.log10(), 3))
-                } else {
-                    si(v, unit, 4)
-                }
-            };
-            let text = match (l.min, l.max) {
-                (Some(a), Some(b)) => format!("{name} {} … {}", show(a), show(b)),
-                (Some(a), None) => format!("{name} ≥ {}", show(a)),
-                (None, Some(b)) => format!("{name} ≤ {}", show(b)),
-                (None, None) => return,
-            };
-            reqs.push(text);
-        }
-    };
-    add("|gain|", &r.midband_gain, "", true);
-    add("f_high", &r.upper_cutoff, "Hz", false);
-    add("f_low", &r.lower_cutoff, "Hz", false);
-    add("R_in", &r.input_resistance, "Ω", false);
-    add("R_out", &r.output_resistance, "Ω", false);
+    let reqs: Vec<String> = design
+        .requirements
+        .items()
+        .into_iter()
+        .filter_map(|(name, l)| {
+            let l = l?;
+            let unit = crate::analysis::requirements::unit_of(name);
+            let limit = crate::report::tables::requirement_limit(name, unit, l.min, l.max);
+            Some(format!("{} {limit}", crate::report::tables::figure_label(name)))
+        })
+        .collect();
     rows.push(("requirements", reqs.len().to_string(), reqs.join(" · ")));
 
     let width = rows.iter().map(|(l, _, _)| l.len()).max().unwrap_or(0);

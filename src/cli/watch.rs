@@ -194,7 +194,10 @@ fn watcher_failure(e: notify::Error) -> Failure {
 /// 2.224 kHz, requirements 5/5 pass`. A missing value prints `—`.
 fn headline(results_json: &[u8]) -> String {
     let doc = results::from_json(results_json).ok();
-    let gain = doc.as_ref().and_then(|d| d.midband.gain_db);
+    // The gain the requirement is judged on: the exact gain at a stated band's centre.
+    let gain = doc
+        .as_ref()
+        .and_then(|d| d.midband.band.as_ref().map(|b| b.centre_gain_db).or(d.midband.gain_db));
     let f_high = doc.as_ref().and_then(|d| d.high.f3db_hz);
     let f_low = doc.as_ref().and_then(|d| d.low.f3db_hz);
     let checks = doc.as_ref().map_or(&[][..], |d| d.requirements.as_slice());
@@ -221,6 +224,7 @@ mod tests {
         let hashes = results::Hashes { design: String::new(), template: None, template_name: None };
         let mut doc = results::document(&design, &review, hashes, "d.yaml");
         doc.midband.gain_db = gain_db;
+        doc.midband.band = None;
         doc.high.f3db_hz = f_high;
         doc.low.f3db_hz = Some(2224.4);
         let template = doc.requirements[0].clone();

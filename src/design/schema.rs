@@ -174,8 +174,15 @@ pub fn design_schema() -> Value {
                                "propertyNames": {"pattern": "^[A-Za-z][A-Za-z0-9_]*$"}})
             }
             "supplies" => json!({"type": "object", "additionalProperties": supply}),
-            "signal" => object(SIGNAL_KEYS, SIGNAL_KEYS, |k| match k {
+            "signal" => object(SIGNAL_KEYS, &["at", "resistance"], |k| match k {
                 "at" => node_or_pair("node the source drives"),
+                "band" => object(BAND_KEYS, BAND_KEYS, |k| {
+                    quantity(if k == "from" {
+                        "lower edge of the operating band"
+                    } else {
+                        "upper edge of the operating band"
+                    })
+                }),
                 _ => quantity("series resistance of the source"),
             }),
             "output" => object(OUTPUT_KEYS, &["at"], |k| match k {

@@ -128,6 +128,24 @@ pub struct Signal {
     pub negative: String,
     /// Series resistance, Ω.
     pub resistance: Toleranced,
+    /// The band the stage must serve, when the design states one.
+    pub band: Option<Band>,
+}
+
+/// The operating band: the frequencies the stage must serve.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Band {
+    /// Lower end, Hz.
+    pub from_hz: f64,
+    /// Upper end, Hz.
+    pub to_hz: f64,
+}
+
+impl Band {
+    /// The geometric centre √(from·to), Hz: the middle of the band on a log axis.
+    pub fn centre_hz(&self) -> f64 {
+        (self.from_hz * self.to_hz).sqrt()
+    }
 }
 
 /// Where the response is taken.
@@ -420,21 +438,26 @@ pub struct Requirements {
     pub input_resistance: Option<Limits>,
     /// Output resistance at mid-band, Ω.
     pub output_resistance: Option<Limits>,
+    /// Gain flatness over the operating band, max − min, dB (limits in dB, not V/V).
+    pub gain_flatness: Option<Limits>,
 }
 
 impl Requirements {
+    /// Every requirement by its name in the design file, set or not, in report order.
+    pub fn items(&self) -> [(&'static str, Option<Limits>); 6] {
+        [
+            ("midband_gain", self.midband_gain),
+            ("gain_flatness", self.gain_flatness),
+            ("upper_cutoff", self.upper_cutoff),
+            ("lower_cutoff", self.lower_cutoff),
+            ("input_resistance", self.input_resistance),
+            ("output_resistance", self.output_resistance),
+        ]
+    }
+
     /// How many limits are set.
     pub fn count(&self) -> usize {
-        [
-            self.midband_gain,
-            self.upper_cutoff,
-            self.lower_cutoff,
-            self.input_resistance,
-            self.output_resistance,
-        ]
-        .iter()
-        .flatten()
-        .count()
+        self.items().iter().filter(|(_, l)| l.is_some()).count()
     }
 }
 

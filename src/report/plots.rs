@@ -292,6 +292,23 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
             .axis_desc_style(style(13))
             .draw()
             .ok()?;
+        if let Some(b) = &a.midband.band {
+            // The operating band, shaded behind the trace and named at its foot.
+            let (from, to) = (b.from_hz.max(f0), b.to_hz.min(f1));
+            if from < to {
+                mag.draw_series(std::iter::once(Rectangle::new(
+                    [(from, bottom), (to, top)],
+                    PALE.mix(0.45).filled(),
+                )))
+                .ok()?;
+                let y = bottom + (top - bottom) * 0.06;
+                let _ = mag.draw_series(std::iter::once(Text::new(
+                    "band".to_string(),
+                    (from * 1.04, y),
+                    style(11),
+                )));
+            }
+        }
         mag.draw_series(LineSeries::new(
             sweep.iter().map(|p| (p.frequency_hz, p.magnitude_db)),
             INK.stroke_width(2),

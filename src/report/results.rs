@@ -193,18 +193,46 @@ pub struct CapacitorResults {
 /// `midband`.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct MidbandResults {
-    /// The frequency taken as mid-band, Hz.
+    /// The frequency taken as mid-band: the operating band's centre when the design states
+    /// a band, else √(f_L,est · f_H,est), Hz.
     pub frequency_hz: f64,
-    /// Signed voltage gain from the source EMF to the output.
+    /// Signed voltage gain from the source EMF to the output, idealised (coupling and bypass
+    /// capacitors shorted, high-frequency capacitors open).
     pub gain: f64,
     /// 20·log10|gain|.
     pub gain_db: Option<f64>,
+    /// The exact gain across the operating band, when the design states one.
+    #[serde(default)]
+    pub band: Option<BandResults>,
     /// The exact response at `frequency_hz`, every capacitor present, dB.
     pub exact_gain_db: Option<f64>,
     /// Looking into the input, source resistance excluded, Ω.
     pub input_resistance_ohm: Option<f64>,
     /// Looking into the output, load excluded, Ω.
     pub output_resistance_ohm: Option<f64>,
+}
+
+/// `midband.band`: the exact gain across the design's operating band.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct BandResults {
+    /// Lower band edge, Hz.
+    pub from_hz: f64,
+    /// Upper band edge, Hz.
+    pub to_hz: f64,
+    /// Geometric centre √(from·to), Hz.
+    pub centre_hz: f64,
+    /// The exact gain at the centre, dB: what `midband_gain` is judged on.
+    pub centre_gain_db: f64,
+    /// The lowest gain in the band, dB.
+    pub lowest_gain_db: f64,
+    /// Where, Hz.
+    pub lowest_at_hz: f64,
+    /// The highest gain in the band, dB.
+    pub highest_gain_db: f64,
+    /// Where, Hz.
+    pub highest_at_hz: f64,
+    /// Highest − lowest, dB: what `gain_flatness` is judged on.
+    pub flatness_db: f64,
 }
 
 /// One high-frequency capacitor's open-circuit time constant.
@@ -344,22 +372,24 @@ pub struct LowResults {
 /// One requirement checked.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct RequirementResults {
-    /// `midband_gain`, `upper_cutoff`, `lower_cutoff`, `input_resistance`,
+    /// `midband_gain`, `gain_flatness`, `upper_cutoff`, `lower_cutoff`, `input_resistance`,
     /// `output_resistance`.
     pub name: String,
-    /// SI unit of the value (`""` for a gain in V/V).
+    /// SI unit of the value (`""` for a gain in V/V, `dB` for the flatness).
     pub unit: String,
     /// Lowest allowed.
     pub min: Option<f64>,
     /// Highest allowed.
     pub max: Option<f64>,
-    /// The computed value (|gain| for the gain).
+    /// The computed value (|gain| for the gain: the exact gain at the band centre when the
+    /// design states a band, else the idealised gain).
     pub value: Option<f64>,
     /// True when within the limits at nominal values.
     pub pass: bool,
     /// Relative distance to the nearer limit, positive inside.
     pub margin: Option<f64>,
-    /// For `midband_gain`, the distance to the nearer limit in dB, positive inside.
+    /// For `midband_gain` and `gain_flatness`, the distance to the nearer limit in dB,
+    /// positive inside.
     pub margin_db: Option<f64>,
     /// The nearer limit: `min` or `max`.
     pub nearest_limit: Option<String>,
@@ -570,6 +600,17 @@ pub fn document(
             frequency_hz: a.midband.frequency_hz,
             gain: a.midband.gain,
             gain_db: a.midband.gain_db,
+            band: a.midband.band.as_ref().map(|b| BandResults {
+                from_hz: b.from_hz,
+                to_hz: b.to_hz,
+                centre_hz: b.centre_hz,
+                centre_gain_db: b.centre_gain_db,
+                lowest_gain_db: b.lowest_gain_db,
+                lowest_at_hz: b.lowest_at_hz,
+                highest_gain_db: b.highest_gain_db,
+                highest_at_hz: b.highest_at_hz,
+                flatness_db: b.flatness_db,
+            }),
             exact_gain_db: a.midband.exact_gain_db,
             input_resistance_ohm: a.midband.input_resistance_ohm,
             output_resistance_ohm: a.midband.output_resistance_ohm,

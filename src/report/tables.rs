@@ -409,10 +409,13 @@ pub fn sctc_rows(l: &crate::analysis::Low) -> Vec<Vec<String>> {
         .collect()
 }
 
-/// A requirement's value as it is stated: the gain in dB, anything else in SI.
+/// A requirement's value as it is stated: the gain and the flatness in dB, anything else
+/// in SI.
 pub fn requirement_value(name: &str, unit: &str, v: f64) -> String {
     if name == "midband_gain" && v > 0.0 {
         format!("{} dB", plain(20.0 * v.log10(), 3))
+    } else if unit == "dB" {
+        format!("{} dB", plain(v, 3))
     } else {
         si(v, unit, 4)
     }
@@ -470,8 +473,11 @@ fn corner_text(r: &RequirementCheck) -> String {
     }
     // How far outside: the worse of a low corner under the minimum and a high one over the
     // maximum, relative to that limit.
-    let in_db = r.name == "midband_gain";
+    let in_db = r.name == "midband_gain" || r.unit == "dB";
     let outside = |v: f64, limit: f64, below: bool| {
+        if r.unit == "dB" {
+            return if below { limit - v } else { v - limit };
+        }
         let ratio = if below { limit / v } else { v / limit };
         if in_db { 20.0 * ratio.log10() } else { ratio - 1.0 }
     };
@@ -489,9 +495,11 @@ fn corner_text(r: &RequirementCheck) -> String {
     }
 }
 
-fn figure_label(key: &str) -> String {
+/// The short label of a figure or requirement: `gain`, `flatness`, `f_H`, `R_in`, `Q1 bias`.
+pub fn figure_label(key: &str) -> String {
     match key {
         "midband_gain" => "gain".into(),
+        "gain_flatness" => "flatness".into(),
         "upper_cutoff" => "f_H".into(),
         "lower_cutoff" => "f_L".into(),
         "input_resistance" => "R_in".into(),
@@ -503,6 +511,7 @@ fn figure_label(key: &str) -> String {
 fn figure_value(key: &str, v: f64) -> String {
     match key {
         "midband_gain" => format!("{} V/V", plain(v, 4)),
+        "gain_flatness" => format!("{} dB", plain(v, 3)),
         "upper_cutoff" | "lower_cutoff" => si(v, "Hz", 4),
         "input_resistance" | "output_resistance" => si(v, "Ω", 4),
         _ => si(v, "A", 4),

@@ -232,3 +232,68 @@ fn the_demo_draws_more_current_when_warm() {
     let (cold, room, hot) = (at("-40 °C"), at("27 °C"), at("85 °C"));
     assert!(cold < room && room < hot, "{cold} {room} {hot}");
 }
+
+/// The gain across a stated operating band, against the magnitude of a first-order
+/// low-pass, |H| = A0/√(1 + (f/f_c)²) (common practice): the flatness over [f1, f2] is
+/// 10·log10((1 + (f2/f_c)²)/(1 + (f1/f_c)²)) dB, the lowest gain at the top edge, the
+/// highest at the bottom edge; mid-band is the band's geometric centre.
+#[test]
+fn band_flatness_of_a_single_pole_against_its_closed_form() {
+    let (rs, rl, c) = (1e3, 1e3, 1e-9);
+    let text = design(
+        "  RL: {kind: resistor, value: 1k, between: [out, gnd]}\n\
+         \x20 CL: {kind: capacitor, value: 1 nF, between: [out, gnd], role: load}\n",
+        "{at: out, resistance: 1k, band: {from: 100 kHz, to: 1 MHz}}",
+        "{at: out}",
+    );
+    let a = analyse(&text);
+    let fc = 1.0 / (2.0 * std::f64::consts::PI * par(rs, rl) * c);
+    let a0 = rl / (rs + rl);
+    let db = |f: f64| 20.0 * (a0 / (1.0 + (f / fc).powi(2)).sqrt()).log10();
+    let b = a.midband.band.as_ref().expect("a band");
+    close(b.centre_hz, (1e5f64 * 1e6).sqrt(), "centre");
+    close(a.midband.frequency_hz, b.centre_hz, "mid-band frequency at the centre");
+    close(b.centre_gain_db, db(b.centre_hz), "centre gain");
+    close(b.lowest_gain_db, db(1e6), "lowest gain");
+    close(b.highest_gain_db, db(1e5), "highest gain");
+    close(b.lowest_at_hz, 1e6, "lowest at the top edge");
+    close(b.highest_at_hz, 1e5, "highest at the bottom edge");
+    let flatness = 10.0 * ((1.0 + (1e6 / fc).powi(2)) / (1.0 + (1e5 / fc).powi(2))).log10();
+    close(b.flatness_db, flatness, "flatness");
+    // The gain requirement is judged on the exact centre gain, not the idealised one.
+    assert_eq!(a.metrics().gain, b.centre_gain);
+    close(a.metrics().flatness_db.unwrap(), flatness, "flatness figure");
+}
+
+/// An interior maximum: a first-order high-pass (τ1) driving, through an ideal
+/// transconductance, a first-order low-pass (τ2). |H|² ∝ (ωτ1)²/((1 + (ωτ1)²)(1 + (ωτ2)²))
+/// peaks where ω² = 1/(τ1τ2) (differentiate; common practice), so the band's highest gain
+/// lies inside it at 1/(2π√(τ1τ2)) and must be found there, not at an edge.
+#[test]
+fn band_highest_gain_inside_the_band_where_the_closed_form_puts_it() {
+    let (rs, r1, c1, gm, r2, c2) = (1e3, 9e3, 10e-9, 1e-3, 10e3, 100e-12);
+    let text = design(
+        "  C1: {kind: capacitor, value: 10 nF, between: [in, x], role: coupling}\n\
+         \x20 R1: {kind: resistor, value: 9k, between: [x, gnd]}\n\
+         \x20 GM: {kind: transconductance, value: 1 mS, between: [y, gnd], control: [x, gnd]}\n\
+         \x20 R2: {kind: resistor, value: 10k, between: [y, gnd]}\n\
+         \x20 C2: {kind: capacitor, value: 100 pF, between: [y, gnd], role: load}\n",
+        "{at: in, resistance: 1k, band: {from: 10 kHz, to: 1 MHz}}",
+        "{at: y}",
+    );
+    let a = analyse(&text);
+    let (t1, t2) = ((rs + r1) * c1, r2 * c2);
+    let w = |f: f64| 2.0 * std::f64::consts::PI * f;
+    let mag = |f: f64| {
+        let (x1, x2) = (w(f) * t1, w(f) * t2);
+        r1 / (rs + r1) * gm * r2 * x1 / ((1.0 + x1 * x1) * (1.0 + x2 * x2)).sqrt()
+    };
+    let peak = 1.0 / (2.0 * std::f64::consts::PI * (t1 * t2).sqrt());
+    let b = a.midband.band.as_ref().expect("a band");
+    // The peak is flat, so its place is known to √ε of its height; its height to rounding.
+    assert!((b.highest_at_hz / peak - 1.0).abs() < 1e-4, "{} vs {peak}", b.highest_at_hz);
+    close(b.highest_gain_db, 20.0 * mag(peak).log10(), "peak gain");
+    let lowest = [1e4, 1e6].map(mag).into_iter().fold(f64::MAX, f64::min);
+    close(b.lowest_gain_db, 20.0 * lowest.log10(), "lowest gain at an edge");
+    close(b.flatness_db, 20.0 * (mag(peak) / lowest).log10(), "flatness");
+}

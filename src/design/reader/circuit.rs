@@ -148,9 +148,36 @@ impl Reader<'_> {
         let r = f
             .require("resistance", &mut self.diagnostics)
             .and_then(|n| self.quantity(n, RESISTANCE));
+        let band = match f.get_entry("band") {
+            Some((k, n)) => self.band(k, n),
+            None => Some(None),
+        };
         f.finish(&mut self.diagnostics);
         let (positive, negative) = at?;
-        Some(Signal { positive, negative, resistance: Toleranced::exact(r?) })
+        Some(Signal { positive, negative, resistance: Toleranced::exact(r?), band: band? })
+    }
+
+    /// `signal.band: {from: 150 kHz, to: 500 kHz}`. The outer None is a refused band.
+    fn band(&mut self, key: &Key, node: &Node) -> Option<Option<Band>> {
+        let mut f =
+            Fields::open(node, "`signal.band`", BAND_KEYS, key.span, &mut self.diagnostics)?;
+        let from_node = f.require("from", &mut self.diagnostics);
+        let to_node = f.require("to", &mut self.diagnostics);
+        let from = from_node.and_then(|n| self.quantity(n, FREQUENCY));
+        let to = to_node.and_then(|n| self.quantity(n, FREQUENCY));
+        f.finish(&mut self.diagnostics);
+        let (from_hz, to_hz) = (from?, to?);
+        if from_hz >= to_hz {
+            let span = from_node.map_or(key.span, |n| n.span);
+            self.push(
+                Diagnostic::error("band", "`signal.band` ends below where it starts")
+                    .at(span, "`from` is not below `to`")
+                    .also(to_node.map_or(span, |n| n.span), "to")
+                    .help("write the lower band edge as `from` and the upper as `to`"),
+            );
+            return None;
+        }
+        Some(Some(Band { from_hz, to_hz }))
     }
 
     pub(super) fn output(

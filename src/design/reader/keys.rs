@@ -21,7 +21,9 @@ pub const META_KEYS: &[&str] = &["id", "title", "revision", "date", "author", "p
 /// Keys of `environment`.
 pub const ENVIRONMENT_KEYS: &[&str] = &["temperature"];
 /// Keys of `signal`.
-pub const SIGNAL_KEYS: &[&str] = &["at", "resistance"];
+pub const SIGNAL_KEYS: &[&str] = &["at", "resistance", "band"];
+/// Keys of `signal.band`.
+pub const BAND_KEYS: &[&str] = &["from", "to"];
 /// Keys of `output`.
 pub const OUTPUT_KEYS: &[&str] = &["at", "load_resistance", "load_capacitance"];
 /// Keys of a supply written as a mapping.
@@ -101,8 +103,14 @@ pub const JUNCTION_KEYS: &[&str] = &["capacitance", "potential", "grading"];
 /// Keys of `transition_frequency`.
 pub const FT_KEYS: &[&str] = &["frequency", "collector_current"];
 /// Keys of `requirements`.
-pub const REQUIREMENT_KEYS: &[&str] =
-    &["midband_gain", "upper_cutoff", "lower_cutoff", "input_resistance", "output_resistance"];
+pub const REQUIREMENT_KEYS: &[&str] = &[
+    "midband_gain",
+    "gain_flatness",
+    "upper_cutoff",
+    "lower_cutoff",
+    "input_resistance",
+    "output_resistance",
+];
 /// Keys of one requirement.
 pub const LIMIT_KEYS: &[&str] = &["min", "max"];
 /// Keys of `analysis`.

@@ -38,39 +38,60 @@ struct Place {
     dim: Dim,
     /// Zero and negative values are refused.
     positive: bool,
-    /// `dB` converts to a ratio here.
-    decibels: bool,
+    /// What `dB` means here.
+    decibels: Decibels,
+}
+
+/// What a place does with a value written in `dB`.
+#[derive(Clone, Copy, PartialEq)]
+enum Decibels {
+    /// dB is an error (a resistance, a frequency…).
+    Refused,
+    /// `20 dB` is the voltage ratio 10 (a gain limit).
+    Ratio,
+    /// The value must be written in dB and is kept as the dB figure (a flatness).
+    Figure,
 }
 
 const RESISTANCE: Place =
-    Place { what: "a resistance", dim: Dim::OHM, positive: true, decibels: false };
+    Place { what: "a resistance", dim: Dim::OHM, positive: true, decibels: Decibels::Refused };
 const CAPACITANCE: Place =
-    Place { what: "a capacitance", dim: Dim::FARAD, positive: true, decibels: false };
+    Place { what: "a capacitance", dim: Dim::FARAD, positive: true, decibels: Decibels::Refused };
 const INDUCTANCE: Place =
-    Place { what: "an inductance", dim: Dim::HENRY, positive: true, decibels: false };
+    Place { what: "an inductance", dim: Dim::HENRY, positive: true, decibels: Decibels::Refused };
 const VOLTAGE: Place =
-    Place { what: "a voltage", dim: Dim::VOLT, positive: false, decibels: false };
+    Place { what: "a voltage", dim: Dim::VOLT, positive: false, decibels: Decibels::Refused };
 const CURRENT: Place =
-    Place { what: "a current", dim: Dim::AMPERE, positive: true, decibels: false };
+    Place { what: "a current", dim: Dim::AMPERE, positive: true, decibels: Decibels::Refused };
 const FREQUENCY: Place =
-    Place { what: "a frequency", dim: Dim::HERTZ, positive: true, decibels: false };
-const TIME: Place = Place { what: "a time", dim: Dim::SECOND, positive: false, decibels: false };
-const POWER: Place = Place { what: "a power", dim: Dim::WATT, positive: true, decibels: false };
-const LENGTH: Place = Place { what: "a length", dim: Dim::METRE, positive: true, decibels: false };
+    Place { what: "a frequency", dim: Dim::HERTZ, positive: true, decibels: Decibels::Refused };
+const TIME: Place =
+    Place { what: "a time", dim: Dim::SECOND, positive: false, decibels: Decibels::Refused };
+const POWER: Place =
+    Place { what: "a power", dim: Dim::WATT, positive: true, decibels: Decibels::Refused };
+const LENGTH: Place =
+    Place { what: "a length", dim: Dim::METRE, positive: true, decibels: Decibels::Refused };
 const TEMPERATURE: Place =
-    Place { what: "a temperature", dim: Dim::KELVIN, positive: true, decibels: false };
-const CONDUCTANCE: Place =
-    Place { what: "a transconductance", dim: Dim::SIEMENS, positive: false, decibels: false };
+    Place { what: "a temperature", dim: Dim::KELVIN, positive: true, decibels: Decibels::Refused };
+const CONDUCTANCE: Place = Place {
+    what: "a transconductance",
+    dim: Dim::SIEMENS,
+    positive: false,
+    decibels: Decibels::Refused,
+};
 const GAIN: Place =
-    Place { what: "a voltage gain", dim: Dim::NONE, positive: false, decibels: true };
+    Place { what: "a voltage gain", dim: Dim::NONE, positive: false, decibels: Decibels::Ratio };
 const RATIO: Place =
-    Place { what: "a pure number", dim: Dim::NONE, positive: true, decibels: false };
+    Place { what: "a pure number", dim: Dim::NONE, positive: true, decibels: Decibels::Refused };
 const GAIN_LIMIT: Place =
-    Place { what: "a voltage gain", dim: Dim::NONE, positive: true, decibels: true };
+    Place { what: "a voltage gain", dim: Dim::NONE, positive: true, decibels: Decibels::Ratio };
+/// A spread of gain in dB (max − min over a band).
+const FLATNESS: Place =
+    Place { what: "a gain flatness", dim: Dim::NONE, positive: false, decibels: Decibels::Figure };
 
 /// A temperature exponent: any sign, no unit.
 const EXPONENT: Place =
-    Place { what: "an exponent", dim: Dim::NONE, positive: false, decibels: false };
+    Place { what: "an exponent", dim: Dim::NONE, positive: false, decibels: Decibels::Refused };
 
 /// The reference temperature of a model, K, when it gives none: 27 °C.
 const REFERENCE_TEMPERATURE_K: f64 = 300.15;
@@ -196,7 +217,8 @@ impl Reader<'_> {
         };
         parts.extend(loads);
         let circuit_ok = self.error_count() == before_circuit;
-        let requirements = self.requirements(top.get_entry("requirements"));
+        let has_band = signal.as_ref().map(|s| s.band.is_some());
+        let requirements = self.requirements(top.get_entry("requirements"), has_band);
         let analysis = self.analysis(top.get_entry("analysis"));
         top.finish(&mut self.diagnostics);
         self.unused_models(root, &models, &parts);
@@ -435,6 +457,7 @@ fn example(place: Place) -> &'static str {
         "a temperature" => "27 °C",
         "a transconductance" => "20 mS",
         "a voltage gain" => "20 dB",
+        "a gain flatness" => "1 dB",
         _ => "100",
     }
 }

@@ -306,7 +306,7 @@ impl Reader<'_> {
                 what: "a process transconductance",
                 dim: kp_dim,
                 positive: true,
-                decibels: false,
+                decibels: Decibels::Refused,
             },
         );
         let w = self.required_param(f, name, "width", LENGTH);
@@ -321,7 +321,7 @@ impl Reader<'_> {
                     what: "a channel-length modulation",
                     dim: per_volt(),
                     positive: false,
-                    decibels: false,
+                    decibels: Decibels::Refused,
                 },
             )
             .unwrap_or(Toleranced::exact(0.0));
@@ -336,7 +336,7 @@ impl Reader<'_> {
                 what: "an oxide capacitance per area",
                 dim: Dim::FARAD.per(Dim::METRE.powi(2)),
                 positive: true,
-                decibels: false,
+                decibels: Decibels::Refused,
             },
         );
         let cov = self.param_at(
@@ -347,7 +347,7 @@ impl Reader<'_> {
                 what: "an overlap capacitance per width",
                 dim: Dim::FARAD.per(Dim::METRE),
                 positive: false,
-                decibels: false,
+                decibels: Decibels::Refused,
             },
         );
         let cgs = self.param_at(
@@ -418,7 +418,7 @@ impl Reader<'_> {
             what: "a temperature drift",
             dim: Dim::VOLT.per(Dim::KELVIN),
             positive: false,
-            decibels: false,
+            decibels: Decibels::Refused,
         };
         let threshold_drift_v_per_k =
             self.param_at(f, name, "threshold_drift", drift).map_or(-2e-3, |t| t.nominal);

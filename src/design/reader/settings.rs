@@ -4,7 +4,13 @@
 use super::*;
 
 impl Reader<'_> {
-    pub(super) fn requirements(&mut self, entry: Option<(&Key, &Node)>) -> Requirements {
+    /// `has_band`: whether the signal states an operating band (None when the signal
+    /// section itself failed to read).
+    pub(super) fn requirements(
+        &mut self,
+        entry: Option<(&Key, &Node)>,
+        has_band: Option<bool>,
+    ) -> Requirements {
         let mut out = Requirements::default();
         let Some((key, node)) = entry else { return out };
         let Some(mut f) = Fields::open(
@@ -20,12 +26,25 @@ impl Reader<'_> {
             let Some((k, n)) = f.get_entry(name) else { continue };
             let place = match name {
                 "midband_gain" => GAIN_LIMIT,
+                "gain_flatness" => FLATNESS,
                 "upper_cutoff" | "lower_cutoff" => FREQUENCY,
                 _ => RESISTANCE,
             };
             let limits = self.limits(name, k, n, place);
+            if name == "gain_flatness" && has_band == Some(false) {
+                self.push(
+                    Diagnostic::error(
+                        "missing_band",
+                        "`gain_flatness` is measured over the operating band, and the design \
+                         states none",
+                    )
+                    .at(k.span, "flatness over which band?")
+                    .help("add `band: {from: 150 kHz, to: 500 kHz}` under `signal:`"),
+                );
+            }
             match name {
                 "midband_gain" => out.midband_gain = limits,
+                "gain_flatness" => out.gain_flatness = limits,
                 "upper_cutoff" => out.upper_cutoff = limits,
                 "lower_cutoff" => out.lower_cutoff = limits,
                 "input_resistance" => out.input_resistance = limits,

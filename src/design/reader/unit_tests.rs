@@ -429,6 +429,41 @@ mod requirements {
         assert_eq!(d.requirements.count(), 2);
     }
 
+    /// A stated band turns `gain_flatness` on; the flatness is written and kept in dB.
+    fn with_band(rest: &str) -> String {
+        design_text(&[R1], rest).replace(
+            "signal: {at: in, resistance: 50 Ω}",
+            "signal: {at: in, resistance: 50 Ω, band: {from: 150 kHz, to: 500 kHz}}",
+        )
+    }
+
+    #[test]
+    fn a_band_and_a_flatness_in_db_read() {
+        let d = read_clean(&with_band("requirements: {gain_flatness: {max: 1 dB}}\n"));
+        let band = d.signal.band.expect("a band");
+        assert_eq!((band.from_hz, band.to_hz), (150e3, 500e3));
+        assert_eq!(d.requirements.gain_flatness.expect("a limit").max, Some(1.0));
+    }
+
+    #[test]
+    fn a_flatness_without_a_band_is_refused() {
+        let e = the_error(&design_text(&[R1], "requirements: {gain_flatness: {max: 1 dB}}\n"));
+        assert_eq!(e.code, "missing_band");
+    }
+
+    #[test]
+    fn a_flatness_not_in_db_is_refused() {
+        let e = the_error(&with_band("requirements: {gain_flatness: {max: 1.1}}\n"));
+        assert_eq!(e.code, "unit");
+        assert!(e.message.contains("written in dB"), "{}", e.message);
+    }
+
+    #[test]
+    fn a_band_that_ends_below_its_start_is_refused() {
+        let text = with_band("").replace("from: 150 kHz, to: 500 kHz", "from: 5 MHz, to: 500 kHz");
+        assert_eq!(the_error(&text).code, "band");
+    }
+
     #[test]
     fn a_min_above_its_max_is_refused() {
         let e = the_error(&design_text(

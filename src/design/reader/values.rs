@@ -83,7 +83,18 @@ impl Reader<'_> {
 
     pub(super) fn fit(&mut self, node: &Node, text: &str, v: Value, place: Place) -> Option<f64> {
         match v.mark {
-            Mark::Decibel if place.decibels => return Some(10f64.powf(v.si / 20.0)),
+            Mark::Decibel if place.decibels == Decibels::Ratio => {
+                return Some(10f64.powf(v.si / 20.0));
+            }
+            Mark::Decibel if place.decibels == Decibels::Figure => return Some(v.si),
+            _ if place.decibels == Decibels::Figure => {
+                self.push(
+                    Diagnostic::error("unit", format!("`{text}`: {} is written in dB", place.what))
+                        .at(node.span, "no dB here")
+                        .help(format!("e.g. `{}`", example(place))),
+                );
+                return None;
+            }
             Mark::Decibel => {
                 self.push(
                     Diagnostic::error(
