@@ -13,6 +13,7 @@ use std::path::{Path, PathBuf};
 use clap::Args;
 use sha2::{Digest, Sha256};
 
+use crate::analysis::response::SweepPoint;
 use crate::cli::progress;
 use crate::cli::source::{LoadedFile, analysis_failure, load_file, template_source};
 use crate::cli::table::{Align, render};
@@ -49,6 +50,7 @@ struct Side {
     file: Option<LoadedFile>,
     sha256: String,
     results: ResultsDocument,
+    sweep: Option<Vec<SweepPoint>>,
 }
 
 impl Side {
@@ -58,6 +60,7 @@ impl Side {
             sha256: self.sha256.clone(),
             design: self.file.as_ref().and_then(|f| f.loaded.design.as_ref()),
             results: &self.results,
+            sweep: self.sweep.as_deref(),
         }
     }
 }
@@ -83,7 +86,8 @@ fn side(path: &Path, runs: Option<u32>) -> Result<Side, Failure> {
                 Some("render the design again with this version of tauweave, or give the design file"),
             )
         })?;
-        return Ok(Side { file: None, sha256: sha256(&bytes), results });
+        let sweep = read_sweep(&path.with_file_name("sweep.csv"));
+        return Ok(Side { file: None, sha256: sha256(&bytes), results, sweep });
     }
     let file = load_file(path)?;
     let design = file.design()?;
@@ -98,7 +102,31 @@ fn side(path: &Path, runs: Option<u32>) -> Result<Side, Failure> {
         template_name: None,
     };
     let results = results::document(design, &review, hashes, &file.name);
-    Ok(Side { sha256: sha256(file.text.as_bytes()), file: Some(file), results })
+    let sweep = Some(review.analysis.sweep.clone());
+    Ok(Side { sha256: sha256(file.text.as_bytes()), file: Some(file), results, sweep })
+}
+
+/// The sweep.csv a render wrote beside its results.json, when it is there and reads; the
+/// change report then draws that revision's response too.
+fn read_sweep(path: &Path) -> Option<Vec<SweepPoint>> {
+    let text = std::fs::read_to_string(path).ok()?;
+    let mut lines = text.lines();
+    if lines.next()? != "frequency_hz,magnitude_db,phase_deg" {
+        return None;
+    }
+    lines
+        .map(|line| {
+            let v: Vec<f64> = line.split(',').map(|x| x.parse().ok()).collect::<Option<_>>()?;
+            match v[..] {
+                [frequency_hz, magnitude_db, phase_deg]
+                    if v.iter().all(|x| x.is_finite()) && frequency_hz > 0.0 =>
+                {
+                    Some(SweepPoint { frequency_hz, magnitude_db, phase_deg })
+                }
+                _ => None,
+            }
+        })
+        .collect()
 }
 
 /// The change report as terminal text, in the order of the written report.
@@ -147,6 +175,7 @@ pub fn terminal(c: &Change) -> String {
             ("after", Align::Right),
             ("change", Align::Right),
             ("relative", Align::Right),
+            ("bears on", Align::Left),
         ];
         out.push_str(&render(2, &header, &change::moved_rows(c)));
     }
@@ -182,7 +211,8 @@ pub fn run(args: &DiffArgs) -> Result<Outcome, Failure> {
     if !args.no_write {
         let dir = args.out.clone().unwrap_or_else(|| default_folder(&new.results));
         write::all(&dir, &files).map_err(|e| Failure::input(e, None))?;
-        eprintln!("wrote change.html, change.md into {}/", dir.display());
+        let names: Vec<&str> = files.iter().map(|f| f.path.as_str()).collect();
+        eprintln!("wrote {} into {}/", names.join(", "), dir.display());
     }
     Ok(if c.now_failing { Outcome::Failing } else { Outcome::Done })
 }

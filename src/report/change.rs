@@ -13,12 +13,15 @@ use std::collections::BTreeMap;
 use serde::Serialize;
 use serde_json::Value;
 
+use crate::analysis::response::SweepPoint;
 use crate::design::{Design, Part, Toleranced};
 use crate::notation::{ABSENT, absent, number, plain, si, signed_percent};
+use crate::report::plots::{self, Plot};
 use crate::report::results::{
     DeviceBiasResults, RequirementResults, ResultsDocument, RootResults, Tool, tool,
 };
 use crate::report::tables::{self, cell, markdown_table, part_cells};
+use crate::report::template::plot_marker;
 use crate::report::template::{self, Blocks, TemplateError, TemplateSource};
 use crate::report::view::escape;
 use crate::report::{OutputFile, html, tidy_blank_lines};
@@ -45,6 +48,9 @@ pub struct Revision<'a> {
     pub design: Option<&'a Design>,
     /// Its results document (reviewed here, or read from an earlier render).
     pub results: &'a ResultsDocument,
+    /// Its exact frequency response (from the analysis, or the sweep.csv beside an earlier
+    /// results.json), when known.
+    pub sweep: Option<&'a [SweepPoint]>,
 }
 
 /// A revision as the change template sees it.
@@ -132,6 +138,12 @@ pub struct Moved {
     pub absolute: Option<f64>,
     /// new/old − 1 (null for yields and values in dB).
     pub relative: Option<f64>,
+    /// Why it matters, when it bears on a requirement: `R_out worst corner: pass → FAIL`,
+    /// `f_H margin +42 % → +30 %`; empty otherwise.
+    pub bearing: String,
+    /// Its rank group: 0 bears on a requirement whose status changed, 1 on another
+    /// requirement, 2 on none.
+    pub group: u8,
 }
 
 /// The change report: the change template's view model.
@@ -151,10 +163,18 @@ pub struct Change {
     pub parts_compared: bool,
     /// Parts and model parameters that changed.
     pub part_changes: Vec<PartChange>,
-    /// Figures that moved, in reading order.
+    /// Figures that moved, most important first: those of requirements whose status
+    /// changed, then those of other requirements by the margin the change consumed, then
+    /// the rest by the size of their relative change.
     pub moved: Vec<Moved>,
     /// How many figures were compared.
     pub figures_compared: usize,
+    /// True when both responses are known and drawn over each other (`plot(name=
+    /// "bode_overlay")`).
+    pub has_overlay: bool,
+    /// That drawing, SVG.
+    #[serde(skip)]
+    pub overlay: Option<String>,
 }
 
 /// Compares two revisions.
@@ -203,8 +223,19 @@ pub fn compare(old: &Revision, new: &Revision) -> Change {
             new_text,
             absolute: x.zip(y).map(|(x, y)| y - x),
             relative,
+            bearing: String::new(),
+            group: 2,
         });
     }
+    rank(&mut moved, old.results, new.results, &status_changes);
+    let label = |r: &Revision| {
+        let d = &r.results.design;
+        format!("rev {} ({})", d.revision, if std::ptr::eq(r, old) { "earlier" } else { "later" })
+    };
+    let overlay = old
+        .sweep
+        .zip(new.sweep)
+        .and_then(|(a, b)| plots::bode_overlay(a, b, (&label(old), &label(new))));
     Change {
         tool: tool(),
         old: revision_view(old),
@@ -215,7 +246,111 @@ pub fn compare(old: &Revision, new: &Revision) -> Change {
         part_changes,
         moved,
         figures_compared: keys.len(),
+        has_overlay: overlay.is_some(),
+        overlay,
     }
+}
+
+/// The requirement a figure bears on: its own value, margin, corner or yield.
+fn requirement_of(key: &str) -> Option<&str> {
+    let own = match key {
+        "gain" | "gain_db" | "band centre gain" => Some("midband_gain"),
+        "band flatness" => Some("gain_flatness"),
+        "/high/f3db_hz" => Some("upper_cutoff"),
+        "/low/f3db_hz" => Some("lower_cutoff"),
+        "/midband/input_resistance_ohm" => Some("input_resistance"),
+        "/midband/output_resistance_ohm" => Some("output_resistance"),
+        _ => None,
+    };
+    own.or_else(|| {
+        ["margin ", "corner ", "yield "]
+            .iter()
+            .find_map(|p| key.strip_prefix(p))
+            .filter(|name| *name != "all")
+    })
+}
+
+/// A requirement's margin in its own terms (dB for a gain or a flatness, else a fraction),
+/// and the same as a rough fraction so the two kinds rank together (1 dB ≈ 11.5 %).
+fn margin_of(r: &RequirementResults) -> Option<(f64, f64)> {
+    match r.margin_db {
+        Some(db) => Some((db, 10f64.powf(db / 20.0) - 1.0)),
+        None => r.margin.map(|m| (m, m)),
+    }
+}
+
+fn margin_text(r: &RequirementResults) -> String {
+    match (r.margin_db, r.margin) {
+        (Some(db), _) => signed(format!("{} dB", plain(db, 3)), db > 0.0),
+        (None, Some(m)) => signed_percent(m, 3),
+        _ => absent(),
+    }
+}
+
+/// Orders the moved figures by how much they matter to the review (see [`Change::moved`])
+/// and says why for each that bears on a requirement. Ties keep reading order.
+fn rank(
+    moved: &mut [Moved],
+    old: &ResultsDocument,
+    new: &ResultsDocument,
+    status: &[StatusChange],
+) {
+    let mut score: Vec<f64> = Vec::with_capacity(moved.len());
+    for m in moved.iter_mut() {
+        let Some(name) = requirement_of(&m.key) else {
+            // The size of the move: relative, or a dB or percentage-point change as a
+            // rough fraction.
+            let size = match (m.relative, m.absolute, m.unit) {
+                (Some(r), _, _) => r.abs(),
+                (None, Some(d), "dB") => 10f64.powf(d.abs() / 20.0) - 1.0,
+                (None, Some(d), _) => d.abs(),
+                _ => f64::INFINITY, // appeared or went away
+            };
+            score.push(size);
+            continue;
+        };
+        let label = tables::figure_label(name);
+        let turned: Vec<&StatusChange> = status.iter().filter(|s| s.requirement == name).collect();
+        if !turned.is_empty() {
+            m.group = 0;
+            m.bearing = turned
+                .iter()
+                .map(|s| {
+                    let aspect = if s.aspect == "nominal" { "" } else { s.aspect };
+                    let aspect =
+                        if aspect.is_empty() { String::new() } else { format!(" {aspect}") };
+                    format!(
+                        "{label}{aspect}: {} → {}",
+                        pass_text(s.old_pass),
+                        pass_text(s.new_pass)
+                    )
+                })
+                .collect::<Vec<_>>()
+                .join("; ");
+            score.push(f64::INFINITY);
+            continue;
+        }
+        let (a, b) =
+            (find_requirement(&old.requirements, name), find_requirement(&new.requirements, name));
+        m.group = 1;
+        match (a.and_then(margin_of), b.and_then(margin_of)) {
+            (Some((_, x)), Some((_, y))) => {
+                m.bearing = format!(
+                    "{label} margin {} → {}",
+                    a.map_or_else(absent, margin_text),
+                    b.map_or_else(absent, margin_text)
+                );
+                score.push(x - y); // the margin consumed; negative when it grew
+            }
+            _ => score.push(f64::NEG_INFINITY),
+        }
+    }
+    let mut order: Vec<usize> = (0..moved.len()).collect();
+    order.sort_by(|&i, &j| {
+        moved[i].group.cmp(&moved[j].group).then(score[j].total_cmp(&score[i])).then(i.cmp(&j))
+    });
+    let sorted: Vec<Moved> = order.iter().map(|&i| moved[i].clone()).collect();
+    moved.clone_from_slice(&sorted);
 }
 
 fn revision_view(r: &Revision) -> RevisionView {
@@ -379,6 +514,12 @@ fn settings(d: &Design) -> BTreeMap<String, String> {
         "signal".to_string(),
         format!("{}–{} through {}", sig.positive, sig.negative, tol(&sig.resistance, "Ω")),
     );
+    if let Some(b) = sig.band {
+        out.insert(
+            "operating band".to_string(),
+            format!("{} … {}", si(b.from_hz, "Hz", 4), si(b.to_hz, "Hz", 4)),
+        );
+    }
     out.insert("output".to_string(), format!("{}–{}", d.output.positive, d.output.negative));
     out.insert("Monte Carlo runs".to_string(), d.analysis.monte_carlo_runs.to_string());
     out.insert("Monte Carlo seed".to_string(), d.analysis.seed.to_string());
@@ -569,6 +710,15 @@ fn figures(doc: &ResultsDocument) -> Vec<Figure> {
     let (m, h, l) = (&doc.midband, &doc.high, &doc.low);
     push("gain".into(), "mid-band gain |A|".into(), "", Some(m.gain.abs()));
     push("gain_db".into(), "mid-band gain".into(), "dB", m.gain_db);
+    if let Some(b) = &m.band {
+        push(
+            "band centre gain".into(),
+            "gain at the band centre".into(),
+            "dB",
+            Some(b.centre_gain_db),
+        );
+        push("band flatness".into(), "gain flatness".into(), "dB", Some(b.flatness_db));
+    }
     for (key, label, unit, value) in [
         ("/midband/input_resistance_ohm", "R_in", "Ω", m.input_resistance_ohm),
         ("/midband/output_resistance_ohm", "R_out", "Ω", m.output_resistance_ohm),
@@ -625,6 +775,7 @@ fn figures(doc: &ResultsDocument) -> Vec<Figure> {
         let unit = match r.unit.as_str() {
             "Hz" => "Hz",
             "Ω" => "Ω",
+            "dB" => "dB",
             _ => "",
         };
         push(format!("corner {name}"), format!("worst corner, {spaced}"), unit, r.corner);
@@ -706,11 +857,16 @@ fn signed(text: String, positive: bool) -> String {
     if positive { format!("+{text}") } else { text }
 }
 
-/// The rows of the `moved` table: figure, before, after, change (absolute), relative change.
+/// The rows of the `moved` table: figure, before, after, change (absolute), relative change,
+/// and what it bears on.
 pub fn moved_rows(c: &Change) -> Vec<Vec<String>> {
     c.moved
         .iter()
-        .map(|m| {
+        .enumerate()
+        .map(|(i, m)| {
+            // What a row bears on is said once for the run of rows it covers.
+            let repeated = i > 0 && c.moved[i - 1].bearing == m.bearing;
+            let bearing = if repeated { String::new() } else { m.bearing.clone() };
             let absolute = m.absolute.map_or_else(absent, |d| match m.unit {
                 // A yield moves in percentage points.
                 "%" => signed(format!("{} pt", plain(d * 100.0, 3)), d > 0.0),
@@ -718,7 +874,14 @@ pub fn moved_rows(c: &Change) -> Vec<Vec<String>> {
                 unit => signed(show(Some(d), unit), d > 0.0),
             });
             let relative = m.relative.map_or_else(absent, |r| signed_percent(r, 3));
-            vec![m.label.clone(), m.old_text.clone(), m.new_text.clone(), absolute, relative]
+            vec![
+                m.label.clone(),
+                m.old_text.clone(),
+                m.new_text.clone(),
+                absolute,
+                relative,
+                bearing,
+            ]
         })
         .collect()
 }
@@ -788,8 +951,8 @@ pub fn tables(c: &Change) -> BTreeMap<&'static str, String> {
     t.insert(
         "moved",
         markdown_table(
-            &["figure", "before", "after", "change", "relative"],
-            "lrrrr",
+            &["figure", "before", "after", "change", "relative", "bears on"],
+            "lrrrrl",
             cells(moved_rows(c)),
         ),
     );
@@ -802,25 +965,41 @@ pub fn render(
     change: &Change,
     template: &TemplateSource,
 ) -> Result<Vec<OutputFile>, TemplateError> {
+    let plot = change.overlay.as_ref().map(|svg| Plot {
+        name: OVERLAY,
+        caption: "Bode plot of both revisions: the earlier response grey and dashed, the later \
+                  one black and solid."
+            .into(),
+        svg: svg.clone(),
+    });
     let blocks = Blocks {
         tables: tables(change),
         known_tables: TABLES.iter().map(|(n, _)| *n).collect(),
-        plots: Vec::new(),
-        known_plots: Vec::new(),
+        plots: plot.iter().map(|p| p.name).collect(),
+        known_plots: vec![OVERLAY],
         explanation: (Vec::new(), Vec::new()),
         cautions: Vec::new(),
     };
     let markdown = tidy_blank_lines(&template::render(template, change, blocks)?);
     let title =
         format!("Change review — {} → {}", change.old.revision_text, change.new.revision_text);
-    Ok(vec![
-        OutputFile {
-            path: "change.html".into(),
-            bytes: html::page(&title, &markdown, &[]).into_bytes(),
-        },
-        OutputFile { path: "change.md".into(), bytes: markdown.into_bytes() },
-    ])
+    let plots: Vec<Plot> = plot.into_iter().collect();
+    let mut md = markdown.clone();
+    let mut files = vec![OutputFile {
+        path: "change.html".into(),
+        bytes: html::page(&title, &markdown, &plots).into_bytes(),
+    }];
+    for p in &plots {
+        let path = format!("plots/{}.svg", p.name);
+        md = md.replace(&plot_marker(p.name), &format!("![{}]({path})", p.caption));
+        files.push(OutputFile { path, bytes: p.svg.clone().into_bytes() });
+    }
+    files.push(OutputFile { path: "change.md".into(), bytes: md.into_bytes() });
+    Ok(files)
 }
+
+/// The plot name of the before/after Bode overlay.
+pub const OVERLAY: &str = "bode_overlay";
 
 #[cfg(test)]
 mod tests {
@@ -862,5 +1041,67 @@ mod tests {
         assert_eq!(after.len(), 1);
         assert_eq!(before[0].text(), "5 Hz, Q 0.833");
         assert_eq!(before[1].key, "pole gone 2");
+    }
+
+    /// The demo's results document, reviewed without Monte Carlo.
+    fn demo() -> ResultsDocument {
+        let text = std::fs::read_to_string("designs/rx-preamp-ce.yaml").unwrap();
+        let design = crate::design::load(&text).design.unwrap();
+        let options = crate::review::ReviewOptions::quiet(&design, Some(0));
+        let review = crate::review::review(&design, &options).unwrap();
+        let hashes = crate::report::results::Hashes {
+            design: String::new(),
+            template: None,
+            template_name: None,
+        };
+        crate::report::results::document(&design, &review, hashes, "d.yaml")
+    }
+
+    #[test]
+    fn moved_figures_rank_by_status_then_margin_consumed_then_size() {
+        let old = demo();
+        let mut new = old.clone();
+        fn edit(d: &mut ResultsDocument, name: &str, f: &dyn Fn(&mut RequirementResults)) {
+            f(d.requirements.iter_mut().find(|r| r.name == name).unwrap())
+        }
+        // R_out's corner turns to fail: a status change, ranked first though read last.
+        edit(&mut new, "output_resistance", &|r| {
+            r.corner_pass = Some(false);
+            r.margin = r.margin.map(|m| m - 0.001);
+        });
+        // f_H gives up 20 % of margin, the gain 1 dB (≈ 12 %), R_in 5 %, f_L gains 10 %.
+        edit(&mut new, "upper_cutoff", &|r| r.margin = r.margin.map(|m| m - 0.20));
+        edit(&mut new, "midband_gain", &|r| r.margin_db = r.margin_db.map(|m| m - 1.0));
+        edit(&mut new, "input_resistance", &|r| r.margin = r.margin.map(|m| m - 0.05));
+        edit(&mut new, "lower_cutoff", &|r| r.margin = r.margin.map(|m| m + 0.10));
+        // Two figures on no requirement: a small and a large relative move.
+        let nodes = &mut new.operating_point.as_mut().unwrap().nodes;
+        *nodes.get_mut("base").unwrap() *= 1.01;
+        *nodes.get_mut("coll").unwrap() *= 0.8;
+        let revision = |r| Revision {
+            source: "x",
+            sha256: String::new(),
+            design: None,
+            results: r,
+            sweep: None,
+        };
+        let c = compare(&revision(&old), &revision(&new));
+        let keys: Vec<&str> = c.moved.iter().map(|m| m.key.as_str()).collect();
+        assert_eq!(
+            keys,
+            [
+                "margin output_resistance",
+                "margin upper_cutoff",
+                "margin midband_gain",
+                "margin input_resistance",
+                "margin lower_cutoff",
+                "node coll",
+                "node base",
+            ]
+        );
+        assert_eq!(c.moved[0].bearing, "R_out worst corner: pass → FAIL");
+        assert!(c.moved[1].bearing.starts_with("f_H margin +"), "{}", c.moved[1].bearing);
+        assert_eq!(c.moved[5].bearing, "");
+        assert!(!c.has_overlay, "no sweeps were given");
     }
 }

@@ -9,6 +9,7 @@
 use plotters::prelude::*;
 
 use crate::analysis::requirements::RequirementCheck;
+use crate::analysis::response::SweepPoint;
 use crate::analysis::tolerance::Study;
 use crate::analysis::{Analysis, RootHz};
 use crate::notation::si;
@@ -558,6 +559,106 @@ fn shares(a: &Analysis) -> Option<String> {
                 )
             }))
             .ok()?;
+        root.present().ok()?;
+    }
+    Some(finish(svg))
+}
+
+/// Before and after, overlaid: magnitude and phase of the exact response of two revisions,
+/// the earlier one grey and dashed, the later one black and solid, with a legend naming
+/// each. None when either side has fewer than two sweep points.
+///
+/// Long because it is one plotters drawing sequence: both panels share the frequency axis,
+/// the two traces and the legend.
+pub fn bode_overlay(
+    before: &[SweepPoint],
+    after: &[SweepPoint],
+    (before_label, after_label): (&str, &str),
+) -> Option<String> {
+    if before.len() < 2 || after.len() < 2 {
+        return None;
+    }
+    let both = || before.iter().chain(after.iter());
+    let f0 = both().map(|p| p.frequency_hz).fold(f64::MAX, f64::min);
+    let f1 = both().map(|p| p.frequency_hz).fold(f64::MIN, f64::max);
+    let mag_max = both().map(|p| p.magnitude_db).fold(f64::MIN, f64::max);
+    let top = (mag_max / 10.0).ceil() * 10.0 + 5.0;
+    let bottom =
+        (top - 80.0).max(both().map(|p| p.magnitude_db).fold(f64::MAX, f64::min).floor() - 5.0);
+    let ph_min = both().map(|p| p.phase_deg).fold(f64::MAX, f64::min);
+    let ph_max = both().map(|p| p.phase_deg).fold(f64::MIN, f64::max);
+    let (ph_lo, ph_hi) = ((ph_min / 45.0).floor() * 45.0, (ph_max / 45.0).ceil() * 45.0 + 1.0);
+    let earlier = MID.stroke_width(2);
+    let later = INK.stroke_width(2);
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (860, 560)).into_drawing_area();
+        root.fill(&WHITE).ok()?;
+        let (upper, lower) = root.split_vertically(340);
+        let mut mag = ChartBuilder::on(&upper)
+            .margin(14)
+            .x_label_area_size(28)
+            .y_label_area_size(64)
+            .build_cartesian_2d((f0..f1).log_scale(), bottom..top)
+            .ok()?;
+        mag.configure_mesh()
+            .light_line_style(PALE.mix(0.5))
+            .bold_line_style(PALE)
+            .axis_style(MID)
+            .x_label_formatter(&|v| decade_label(*v, "Hz"))
+            .y_label_formatter(&|v| format!("{v:.0} dB"))
+            .label_style(style(12))
+            .y_desc("|H|")
+            .axis_desc_style(style(13))
+            .draw()
+            .ok()?;
+        let line = |s: &[SweepPoint], f: fn(&SweepPoint) -> f64| -> Vec<(f64, f64)> {
+            s.iter().map(|p| (p.frequency_hz, f(p))).collect()
+        };
+        mag.draw_series(DashedLineSeries::new(line(before, |p| p.magnitude_db), 7, 4, earlier))
+            .ok()?;
+        mag.draw_series(LineSeries::new(line(after, |p| p.magnitude_db), later)).ok()?;
+        // The legend, in the panel's top-right corner, in pixels.
+        let (w, _) = upper.dim_in_pixel();
+        let x = w as i32 - 300;
+        for (row, (label, dashed)) in
+            [(before_label, true), (after_label, false)].iter().enumerate()
+        {
+            let y = 28 + 18 * row as i32;
+            let color = if *dashed { MID } else { INK };
+            let segments: Vec<(i32, i32)> =
+                if *dashed { vec![(x, y), (x + 10, y)] } else { vec![(x, y), (x + 28, y)] };
+            upper.draw(&PathElement::new(segments, color.stroke_width(2))).ok()?;
+            if *dashed {
+                upper
+                    .draw(&PathElement::new(vec![(x + 16, y), (x + 28, y)], color.stroke_width(2)))
+                    .ok()?;
+            }
+            upper.draw(&Text::new(label.to_string(), (x + 36, y - 7), style(12))).ok()?;
+        }
+        let mut phase = ChartBuilder::on(&lower)
+            .margin(14)
+            .x_label_area_size(30)
+            .y_label_area_size(64)
+            .build_cartesian_2d((f0..f1).log_scale(), ph_lo..ph_hi)
+            .ok()?;
+        phase
+            .configure_mesh()
+            .light_line_style(PALE.mix(0.5))
+            .bold_line_style(PALE)
+            .axis_style(MID)
+            .x_label_formatter(&|v| decade_label(*v, "Hz"))
+            .y_label_formatter(&|v| format!("{v:.0}°"))
+            .label_style(style(12))
+            .y_desc("phase")
+            .x_desc("frequency")
+            .axis_desc_style(style(13))
+            .draw()
+            .ok()?;
+        phase
+            .draw_series(DashedLineSeries::new(line(before, |p| p.phase_deg), 7, 4, earlier))
+            .ok()?;
+        phase.draw_series(LineSeries::new(line(after, |p| p.phase_deg), later)).ok()?;
         root.present().ok()?;
     }
     Some(finish(svg))

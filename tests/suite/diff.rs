@@ -115,9 +115,10 @@ fn prints(cell: &str, unit: &str, want: f64, digits: i32, what: &str) {
     );
 }
 
-/// A before / after / change / relative row against the values it should show.
+/// A before / after / change / relative row (and what it bears on, when the table has
+/// room for it) against the values it should show.
 fn row_shows(cells: &[String], unit: &str, before: f64, after: f64, what: &str) {
-    assert_eq!(cells.len(), 5, "{what}: {cells:?}");
+    assert!(cells.len() == 5 || cells.len() == 6, "{what}: {cells:?}");
     prints(&cells[1], unit, before, 4, &format!("{what} before"));
     prints(&cells[2], unit, after, 4, &format!("{what} after"));
     prints(&cells[3], unit, after - before, 4, &format!("{what} change"));
@@ -375,4 +376,34 @@ fn a_corner_that_starts_failing_is_a_status_change_issue_12() {
     let section = &out[status..out.find("parts, models and settings").unwrap()];
     let line = section.lines().find(|l| l.contains("output resistance, worst corner")).expect(&out);
     assert!(line.contains("pass") && line.ends_with("FAIL"), "{line}");
+}
+
+/// Issue 12, item 5: the change report draws both responses over each other — from the
+/// analyses of two design files, or from the sweep.csv a render wrote beside its
+/// results.json — and leaves the drawing out, quietly, when one side's response is unknown.
+/// The traces are the two sweeps: the later one's largest |H| is the later sweep.csv's.
+#[test]
+fn the_change_report_overlays_both_responses() {
+    let dir = linear_revisions("diff-overlay");
+    let o = run_in(&dir, &["diff", "rev-a.yaml", "rev-b.yaml", "--runs", "0", "--out", "c"]);
+    assert_eq!(o.status.code(), Some(0), "{}", String::from_utf8_lossy(&o.stderr));
+    let html = read(&dir.join("c"), "change.html");
+    assert!(html.contains("id=\"plot-bode_overlay\""), "the overlay is in change.html");
+    assert!(html.contains("rev A (earlier)") && html.contains("rev B (later)"), "a legend");
+    let md = read(&dir.join("c"), "change.md");
+    assert!(md.contains("](plots/bode_overlay.svg)"), "{md}");
+    assert!(dir.join("c/plots/bode_overlay.svg").is_file());
+
+    // An earlier render as the old side: its sweep.csv is drawn; without it, no overlay.
+    let r =
+        run_in(&dir, &["render", "rev-a.yaml", "--format", "json", "--runs", "0", "--out", "a"]);
+    assert_eq!(r.status.code(), Some(0), "{}", String::from_utf8_lossy(&r.stderr));
+    let o = run_in(&dir, &["diff", "a/results.json", "rev-b.yaml", "--runs", "0", "--out", "j"]);
+    assert_eq!(o.status.code(), Some(0), "{}", String::from_utf8_lossy(&o.stderr));
+    assert!(read(&dir.join("j"), "change.html").contains("id=\"plot-bode_overlay\""));
+    std::fs::remove_file(dir.join("a/sweep.csv")).unwrap();
+    let o = run_in(&dir, &["diff", "a/results.json", "rev-b.yaml", "--runs", "0", "--out", "k"]);
+    assert_eq!(o.status.code(), Some(0), "{}", String::from_utf8_lossy(&o.stderr));
+    assert!(!read(&dir.join("k"), "change.html").contains("plot-bode_overlay"));
+    assert!(!dir.join("k/plots").exists());
 }
