@@ -35,10 +35,15 @@ pub struct RequirementCheck {
     pub nearest_limit: Option<&'static str>,
     /// The value at the tolerance corner that pushes it toward a limit, when a study ran:
     /// the low corner for a minimum, the high corner for a maximum; with both limits set, the
-    /// corner that comes nearer to its limit (a failing one first).
+    /// corner that comes nearer to either limit (a failing one first).
     pub corner: Option<f64>,
     /// True when every corner that matters is within the limits.
     pub corner_pass: Option<bool>,
+    /// False when a corner, evaluated in full, lies on the wrong side of the nominal value
+    /// (the low corner above it or the high corner below it): the figure is not monotonic
+    /// over the tolerance box — a device leaves its region at a corner, say — so the corners
+    /// do not bound it and the Monte Carlo yield is the guide.
+    pub corner_monotonic: Option<bool>,
     /// The corner toward the minimum, when there is a minimum.
     pub low_corner: Option<f64>,
     /// The corner toward the maximum, when there is a maximum.
@@ -54,13 +59,27 @@ pub fn with_study(checks: &mut [RequirementCheck], study: &crate::analysis::tole
         let inside = |v: f64| c.min.is_none_or(|lo| v >= lo) && c.max.is_none_or(|hi| v <= hi);
         c.low_corner = c.min.and(w.low_corner);
         c.high_corner = c.max.and(w.high_corner);
-        // The corner nearer its limit, relative to that limit (negative: outside).
-        let to_min = c.low_corner.zip(c.min).map(|(v, lo)| (v, (v - lo) / lo));
-        let to_max = c.high_corner.zip(c.max).map(|(v, hi)| (v, (hi - v) / hi));
-        let nearest = [to_min, to_max].into_iter().flatten().min_by(|a, b| a.1.total_cmp(&b.1));
+        // Each corner's distance to the nearer limit, relative to that limit (negative:
+        // outside). Both limits count for both corners: far from the bias point a corner
+        // can land on the other side (a stage that saturates at the corner meant to raise
+        // its gain loses gain instead).
+        let distance = |v: f64| {
+            let to_min = c.min.map(|lo| (v - lo) / lo.abs());
+            let to_max = c.max.map(|hi| (hi - v) / hi.abs());
+            [to_min, to_max].into_iter().flatten().reduce(f64::min)
+        };
+        let nearest = [c.low_corner, c.high_corner]
+            .into_iter()
+            .flatten()
+            .filter_map(|v| distance(v).map(|d| (v, d)))
+            .min_by(|a, b| a.1.total_cmp(&b.1));
         c.corner = nearest.map(|(v, _)| v);
         let corners = [c.low_corner, c.high_corner];
         c.corner_pass = c.corner.map(|_| corners.iter().flatten().all(|v| inside(*v)));
+        c.corner_monotonic = c.corner.map(|_| {
+            w.low_corner.is_none_or(|v| v <= w.nominal)
+                && w.high_corner.is_none_or(|v| v >= w.nominal)
+        });
         if let Some(mc) = &study.monte_carlo {
             c.yield_fraction = mc.yields.iter().find(|(n, _)| n == c.name).map(|(_, y)| *y);
         }
@@ -146,6 +165,7 @@ pub fn check(req: &Requirements, a: &Analysis) -> Vec<RequirementCheck> {
                 nearest_limit: nearest.map(|(side, _)| side),
                 corner: None,
                 corner_pass: None,
+                corner_monotonic: None,
                 low_corner: None,
                 high_corner: None,
                 yield_fraction: None,
@@ -188,6 +208,7 @@ mod tests {
             nearest_limit: None,
             corner: None,
             corner_pass: None,
+            corner_monotonic: None,
             low_corner: None,
             high_corner: None,
             yield_fraction: None,
@@ -205,6 +226,19 @@ mod tests {
         // A high corner past the maximum fails the corner check, whatever the low one does.
         with_study(&mut c, &study(9.0, 14.5));
         assert_eq!((c[0].corner, c[0].corner_pass), (Some(14.5), Some(false)));
+    }
+
+    #[test]
+    fn a_corner_that_lands_past_the_other_limit_fails_and_is_the_one_shown() {
+        // 8 … 14 V/V: the corner meant to raise the gain gives 6 (a stage that saturates
+        // there), below the minimum: it is the worst corner and it fails.
+        let mut c = [gain_check(Some(8.0), Some(14.0))];
+        with_study(&mut c, &study(9.0, 6.0));
+        assert_eq!((c[0].corner, c[0].corner_pass), (Some(6.0), Some(false)));
+        // The high corner below the nominal 11: the corners do not bound the figure.
+        assert_eq!(c[0].corner_monotonic, Some(false));
+        with_study(&mut c, &study(9.0, 13.5));
+        assert_eq!(c[0].corner_monotonic, Some(true));
     }
 
     #[test]

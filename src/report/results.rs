@@ -397,6 +397,11 @@ pub struct RequirementResults {
     pub corner: Option<f64>,
     /// True when every corner that matters is within the limits.
     pub corner_pass: Option<bool>,
+    /// False when a corner lies on the wrong side of the nominal value, so the corners do
+    /// not bound the figure (it is not monotonic over the tolerance box) and the Monte Carlo
+    /// yield is the guide; null without a corner.
+    #[serde(default)]
+    pub corner_monotonic: Option<bool>,
     /// The value at the corner toward the minimum (null without a minimum).
     pub low_corner: Option<f64>,
     /// The value at the corner toward the maximum (null without a maximum).
@@ -660,6 +665,7 @@ fn requirement(c: &RequirementCheck) -> RequirementResults {
         nearest_limit: c.nearest_limit.map(String::from),
         corner: c.corner,
         corner_pass: c.corner_pass,
+        corner_monotonic: c.corner_monotonic,
         low_corner: c.low_corner,
         high_corner: c.high_corner,
         yield_fraction: c.yield_fraction,

@@ -459,8 +459,18 @@ fn signed(text: String, value: f64) -> String {
 }
 
 /// The worst-corner cell: the corner (both, `low … high`, for a window), then `pass`, or
-/// `fail by` how far the failing corner lies outside its limit (in dB for a gain).
+/// `fail by` how far the failing corner lies outside its limit (in dB for a gain); and a
+/// warning when the corners do not bound the figure.
 fn corner_text(r: &RequirementCheck) -> String {
+    let verdict = corner_verdict(r);
+    if r.corner_monotonic == Some(false) {
+        format!("{verdict}; corners do not bound it, see yield")
+    } else {
+        verdict
+    }
+}
+
+fn corner_verdict(r: &RequirementCheck) -> String {
     let show = |v: f64| requirement_value(r.name, r.unit, v);
     let shown = match (r.low_corner, r.high_corner, r.corner) {
         (Some(lo), Some(hi), _) => format!("{} … {}", show(lo), show(hi)),
@@ -481,13 +491,14 @@ fn corner_text(r: &RequirementCheck) -> String {
         let ratio = if below { limit / v } else { v / limit };
         if in_db { 20.0 * ratio.log10() } else { ratio - 1.0 }
     };
-    let excess = [
-        r.low_corner.zip(r.min).filter(|(v, lo)| v < lo).map(|(v, lo)| outside(v, lo, true)),
-        r.high_corner.zip(r.max).filter(|(v, hi)| v > hi).map(|(v, hi)| outside(v, hi, false)),
-    ]
-    .into_iter()
-    .flatten()
-    .reduce(f64::max);
+    let beyond = |v: f64| {
+        let under = r.min.filter(|lo| v < *lo).map(|lo| outside(v, lo, true));
+        let over = r.max.filter(|hi| v > *hi).map(|hi| outside(v, hi, false));
+        under.or(over)
+    };
+    // Either corner can land past either limit (see `with_study`).
+    let excess =
+        [r.low_corner, r.high_corner].into_iter().flatten().filter_map(beyond).reduce(f64::max);
     match excess {
         Some(e) if in_db => format!("{shown} fail by {} dB", plain(e, 2)),
         Some(e) => format!("{shown} fail by {} %", plain(e * 100.0, 2)),
@@ -654,6 +665,7 @@ mod tests {
             nearest_limit: Some("max"),
             corner: Some(corner),
             corner_pass: Some(corner <= 1200.0),
+            corner_monotonic: Some(true),
             low_corner: None,
             high_corner: Some(corner),
             yield_fraction: None,
@@ -668,5 +680,13 @@ mod tests {
         assert_eq!(row[5], "1.26 kΩ fail by 5 %");
         let row = requirement_row(&output_resistance(1100.0, 1150.0));
         assert_eq!(row[5], "1.15 kΩ pass");
+    }
+
+    #[test]
+    fn corners_that_do_not_bound_the_figure_point_to_the_yield() {
+        // The high corner (1.05 kΩ) below the nominal 1.1 kΩ: it passes, but says so.
+        let mut r = output_resistance(1100.0, 1050.0);
+        r.corner_monotonic = Some(false);
+        assert_eq!(requirement_row(&r)[5], "1.05 kΩ pass; corners do not bound it, see yield");
     }
 }
