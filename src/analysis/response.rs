@@ -89,7 +89,8 @@ impl Transfer {
 
 /// Log-spaced frequencies from `start` to `stop`, `per_decade` a decade, both ends included.
 pub fn grid(start: f64, stop: f64, per_decade: u32) -> Vec<f64> {
-    let decades = (stop / start).log10();
+    // The difference of logs: stop/start itself can overflow (1e-300 Hz … 1 GHz).
+    let decades = stop.log10() - start.log10();
     let steps = (decades * per_decade as f64).ceil().max(1.0) as usize;
     (0..=steps).map(|k| start * 10f64.powf(decades * k as f64 / steps as f64)).collect()
 }

@@ -6,7 +6,7 @@
 //! Prints nothing: what a build has to say (the design's warnings, typst's warnings) comes
 //! back in [`Built::notes`] or inside the [`Failure`], for the command to print.
 
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 use clap::ValueEnum;
 
@@ -258,7 +258,29 @@ pub fn render_and_write(job: &RenderJob) -> Result<Written, Failure> {
     let (template, built_in) = template_source(&job.template)?;
     let built = build(&file, &template, built_in, &job.options)?;
     let dir = job.out.clone().unwrap_or_else(|| PathBuf::from("out").join(&built.id));
-    write::all(&dir, &built.files).map_err(|e| Failure::input(e, None))?;
+    // A render replaces its whole folder, so its own inputs cannot live there.
+    let inside = |input: &Path| {
+        let (Ok(a), Ok(d)) = (input.canonicalize(), std::path::absolute(&dir)) else {
+            return false;
+        };
+        d.canonicalize().is_ok_and(|d| a.starts_with(d))
+    };
+    if let Some(input) =
+        [Some(&job.design), job.template.as_ref()].into_iter().flatten().find(|p| inside(p))
+    {
+        return Err(Failure::input(
+            format_args!(
+                "`{}` lies inside the output folder `{}`, which a render replaces whole",
+                input.display(),
+                dir.display()
+            ),
+            Some("keep designs and templates outside the folder a review is written to (--out)"),
+        ));
+    }
+    write::replace_folder(&dir, &built.files).map_err(|e| match e {
+        write::FolderError::Refused { what, help } => Failure::input(what, Some(&help)),
+        e => Failure::input(e, None),
+    })?;
     Ok(Written {
         id: built.id,
         dir,

@@ -143,6 +143,18 @@ impl Diagnostic {
     /// Renders this finding as a miette report for `file` (its name and text): the header
     /// line, the source excerpt with a caret and label, and the help line.
     pub fn render(&self, file_name: &str, text: &str, color: bool) -> String {
+        // A line too long to show (a generated or hostile file) is named, not printed.
+        let line_at = |offset: usize| {
+            let offset = offset.min(text.len());
+            let start = text[..offset].rfind('\n').map_or(0, |i| i + 1);
+            let end = text[offset..].find('\n').map_or(text.len(), |i| offset + i);
+            end - start
+        };
+        let spans = std::iter::once(&self.span).chain(self.related.iter().map(|(s, _)| s));
+        if spans.map(|s| line_at(s.offset)).max().unwrap_or(0) > MAX_SHOWN_LINE {
+            let help = self.help.as_ref().map_or(String::new(), |h| format!("\n  help: {h}"));
+            return format!("{} (the line is too long to show){help}\n", self.one_line(file_name));
+        }
         let report =
             Located { diagnostic: self, source: NamedSource::new(file_name, text.to_string()) };
         let theme =
@@ -168,6 +180,9 @@ impl Diagnostic {
         )
     }
 }
+
+/// The longest source line a diagnostic prints, in bytes.
+const MAX_SHOWN_LINE: usize = 400;
 
 /// A diagnostic paired with its source, as miette wants it.
 struct Located<'a> {

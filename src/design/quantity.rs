@@ -217,11 +217,26 @@ fn resolve_symbol(token: &str) -> Option<(f64, Dim)> {
     Some((10f64.powi(power), dim))
 }
 
+/// The longest quantity or expression read, in characters: a hand-written expression is a
+/// line, and the bound keeps a hostile file from costing time or stack.
+pub const MAX_EXPRESSION_CHARS: usize = 1000;
+
+/// The deepest nesting of parentheses and signs an expression may have.
+pub const MAX_EXPRESSION_DEPTH: usize = 50;
+
 /// Evaluates a quantity or an expression. `params` holds the params evaluated so far;
 /// `lookup_failed` names are reported as unknown params.
 pub fn evaluate(text: &str, params: &BTreeMap<String, Value>) -> Result<Value, QuantityError> {
     let chars: Vec<char> = text.chars().collect();
-    let mut parser = Parser { chars: &chars, pos: 0, params, names: None };
+    if chars.len() > MAX_EXPRESSION_CHARS {
+        return Err(err(
+            MAX_EXPRESSION_CHARS,
+            chars.len() - MAX_EXPRESSION_CHARS,
+            format!("longer than {MAX_EXPRESSION_CHARS} characters"),
+            Some("split it into named params".into()),
+        ));
+    }
+    let mut parser = Parser { chars: &chars, pos: 0, params, names: None, depth: 0 };
     parser.expression_root()
 }
 
@@ -230,8 +245,11 @@ pub fn referenced_names(text: &str) -> Vec<(String, usize)> {
     let chars: Vec<char> = text.chars().collect();
     let empty = BTreeMap::new();
     let mut names = Vec::new();
-    let mut parser = Parser { chars: &chars, pos: 0, params: &empty, names: Some(&mut names) };
-    let _ = parser.expression_root();
+    if chars.len() <= MAX_EXPRESSION_CHARS {
+        let mut parser =
+            Parser { chars: &chars, pos: 0, params: &empty, names: Some(&mut names), depth: 0 };
+        let _ = parser.expression_root();
+    }
     names
 }
 
@@ -241,6 +259,8 @@ struct Parser<'a> {
     params: &'a BTreeMap<String, Value>,
     /// When set, names are collected instead of looked up (every name reads as 1).
     names: Option<&'a mut Vec<(String, usize)>>,
+    /// How many parentheses and signs enclose the current position.
+    depth: usize,
 }
 
 fn err(
@@ -338,8 +358,29 @@ impl Parser<'_> {
         }
     }
 
+    /// One level deeper, or an error at `self.pos` when that passes the bound.
+    fn descend(&mut self) -> Result<(), QuantityError> {
+        self.depth += 1;
+        if self.depth > MAX_EXPRESSION_DEPTH {
+            return Err(err(
+                self.pos,
+                1,
+                format!("nested more than {MAX_EXPRESSION_DEPTH} deep"),
+                Some("split it into named params".into()),
+            ));
+        }
+        Ok(())
+    }
+
     fn unary(&mut self) -> Result<Value, QuantityError> {
         self.skip_spaces();
+        self.descend()?;
+        let v = self.signed();
+        self.depth -= 1;
+        v
+    }
+
+    fn signed(&mut self) -> Result<Value, QuantityError> {
         match self.peek() {
             Some('-' | '−') => {
                 self.pos += 1;

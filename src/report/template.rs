@@ -146,14 +146,69 @@ fn register_filters(tera: &mut Tera) {
     });
 }
 
+/// The largest template read, in bytes.
+pub const MAX_TEMPLATE_BYTES: usize = 1 << 20;
+
+/// The most values `range()` may hand out over one render, all calls together: loops over
+/// the review's own lists are bounded by the design; this bounds the loops a template
+/// makes up itself, however they nest.
+pub const MAX_RANGE_STEPS: usize = 100_000;
+
+/// The largest document a template may render to, in bytes.
+pub const MAX_OUTPUT_BYTES: usize = 16 << 20;
+
+/// `range(end=…, start=0, step_by=1)`, as the template engine's own, but counted against
+/// [`MAX_RANGE_STEPS`] for the whole render.
+fn register_range(tera: &mut Tera) {
+    let used = Arc::new(std::sync::atomic::AtomicUsize::new(0));
+    tera.register_function("range", move |kwargs: Kwargs, _: &State| -> TeraResult<Value> {
+        known_arguments(&kwargs, "range", &["end", "start", "step_by"])?;
+        let end: i64 = kwargs.must_get("end")?;
+        let start: i64 = kwargs.get("start")?.unwrap_or(0);
+        let step: i64 = kwargs.get("step_by")?.unwrap_or(1);
+        if step == 0 {
+            return Err(tera::Error::message("`range(step_by=0)`: the step must not be zero"));
+        }
+        // i128: no overflow for any i64 arguments.
+        let (span, stride) = (i128::from(end) - i128::from(start), i128::from(step));
+        let count = if span.signum() == stride.signum() && span != 0 {
+            ((span.abs() - 1) / stride.abs() + 1) as u128
+        } else {
+            0
+        };
+        let count = usize::try_from(count).unwrap_or(usize::MAX).min(MAX_RANGE_STEPS + 1);
+        let total = used.fetch_add(count, std::sync::atomic::Ordering::Relaxed) + count;
+        if total > MAX_RANGE_STEPS {
+            return Err(tera::Error::message(format!(
+                "`range()` would hand out more than {MAX_RANGE_STEPS} values in this template \
+                 (loops inside loops count together); loop over the review's own lists, or \
+                 over fewer values"
+            )));
+        }
+        let values: Vec<i64> = (0..count as i64).map(|k| start + k * step).collect();
+        Ok(Value::from(values))
+    });
+}
+
 /// Renders `source` against `view` (any serialisable view model) and `blocks`.
 pub fn render(
     source: &TemplateSource,
     view: &impl serde::Serialize,
     blocks: Blocks,
 ) -> Result<String, TemplateError> {
+    if source.text.len() > MAX_TEMPLATE_BYTES {
+        return Err(TemplateError {
+            message: format!(
+                "error: the template `{}` is {} bytes, more than the {MAX_TEMPLATE_BYTES} a \
+                 template may have\n",
+                source.name,
+                source.text.len()
+            ),
+        });
+    }
     let mut tera = Tera::default();
     register_filters(&mut tera);
+    register_range(&mut tera);
     let tables = Arc::new(blocks.tables);
     let known_tables = blocks.known_tables;
     tera.register_function("table", move |kwargs: Kwargs, _: &State| -> TeraResult<Value> {
@@ -204,8 +259,20 @@ pub fn render(
         .map_err(|e| TemplateError { message: report(&source.name, &e) })?;
     let context = Context::from_serialize(view)
         .map_err(|e| TemplateError { message: report(&source.name, &e) })?;
-    tera.render(&source.name, &context)
-        .map_err(|e| TemplateError { message: report(&source.name, &e) })
+    let out = tera
+        .render(&source.name, &context)
+        .map_err(|e| TemplateError { message: report(&source.name, &e) })?;
+    if out.len() > MAX_OUTPUT_BYTES {
+        return Err(TemplateError {
+            message: format!(
+                "error: the template `{}` rendered {} bytes, more than the {MAX_OUTPUT_BYTES} a \
+                 review may have; nothing was written\n",
+                source.name,
+                out.len()
+            ),
+        });
+    }
+    Ok(out)
 }
 
 fn report(name: &str, e: &tera::Error) -> String {

@@ -63,10 +63,10 @@ fn results_json_agrees_with_the_independent_reference() {
         let name = design.file_stem().unwrap().to_string_lossy().to_string();
         let dir = scratch(&format!("reference-{name}"));
         let render =
-            run_in(&dir, &["render", design.to_str().unwrap(), "--format", "json", "--out", "."]);
+            run_in(&dir, &["render", design.to_str().unwrap(), "--format", "json", "--out", "out"]);
         assert!(render.status.success(), "{name}: {}", String::from_utf8_lossy(&render.stderr));
         let ours: Value =
-            serde_json::from_str(&std::fs::read_to_string(dir.join("results.json")).unwrap())
+            serde_json::from_str(&std::fs::read_to_string(dir.join("out/results.json")).unwrap())
                 .unwrap();
         let reference = reference_results(&design);
         let mut diffs = Vec::new();

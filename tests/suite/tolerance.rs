@@ -209,14 +209,14 @@ fn results_json_is_bit_identical_for_one_and_two_threads() {
                 "--runs",
                 "300",
                 "--out",
-                ".",
+                "out",
             ])
             .current_dir(&dir)
             .env("RAYON_NUM_THREADS", threads)
             .output()
             .unwrap();
         assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
-        outputs.push(std::fs::read(dir.join("results.json")).unwrap());
+        outputs.push(std::fs::read(dir.join("out/results.json")).unwrap());
     }
     assert!(outputs[0] == outputs[1], "results.json differs between 1 and 2 threads");
     let v: serde_json::Value = serde_json::from_slice(&outputs[0]).unwrap();

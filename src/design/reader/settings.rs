@@ -3,6 +3,9 @@
 
 use super::*;
 
+/// The most points a sweep may have: 1000 a decade over 20 decades.
+pub const MAX_SWEEP_POINTS: u32 = 20_000;
+
 impl Reader<'_> {
     /// `has_band`: whether the signal states an operating band (None when the signal
     /// section itself failed to read).
@@ -146,6 +149,30 @@ impl Reader<'_> {
                         Diagnostic::error("out_of_range", "the sweep must span at least one decade")
                             .at(start_node.map_or(k.span, |n| n.span), "start is not below stop/10")
                             .help("set `start` well below the low cut-off and `stop` well above the high one"),
+                    );
+                    ok = false;
+                }
+                // log10 of each end, so a span of 300 decades cannot overflow on the way.
+                let decades = out.sweep_stop_hz.log10() - out.sweep_start_hz.log10();
+                let points = decades * f64::from(out.points_per_decade);
+                if ok && points > MAX_SWEEP_POINTS as f64 {
+                    self.push(
+                        Diagnostic::error(
+                            "out_of_range",
+                            format!(
+                                "the sweep would have {} points, more than the {MAX_SWEEP_POINTS} \
+                                 allowed",
+                                points.ceil()
+                            ),
+                        )
+                        .at(
+                            start_node.map_or(k.span, |n| n.span),
+                            "too many decades at this density",
+                        )
+                        .help(
+                            "sweep fewer decades (a stage's response fits in about 12) or fewer \
+                               points a decade",
+                        ),
                     );
                     ok = false;
                 }

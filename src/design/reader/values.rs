@@ -11,8 +11,8 @@ impl Reader<'_> {
             node.span
         };
         let code = if e.unknown_name { "unknown_param" } else { "quantity" };
-        let mut d =
-            Diagnostic::error(code, format!("`{text}`: {}", e.message)).at(span, e.message.clone());
+        let mut d = Diagnostic::error(code, format!("`{}`: {}", excerpt(text), e.message))
+            .at(span, e.message.clone());
         if let Some(h) = e.help {
             d = d.help(h);
         }
@@ -341,5 +341,14 @@ impl Reader<'_> {
         }
         f.finish(&mut self.diagnostics);
         out
+    }
+}
+
+/// `text` as a message quotes it: whole when short, else its first 40 characters and `…`.
+fn excerpt(text: &str) -> String {
+    if text.chars().count() <= 60 {
+        text.to_string()
+    } else {
+        format!("{}…", text.chars().take(40).collect::<String>())
     }
 }
