@@ -1,5 +1,7 @@
 //! `tauweave verify DIR`: rebuilds a rendered folder from the inputs it holds and compares
-//! every output byte for byte.
+//! the whole folder with the rebuild byte for byte, both ways: a file the rebuild does not
+//! make, a file missing, a symbolic link or a changed byte is a difference. The manifest
+//! only says how to rebuild; its names must be plain paths inside the folder.
 //!
 //! Exit 0 when everything is identical, 1 when a file differs or an input was changed
 //! (the report says which, and for results.json which values and by how much), 2 when the
@@ -18,6 +20,7 @@ use crate::cli::{Failure, Level, Outcome, out, problem};
 use crate::notation::ABSENT;
 use crate::report::manifest::{self, Manifest, sha256};
 use crate::report::template::{BUILT_IN, BUILT_IN_NAME, TemplateSource};
+use crate::report::write;
 
 /// Flags of `tauweave verify`.
 #[derive(Debug, Args)]
@@ -43,6 +46,14 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
         .map_err(|e| unusable(format!("no readable {}: {e}", manifest::FILE)))?;
     let m: Manifest = serde_json::from_str(&text)
         .map_err(|e| unusable(format!("{} does not read: {e}", manifest::FILE)))?;
+    // Every name the manifest gives is a plain relative path inside the folder; anything
+    // else (`/etc/passwd`, `../x`) is never opened.
+    if let Some(bad) = m.inputs.keys().chain(m.outputs.keys()).find(|p| !inside_folder(p)) {
+        return Err(unusable(format!(
+            "{} names `{bad}`, which is not a file inside the folder",
+            manifest::FILE
+        )));
+    }
     let mut problems = Vec::new();
     // The inputs must be the ones recorded.
     for (path, hash) in &m.inputs {
@@ -101,7 +112,28 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
         }
     }
     let rebuilt = built.files;
-    for (path, hash) in &m.outputs {
+    // The whole folder against the rebuild, both ways: every file there must be one the
+    // rebuild makes, with the same bytes, and every file the rebuild makes must be there.
+    let found = write::entries(&args.dir)
+        .map_err(|e| unusable(format!("the folder cannot be read: {e}")))?;
+    for (path, kind) in &found {
+        if kind.is_symlink() {
+            problems.push(format!("{path}: a symbolic link (a render never makes one)"));
+        } else if kind.is_file() && !rebuilt.iter().any(|f| &f.path == path) {
+            let unrebuilt_pdf = unverified.is_some() && path == crate::report::PDF_FILE;
+            if !unrebuilt_pdf {
+                problems
+                    .push(format!("{path}: not part of the render (the rebuild does not make it)"));
+            }
+        }
+    }
+    let regular = |p: &str| found.iter().any(|(q, k)| q == p && k.is_file());
+    for new in &rebuilt {
+        let path = &new.path;
+        if !regular(path) {
+            problems.push(format!("{path}: missing from the folder"));
+            continue;
+        }
         let old = match std::fs::read(args.dir.join(path)) {
             Ok(b) => b,
             Err(e) => {
@@ -109,27 +141,40 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
                 continue;
             }
         };
-        if sha256(&old) != *hash {
-            problems.push(format!(
-                "{path}: changed after the render (its SHA-256 no longer matches the manifest)"
-            ));
+        if let Some(hash) = m.outputs.get(path).or_else(|| m.inputs.get(path)) {
+            if sha256(&old) != *hash {
+                problems.push(format!(
+                    "{path}: changed after the render (its SHA-256 no longer matches the manifest)"
+                ));
+            }
         }
-        if unverified.is_some() && path == crate::report::PDF_FILE {
-            continue;
-        }
-        let Some(new) = rebuilt.iter().find(|f| &f.path == path) else {
-            problems.push(format!("{path}: not produced by the rebuild"));
-            continue;
+        let same = if unverified.is_some() && path == manifest::FILE {
+            // Rebuilt without the PDF: the same manifest but for report.pdf and the typst
+            // that made it.
+            same_but_pdf(&old, &new.bytes)
+        } else {
+            old == new.bytes
         };
-        if old != new.bytes {
+        if !same {
             problems.push(format!(
                 "{path}: differs from the rebuild{}",
                 difference(&old, &new.bytes, path)
             ));
         }
     }
+    if unverified.is_some() {
+        // The PDF that could not be rebuilt: checked against its recorded SHA-256 only.
+        let pdf = crate::report::PDF_FILE;
+        match (std::fs::read(args.dir.join(pdf)), m.outputs.get(pdf)) {
+            (Ok(b), Some(hash)) if sha256(&b) == *hash => {}
+            (Ok(_), _) => problems.push(format!(
+                "{pdf}: changed after the render (its SHA-256 no longer matches the manifest)"
+            )),
+            (Err(e), _) => problems.push(format!("{pdf}: cannot be read: {e}")),
+        }
+    }
     let dir = args.dir.display();
-    let compared = m.outputs.len() - usize::from(unverified.is_some());
+    let compared = rebuilt.len();
     if !problems.is_empty() {
         let s = if problems.len() == 1 { "" } else { "s" };
         out(&format!("differs: {} problem{s} in {dir}\n", problems.len()))?;
@@ -138,10 +183,10 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
         }
     } else if unverified.is_some() {
         out(&format!(
-            "incomplete: report.pdf not verified, the other {compared} outputs identical in {dir}\n"
+            "incomplete: report.pdf not verified, the other {compared} files identical in {dir}\n"
         ))?;
     } else {
-        out(&format!("identical: {compared} outputs rebuilt from {dir} byte for byte\n"))?;
+        out(&format!("identical: {compared} files rebuilt from {dir} byte for byte\n"))?;
         return Ok(Outcome::Done);
     }
     let Some(pdf_problem) = unverified else { return Ok(Outcome::Failing) };
@@ -160,6 +205,26 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
     }
     eprint!("{message}");
     Ok(Outcome::Failing)
+}
+
+/// True for a plain relative path inside a folder: `report.html`, `plots/bode.svg`; false
+/// for an absolute path, one that climbs (`..`), or one with an empty or odd component.
+fn inside_folder(path: &str) -> bool {
+    !path.is_empty()
+        && !path.contains('\\')
+        && path.split('/').all(|c| !c.is_empty() && c != "." && c != ".." && !c.contains(':'))
+}
+
+/// Two manifests equal once report.pdf and the typst version are left out of both.
+fn same_but_pdf(a: &[u8], b: &[u8]) -> bool {
+    let strip = |bytes: &[u8]| {
+        serde_json::from_slice::<Manifest>(bytes).ok().map(|mut m| {
+            m.outputs.remove(crate::report::PDF_FILE);
+            m.recipe.typst = None;
+            m
+        })
+    };
+    matches!((strip(a), strip(b)), (Some(x), Some(y)) if x == y)
 }
 
 /// Where two versions of an output differ: for JSON the values that changed, else the first

@@ -143,15 +143,16 @@ impl Diagnostic {
     /// Renders this finding as a miette report for `file` (its name and text): the header
     /// line, the source excerpt with a caret and label, and the help line.
     pub fn render(&self, file_name: &str, text: &str, color: bool) -> String {
-        // A line too long to show (a generated or hostile file) is named, not printed.
-        let line_at = |offset: usize| {
-            let offset = offset.min(text.len());
-            let start = text[..offset].rfind('\n').map_or(0, |i| i + 1);
-            let end = text[offset..].find('\n').map_or(text.len(), |i| offset + i);
-            end - start
-        };
+        // A line too long to show (a generated or hostile file) is named, not printed; the
+        // excerpt shows each span's line and its neighbours.
+        let lines: Vec<&str> = text.split('\n').collect();
+        let line_of = |offset: usize| text[..offset.min(text.len())].matches('\n').count();
         let spans = std::iter::once(&self.span).chain(self.related.iter().map(|(s, _)| s));
-        if spans.map(|s| line_at(s.offset)).max().unwrap_or(0) > MAX_SHOWN_LINE {
+        let too_long = spans.map(|s| line_of(s.offset)).any(|k| {
+            (k.saturating_sub(1)..=k + 1)
+                .any(|i| lines.get(i).is_some_and(|l| l.len() > MAX_SHOWN_LINE))
+        });
+        if too_long {
             let help = self.help.as_ref().map_or(String::new(), |h| format!("\n  help: {h}"));
             return format!("{} (the line is too long to show){help}\n", self.one_line(file_name));
         }

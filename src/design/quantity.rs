@@ -249,6 +249,21 @@ pub fn referenced_names(text: &str) -> Vec<(String, usize)> {
         let mut parser =
             Parser { chars: &chars, pos: 0, params: &empty, names: Some(&mut names), depth: 0 };
         let _ = parser.expression_root();
+    } else {
+        // Too long to parse: every word counts as a use, so the params it names are not
+        // reported unused beside the length error.
+        let mut k = 0;
+        while k < chars.len() {
+            if chars[k].is_alphabetic() || chars[k] == '_' {
+                let start = k;
+                while k < chars.len() && (chars[k].is_alphanumeric() || chars[k] == '_') {
+                    k += 1;
+                }
+                names.push((chars[start..k].iter().collect(), start));
+            } else {
+                k += 1;
+            }
+        }
     }
     names
 }
