@@ -132,6 +132,23 @@ pub fn scientific(value: f64, unit: &str, digits: usize) -> String {
     if unit.is_empty() { body } else { format!("{body} {unit}") }
 }
 
+/// `text` with every control character but line breaks and tabs made visible, so nothing
+/// from a file can move the cursor, ring the bell or recolour a terminal: C0 characters as
+/// their control pictures (ESC → ␛), DEL and C1 characters as U+FFFD.
+pub fn visible(text: &str) -> std::borrow::Cow<'_, str> {
+    if !text.chars().any(|c| c.is_control() && c != '\n' && c != '\t') {
+        return std::borrow::Cow::Borrowed(text);
+    }
+    text.chars()
+        .map(|c| match c {
+            '\n' | '\t' => c,
+            c if (c as u32) < 0x20 => char::from_u32(0x2400 + c as u32).unwrap_or('\u{FFFD}'),
+            c if c.is_control() => '\u{FFFD}',
+            c => c,
+        })
+        .collect()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -622,12 +622,14 @@ mod tests {
 
     #[test]
     fn a_singular_network_fails_with_one_message_at_either_depth() {
-        // Two ideal voltage amplifiers both set `out`: the nodal matrix is singular.
+        // An ideal voltage amplifier sets `out` and a coupling capacitor, shorted at mid-band,
+        // ties `out` to ground: the mid-band nodal matrix is singular. (Two amplifiers on one
+        // node pair are refused before any analysis, as a loop of voltage-fixing parts.)
         let d = load(
             "  RL: {kind: resistor, value: 1k, between: [out, gnd]}\n\
              \x20 RI: {kind: resistor, value: 1k, between: [in, gnd]}\n\
              \x20 E1: {kind: voltage_amplifier, value: 2, between: [out, gnd], control: [in, gnd]}\n\
-             \x20 E2: {kind: voltage_amplifier, value: 3, between: [out, gnd], control: [in, gnd]}\n",
+             \x20 CC: {kind: capacitor, value: 1 uF, between: [out, gnd], role: coupling}\n",
             "{at: in, resistance: 50}",
             "{at: out}",
         );

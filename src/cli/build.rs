@@ -174,8 +174,9 @@ pub fn build(
         }
     }
     let recipe = Recipe {
-        design_name: file.name.clone(),
-        template_name: (!built_in).then(|| template.name.clone()),
+        design_name: report::shown_name(&file.name, manifest::DESIGN_COPY),
+        template_name: (!built_in)
+            .then(|| report::shown_name(&template.name, manifest::TEMPLATE_COPY)),
         format: options.format.name().into(),
         runs,
         paper: options.paper.name().into(),

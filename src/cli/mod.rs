@@ -53,6 +53,7 @@ impl Failure {
 pub fn out(text: &str) -> Result<(), Failure> {
     use std::io::Write;
     let mut stdout = std::io::stdout().lock();
+    let text = crate::notation::visible(text);
     match stdout.write_all(text.as_bytes()).and_then(|()| stdout.flush()) {
         Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => {
             Err(Failure::Internal(format!("cannot write to standard output: {e}")))
@@ -78,6 +79,8 @@ pub fn problem(level: Level, what: &str, help: Option<&str>) -> String {
         Level::Error => "error",
         Level::Warning => "warning",
     };
+    let what = crate::notation::visible(what);
+    let help = help.map(crate::notation::visible);
     match help {
         Some(help) => format!("{level}: {what}\n  help: {help}\n"),
         None => format!("{level}: {what}\n"),

@@ -156,8 +156,31 @@ impl Diagnostic {
             let help = self.help.as_ref().map_or(String::new(), |h| format!("\n  help: {h}"));
             return format!("{} (the line is too long to show){help}\n", self.one_line(file_name));
         }
-        let report =
-            Located { diagnostic: self, source: NamedSource::new(file_name, text.to_string()) };
+        // Control characters from the file are shown, never sent to the terminal: in the
+        // source one byte for one (`?`, so the spans still fit), in the words as pictures.
+        let source: String = text
+            .chars()
+            .map(|c| {
+                if c.is_control() && !matches!(c, '\n' | '\t' | '\r') && c.len_utf8() == 1 {
+                    '?'
+                } else {
+                    c
+                }
+            })
+            .collect();
+        let shown = Diagnostic {
+            message: crate::notation::visible(&self.message).into_owned(),
+            label: crate::notation::visible(&self.label).into_owned(),
+            help: self.help.as_deref().map(|h| crate::notation::visible(h).into_owned()),
+            related: self
+                .related
+                .iter()
+                .map(|(s, l)| (*s, crate::notation::visible(l).into_owned()))
+                .collect(),
+            ..self.clone()
+        };
+        let file_name = crate::notation::visible(file_name);
+        let report = Located { diagnostic: &shown, source: NamedSource::new(file_name, source) };
         let theme =
             if color { GraphicalTheme::unicode() } else { GraphicalTheme::unicode_nocolor() };
         let handler =

@@ -366,7 +366,12 @@ impl Parser<'_> {
                 }
             };
             if op == '/' && right.si == 0.0 {
-                return Err(err(at, 1, "division by zero", None));
+                return Err(err(
+                    at,
+                    1,
+                    "division by zero",
+                    Some("what follows `/` evaluates to zero; check the params it uses".into()),
+                ));
             }
             let si = if op == '/' { left.si / right.si } else { left.si * right.si };
             left = Value::plain(si, dim);

@@ -19,10 +19,127 @@ pub fn check(design: &Design) -> Vec<Diagnostic> {
     if out.iter().any(Diagnostic::is_error) {
         return out;
     }
+    voltage_loops(design, &mut out);
     dc_paths(design, &mut out);
     lonely_nodes(design, &touches, &mut out);
     shorted_parts(design, &mut out);
+    one_node_transistors(design, &mut out);
+    ground_spellings(&touches, design, &mut out);
     out
+}
+
+/// Parts that fix a voltage between two nodes at DC — supplies (to ground), inductors (a
+/// short at DC), voltage amplifiers — must not close a loop: the voltage around it would be
+/// set twice and the bias has no solution. A resistor straight across two fixed nodes does
+/// nothing but draw supply current; it is worth a warning.
+fn voltage_loops(design: &Design, out: &mut Vec<Diagnostic>) {
+    let mut names: Vec<&str> = vec![GROUND];
+    let mut pairs = Vec::new();
+    for part in &design.parts {
+        let pair = match &part.kind {
+            PartKind::Inductor { between, .. } | PartKind::VoltageAmplifier { between, .. } => {
+                Some((between[0].as_str(), between[1].as_str(), true))
+            }
+            PartKind::Resistor { between, .. } => {
+                Some((between[0].as_str(), between[1].as_str(), false))
+            }
+            _ => None,
+        };
+        if let Some((a, b, fixes)) = pair.filter(|(a, b, _)| a != b) {
+            pairs.push((part, index(a, &mut names), index(b, &mut names), fixes));
+        }
+    }
+    let supplies: Vec<usize> = design.supplies.iter().map(|s| index(&s.node, &mut names)).collect();
+    let mut fixed = UnionFind::new(names.len());
+    for s in supplies {
+        fixed.join(s, 0);
+    }
+    for (part, a, b, _) in pairs.iter().filter(|p| p.3) {
+        if fixed.find(*a) == fixed.find(*b) {
+            out.push(
+                Diagnostic::error(
+                    "voltage_loop",
+                    format!(
+                        "`{}` closes a loop of parts that each fix a voltage (supplies, inductors \
+                         at DC, voltage amplifiers): the voltage from `{}` to `{}` would be set \
+                         twice",
+                        part.name, names[*a], names[*b]
+                    ),
+                )
+                .at(part_span(design, &part.name), "closes the loop")
+                .help("remove it, or put the resistance that is really there in the loop (a winding's, a source's output resistance)"),
+            );
+        } else {
+            fixed.join(*a, *b);
+        }
+    }
+    let supply_nodes: Vec<&str> = design.supplies.iter().map(|s| s.node.as_str()).collect();
+    let rail = |n: &str| n == GROUND || supply_nodes.contains(&n);
+    for (part, a, b, _) in pairs.iter().filter(|p| !p.3) {
+        let (na, nb) = (names[*a], names[*b]);
+        if rail(na) && rail(nb) {
+            out.push(
+                Diagnostic::warning(
+                    "across_supply",
+                    format!(
+                        "`{}` sits straight across the supply, from `{na}` to `{nb}`",
+                        part.name
+                    ),
+                )
+                .at(part_span(design, &part.name), "between two fixed voltages")
+                .help(
+                    "it only draws supply current and plays no part in the stage; check its nodes",
+                ),
+            );
+        }
+    }
+}
+
+/// The index of node `n` in `names`, added at the end when new.
+fn index<'a>(n: &'a str, names: &mut Vec<&'a str>) -> usize {
+    names.iter().position(|m| *m == n).unwrap_or_else(|| {
+        names.push(n);
+        names.len() - 1
+    })
+}
+
+/// A transistor with every terminal on one node does nothing.
+fn one_node_transistors(design: &Design, out: &mut Vec<Diagnostic>) {
+    for part in &design.parts {
+        let terminals = match &part.kind {
+            PartKind::Bjt { c, b, e, .. } => [c, b, e],
+            PartKind::Mosfet { d, g, s, .. } => [d, g, s],
+            _ => continue,
+        };
+        if terminals[0] == terminals[1] && terminals[1] == terminals[2] {
+            out.push(
+                Diagnostic::warning(
+                    "shorted_part",
+                    format!("every terminal of `{}` is on node `{}`", part.name, terminals[0]),
+                )
+                .at(part_span(design, &part.name), "shorted")
+                .help("it carries no signal; check its terminal nodes"),
+            );
+        }
+    }
+}
+
+/// `GND`, `Gnd`, `ground`: a node that reads as ground but is not `gnd`.
+fn ground_spellings(
+    touches: &BTreeMap<String, Vec<String>>,
+    design: &Design,
+    out: &mut Vec<Diagnostic>,
+) {
+    for (node, parts) in touches {
+        let lower = node.to_lowercase();
+        if node != GROUND && (lower == GROUND || lower == "ground") {
+            out.push(
+                Diagnostic::warning("not_ground", format!("node `{node}` is not ground"))
+                    .at(part_span(design, &parts[0]), format!("`{node}` here"))
+                    .help(format!("ground is `{GROUND}`, in lower case; did you mean `{GROUND}`?")),
+            );
+        }
+    }
 }
 
 fn part_span(design: &Design, name: &str) -> Span {
@@ -212,5 +329,53 @@ fn shorted_parts(design: &Design, out: &mut Vec<Diagnostic>) {
                 .help("it carries no signal; check the node names in `between`"),
             );
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::design::load;
+
+    /// The codes `load` reports for a stage with `parts` added to a working divider.
+    fn codes(parts: &str) -> Vec<&'static str> {
+        let text = format!(
+            "tauweave: 1\ndesign: {{id: t, title: T, revision: A, date: 2026-12-01}}\n\
+             supplies: {{vcc: 9 V}}\nsignal: {{at: in, resistance: 50}}\noutput: {{at: out}}\n\
+             models: {{N1: {{type: npn, beta: 100, saturation_current: 1 fA}}}}\n\
+             parts:\n  R0: {{kind: resistor, value: 10k, between: [vcc, in]}}\n  \
+             R1: {{kind: resistor, value: 1k, between: [in, out]}}\n  \
+             R2: {{kind: resistor, value: 1k, between: [out, gnd]}}\n{parts}"
+        );
+        load(&text).diagnostics.iter().map(|d| d.code).collect()
+    }
+
+    #[test]
+    fn a_resistor_straight_across_the_supply_is_a_warning() {
+        let c = codes("  R9: {kind: resistor, value: 1e-12, between: [vcc, gnd]}\n");
+        assert!(c.contains(&"across_supply"), "{c:?}");
+    }
+
+    #[test]
+    fn a_transistor_with_every_terminal_on_one_node_is_a_warning() {
+        let c = codes("  Q9: {kind: bjt, model: N1, c: out, b: out, e: out}\n");
+        assert!(c.contains(&"shorted_part"), "{c:?}");
+    }
+
+    #[test]
+    fn gnd_in_capitals_is_not_ground_and_says_so() {
+        let c = codes(
+            "  R8: {kind: resistor, value: 1k, between: [out, GND]}\n  \
+             R7: {kind: resistor, value: 1k, between: [in, GND]}\n",
+        );
+        assert!(c.contains(&"not_ground"), "{c:?}");
+    }
+
+    #[test]
+    fn an_inductor_in_series_with_a_resistor_is_no_loop() {
+        let c = codes(
+            "  L1: {kind: inductor, value: 1 µH, between: [vcc, mid]}\n  \
+             R6: {kind: resistor, value: 1k, between: [mid, gnd]}\n",
+        );
+        assert!(!c.contains(&"voltage_loop"), "{c:?}");
     }
 }

@@ -60,6 +60,23 @@ pub fn hex(bytes: &[u8]) -> String {
     bytes.iter().map(|b| format!("{b:02x}")).collect()
 }
 
+/// An input file's name as the outputs record it: its file name alone, so the review does
+/// not depend on where the file was or how its path was written; and, when that name is not
+/// a plain one (letters, digits, `.`, `_`, `+`, `-`), `fallback` (the archived copy's
+/// path), so no name can carry markup or shell syntax into a report.
+pub fn shown_name(path: &str, fallback: &str) -> String {
+    let name = std::path::Path::new(path).file_name().map(|n| n.to_string_lossy().into_owned());
+    match name {
+        Some(n)
+            if n.chars().next().is_some_and(|c| c.is_ascii_alphanumeric())
+                && n.chars().all(|c| c.is_ascii_alphanumeric() || "._+-".contains(c)) =>
+        {
+            n
+        }
+        _ => fallback.to_string(),
+    }
+}
+
 /// Renders the files of every exporter asked for: the results document first, then, when a
 /// format is written from the template (Markdown, HTML, typst), the template once, shared by
 /// all of them. Files are sorted by path; a plot two formats both write appears once.
@@ -72,9 +89,11 @@ pub fn render(
     let hashes = results::Hashes {
         design: hex(&Sha256::digest(inputs.design_text.as_bytes())),
         template: Some(hex(&Sha256::digest(inputs.template.text.as_bytes()))),
-        template_name: (!inputs.built_in_template).then(|| inputs.template.name.clone()),
+        template_name: (!inputs.built_in_template)
+            .then(|| shown_name(&inputs.template.name, manifest::TEMPLATE_COPY)),
     };
-    let results = results::document(design, review, hashes, inputs.design_name);
+    let design_name = shown_name(inputs.design_name, manifest::DESIGN_COPY);
+    let results = results::document(design, review, hashes, &design_name);
     let page = if exporters.iter().any(|e| e.needs_page()) {
         Some(page(design, review, &results, inputs.template)?)
     } else {

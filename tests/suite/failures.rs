@@ -5,12 +5,13 @@ use crate::support::{run_in, scratch};
 
 #[test]
 fn a_singular_network_is_a_message_and_writes_nothing() {
-    // Two voltage amplifiers drive the same node pair: a loop of voltage-defined elements.
+    // A voltage amplifier drives `o` and a coupling capacitor, shorted at mid-band, ties `o`
+    // to ground: the mid-band network is singular (a loop the DC topology check cannot see).
     let text = "tauweave: 1\ndesign: {id: loop, title: two drivers, revision: A, date: 2026-11-30}\n\
                 signal: {at: a, resistance: 50}\noutput: {at: o}\nparts:\n\
                 \x20 R1: {kind: resistor, value: 1k, between: [a, gnd]}\n\
                 \x20 E1: {kind: voltage_amplifier, value: 2, between: [o, gnd], control: [a, gnd]}\n\
-                \x20 E2: {kind: voltage_amplifier, value: 3, between: [o, gnd], control: [a, gnd]}\n\
+                \x20 CC: {kind: capacitor, value: 1 uF, between: [o, gnd], role: coupling}\n\
                 \x20 RL: {kind: resistor, value: 1k, between: [o, gnd]}\n";
     let dir = scratch("singular");
     std::fs::write(dir.join("loop.yaml"), text).unwrap();

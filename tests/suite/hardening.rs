@@ -359,3 +359,53 @@ fn a_killed_or_failed_render_leaves_the_previous_folder_verifying() {
         .collect();
     assert!(beside.is_empty(), "left beside the folder: {beside:?}");
 }
+
+#[test]
+fn the_design_path_neither_changes_the_outputs_nor_reaches_them_unescaped() {
+    let dir = scratch("hard-path");
+    std::fs::create_dir_all(dir.join("sub/deeper")).unwrap();
+    std::fs::write(dir.join("sub/x.yaml"), demo()).unwrap();
+    let render = |cwd: &Path, path: &str, out: &str| {
+        let o = run_in(cwd, &["render", path, "--runs", "0", "--format", "md", "--out", out]);
+        assert_eq!(o.status.code(), Some(0), "{path}: {}", stderr(&o));
+    };
+    render(&dir, "sub/x.yaml", "a");
+    render(&dir.join("sub/deeper"), "../x.yaml", "../../b");
+    render(&dir.join("sub"), "./x.yaml", "../c");
+    for file in ["results.json", "report.md", "manifest.json"] {
+        let a = std::fs::read(dir.join("a").join(file)).unwrap();
+        for other in ["b", "c"] {
+            assert!(
+                a == std::fs::read(dir.join(other).join(file)).unwrap(),
+                "{file} differs in {other}"
+            );
+        }
+    }
+    // A file name with markup and shell syntax is not written into the review at all.
+    let odd = "x`<img src=a onerror=b>`.yaml";
+    std::fs::write(dir.join(odd), demo()).unwrap();
+    let o = run_in(&dir, &["render", odd, "--runs", "0", "--format", "html", "--out", "d"]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    for file in ["report.html", "results.json", "manifest.json"] {
+        let text = std::fs::read_to_string(dir.join("d").join(file)).unwrap();
+        assert!(!text.contains("<img") && !text.contains("onerror"), "{file}");
+    }
+    let html = std::fs::read_to_string(dir.join("d/report.html")).unwrap();
+    assert!(html.contains("tauweave render inputs/design.yaml"), "the archived copy is named");
+}
+
+#[test]
+fn control_characters_from_a_file_never_reach_the_terminal_raw() {
+    let dir = scratch("hard-control");
+    // An unknown key holding ESC [ 2 J (clear screen) and a bell, in a valid YAML string key.
+    let path = variant(
+        &dir,
+        "esc.yaml",
+        "  cable_length: 2.5 m",
+        "  cable_length: 2.5 m\n  \"x\\e[2J\\a\": 1 m",
+    );
+    let o = run_in(&dir, &["check", path.to_str().unwrap(), "--runs", "0"]);
+    let (out, err) = (String::from_utf8_lossy(&o.stdout), stderr(&o));
+    assert!(!out.contains('\u{1b}') && !err.contains('\u{1b}') && !err.contains('\u{7}'), "{err}");
+    assert!(err.contains('\u{241b}'), "ESC is shown as its control picture: {err}");
+}

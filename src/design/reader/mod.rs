@@ -285,8 +285,20 @@ impl Reader<'_> {
             );
             return None;
         };
+        // The number 1, not the text "1": a quoted version is a sign of a file from elsewhere.
+        let written =
+            self.text.get(node.span.offset..node.span.offset + node.span.len).unwrap_or("");
+        let quoted = written.starts_with('"') || written.starts_with('\'');
         match node.scalar() {
-            Some("1") => Some(1),
+            Some("1") if !quoted => Some(1),
+            Some("1") => {
+                self.push(
+                    Diagnostic::error("format_version", "the format version is written as text")
+                        .at(node.span, "quoted")
+                        .help("write the number: `tauweave: 1`"),
+                );
+                None
+            }
             _ => {
                 self.push(
                     Diagnostic::error(
@@ -328,6 +340,27 @@ impl Reader<'_> {
     }
 
     fn text_value(&mut self, node: &Node, what: &str) -> Option<String> {
+        // Only `purpose` is a paragraph; the others head tables and pages, one line each.
+        let allowed = |c: char| what == "purpose" && (c == '\n' || c == '\t');
+        if let Some(c) =
+            node.scalar().and_then(|s| s.trim().chars().find(|c| c.is_control() && !allowed(*c)))
+        {
+            let shown = if c == '\n' {
+                "a line break".to_string()
+            } else {
+                format!("the control character U+{:04X}", c as u32)
+            };
+            self.push(
+                Diagnostic::error("control_character", format!("`{what}` holds {shown}"))
+                    .at(node.span, "not printable text")
+                    .help(if what == "purpose" {
+                        "write plain text; line breaks and tabs are the only control characters a purpose may hold".to_string()
+                    } else {
+                        format!("write `{what}` on one line of plain text")
+                    }),
+            );
+            return None;
+        }
         match node.scalar() {
             Some(s) if !s.trim().is_empty() => Some(s.trim().to_string()),
             _ => {
