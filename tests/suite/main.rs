@@ -6,6 +6,7 @@ mod closed_forms;
 mod diff;
 mod examples;
 mod failures;
+mod fuzz;
 mod hardening;
 mod identities;
 mod pdf;
