@@ -145,7 +145,11 @@ pub struct Compiled {
 /// Compiles `files` (report.typ and the plots it names) into PDF bytes.
 pub fn compile(typst: &Typst, files: &[OutputFile], date: &str) -> Result<Compiled, PdfProblem> {
     let failed = |why: String| PdfProblem::Failed(format!("  {why}"));
-    let stage = tempfile::tempdir().map_err(|e| failed(format!("no staging folder: {e}")))?;
+    remove_stale_stages();
+    let stage = tempfile::Builder::new()
+        .prefix(&format!("{STAGE_PREFIX}{}-", std::process::id()))
+        .tempdir()
+        .map_err(|e| failed(format!("no staging folder: {e}")))?;
     for f in files {
         let path = stage.path().join(&f.path);
         if let Some(dir) = path.parent() {
@@ -182,6 +186,27 @@ pub fn compile(typst: &Typst, files: &[OutputFile], date: &str) -> Result<Compil
     let bytes = std::fs::read(stage.path().join("report.pdf"))
         .map_err(|e| failed(format!("typst wrote no report.pdf: {e}")))?;
     Ok(Compiled { bytes, warnings: stderr })
+}
+
+/// The name every typst staging folder starts with, followed by the owning process id.
+const STAGE_PREFIX: &str = "tauweave-typst-";
+
+/// Removes the staging folders of renders that were killed while typst ran: those whose
+/// process no longer exists (Linux, where /proc says; elsewhere nothing is removed).
+fn remove_stale_stages() {
+    let tmp = std::env::temp_dir();
+    let Ok(list) = std::fs::read_dir(&tmp) else { return };
+    for entry in list.flatten() {
+        let name = entry.file_name().to_string_lossy().into_owned();
+        let Some(pid) = name.strip_prefix(STAGE_PREFIX).and_then(|r| r.split('-').next()) else {
+            continue;
+        };
+        let is_dir = entry.file_type().is_ok_and(|t| t.is_dir() && !t.is_symlink());
+        let gone = Path::new("/proc/self").exists() && !Path::new("/proc").join(pid).exists();
+        if is_dir && pid.chars().all(|c| c.is_ascii_digit()) && gone {
+            let _ = std::fs::remove_dir_all(entry.path());
+        }
+    }
 }
 
 /// `text` without trailing blank lines, each line indented by two spaces.

@@ -146,8 +146,8 @@ fn register_filters(tera: &mut Tera) {
     });
 }
 
-/// The largest template read, in bytes.
-pub const MAX_TEMPLATE_BYTES: usize = 1 << 20;
+/// The largest template read, in bytes (the built-in one is under 10 KiB).
+pub const MAX_TEMPLATE_BYTES: usize = 256 << 10;
 
 /// The most values `range()` may hand out over one render, all calls together: loops over
 /// the review's own lists are bounded by the design; this bounds the loops a template
@@ -156,6 +156,34 @@ pub const MAX_RANGE_STEPS: usize = 100_000;
 
 /// The largest document a template may render to, in bytes.
 pub const MAX_OUTPUT_BYTES: usize = 16 << 20;
+
+/// The longest a template may take to render.
+pub const MAX_RENDER_TIME: std::time::Duration = std::time::Duration::from_secs(30);
+
+/// Where a render writes: refuses to grow past [`MAX_OUTPUT_BYTES`] or to keep going past
+/// [`MAX_RENDER_TIME`], so a runaway loop ends in an error, not in all the memory.
+struct Bounded {
+    bytes: Vec<u8>,
+    started: std::time::Instant,
+}
+
+impl std::io::Write for Bounded {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        if self.bytes.len() + buf.len() > MAX_OUTPUT_BYTES {
+            self.bytes.resize(MAX_OUTPUT_BYTES + 1, 0);
+            return Err(std::io::Error::other("the output limit"));
+        }
+        if self.started.elapsed() > MAX_RENDER_TIME {
+            return Err(std::io::Error::other("the time limit"));
+        }
+        self.bytes.extend_from_slice(buf);
+        Ok(buf.len())
+    }
+
+    fn flush(&mut self) -> std::io::Result<()> {
+        Ok(())
+    }
+}
 
 /// `range(end=…, start=0, step_by=1)`, as the template engine's own, but counted against
 /// [`MAX_RANGE_STEPS`] for the whole render.
@@ -259,19 +287,32 @@ pub fn render(
         .map_err(|e| TemplateError { message: report(&source.name, &e) })?;
     let context = Context::from_serialize(view)
         .map_err(|e| TemplateError { message: report(&source.name, &e) })?;
-    let out = tera
-        .render(&source.name, &context)
-        .map_err(|e| TemplateError { message: report(&source.name, &e) })?;
-    if out.len() > MAX_OUTPUT_BYTES {
-        return Err(TemplateError {
-            message: format!(
-                "error: the template `{}` rendered {} bytes, more than the {MAX_OUTPUT_BYTES} a \
-                 review may have; nothing was written\n",
+    let mut sink = Bounded { bytes: Vec::new(), started: std::time::Instant::now() };
+    if let Err(e) = tera.render_to(&source.name, &context, &mut sink) {
+        let over = sink.bytes.len() > MAX_OUTPUT_BYTES;
+        let slow = sink.started.elapsed() > MAX_RENDER_TIME;
+        let message = if over || slow {
+            format!(
+                "error: the template `{}` {}; nothing was written\n  help: a loop over more \
+                 values than the review holds is the usual cause\n",
                 source.name,
-                out.len()
-            ),
-        });
+                if over {
+                    format!("rendered more than the {MAX_OUTPUT_BYTES} bytes a review may have")
+                } else {
+                    format!("ran longer than the {} s a render may take", MAX_RENDER_TIME.as_secs())
+                }
+            )
+        } else {
+            report(&source.name, &e)
+        };
+        return Err(TemplateError { message });
     }
+    let out = String::from_utf8(sink.bytes).map_err(|e| TemplateError {
+        message: format!(
+            "error: the template `{}` rendered text that is not UTF-8: {e}\n",
+            source.name
+        ),
+    })?;
     Ok(out)
 }
 

@@ -130,6 +130,15 @@ fn nested_range_loops_are_stopped_by_the_range_budget() {
     assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
     assert!(stderr(&o).contains("more than 100000 values"), "{}", stderr(&o));
     assert!(stderr(&o).contains("loops.md:2:"), "{}", stderr(&o));
+    // Loops over literal lists, no range() at all: the output bound stops them as they grow.
+    let list = format!("[{}]", vec!["1"; 3000].join(","));
+    let literal = format!(
+        "# T\n{{% for a in {list} %}}{{% for b in {list} %}}{}{{% endfor %}}{{% endfor %}}\n",
+        "x".repeat(100)
+    );
+    let o = render_template(&dir, "literal.md", &literal);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("rendered more than the 16777216 bytes"), "{}", stderr(&o));
     // A loop within the budget still works, with the engine's own arguments.
     let o = render_template(
         &dir,
@@ -408,4 +417,21 @@ fn control_characters_from_a_file_never_reach_the_terminal_raw() {
     let (out, err) = (String::from_utf8_lossy(&o.stdout), stderr(&o));
     assert!(!out.contains('\u{1b}') && !err.contains('\u{1b}') && !err.contains('\u{7}'), "{err}");
     assert!(err.contains('\u{241b}'), "ESC is shown as its control picture: {err}");
+}
+
+#[test]
+fn the_typst_staging_folder_of_a_killed_render_is_removed_by_the_next() {
+    crate::support::typst();
+    // A process id above Linux's largest (2^22) never exists: this folder's owner is gone.
+    let stale = std::env::temp_dir().join("tauweave-typst-999999999-left");
+    std::fs::create_dir_all(&stale).unwrap();
+    std::fs::write(stale.join("report.typ"), "left by a killed render").unwrap();
+    let dir = scratch("hard-stage");
+    let design = root().join("designs/post-amp-cs.yaml");
+    let o = run_in(
+        &dir,
+        &["render", design.to_str().unwrap(), "--runs", "0", "--format", "pdf", "--out", "p"],
+    );
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    assert!(!stale.exists(), "the stale staging folder is gone");
 }
