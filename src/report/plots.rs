@@ -31,13 +31,40 @@ pub struct Plot {
     pub svg: String,
 }
 
+/// Plots are drawn on a grid [`SCALE`] times finer than the size they are shown at, so a
+/// trace's coordinates fall between whole display pixels and curves come out smooth at
+/// print resolution; the SVG's viewBox keeps the fine grid, its width and height the size.
+const SCALE: u32 = 4;
+
+/// A length in display pixels, on the drawing grid.
+fn px(n: u32) -> u32 {
+    n * SCALE
+}
+
 fn finish(svg: String) -> String {
     // Name a fallback so a browser without the font still draws monospace text.
-    svg.replace(&format!("font-family=\"{FONT}\""), &format!("font-family=\"{FONT}, monospace\""))
+    let svg = svg
+        .replace(&format!("font-family=\"{FONT}\""), &format!("font-family=\"{FONT}, monospace\""));
+    // `<svg width="W" height="H" viewBox="0 0 W H"`: the displayed size is W/SCALE × H/SCALE.
+    let Some(end) = svg.find('>') else { return svg };
+    let head = &svg[..end];
+    let number = |key: &str| -> Option<u32> {
+        let at = head.find(&format!("{key}=\""))? + key.len() + 2;
+        head[at..].split('"').next()?.parse().ok()
+    };
+    match (number("width"), number("height")) {
+        (Some(w), Some(h)) => {
+            let fixed = head
+                .replacen(&format!("width=\"{w}\""), &format!("width=\"{}\"", w / SCALE), 1)
+                .replacen(&format!("height=\"{h}\""), &format!("height=\"{}\"", h / SCALE), 1);
+            format!("{fixed}{}", &svg[end..])
+        }
+        _ => svg,
+    }
 }
 
 fn style(size: u32) -> TextStyle<'static> {
-    (FONT, size).into_font().color(&INK)
+    (FONT, px(size)).into_font().color(&INK)
 }
 
 /// The names of every plot a review can hold (`plot(name=…)` accepts these).
@@ -53,7 +80,7 @@ pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study
     if let Some(svg) = pole_zero(a) {
         out.push(Plot {
             name: "pole_zero",
-            caption: "Pole–zero map (s/2π): poles ×, zeros ○, on signed logarithmic axes.".into(),
+            caption: "Pole–zero map (s/2π): poles ×, zeros ○, on signed logarithmic axes, out to two decades beyond the upper cut-off; roots farther out are listed under the map.".into(),
             svg,
         });
     }
@@ -65,7 +92,7 @@ pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study
             out.push(Plot { name: "tornado", caption: "Tornado chart: how far each toleranced lever moves the upper cut-off at its tolerance limit (S·t), largest first; dark bars raise f_H, grey bars lower it.".into(), svg });
         }
         if let Some(svg) = histograms {
-            out.push(Plot { name: "histograms", caption: "Monte Carlo histograms of the mid-band gain and both cut-offs, with the requirement limits dotted.".into(), svg });
+            out.push(Plot { name: "histograms", caption: "Monte Carlo histograms of the mid-band gain, the gain flatness (with a stated band) and both cut-offs, each in its requirement's unit; a limit near the data is dotted, one far off is named at the edge.".into(), svg });
         }
     }
     out
@@ -93,21 +120,23 @@ fn tornado(s: &Study) -> Option<String> {
     let reach = rows.iter().map(|r| r.1.abs()).fold(0.0, f64::max) * 1.25;
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, (860, 70 + 26 * n as u32)).into_drawing_area();
+        let root = SVGBackend::with_string(&mut svg, (px(860), px(70 + 26 * n as u32)))
+            .into_drawing_area();
         root.fill(&WHITE).ok()?;
         let mut chart = ChartBuilder::on(&root)
-            .margin(14)
-            .x_label_area_size(32)
-            .y_label_area_size(0)
+            .margin(px(14))
+            .x_label_area_size(px(32))
+            .y_label_area_size(px(0))
             .build_cartesian_2d(-reach * 1.6..reach, -0.2..n as f64)
             .ok()?;
         chart
             .configure_mesh()
             .disable_y_mesh()
             .disable_y_axis()
-            .light_line_style(WHITE)
-            .bold_line_style(PALE)
-            .axis_style(MID)
+            .light_line_style(WHITE.stroke_width(px(1)))
+            .bold_line_style(PALE.stroke_width(px(1)))
+            .axis_style(MID.stroke_width(px(1)))
+            .set_all_tick_mark_size(px(5))
             .x_label_formatter(&|v| {
                 if *v < -reach - 1e-9 { String::new() } else { format!("{v:+.1} %") }
             })
@@ -117,7 +146,7 @@ fn tornado(s: &Study) -> Option<String> {
             .draw()
             .ok()?;
         chart
-            .draw_series(LineSeries::new([(0.0, 0.0), (0.0, n as f64)], MID.stroke_width(1)))
+            .draw_series(LineSeries::new([(0.0, 0.0), (0.0, n as f64)], MID.stroke_width(px(1))))
             .ok()?;
         chart
             .draw_series(rows.iter().enumerate().map(|(i, (_, v))| {
@@ -137,53 +166,73 @@ fn tornado(s: &Study) -> Option<String> {
     Some(finish(svg))
 }
 
-/// The Monte Carlo histograms, one panel per figure, each requirement limit marked.
+/// One histogram panel: the requirement it belongs to, the axis label, the unit its axis is
+/// written in, the values and the limits, both in that unit.
+struct Panel {
+    label: &'static str,
+    unit: &'static str,
+    values: Vec<f64>,
+    limits: Vec<f64>,
+}
+
+/// How a panel reads its figure from one run.
+type FigureOf = fn(&crate::analysis::Metrics) -> Option<f64>;
+
+/// The Monte Carlo panels, each in its requirement's own unit: the gain and the flatness in
+/// dB, the cut-offs in Hz.
+fn histogram_panels(s: &Study, requirements: &[RequirementCheck]) -> Vec<Panel> {
+    let Some(mc) = s.monte_carlo.as_ref() else { return Vec::new() };
+    let db = |v: f64| (v > 0.0).then(|| 20.0 * v.log10());
+    let figures: [(&str, &str, &str, FigureOf); 4] = [
+        ("midband_gain", "mid-band gain (dB)", "dB", |m| {
+            (m.gain > 0.0).then(|| 20.0 * m.gain.log10())
+        }),
+        ("gain_flatness", "gain flatness over the band (dB)", "dB", |m| m.flatness_db),
+        ("upper_cutoff", "f_H", "Hz", |m| m.f_high),
+        ("lower_cutoff", "f_L", "Hz", |m| m.f_low),
+    ];
+    figures
+        .into_iter()
+        .filter_map(|(key, label, unit, of)| {
+            let values: Vec<f64> = mc.samples.iter().flatten().filter_map(of).collect();
+            let limits = requirements
+                .iter()
+                .filter(|r| r.name == key)
+                .flat_map(|r| [r.min, r.max])
+                .flatten()
+                .filter_map(|l| if key == "midband_gain" { db(l) } else { Some(l) })
+                .collect();
+            (values.len() >= 2).then_some(Panel { label, unit, values, limits })
+        })
+        .collect()
+}
+
+/// The Monte Carlo histograms, one panel per figure in its requirement's unit, the data
+/// filling the frame; a limit within half the data's spread of it widens the axis and is
+/// drawn as a dotted line, one farther off is named at the edge with an arrow.
 ///
 /// Long because it is one plotters drawing sequence threading the same drawing area and
-/// chart contexts from the panel layout to the labels; the plot rework of the review
-/// document (its own issue) replaces it.
+/// chart contexts from the panel layout to the labels.
 fn histograms(s: &Study, requirements: &[RequirementCheck]) -> Option<String> {
-    let mc = s.monte_carlo.as_ref()?;
-    let panels: Vec<(&str, &str, Vec<f64>)> =
-        [("midband_gain", "|A| (V/V)"), ("upper_cutoff", "f_H"), ("lower_cutoff", "f_L")]
-            .into_iter()
-            .filter_map(|(key, label)| {
-                let v: Vec<f64> = mc
-                    .samples
-                    .iter()
-                    .flatten()
-                    .filter_map(|m| match key {
-                        "midband_gain" => Some(m.gain),
-                        "upper_cutoff" => m.f_high,
-                        _ => m.f_low,
-                    })
-                    .collect();
-                (v.len() >= 2).then_some((key, label, v))
-            })
-            .collect();
+    let panels = histogram_panels(s, requirements);
     if panels.is_empty() {
         return None;
     }
     let mut svg = String::new();
     {
-        let root =
-            SVGBackend::with_string(&mut svg, (860, 250 * panels.len() as u32)).into_drawing_area();
+        let root = SVGBackend::with_string(&mut svg, (px(860), px(250 * panels.len() as u32)))
+            .into_drawing_area();
         root.fill(&WHITE).ok()?;
         let areas = root.split_evenly((panels.len(), 1));
-        for ((key, label, values), area) in panels.iter().zip(areas.iter()) {
-            let limits: Vec<f64> = requirements
-                .iter()
-                .filter(|r| r.name == *key)
-                .flat_map(|r| [r.min, r.max])
-                .flatten()
-                .collect();
+        for (panel, area) in panels.iter().zip(areas.iter()) {
+            let (values, limits, unit) = (&panel.values, &panel.limits, panel.unit);
             let lo = values.iter().copied().fold(f64::MAX, f64::min);
             let hi = values.iter().copied().fold(f64::MIN, f64::max);
-            // Limits within three spreads of the data widen the axis; farther ones are
+            // Limits within half a spread of the data widen the axis; farther ones are
             // named at the edge instead of squashing the histogram.
             let spread = (hi - lo).max(hi.abs() * 1e-6);
             let (near, far): (Vec<f64>, Vec<f64>) =
-                limits.iter().partition(|&&l| l >= lo - 3.0 * spread && l <= hi + 3.0 * spread);
+                limits.iter().partition(|&&l| l >= lo - 0.5 * spread && l <= hi + 0.5 * spread);
             let (lo, hi) = near.iter().fold((lo, hi), |(a, b), &l| (a.min(l), b.max(l)));
             let pad = (hi - lo).max(hi.abs() * 1e-6) * 0.05;
             let (lo, hi) = (lo - pad, hi + pad);
@@ -196,22 +245,29 @@ fn histograms(s: &Study, requirements: &[RequirementCheck]) -> Option<String> {
                 counts[k] += 1;
             }
             let top = *counts.iter().max().unwrap_or(&1) as f64 * 1.15;
-            let unit = if *key == "midband_gain" { "" } else { "Hz" };
+            let axis = |v: f64| {
+                if unit == "dB" {
+                    format!("{} dB", crate::notation::plain(v, 3))
+                } else {
+                    si(v, unit, 3)
+                }
+            };
             let mut chart = ChartBuilder::on(area)
-                .margin(12)
-                .x_label_area_size(40)
-                .y_label_area_size(50)
+                .margin(px(12))
+                .x_label_area_size(px(40))
+                .y_label_area_size(px(50))
                 .build_cartesian_2d(lo..hi, 0.0..top)
                 .ok()?;
             chart
                 .configure_mesh()
-                .light_line_style(WHITE)
-                .bold_line_style(PALE)
-                .axis_style(MID)
-                .x_label_formatter(&|v| si(*v, unit, 3))
+                .light_line_style(WHITE.stroke_width(px(1)))
+                .bold_line_style(PALE.stroke_width(px(1)))
+                .axis_style(MID.stroke_width(px(1)))
+                .set_all_tick_mark_size(px(5))
+                .x_label_formatter(&|v| axis(*v))
                 .y_label_formatter(&|v| format!("{v:.0}"))
                 .label_style(style(11))
-                .x_desc(label.to_string())
+                .x_desc(panel.label.to_string())
                 .y_desc("runs")
                 .axis_desc_style(style(12))
                 .draw()
@@ -226,17 +282,17 @@ fn histograms(s: &Study, requirements: &[RequirementCheck]) -> Option<String> {
                 chart
                     .draw_series(DashedLineSeries::new(
                         [(l, 0.0), (l, top)],
-                        2,
-                        2,
-                        INK.stroke_width(2),
+                        px(2),
+                        px(2),
+                        INK.stroke_width(px(2)),
                     ))
                     .ok()?;
             }
             for l in far {
                 let (x, text) = if l > hi {
-                    (hi - (hi - lo) * 0.28, format!("limit {} →", si(l, unit, 3)))
+                    (hi - (hi - lo) * 0.28, format!("limit {} →", axis(l)))
                 } else {
-                    (lo + (hi - lo) * 0.01, format!("← limit {}", si(l, unit, 3)))
+                    (lo + (hi - lo) * 0.01, format!("← limit {}", axis(l)))
                 };
                 chart
                     .draw_series(std::iter::once(Text::new(text, (x, top * 0.93), style(11))))
@@ -252,8 +308,109 @@ fn decade_label(v: f64, unit: &str) -> String {
     si(v, unit, 3)
 }
 
-/// The Bode plot: magnitude and phase of the exact response with the −3 dB points, the
-/// time-constant estimates and the requirement limits marked.
+/// How a vertical marker of the Bode plot is drawn, and what the legend calls it.
+#[derive(Clone, Copy, Debug, PartialEq)]
+enum MarkKind {
+    /// An exact −3 dB point: solid.
+    Exact,
+    /// A time-constant estimate: dashed.
+    Estimate,
+    /// A requirement limit: dotted.
+    Limit,
+}
+
+/// A vertical marker: where, how, and its legend text.
+#[derive(Clone, Debug, PartialEq)]
+struct Mark {
+    f: f64,
+    kind: MarkKind,
+    text: String,
+}
+
+/// The markers of the Bode plot, numbered in order of frequency.
+fn bode_marks(a: &Analysis, requirements: &[RequirementCheck]) -> Vec<Mark> {
+    let mut marks = Vec::new();
+    let mut add = |f: Option<f64>, kind, text: String| {
+        if let Some(f) = f.filter(|f| f.is_finite() && *f > 0.0) {
+            marks.push(Mark { f, kind, text });
+        }
+    };
+    let f = |v: f64| si(v, "Hz", 4);
+    add(
+        a.low.f3db_hz,
+        MarkKind::Exact,
+        format!("f_L = {}, exact −3 dB", a.low.f3db_hz.map_or_else(String::new, f)),
+    );
+    add(
+        a.high.f3db_hz,
+        MarkKind::Exact,
+        format!("f_H = {}, exact −3 dB", a.high.f3db_hz.map_or_else(String::new, f)),
+    );
+    add(
+        a.low.sctc.f_estimate_hz,
+        MarkKind::Estimate,
+        format!(
+            "Σ 1/(2πτ) = {}, short-circuit estimate of f_L",
+            a.low.sctc.f_estimate_hz.map_or_else(String::new, f)
+        ),
+    );
+    add(
+        a.high.octc.f_estimate_hz,
+        MarkKind::Estimate,
+        format!(
+            "1/(2π Στ) = {}, open-circuit estimate of f_H",
+            a.high.octc.f_estimate_hz.map_or_else(String::new, f)
+        ),
+    );
+    for r in requirements.iter().filter(|r| r.unit == "Hz") {
+        let what = if r.name == "upper_cutoff" { "f_H" } else { "f_L" };
+        add(
+            r.min,
+            MarkKind::Limit,
+            format!("{what} ≥ {}, required", r.min.map_or_else(String::new, f)),
+        );
+        add(
+            r.max,
+            MarkKind::Limit,
+            format!("{what} ≤ {}, required", r.max.map_or_else(String::new, f)),
+        );
+    }
+    marks.sort_by(|x, y| x.f.total_cmp(&y.f));
+    marks
+}
+
+/// A row for each tag so that no two tags in a row are closer than `width` (pixels):
+/// first fit, left to right.
+fn tag_rows(xs: &[i32], width: i32) -> Vec<usize> {
+    let mut ends: Vec<i32> = Vec::new();
+    xs.iter()
+        .map(|&x| match ends.iter().position(|&end| x >= end) {
+            Some(row) => {
+                ends[row] = x + width;
+                row
+            }
+            None => {
+                ends.push(x + width);
+                ends.len() - 1
+            }
+        })
+        .collect()
+}
+
+/// The line style of a marker kind: (dash, gap) in display pixels; solid has no gap.
+fn dashes(kind: MarkKind) -> (u32, u32) {
+    match kind {
+        MarkKind::Exact => (1000, 0),
+        MarkKind::Estimate => (7, 4),
+        MarkKind::Limit => (2, 3),
+    }
+}
+
+/// The Bode plot: magnitude and phase of the exact response. Vertical markers (exact −3 dB
+/// points solid, time-constant estimates dashed, requirement limits dotted) carry a number
+/// at the top of the plot, stacked so numbers never overlap, and a legend below the phase
+/// explains each; the −3 dB level, the operating band and the required gain window are
+/// drawn and named in the legend too.
 ///
 /// Long because it is one plotters drawing sequence: both panels share the frequency axis
 /// and the markers, and splitting it would pass the chart contexts through every helper.
@@ -264,28 +421,67 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
     }
     let f0 = sweep.first()?.frequency_hz;
     let f1 = sweep.last()?.frequency_hz;
+    let marks: Vec<Mark> =
+        bode_marks(a, requirements).into_iter().filter(|m| m.f > f0 && m.f < f1).collect();
+    let window = requirements
+        .iter()
+        .find(|r| r.name == "midband_gain")
+        .map(|r| (r.min.map(|v| 20.0 * v.log10()), r.max.map(|v| 20.0 * v.log10())));
     let mag_max = sweep.iter().map(|p| p.magnitude_db).fold(f64::MIN, f64::max);
-    let top = (mag_max / 10.0).ceil() * 10.0 + 5.0;
+    let window_top = window.and_then(|w| w.1).unwrap_or(f64::MIN);
+    // Headroom above the trace for the marker numbers.
+    let top = (mag_max.max(window_top) / 10.0).ceil() * 10.0 + 10.0;
     let bottom = (top - 80.0)
         .max(sweep.iter().map(|p| p.magnitude_db).fold(f64::MAX, f64::min).floor() - 5.0);
     let ph_min = sweep.iter().map(|p| p.phase_deg).fold(f64::MAX, f64::min);
     let ph_max = sweep.iter().map(|p| p.phase_deg).fold(f64::MIN, f64::max);
     let (ph_lo, ph_hi) = ((ph_min / 45.0).floor() * 45.0, (ph_max / 45.0).ceil() * 45.0 + 1.0);
+    let mid_db = 20.0 * a.midband.gain.abs().log10();
+    let level = mid_db - 3.0103;
+    // The legend: one line per entry, the line style first.
+    let mut legend: Vec<(LegendKey, String)> = vec![
+        (LegendKey::Line(2, 1000, 0), "|H|, exact response, every capacitor present".into()),
+        (
+            LegendKey::Line(1, 3, 5),
+            format!(
+                "−3 dB below the idealised mid-band gain ({} dB)",
+                crate::notation::plain(level, 4)
+            ),
+        ),
+    ];
+    if let Some(b) = &a.midband.band {
+        legend.push((
+            LegendKey::Fill(0.45),
+            format!("operating band {} … {}", si(b.from_hz, "Hz", 3), si(b.to_hz, "Hz", 3)),
+        ));
+    }
+    if let Some((lo, hi)) = window {
+        let show = |v: Option<f64>| {
+            v.map_or("—".to_string(), |v| format!("{} dB", crate::notation::plain(v, 3)))
+        };
+        legend
+            .push((LegendKey::Hatch, format!("required gain window {} … {}", show(lo), show(hi))));
+    }
+    let legend_rows = legend.len() + marks.len();
+    let legend_height = 16 + 17 * legend_rows as u32;
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, (860, 560)).into_drawing_area();
+        let root = SVGBackend::with_string(&mut svg, (px(860), px(560 + legend_height)))
+            .into_drawing_area();
         root.fill(&WHITE).ok()?;
-        let (upper, lower) = root.split_vertically(340);
+        let (upper, rest) = root.split_vertically(px(340));
+        let (lower, key) = rest.split_vertically(px(220));
         let mut mag = ChartBuilder::on(&upper)
-            .margin(14)
-            .x_label_area_size(28)
-            .y_label_area_size(64)
+            .margin(px(14))
+            .x_label_area_size(px(28))
+            .y_label_area_size(px(64))
             .build_cartesian_2d((f0..f1).log_scale(), bottom..top)
             .ok()?;
         mag.configure_mesh()
-            .light_line_style(PALE.mix(0.5))
-            .bold_line_style(PALE)
-            .axis_style(MID)
+            .light_line_style(PALE.mix(0.5).stroke_width(px(1)))
+            .bold_line_style(PALE.stroke_width(px(1)))
+            .axis_style(MID.stroke_width(px(1)))
+            .set_all_tick_mark_size(px(5))
             .x_label_formatter(&|v| decade_label(*v, "Hz"))
             .y_label_formatter(&|v| format!("{v:.0} dB"))
             .label_style(style(12))
@@ -294,7 +490,6 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
             .draw()
             .ok()?;
         if let Some(b) = &a.midband.band {
-            // The operating band, shaded behind the trace and named at its foot.
             let (from, to) = (b.from_hz.max(f0), b.to_hz.min(f1));
             if from < to {
                 mag.draw_series(std::iter::once(Rectangle::new(
@@ -302,76 +497,65 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
                     PALE.mix(0.45).filled(),
                 )))
                 .ok()?;
-                let y = bottom + (top - bottom) * 0.06;
-                let _ = mag.draw_series(std::iter::once(Text::new(
-                    "band".to_string(),
-                    (from * 1.04, y),
-                    style(11),
-                )));
             }
         }
-        mag.draw_series(LineSeries::new(
-            sweep.iter().map(|p| (p.frequency_hz, p.magnitude_db)),
-            INK.stroke_width(2),
-        ))
-        .ok()?;
-        let mid_db = 20.0 * a.midband.gain.abs().log10();
-        let level = mid_db - 3.0103;
-        mag.draw_series(DashedLineSeries::new(
-            [(f0, level), (f1, level)],
-            3,
-            5,
-            MID.stroke_width(1),
-        ))
-        .ok()?;
-        let row_height = (top - bottom) * 0.055;
-        let mut mark = |f: f64, label: &str, dash: u32, weight: u32, row: u32| {
-            if f > f0 && f < f1 {
-                let _ = mag.draw_series(DashedLineSeries::new(
-                    [(f, bottom), (f, top)],
-                    if dash == 0 { 1000 } else { dash },
-                    if dash == 0 { 0 } else { dash },
-                    INK.stroke_width(weight),
-                ));
-                let y = top - row_height * (1.0 + row as f64);
-                let _ = mag.draw_series(std::iter::once(Text::new(
-                    label.to_string(),
-                    (f * 1.08, y),
-                    style(11),
-                )));
-            }
-        };
-        if let Some(f) = a.high.f3db_hz {
-            mark(f, &format!("f_H {}", si(f, "Hz", 3)), 0, 1, 0);
-        }
-        if let Some(f) = a.low.f3db_hz {
-            mark(f, &format!("f_L {}", si(f, "Hz", 3)), 0, 1, 0);
-        }
-        if let Some(f) = a.high.octc.f_estimate_hz {
-            mark(f, "Στ", 6, 1, 1);
-        }
-        if let Some(f) = a.low.sctc.f_estimate_hz {
-            mark(f, "Σ1/τ", 6, 1, 1);
-        }
-        for r in requirements.iter().filter(|r| r.unit == "Hz") {
-            for (limit, word) in [(r.min, "min"), (r.max, "max")] {
-                if let Some(f) = limit {
-                    let tag = if r.name == "upper_cutoff" { "f_H" } else { "f_L" };
-                    mark(f, &format!("{tag} {word}"), 2, 1, 2);
+        if let Some((lo, hi)) = window {
+            let (lo, hi) = (lo.unwrap_or(bottom).max(bottom), hi.unwrap_or(top).min(top));
+            if lo < hi {
+                // Hatched: thin diagonal-free horizontal rules, distinct from the band's fill.
+                let steps = 6;
+                for k in 0..=steps {
+                    let y = lo + (hi - lo) * k as f64 / steps as f64;
+                    mag.draw_series(LineSeries::new(
+                        [(f0, y), (f1, y)],
+                        MID.mix(0.6).stroke_width(px(1)),
+                    ))
+                    .ok()?;
                 }
             }
         }
+        mag.draw_series(DashedLineSeries::new(
+            [(f0, level), (f1, level)],
+            px(3),
+            px(5),
+            MID.stroke_width(px(1)),
+        ))
+        .ok()?;
+        for m in &marks {
+            let (dash, gap) = dashes(m.kind);
+            mag.draw_series(DashedLineSeries::new(
+                [(m.f, bottom), (m.f, top)],
+                px(dash),
+                px(gap),
+                INK.stroke_width(px(1)),
+            ))
+            .ok()?;
+        }
+        mag.draw_series(LineSeries::new(
+            sweep.iter().map(|p| (p.frequency_hz, p.magnitude_db)),
+            INK.stroke_width(px(2)),
+        ))
+        .ok()?;
+        // The marker numbers, in the headroom at the top, stacked where they would touch.
+        let xs: Vec<i32> = marks.iter().map(|m| mag.backend_coord(&(m.f, top)).0).collect();
+        let rows = tag_rows(&xs, px(22) as i32);
+        for (k, ((m, x), row)) in marks.iter().zip(&xs).zip(&rows).enumerate() {
+            let (_, y_top) = mag.backend_coord(&(m.f, top));
+            let pos = (x + px(3) as i32, y_top + px(3) as i32 + px(14) as i32 * *row as i32);
+            upper.draw(&Text::new(format!("{}", k + 1), pos, style(12))).ok()?;
+        }
         let mut phase = ChartBuilder::on(&lower)
-            .margin(14)
-            .x_label_area_size(30)
-            .y_label_area_size(64)
+            .margin(px(14))
+            .x_label_area_size(px(30))
+            .y_label_area_size(px(64))
             .build_cartesian_2d((f0..f1).log_scale(), ph_lo..ph_hi)
             .ok()?;
         phase
             .configure_mesh()
-            .light_line_style(PALE.mix(0.5))
-            .bold_line_style(PALE)
-            .axis_style(MID)
+            .light_line_style(PALE.mix(0.5).stroke_width(px(1)))
+            .bold_line_style(PALE.stroke_width(px(1)))
+            .axis_style(MID.stroke_width(px(1)))
+            .set_all_tick_mark_size(px(5))
             .x_label_formatter(&|v| decade_label(*v, "Hz"))
             .y_label_formatter(&|v| format!("{v:.0}°"))
             .label_style(style(12))
@@ -380,15 +564,130 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
             .axis_desc_style(style(13))
             .draw()
             .ok()?;
+        for m in &marks {
+            let (dash, gap) = dashes(m.kind);
+            phase
+                .draw_series(DashedLineSeries::new(
+                    [(m.f, ph_lo), (m.f, ph_hi)],
+                    px(dash),
+                    px(gap),
+                    INK.stroke_width(px(1)),
+                ))
+                .ok()?;
+        }
         phase
             .draw_series(LineSeries::new(
                 sweep.iter().map(|p| (p.frequency_hz, p.phase_deg)),
-                INK.stroke_width(2),
+                INK.stroke_width(px(2)),
             ))
             .ok()?;
+        let entries: Vec<(LegendKey, String)> = legend
+            .into_iter()
+            .chain(marks.iter().enumerate().map(|(k, m)| {
+                let (dash, gap) = dashes(m.kind);
+                (LegendKey::Numbered(k + 1, dash, gap), m.text.clone())
+            }))
+            .collect();
+        draw_legend(&key, &entries)?;
         root.present().ok()?;
     }
     Some(finish(svg))
+}
+
+/// What stands before a legend entry's text.
+enum LegendKey {
+    /// A line sample: width, dash and gap in display pixels (gap 0: solid).
+    Line(u32, u32, u32),
+    /// A grey fill of this opacity.
+    Fill(f64),
+    /// The hatching of the gain window.
+    Hatch,
+    /// A marker number beside a sample of its line.
+    Numbered(usize, u32, u32),
+}
+
+/// Draws `entries` one per line into `area`, 64 display pixels in (under the y axis labels).
+fn draw_legend(
+    area: &DrawingArea<SVGBackend, plotters::coord::Shift>,
+    entries: &[(LegendKey, String)],
+) -> Option<()> {
+    let p = |n: u32| px(n) as i32;
+    for (row, (key, text)) in entries.iter().enumerate() {
+        let y = p(8) + p(17) * row as i32;
+        let (x0, x1) = (p(72), p(104));
+        let mid = y + p(7);
+        let dashed = |w: u32, dash: u32, gap: u32| -> Option<()> {
+            let mut x = x0;
+            while x < x1 {
+                let end = (x + p(dash)).min(x1);
+                area.draw(&PathElement::new(vec![(x, mid), (end, mid)], INK.stroke_width(px(w))))
+                    .ok()?;
+                if gap == 0 {
+                    break;
+                }
+                x = end + p(gap);
+            }
+            Some(())
+        };
+        match key {
+            LegendKey::Line(w, dash, gap) => dashed(*w, *dash, *gap)?,
+            LegendKey::Fill(opacity) => {
+                area.draw(&Rectangle::new(
+                    [(x0, y + p(2)), (x1, y + p(12))],
+                    PALE.mix(*opacity).filled(),
+                ))
+                .ok()?;
+            }
+            LegendKey::Hatch => {
+                for k in 0..3 {
+                    let yy = y + p(3) + p(4) * k;
+                    area.draw(&PathElement::new(
+                        vec![(x0, yy), (x1, yy)],
+                        MID.mix(0.6).stroke_width(px(1)),
+                    ))
+                    .ok()?;
+                }
+            }
+            LegendKey::Numbered(n, dash, gap) => {
+                area.draw(&Text::new(format!("{n}"), (p(56), y), style(12))).ok()?;
+                dashed(1, *dash, *gap)?;
+            }
+        }
+        area.draw(&Text::new(text.clone(), (p(114), y), style(12))).ok()?;
+    }
+    Some(())
+}
+
+/// How far out the pole–zero map reaches, Hz: two decades beyond the upper cut-off (or the
+/// largest pole when there is none); and the roots beyond it, listed as a note.
+fn pz_window(a: &Analysis) -> (f64, String) {
+    let largest_pole = a.poles.iter().map(RootHz::magnitude_hz).fold(0.0, f64::max);
+    let edge = a.high.f3db_hz.unwrap_or(largest_pole);
+    let reach = if edge > 0.0 { edge * 100.0 } else { f64::INFINITY };
+    let text = |r: &RootHz| {
+        let mut t = format!("{}{}", if r.re_hz > 0.0 { "+" } else { "" }, si(r.re_hz, "Hz", 4));
+        if r.im_hz != 0.0 {
+            t.push_str(&format!(" ± j{}", si(r.im_hz.abs(), "Hz", 4)));
+        }
+        t
+    };
+    let beyond = |list: &[RootHz]| -> Vec<String> {
+        list.iter().filter(|r| r.magnitude_hz() > reach && r.im_hz >= 0.0).map(text).collect()
+    };
+    let (p, z) = (beyond(&a.poles), beyond(&a.zeros));
+    let mut parts = Vec::new();
+    if !p.is_empty() {
+        parts.push(format!("poles {}", p.join(", ")));
+    }
+    if !z.is_empty() {
+        parts.push(format!("zeros {}", z.join(", ")));
+    }
+    let note = if parts.is_empty() {
+        String::new()
+    } else {
+        format!("Beyond {}, not drawn: {}", si(reach, "Hz", 3), parts.join("; "))
+    };
+    (reach, note)
 }
 
 /// Signed logarithm for the pole–zero map: linear inside ±`unit`, then one axis unit per
@@ -407,7 +706,11 @@ fn unslog(v: f64, unit: f64) -> f64 {
 /// Long because it is one plotters drawing sequence (axes, grid, poles, zeros, labels on
 /// one chart context).
 fn pole_zero(a: &Analysis) -> Option<String> {
-    let all: Vec<&RootHz> = a.poles.iter().chain(a.zeros.iter()).collect();
+    let (reach, far) = pz_window(a);
+    let near = |r: &&RootHz| r.magnitude_hz() <= reach;
+    let poles: Vec<RootHz> = a.poles.iter().filter(near).copied().collect();
+    let zeros: Vec<RootHz> = a.zeros.iter().filter(near).copied().collect();
+    let all: Vec<&RootHz> = poles.iter().chain(zeros.iter()).collect();
     if all.is_empty() {
         return None;
     }
@@ -419,12 +722,18 @@ fn pole_zero(a: &Analysis) -> Option<String> {
     let reach_y = all.iter().map(|r| slog(r.im_hz.abs(), unit)).fold(2.0, f64::max).ceil() + 0.5;
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, (860, 420)).into_drawing_area();
+        let extra = if far.is_empty() { 0 } else { 24 };
+        let root =
+            SVGBackend::with_string(&mut svg, (px(860), px(420 + extra))).into_drawing_area();
         root.fill(&WHITE).ok()?;
-        let mut chart = ChartBuilder::on(&root)
-            .margin(14)
-            .x_label_area_size(34)
-            .y_label_area_size(80)
+        let (map, note) = root.split_vertically(px(420));
+        if !far.is_empty() {
+            note.draw(&Text::new(far.clone(), (px(80) as i32, px(4) as i32), style(12))).ok()?;
+        }
+        let mut chart = ChartBuilder::on(&map)
+            .margin(px(14))
+            .x_label_area_size(px(34))
+            .y_label_area_size(px(80))
             .build_cartesian_2d(-reach_x..reach_x, -reach_y..reach_y)
             .ok()?;
         // Every decade when they fit, every other one on wide maps.
@@ -440,9 +749,10 @@ fn pole_zero(a: &Analysis) -> Option<String> {
         };
         chart
             .configure_mesh()
-            .light_line_style(WHITE)
-            .bold_line_style(PALE)
-            .axis_style(MID)
+            .light_line_style(WHITE.stroke_width(px(1)))
+            .bold_line_style(PALE.stroke_width(px(1)))
+            .axis_style(MID.stroke_width(px(1)))
+            .set_all_tick_mark_size(px(5))
             .x_labels((2.0 * reach_x) as usize + 1)
             .y_labels((2.0 * reach_y) as usize + 1)
             .x_label_formatter(&|v| tick(*v))
@@ -462,20 +772,30 @@ fn pole_zero(a: &Analysis) -> Option<String> {
             .draw()
             .ok()?;
         chart
-            .draw_series(LineSeries::new([(0.0, -reach_y), (0.0, reach_y)], MID.stroke_width(1)))
+            .draw_series(LineSeries::new(
+                [(0.0, -reach_y), (0.0, reach_y)],
+                MID.stroke_width(px(1)),
+            ))
             .ok()?;
         chart
-            .draw_series(LineSeries::new([(-reach_x, 0.0), (reach_x, 0.0)], MID.stroke_width(1)))
+            .draw_series(LineSeries::new(
+                [(-reach_x, 0.0), (reach_x, 0.0)],
+                MID.stroke_width(px(1)),
+            ))
             .ok()?;
         let xy = |r: &RootHz| (slog(r.re_hz, unit), slog(r.im_hz, unit));
         chart
-            .draw_series(a.poles.iter().map(|p| Cross::new(xy(p), 7, INK.stroke_width(2))))
+            .draw_series(
+                poles.iter().map(|p| Cross::new(xy(p), px(7) as i32, INK.stroke_width(px(2)))),
+            )
             .ok()?;
         chart
-            .draw_series(a.zeros.iter().map(|z| Circle::new(xy(z), 6, INK.stroke_width(2))))
+            .draw_series(
+                zeros.iter().map(|z| Circle::new(xy(z), px(6) as i32, INK.stroke_width(px(2)))),
+            )
             .ok()?;
         // Multiplicity of coincident roots.
-        for list in [&a.poles, &a.zeros] {
+        for list in [&poles, &zeros] {
             let mut seen: Vec<(RootHz, usize)> = Vec::new();
             for r in list.iter() {
                 match seen.iter_mut().find(|(s, _)| s == r) {
@@ -514,18 +834,18 @@ fn shares(a: &Analysis) -> Option<String> {
     let height = 60 + 26 * n as u32;
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, (860, height)).into_drawing_area();
+        let root = SVGBackend::with_string(&mut svg, (px(860), px(height))).into_drawing_area();
         root.fill(&WHITE).ok()?;
         let mut chart = ChartBuilder::on(&root)
-            .margin(14)
-            .x_label_area_size(0)
-            .y_label_area_size(0)
+            .margin(px(14))
+            .x_label_area_size(px(0))
+            .y_label_area_size(px(0))
             .build_cartesian_2d(-45.0..112.0, -0.7..n as f64)
             .ok()?;
         for k in 0..=5 {
             let x = k as f64 * 20.0;
             chart
-                .draw_series(LineSeries::new([(x, 0.0), (x, n as f64)], PALE.stroke_width(1)))
+                .draw_series(LineSeries::new([(x, 0.0), (x, n as f64)], PALE.stroke_width(px(1))))
                 .ok()?;
             chart
                 .draw_series(std::iter::once(Text::new(
@@ -588,23 +908,24 @@ pub fn bode_overlay(
     let ph_min = both().map(|p| p.phase_deg).fold(f64::MAX, f64::min);
     let ph_max = both().map(|p| p.phase_deg).fold(f64::MIN, f64::max);
     let (ph_lo, ph_hi) = ((ph_min / 45.0).floor() * 45.0, (ph_max / 45.0).ceil() * 45.0 + 1.0);
-    let earlier = MID.stroke_width(2);
-    let later = INK.stroke_width(2);
+    let earlier = MID.stroke_width(px(2));
+    let later = INK.stroke_width(px(2));
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, (860, 560)).into_drawing_area();
+        let root = SVGBackend::with_string(&mut svg, (px(860), px(560))).into_drawing_area();
         root.fill(&WHITE).ok()?;
-        let (upper, lower) = root.split_vertically(340);
+        let (upper, lower) = root.split_vertically(px(340));
         let mut mag = ChartBuilder::on(&upper)
-            .margin(14)
-            .x_label_area_size(28)
-            .y_label_area_size(64)
+            .margin(px(14))
+            .x_label_area_size(px(28))
+            .y_label_area_size(px(64))
             .build_cartesian_2d((f0..f1).log_scale(), bottom..top)
             .ok()?;
         mag.configure_mesh()
-            .light_line_style(PALE.mix(0.5))
-            .bold_line_style(PALE)
-            .axis_style(MID)
+            .light_line_style(PALE.mix(0.5).stroke_width(px(1)))
+            .bold_line_style(PALE.stroke_width(px(1)))
+            .axis_style(MID.stroke_width(px(1)))
+            .set_all_tick_mark_size(px(5))
             .x_label_formatter(&|v| decade_label(*v, "Hz"))
             .y_label_formatter(&|v| format!("{v:.0} dB"))
             .label_style(style(12))
@@ -615,38 +936,48 @@ pub fn bode_overlay(
         let line = |s: &[SweepPoint], f: fn(&SweepPoint) -> f64| -> Vec<(f64, f64)> {
             s.iter().map(|p| (p.frequency_hz, f(p))).collect()
         };
-        mag.draw_series(DashedLineSeries::new(line(before, |p| p.magnitude_db), 7, 4, earlier))
-            .ok()?;
+        mag.draw_series(DashedLineSeries::new(
+            line(before, |p| p.magnitude_db),
+            px(7),
+            px(4),
+            earlier,
+        ))
+        .ok()?;
         mag.draw_series(LineSeries::new(line(after, |p| p.magnitude_db), later)).ok()?;
         // The legend, in the panel's top-right corner, in pixels.
         let (w, _) = upper.dim_in_pixel();
-        let x = w as i32 - 300;
+        let p = |n: i32| n * px(1) as i32;
+        let x = w as i32 - p(300);
         for (row, (label, dashed)) in
             [(before_label, true), (after_label, false)].iter().enumerate()
         {
-            let y = 28 + 18 * row as i32;
+            let y = p(28) + p(18) * row as i32;
             let color = if *dashed { MID } else { INK };
             let segments: Vec<(i32, i32)> =
-                if *dashed { vec![(x, y), (x + 10, y)] } else { vec![(x, y), (x + 28, y)] };
-            upper.draw(&PathElement::new(segments, color.stroke_width(2))).ok()?;
+                if *dashed { vec![(x, y), (x + p(10), y)] } else { vec![(x, y), (x + p(28), y)] };
+            upper.draw(&PathElement::new(segments, color.stroke_width(px(2)))).ok()?;
             if *dashed {
                 upper
-                    .draw(&PathElement::new(vec![(x + 16, y), (x + 28, y)], color.stroke_width(2)))
+                    .draw(&PathElement::new(
+                        vec![(x + p(16), y), (x + p(28), y)],
+                        color.stroke_width(px(2)),
+                    ))
                     .ok()?;
             }
-            upper.draw(&Text::new(label.to_string(), (x + 36, y - 7), style(12))).ok()?;
+            upper.draw(&Text::new(label.to_string(), (x + p(36), y - p(7)), style(12))).ok()?;
         }
         let mut phase = ChartBuilder::on(&lower)
-            .margin(14)
-            .x_label_area_size(30)
-            .y_label_area_size(64)
+            .margin(px(14))
+            .x_label_area_size(px(30))
+            .y_label_area_size(px(64))
             .build_cartesian_2d((f0..f1).log_scale(), ph_lo..ph_hi)
             .ok()?;
         phase
             .configure_mesh()
-            .light_line_style(PALE.mix(0.5))
-            .bold_line_style(PALE)
-            .axis_style(MID)
+            .light_line_style(PALE.mix(0.5).stroke_width(px(1)))
+            .bold_line_style(PALE.stroke_width(px(1)))
+            .axis_style(MID.stroke_width(px(1)))
+            .set_all_tick_mark_size(px(5))
             .x_label_formatter(&|v| decade_label(*v, "Hz"))
             .y_label_formatter(&|v| format!("{v:.0}°"))
             .label_style(style(12))
@@ -656,10 +987,97 @@ pub fn bode_overlay(
             .draw()
             .ok()?;
         phase
-            .draw_series(DashedLineSeries::new(line(before, |p| p.phase_deg), 7, 4, earlier))
+            .draw_series(DashedLineSeries::new(
+                line(before, |p| p.phase_deg),
+                px(7),
+                px(4),
+                earlier,
+            ))
             .ok()?;
         phase.draw_series(LineSeries::new(line(after, |p| p.phase_deg), later)).ok()?;
         root.present().ok()?;
     }
     Some(finish(svg))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn demo() -> (Analysis, Vec<RequirementCheck>, Study) {
+        let text = std::fs::read_to_string("designs/rx-preamp-ce.yaml").unwrap();
+        let d = crate::design::load(&text).design.unwrap();
+        let r =
+            crate::review::review(&d, &crate::review::ReviewOptions::quiet(&d, Some(50))).unwrap();
+        (r.analysis, r.requirements, r.study)
+    }
+
+    /// Every number in the `points` of the polylines of `svg`, in display pixels.
+    fn trace_coordinates(svg: &str) -> Vec<f64> {
+        svg.split("points=\"")
+            .skip(1)
+            .filter_map(|rest| rest.split('"').next())
+            .flat_map(|pts| pts.split([' ', ',']).filter_map(|v| v.parse::<f64>().ok()))
+            .map(|v| v / SCALE as f64)
+            .collect()
+    }
+
+    /// Curves are drawn between whole display pixels: a plot whose trace coordinates were
+    /// all whole pixels would look stair-stepped at print resolution.
+    #[test]
+    fn traces_are_not_whole_pixels_only() {
+        let (a, req, study) = demo();
+        for plot in all(&a, &req, Some(&study)) {
+            assert!(plot.svg.contains(&format!("viewBox=\"0 0 {} ", 860 * SCALE)), "{}", plot.name);
+            let coords = trace_coordinates(&plot.svg);
+            if plot.name == "bode" {
+                let fractional = coords.iter().filter(|v| v.fract() != 0.0).count();
+                assert!(
+                    fractional * 2 > coords.len(),
+                    "{}: {fractional} of {} coordinates between pixels",
+                    plot.name,
+                    coords.len()
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn marker_numbers_never_share_a_row_closer_than_their_width() {
+        let xs = [100, 110, 130, 400, 405, 900];
+        let rows = tag_rows(&xs, 22);
+        for i in 0..xs.len() {
+            for j in 0..i {
+                if rows[i] == rows[j] {
+                    assert!(xs[i] - xs[j] >= 22, "{xs:?} {rows:?}");
+                }
+            }
+        }
+        assert_eq!(rows, [0, 1, 0, 0, 1, 0]);
+    }
+
+    #[test]
+    fn the_bode_markers_are_the_cutoffs_estimates_and_limits_in_frequency_order() {
+        let (a, req, _) = demo();
+        let marks = bode_marks(&a, &req);
+        let kinds: Vec<MarkKind> = marks.iter().map(|m| m.kind).collect();
+        assert_eq!(marks.len(), 6, "{marks:?}");
+        assert!(marks.windows(2).all(|w| w[0].f <= w[1].f));
+        assert_eq!(kinds.iter().filter(|k| **k == MarkKind::Limit).count(), 2);
+        assert_eq!(
+            marks.iter().find(|m| m.kind == MarkKind::Exact).unwrap().f,
+            a.low.f3db_hz.unwrap()
+        );
+    }
+
+    #[test]
+    fn far_roots_are_listed_not_drawn() {
+        let (a, _, _) = demo();
+        let (reach, note) = pz_window(&a);
+        assert_eq!(reach, a.high.f3db_hz.unwrap() * 100.0);
+        let far = a.poles.iter().chain(&a.zeros).filter(|r| r.magnitude_hz() > reach).count();
+        assert!(far > 0 && note.starts_with("Beyond "), "{note}");
+        // Each far root (a conjugate pair once) is named in the note.
+        assert_eq!(note.matches("GHz").count(), far, "{note}");
+    }
 }
