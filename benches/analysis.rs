@@ -105,6 +105,8 @@ fn main() {
         };
         let study =
             review::review(&d, &ReviewOptions { runs: 0, progress: &|_| {} }).unwrap().study;
+        let fixed: Vec<String> =
+            d.parts.iter().filter(|p| p.is_fixed()).map(|p| p.name.clone()).collect();
         let (t, runs) = median(
             || {
                 let analysis = analysis::analyze(&d).unwrap();
@@ -112,7 +114,7 @@ fn main() {
                 analysis::requirements::with_study(&mut requirements, &study);
                 let review = Review {
                     cautions: report::cautions::cautions(&d, &analysis),
-                    explanation: report::explain::explain(&analysis, Some(&study)),
+                    explanation: report::explain::explain(&analysis, Some(&study), &fixed),
                     analysis,
                     study: study.clone(),
                     requirements,

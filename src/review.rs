@@ -67,7 +67,9 @@ pub fn review(design: &Design, options: &ReviewOptions) -> Result<Review, Analys
     let mut checks = requirements::check(&design.requirements, &analysis);
     requirements::with_study(&mut checks, &study);
     let cautions = cautions::cautions(design, &analysis);
-    let explanation = explain::explain(&analysis, Some(&study));
+    let fixed: Vec<String> =
+        design.parts.iter().filter(|p| p.is_fixed()).map(|p| p.name.clone()).collect();
+    let explanation = explain::explain(&analysis, Some(&study), &fixed);
     Ok(Review { analysis, study, requirements: checks, cautions, explanation })
 }
 

@@ -79,6 +79,9 @@ fn part(kind: &str) -> Value {
         "distribution" => enumeration("uniform, or gaussian with σ = tolerance/3", DISTRIBUTIONS),
         "model" => text("name of an entry in `models`"),
         "note" => text("free text for the part list"),
+        "fixed" => {
+            json!({"type": "boolean", "description": "true for a part the design cannot change (a cable, the next stage's input): the review never advises changing it"})
+        }
         _ => node("terminal node"),
     });
     schema["description"] = json!(format!("a {kind}"));
@@ -166,9 +169,12 @@ pub fn design_schema() -> Value {
                 "revision" => json!({"anyOf": [{"type": "string"}, {"type": "number"}]}),
                 _ => text(k),
             }),
-            "environment" => {
-                object(ENVIRONMENT_KEYS, &[], |_| quantity("junction temperature, K or °C"))
-            }
+            "environment" => object(ENVIRONMENT_KEYS, &[], |k| match k {
+                "mains_powered" => {
+                    json!({"type": "boolean", "description": "true when the stage is built into mains-powered equipment (the safety caution then applies)"})
+                }
+                _ => quantity("junction temperature, K or °C"),
+            }),
             "params" => {
                 json!({"type": "object", "additionalProperties": quantity("a quantity or an expression over params"),
                                "propertyNames": {"pattern": "^[A-Za-z][A-Za-z0-9_]*$"}})

@@ -22,6 +22,8 @@ pub struct Design {
     pub meta: Meta,
     /// Junction temperature of the analysis, K.
     pub temperature_k: f64,
+    /// True when the stage is built into mains-powered equipment (`environment.mains_powered`).
+    pub mains_powered: bool,
     /// Named params in file order, evaluated.
     pub params: Vec<Param>,
     /// DC supplies, in file order.
@@ -119,6 +121,14 @@ pub struct Supply {
     pub voltage: Toleranced,
 }
 
+impl Part {
+    /// True when the design cannot change this part (see [`Part::fixed`]).
+    pub fn is_fixed(&self) -> bool {
+        self.fixed
+            || matches!(&self.kind, PartKind::Capacitor { role: Some(CapacitorRole::Load), .. })
+    }
+}
+
 /// The small-signal source: 0 V DC in series with its resistance.
 #[derive(Clone, Debug, Serialize)]
 pub struct Signal {
@@ -180,6 +190,10 @@ pub struct Part {
     pub kind: PartKind,
     /// Free text for the part list.
     pub note: Option<String>,
+    /// True for a part the design cannot change (a cable, the next stage's input): the
+    /// review never advises changing it. The load parts of `output` are always fixed, and
+    /// so is a capacitor with the `load` role.
+    pub fixed: bool,
 }
 
 /// A part's kind, value and connections.

@@ -192,11 +192,32 @@ fn standard_cautions(design: &Design, out: &mut Vec<Caution>) {
         "These are small-signal results for the stated models; confirm gain and bandwidth by \
          measurement on the built stage.",
     ));
-    out.push(standard(
-        "fixtures",
-        "Cable, probe and fixture capacitance add to any load modelled here; include them in the \
-         design when they are known.",
-    ));
+    // The cable note, only where the load is one: a load capacitance at the output.
+    let load_c: f64 = design
+        .parts
+        .iter()
+        .filter_map(|p| match &p.kind {
+            crate::design::PartKind::Capacitor {
+                value,
+                role: Some(crate::design::CapacitorRole::Load),
+                ..
+            } => Some(value.nominal),
+            crate::design::PartKind::Capacitor { value, .. } if p.name == "load.c" => {
+                Some(value.nominal)
+            }
+            _ => None,
+        })
+        .sum();
+    if load_c > 0.0 {
+        out.push(computed(
+            "fixtures",
+            format!(
+                "The load is modelled as {} of capacitance; a longer cable, a probe or a \
+                 fixture adds to it, and the upper cut-off moves with it.",
+                si(load_c, "F", 3)
+            ),
+        ));
+    }
     // The largest voltage between any two rails (ground included): ±40 V rails are 80 V apart.
     let top = design.supplies.iter().map(|s| s.voltage.nominal).fold(0.0, f64::max);
     let bottom = design.supplies.iter().map(|s| s.voltage.nominal).fold(0.0, f64::min);
@@ -211,12 +232,47 @@ fn standard_cautions(design: &Design, out: &mut Vec<Caution>) {
                 si(highest, "V", 3)
             ),
         ));
-    } else {
+    } else if design.mains_powered {
         out.push(standard(
             "hazardous_voltage",
-            "If this stage is built into mains-powered equipment or runs from hazardous voltages, \
-             the work needs qualified hands; local electrical codes and licensed practice take \
-             precedence over this document.",
+            "This stage is built into mains-powered equipment: the work needs qualified hands, \
+             and local electrical codes and licensed practice take precedence over this document.",
         ));
+    }
+}
+
+#[cfg(test)]
+mod standard_note_tests {
+    use super::*;
+
+    fn keys_of(text: &str) -> Vec<&'static str> {
+        let d = crate::design::load(text).design.expect("a valid design");
+        let a = crate::analysis::analyze(&d).expect("analysis");
+        cautions(&d, &a).iter().map(|c| c.key).collect()
+    }
+
+    fn divider(environment: &str, load: &str) -> String {
+        format!(
+            "tauweave: 1\ndesign: {{id: t, title: T, revision: A, date: 2026-12-01}}\n{environment}\
+             supplies: {{vcc: 9 V}}\nsignal: {{at: in, resistance: 50}}\noutput: {{at: out{load}}}\n\
+             parts:\n  R0: {{kind: resistor, value: 10k, between: [vcc, in]}}\n  \
+             R1: {{kind: resistor, value: 1k, between: [in, out]}}\n  \
+             R2: {{kind: resistor, value: 1k, between: [out, gnd]}}\n"
+        )
+    }
+
+    #[test]
+    fn the_safety_note_needs_hazardous_supplies_or_mains() {
+        assert!(!keys_of(&divider("", "")).contains(&"hazardous_voltage"));
+        let mains = divider("environment: {mains_powered: true}\n", "");
+        assert!(keys_of(&mains).contains(&"hazardous_voltage"));
+        let high = divider("", "").replace("vcc: 9 V", "vcc: 120 V");
+        assert!(keys_of(&high).contains(&"hazardous_voltage"));
+    }
+
+    #[test]
+    fn the_cable_note_needs_a_load_capacitance() {
+        assert!(!keys_of(&divider("", "")).contains(&"fixtures"));
+        assert!(keys_of(&divider("", ", load_capacitance: 100 pF")).contains(&"fixtures"));
     }
 }

@@ -1,6 +1,7 @@
 //! The computed explanation: which capacitor sets each cut-off and why, which estimate to
-//! trust and by how much, where a right-half-plane zero sits, and what would move the
-//! cut-off. Every sentence is chosen by the numbers and carries them.
+//! trust and by how much, where a right-half-plane zero sits when it is near enough to
+//! matter, and what would move the cut-off — said once, and never by changing a part the
+//! design marks fixed. Every sentence is chosen by the numbers and carries them.
 //!
 //! In: the [`Analysis`]. Out: paragraphs of Markdown. Formatting of numbers goes through
 //! [`crate::notation`].
@@ -36,46 +37,73 @@ fn signed_pct(x: f64) -> String {
     crate::notation::signed_percent(x, 2)
 }
 
-/// The explanation for `a`, with the strongest levers when a tolerance study ran.
-pub fn explain(a: &Analysis, study: Option<&Study>) -> Explanation {
-    let mut high = high(a);
-    let mut low = low(a);
+/// The explanation for `a`, with the strongest levers when a tolerance study ran; `fixed`
+/// names the parts the design cannot change.
+pub fn explain(a: &Analysis, study: Option<&Study>, fixed: &[String]) -> Explanation {
+    let mut high = high(a, study, fixed);
+    let mut low = low(a, study, fixed);
     if let Some(s) = study {
-        if let Some(t) = levers(s, "upper_cutoff", "f_H", true) {
-            high.push(t);
-        }
-        if let Some(t) = levers(s, "lower_cutoff", "f_L", false) {
-            low.push(t);
-        }
+        high.extend(levers(s, "upper_cutoff", "f_H", fixed));
+        low.extend(levers(s, "lower_cutoff", "f_L", fixed));
     }
     Explanation { high, low }
 }
 
-/// "The strongest levers on f_H: …; to raise f_H, lower X (−0.62 %/%)."
-fn levers(s: &Study, figure: &str, symbol: &str, up: bool) -> Option<String> {
-    let mut ranked: Vec<(&str, f64)> = s
+/// The levers on `figure` from the study, strongest first: (name, sensitivity).
+fn ranked(s: &Study, figure: &str) -> Vec<(String, f64)> {
+    let mut ranked: Vec<(String, f64)> = s
         .levers
         .iter()
         .enumerate()
-        .filter_map(|(i, l)| s.s(i, figure).map(|v| (l.lever.name.as_str(), v)))
+        .filter_map(|(i, l)| s.s(i, figure).map(|v| (l.lever.name.clone(), v)))
         .filter(|(_, v)| v.abs() >= 1e-3)
         .collect();
-    ranked.sort_by(|a, b| b.1.abs().total_cmp(&a.1.abs()).then(a.0.cmp(b.0)));
-    let (top, value) = *ranked.first()?;
-    let list: Vec<String> =
-        ranked.iter().take(4).map(|(n, v)| format!("{} {} %/%", cell(n), plain(*v, 3))).collect();
-    let verb = if (value < 0.0) == up { "lower" } else { "raise" };
-    let goal = if up { "raise" } else { "lower" };
+    ranked.sort_by(|a, b| b.1.abs().total_cmp(&a.1.abs()).then(a.0.cmp(&b.0)));
+    ranked
+}
+
+/// "The strongest levers on f_H (…): load.c −0.998 %/% (fixed), RC −0.498 %/%, …" — the
+/// list only; the advice is given once, with the capacitor that sets the cut-off.
+fn levers(s: &Study, figure: &str, symbol: &str, fixed: &[String]) -> Option<String> {
+    let ranked = ranked(s, figure);
+    if ranked.is_empty() {
+        return None;
+    }
+    let list: Vec<String> = ranked
+        .iter()
+        .take(4)
+        .map(|(n, v)| {
+            let mark = if fixed.contains(n) { " (fixed)" } else { "" };
+            format!("{} {} %/%{mark}", cell(n), plain(*v, 3))
+        })
+        .collect();
     Some(format!(
-        "The strongest levers on {symbol} (normalised sensitivity, % change of {symbol} per % change of \
-         the part): {}. To {goal} {symbol}, {verb} {} ({} %/%).",
-        list.join(", "),
-        cell(top),
-        plain(value, 3)
+        "The strongest levers on {symbol} (normalised sensitivity, % change of {symbol} per % \
+         change of the part): {}.",
+        list.join(", ")
     ))
 }
 
-fn high(a: &Analysis) -> Vec<String> {
+/// The strongest lever on `figure` the design may change, and whether to raise it, to move
+/// the figure up (`up`) or down.
+fn free_lever(
+    s: &Study,
+    figure: &str,
+    up: bool,
+    fixed: &[String],
+) -> Option<(String, f64, &'static str)> {
+    // Parts and model parameters only: temperature and supplies are conditions, not choices.
+    let (name, v) = ranked(s, figure).into_iter().find(|(n, _)| {
+        !fixed.contains(n)
+            && n != "temperature"
+            && !n.starts_with("supply ")
+            && n != "signal.resistance"
+    })?;
+    let verb = if (v < 0.0) == up { "lower" } else { "raise" };
+    Some((name, v, verb))
+}
+
+fn high(a: &Analysis, study: Option<&Study>, fixed: &[String]) -> Vec<String> {
     let h = &a.high;
     let mut caps: Vec<_> = h.octc.caps.iter().collect();
     if caps.is_empty() {
@@ -87,7 +115,7 @@ fn high(a: &Analysis) -> Vec<String> {
     if let Some(text) = right_half_plane_zero(a) {
         out.push(text);
     }
-    out.push(high_lever(caps[0]));
+    out.push(high_lever(caps[0], study, fixed));
     out
 }
 
@@ -200,7 +228,8 @@ fn high_estimate_accuracy(a: &Analysis) -> String {
     }
 }
 
-/// Where the nearest right-half-plane zero sits against the upper cut-off, if there is one.
+/// Where the nearest right-half-plane zero sits against the upper cut-off, when it is within
+/// a decade of it.
 fn right_half_plane_zero(a: &Analysis) -> Option<String> {
     let h = &a.high;
     let exact = h.f3db_hz;
@@ -210,13 +239,13 @@ fn right_half_plane_zero(a: &Analysis) -> Option<String> {
         .filter(|z| z.re_hz > 0.0)
         .min_by(|x, y| x.magnitude_hz().total_cmp(&y.magnitude_hz()))?;
     let f_z = z.magnitude_hz();
+    // A zero more than a decade above the band edge does not shape the band: not discussed.
     let place = match exact.map(|f| f_z / f) {
         Some(r) if r < 1.0 => "below the upper cut-off, inside the band".to_string(),
         Some(r) if r < 10.0 => {
             format!("only {}× above the cut-off, close enough to shape the band edge", plain(r, 3))
         }
-        Some(r) => format!("{}× above the cut-off, well clear of the band", plain(r, 3)),
-        None => "beyond the band".to_string(),
+        _ => return None,
     };
     let effect = if a.midband.gain < 0.0 {
         "above it the stage stops inverting and the phase keeps falling"
@@ -226,32 +255,43 @@ fn right_half_plane_zero(a: &Analysis) -> Option<String> {
     Some(format!("A right-half-plane zero sits at {}, {place}; {effect}.", si(f_z, "Hz", 4)))
 }
 
-/// What would raise the upper cut-off, from the capacitor that sets it.
-fn high_lever(top: &OpenCircuitCap) -> String {
-    let lever = if top.miller_factor.is_some_and(|m| m >= 2.0) {
-        format!(
-            "lower the gain across {} or the resistance driving its input side, or shrink the \
-             capacitance itself",
-            cell(&top.part)
-        )
-    } else {
-        format!(
-            "lower the {} that {} sees, or its capacitance",
-            si(top.r_ohm, "Ω", 3),
-            cell(&top.part)
-        )
+/// What would raise the upper cut-off, from the capacitor that sets it; through the
+/// resistance it sees and the strongest free lever when the capacitor is fixed.
+fn high_lever(top: &OpenCircuitCap, study: Option<&Study>, fixed: &[String]) -> String {
+    let name = cell(&top.part);
+    let free = study.and_then(|s| free_lever(s, "upper_cutoff", true, fixed));
+    let through = |verb: &str| match &free {
+        Some((lever, v, dir)) => format!(
+            "; the strongest lever the design may change is {}: {dir} it ({} %/%)",
+            cell(lever),
+            plain(*v, 3)
+        ),
+        None => format!("; {verb}"),
     };
-    if top.share >= 0.8 {
-        format!(
-            "To raise f_H, {lever}: with {} of the sum it sets f_H almost in proportion.",
-            pct(top.share)
-        )
+    let proportion = if top.share >= 0.8 {
+        format!("with {} of the sum it sets f_H almost in proportion", pct(top.share))
     } else {
         format!(
-            "To raise f_H, {lever}: the time-constant estimate moves by about {} % per % change of its time constant.",
+            "the time-constant estimate moves by about {} % per % change of its time constant",
             plain(top.share * 100.0, 2)
         )
+    };
+    if fixed.contains(&top.part) {
+        return format!(
+            "**{name}** is fixed, so f_H is raised through the {} it sees ({proportion}){}.",
+            si(top.r_ohm, "Ω", 3),
+            through("lower the resistances that set it")
+        );
     }
+    let lever = if top.miller_factor.is_some_and(|m| m >= 2.0) {
+        format!(
+            "lower the gain across {name} or the resistance driving its input side, or shrink the \
+             capacitance itself"
+        )
+    } else {
+        format!("lower the {} that {name} sees, or its capacitance", si(top.r_ohm, "Ω", 3))
+    };
+    format!("To raise f_H, {lever}: {proportion}.")
 }
 
 /// The estimate with the smallest error, if any has one.
@@ -266,7 +306,7 @@ fn quality(p: &RootHz) -> f64 {
     w / (2.0 * p.re_hz.abs())
 }
 
-fn low(a: &Analysis) -> Vec<String> {
+fn low(a: &Analysis, study: Option<&Study>, fixed: &[String]) -> Vec<String> {
     let l = &a.low;
     let mut out = Vec::new();
     let mut caps: Vec<_> = l.sctc.caps.iter().collect();
@@ -317,10 +357,24 @@ fn low(a: &Analysis) -> Vec<String> {
             ))
         ));
     }
-    out.push(format!(
-        "To lower f_L, enlarge {} or raise the {} it sees.",
-        cell(&top.part),
-        si(top.r_ohm, "Ω", 3)
-    ));
+    if fixed.contains(&top.part) {
+        let free = study.and_then(|s| free_lever(s, "lower_cutoff", false, fixed));
+        out.push(format!(
+            "**{}** is fixed, so f_L is lowered through the {} it sees{}.",
+            cell(&top.part),
+            si(top.r_ohm, "Ω", 3),
+            free.map_or(String::new(), |(lever, v, dir)| format!(
+                "; the strongest lever the design may change is {}: {dir} it ({} %/%)",
+                cell(&lever),
+                plain(v, 3)
+            ))
+        ));
+    } else {
+        out.push(format!(
+            "To lower f_L, enlarge {} or raise the {} it sees.",
+            cell(&top.part),
+            si(top.r_ohm, "Ω", 3)
+        ));
+    }
     out
 }

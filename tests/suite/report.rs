@@ -230,7 +230,9 @@ fn explanation_of(parts: &str, output: &str) -> (String, analysis::Analysis) {
     );
     let d = design::load(&text).design.expect("valid");
     let a = analysis::analyze(&d).expect("analysis");
-    (report::explain::explain(&a, None).high.join("\n"), a)
+    let fixed: Vec<String> =
+        d.parts.iter().filter(|p| p.is_fixed()).map(|p| p.name.clone()).collect();
+    (report::explain::explain(&a, None, &fixed).high.join("\n"), a)
 }
 
 #[test]
@@ -269,6 +271,29 @@ fn the_explanation_follows_the_circuit() {
         "o",
     );
     assert!(text.contains("set mainly by **CL**"), "{text}");
+    // A load capacitor is fixed: the advice goes through the resistance it sees, never
+    // "change CL"; and the right-half-plane zero at gm/C_gd (common practice), 32 GHz here,
+    // thousands of times above the cut-off, is not discussed.
+    assert!(text.contains("**CL** is fixed, so f_H is raised through the"), "{text}");
+    assert!(!text.contains("To raise f_H"), "{text}");
+    assert!(!text.contains("right-half-plane"), "{text}");
+}
+
+#[test]
+fn the_demo_explanation_gives_each_advice_once_and_spares_the_fixed_cable() {
+    let text = std::fs::read_to_string(root().join("designs/rx-preamp-ce.yaml")).unwrap();
+    let d = design::load(&text).design.unwrap();
+    let r =
+        tauweave::review::review(&d, &tauweave::review::ReviewOptions::quiet(&d, Some(0))).unwrap();
+    let high = r.explanation.high.join("\n");
+    // The cable (the output's load capacitance) sets f_H and is fixed: the advice names the
+    // strongest lever the design may change, RC (R_out ≈ RC ∥ r_o sets the 498 Ω, common
+    // practice), once.
+    assert!(high.contains("**load.c** is fixed"), "{high}");
+    assert_eq!(high.matches("strongest lever the design may change").count(), 1, "{high}");
+    assert!(high.contains("may change is RC: lower it"), "{high}");
+    assert!(high.contains("load.c −0.998 %/% (fixed)"), "{high}");
+    assert!(!high.contains("right-half-plane"), "the zero at 7.6 GHz is far from the band: {high}");
 }
 
 #[test]

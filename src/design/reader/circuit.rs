@@ -219,6 +219,7 @@ impl Reader<'_> {
                     value: Toleranced { nominal: r, tolerance: defaults.get("resistor").copied() },
                 },
                 note: Some("load resistance".into()),
+                fixed: true,
             });
         }
         if let Some(c) = cl {
@@ -230,6 +231,7 @@ impl Reader<'_> {
                     role: Some(CapacitorRole::Load),
                 },
                 note: Some("load capacitance".into()),
+                fixed: true,
             });
         }
         (Some(Output { positive, negative }), loads)
@@ -348,12 +350,29 @@ impl Reader<'_> {
         )?;
         f.get("kind");
         let note = f.get("note").and_then(|n| self.text_value(n, "note"));
+        let fixed = f.get("fixed").and_then(|n| self.flag(n, "fixed")).unwrap_or(false);
         let part_kind = match kind {
             "bjt" | "mosfet" => self.device_part(&mut f, &name, kind, models),
             _ => self.valued_part(&mut f, &name, kind, defaults),
         };
         f.finish(&mut self.diagnostics);
-        Some(Part { name, kind: part_kind?, note })
+        Some(Part { name, kind: part_kind?, note, fixed })
+    }
+
+    /// `true` or `false`.
+    pub(super) fn flag(&mut self, node: &Node, what: &str) -> Option<bool> {
+        match node.scalar() {
+            Some("true") => Some(true),
+            Some("false") => Some(false),
+            _ => {
+                self.push(
+                    Diagnostic::error("wrong_type", format!("`{what}` is `true` or `false`"))
+                        .at(node.span, format!("found `{}`", self.show(node)))
+                        .help(format!("write `{what}: true` for a part the design cannot change")),
+                );
+                None
+            }
+        }
     }
 
     pub(super) fn valued_part(

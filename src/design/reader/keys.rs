@@ -19,7 +19,7 @@ pub const TOP_KEYS: &[&str] = &[
 /// Keys of `design`.
 pub const META_KEYS: &[&str] = &["id", "title", "revision", "date", "author", "purpose"];
 /// Keys of `environment`.
-pub const ENVIRONMENT_KEYS: &[&str] = &["temperature"];
+pub const ENVIRONMENT_KEYS: &[&str] = &["temperature", "mains_powered"];
 /// Keys of `signal`.
 pub const SIGNAL_KEYS: &[&str] = &["at", "resistance", "band"];
 /// Keys of `signal.band`.
@@ -47,17 +47,17 @@ pub const PART_KINDS: &[&str] = &[
 ];
 /// Keys of a resistor or inductor.
 pub const TWO_TERMINAL_KEYS: &[&str] =
-    &["kind", "value", "between", "tolerance", "distribution", "note"];
+    &["kind", "value", "between", "tolerance", "distribution", "note", "fixed"];
 /// Keys of a capacitor.
 pub const CAPACITOR_KEYS: &[&str] =
-    &["kind", "value", "between", "role", "tolerance", "distribution", "note"];
+    &["kind", "value", "between", "role", "tolerance", "distribution", "note", "fixed"];
 /// Keys of a controlled source.
 pub const CONTROLLED_KEYS: &[&str] =
-    &["kind", "value", "between", "control", "tolerance", "distribution", "note"];
+    &["kind", "value", "between", "control", "tolerance", "distribution", "note", "fixed"];
 /// Keys of a bjt part.
-pub const BJT_KEYS: &[&str] = &["kind", "model", "c", "b", "e", "note"];
+pub const BJT_KEYS: &[&str] = &["kind", "model", "c", "b", "e", "note", "fixed"];
 /// Keys of a mosfet part.
-pub const MOSFET_KEYS: &[&str] = &["kind", "model", "d", "g", "s", "note"];
+pub const MOSFET_KEYS: &[&str] = &["kind", "model", "d", "g", "s", "note", "fixed"];
 /// Capacitor roles.
 pub const ROLES: &[&str] = &["coupling", "bypass", "parasitic", "load"];
 /// Model types.

@@ -171,7 +171,7 @@ impl Reader<'_> {
                 None
             }
         };
-        let temperature_k = self.environment(top.get_entry("environment"));
+        let (temperature_k, mains_powered) = self.environment(top.get_entry("environment"));
         let before_circuit = self.error_count();
         if let Some((_, node)) = top.get_entry("params") {
             self.read_params(node);
@@ -241,6 +241,7 @@ impl Reader<'_> {
             format: format.unwrap_or(1),
             meta: meta.unwrap_or(placeholder),
             temperature_k: temperature_k.unwrap_or(300.15),
+            mains_powered,
             params: self.param_list(root),
             supplies,
             signal: signal?,
@@ -418,19 +419,24 @@ impl Reader<'_> {
         Some(text)
     }
 
-    fn environment(&mut self, entry: Option<(&Key, &Node)>) -> Option<f64> {
+    /// The temperature, K, and whether the stage is built into mains-powered equipment.
+    fn environment(&mut self, entry: Option<(&Key, &Node)>) -> (Option<f64>, bool) {
         let default = 300.15; // 27 °C
-        let Some((key, node)) = entry else { return Some(default) };
-        let mut f = Fields::open(
+        let Some((key, node)) = entry else { return (Some(default), false) };
+        let Some(mut f) = Fields::open(
             node,
             "the `environment` section",
             ENVIRONMENT_KEYS,
             key.span,
             &mut self.diagnostics,
-        )?;
+        ) else {
+            return (None, false);
+        };
+        let mains =
+            f.get("mains_powered").and_then(|n| self.flag(n, "mains_powered")).unwrap_or(false);
         let t = match f.get("temperature") {
-            Some(n) => {
-                let t = self.quantity(n, TEMPERATURE)?;
+            Some(n) => 'read: {
+                let Some(t) = self.quantity(n, TEMPERATURE) else { break 'read None };
                 if !(1.0..=1000.0).contains(&t) {
                     self.push(
                         Diagnostic::error(
@@ -440,14 +446,14 @@ impl Reader<'_> {
                         .at(n.span, "out of range")
                         .help("give the junction temperature, e.g. `27 °C` or `330 K`"),
                     );
-                    return None;
+                    break 'read None;
                 }
                 Some(t)
             }
             None => Some(default),
         };
         f.finish(&mut self.diagnostics);
-        t
+        (t, mains)
     }
 }
 
