@@ -77,7 +77,10 @@ pub fn plain(value: f64, digits: usize) -> String {
 }
 
 /// A signed fraction as per cent with `digits` significant digits: `+9.001 %`, `−8.3 %`, `0 %`.
+/// A fraction below 1e-9 is rounding, not a difference: it prints as `0 %` (never
+/// `−0.0000000000000029 %`).
 pub fn signed_percent(fraction: f64, digits: usize) -> String {
+    let fraction = if fraction.abs() < 1e-9 { 0.0 } else { fraction };
     let text = plain(fraction * 100.0, digits);
     if text != "0" && fraction > 0.0 { format!("+{text} %") } else { format!("{text} %") }
 }
@@ -152,6 +155,13 @@ pub fn visible(text: &str) -> std::borrow::Cow<'_, str> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_rounding_level_fraction_prints_as_zero_per_cent() {
+        assert_eq!(signed_percent(-2.9e-17, 2), "0 %");
+        assert_eq!(signed_percent(-2.9e-7, 2), "−0.000029 %");
+        assert_eq!(signed_percent(0.0833, 3), "+8.33 %");
+    }
 
     #[test]
     fn scientific_form() {

@@ -226,12 +226,20 @@ pub fn analysis_text(a: &Analysis) -> String {
 
     let h = &a.high;
     let _ = writeln!(out, "\nupper cut-off");
-    let est = crate::report::tables::high_estimate_rows(h);
-    out.push_str(&render(
-        2,
-        &[("", Align::Left), ("f_high", Align::Right), ("error", Align::Right)],
-        &est,
-    ));
+    if h.octc.caps.is_empty() {
+        let _ = writeln!(
+            out,
+            "  none: the design has no high-frequency capacitance, so nothing limits the \
+             bandwidth at the high end"
+        );
+    } else {
+        let est = crate::report::tables::high_estimate_rows(h);
+        out.push_str(&render(
+            2,
+            &[("", Align::Left), ("f_high", Align::Right), ("error", Align::Right)],
+            &est,
+        ));
+    }
     if let Some(d) = h.dominance_ratio {
         let _ = writeln!(
             out,
@@ -263,12 +271,19 @@ pub fn analysis_text(a: &Analysis) -> String {
 
     let l = &a.low;
     let _ = writeln!(out, "\nlower cut-off");
-    let est = crate::report::tables::low_estimate_rows(l);
-    out.push_str(&render(
-        2,
-        &[("", Align::Left), ("f_low", Align::Right), ("error", Align::Right)],
-        &est,
-    ));
+    if l.sctc.caps.is_empty() {
+        let _ = writeln!(
+            out,
+            "  none: no coupling or bypass capacitor, so the response extends to DC"
+        );
+    } else {
+        let est = crate::report::tables::low_estimate_rows(l);
+        out.push_str(&render(
+            2,
+            &[("", Align::Left), ("f_low", Align::Right), ("error", Align::Right)],
+            &est,
+        ));
+    }
     let rows = crate::report::tables::sctc_rows(l);
     if !rows.is_empty() {
         let _ = writeln!(out);

@@ -268,7 +268,10 @@ fn cut_off_tables(t: &mut BTreeMap<&'static str, String>, a: &Analysis) {
         h.b2_s2.map_or_else(absent, |b| scientific(b, "s²", 4)),
         h.dominance_ratio.map_or_else(absent, |d| plain(d, 3))
     ));
-    t.insert("high_estimates", high_est);
+    // No capacitor on a side: nothing to estimate; the explanation says why.
+    if !h.octc.caps.is_empty() {
+        t.insert("high_estimates", high_est);
+    }
     let escaped = |mut rows: Vec<Vec<String>>| {
         for r in rows.iter_mut() {
             r[0] = cell(&r[0]);
@@ -284,10 +287,12 @@ fn cut_off_tables(t: &mut BTreeMap<&'static str, String>, a: &Analysis) {
         ),
     );
     let l = &a.low;
-    t.insert(
-        "low_estimates",
-        markdown_table(&["lower cut-off", "f_L", "error"], "lrr", low_estimate_rows(l)),
-    );
+    if !l.sctc.caps.is_empty() {
+        t.insert(
+            "low_estimates",
+            markdown_table(&["lower cut-off", "f_L", "error"], "lrr", low_estimate_rows(l)),
+        );
+    }
     t.insert(
         "sctc",
         markdown_table(
