@@ -163,9 +163,13 @@ strong { font-weight: 700; }
 @media (max-width: 60rem) { body { display: block; } nav.toc { position: static; margin-bottom: 1.5rem; } }
 @media print {
   body { display: block; padding: 0; font-size: 10.5pt; }
-  nav.toc { position: static; border: none; padding: 0; break-after: page; }
-  h2 { break-after: avoid; }
-  figure, table { break-inside: avoid; }
+  nav.toc { position: static; border: none; padding: 0 0 0.6em; columns: 2; font-size: 9pt;
+    border-bottom: 1px solid var(--rule); margin-bottom: 1em; }
+  nav.toc h2 { column-span: all; }
+  h2, h3 { break-after: avoid; }
+  figure { break-inside: avoid; }
+  thead { display: table-header-group; }
+  tr, figcaption { break-inside: avoid; }
   tbody tr:nth-child(even) { background: none; }
   a { color: inherit; text-decoration: none; }
 }

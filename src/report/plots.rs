@@ -75,7 +75,7 @@ pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study
     let mut out = Vec::new();
     let extra = study.map(|s| (tornado(s), histograms(s, requirements)));
     if let Some(svg) = bode(a, requirements) {
-        out.push(Plot { name: "bode", caption: "Bode plot: magnitude and phase of the exact response, with the −3 dB points (solid), the time-constant estimates (dashed) and the requirement limits (dotted).".into(), svg });
+        out.push(Plot { name: "bode", caption: "Bode plot: magnitude and phase of the exact response; the numbered lines are the exact −3 dB points (solid), the time-constant estimates (dashed) and the requirement limits (dotted), each named in the legend with the band and the gain window.".into(), svg });
     }
     if let Some(svg) = pole_zero(a) {
         out.push(Plot {
