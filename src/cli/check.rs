@@ -272,10 +272,8 @@ pub fn analysis_text(a: &Analysis) -> String {
     let l = &a.low;
     let _ = writeln!(out, "\nlower cut-off");
     if l.sctc.caps.is_empty() {
-        let _ = writeln!(
-            out,
-            "  none: no coupling or bypass capacitor, so the response extends to DC"
-        );
+        let _ =
+            writeln!(out, "  none: no coupling or bypass capacitor, so the response extends to DC");
     } else {
         let est = crate::report::tables::low_estimate_rows(l);
         out.push_str(&render(

@@ -79,8 +79,43 @@ fn body(markdown: &str) -> (String, Vec<(u8, String, String)>) {
         i += 1;
     }
     let mut html_out = String::new();
-    html::push_html(&mut html_out, out_events.into_iter());
+    html::push_html(&mut html_out, subscripts(out_events).into_iter());
     (html_out, toc)
+}
+
+/// Running text with its engineering symbols set as subscripts (`f_H` → f<sub>H</sub>); code
+/// blocks keep their text as written.
+fn subscripts(events: Vec<Event<'_>>) -> Vec<Event<'_>> {
+    let mut out = Vec::with_capacity(events.len());
+    let mut in_code = false;
+    for e in events {
+        match e {
+            Event::Start(Tag::CodeBlock(_)) => {
+                in_code = true;
+                out.push(e);
+            }
+            Event::End(TagEnd::CodeBlock) => {
+                in_code = false;
+                out.push(e);
+            }
+            Event::Text(t) if !in_code => {
+                for seg in crate::report::symbol_segments(&t) {
+                    match seg {
+                        crate::report::Segment::Plain(p) => {
+                            out.push(Event::Text(p.to_string().into()))
+                        }
+                        crate::report::Segment::Subscripted(base, sub) => {
+                            out.push(Event::InlineHtml(
+                                format!("{}<sub>{}</sub>", escape(base), escape(sub)).into(),
+                            ))
+                        }
+                    }
+                }
+            }
+            e => out.push(e),
+        }
+    }
+    out
 }
 
 fn sanitise(html: &str) -> String {

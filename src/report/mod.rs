@@ -146,3 +146,94 @@ pub fn tidy_blank_lines(text: &str) -> String {
     }
     out
 }
+
+/// A piece of running text as it is typeset: plain, or a symbol with a subscript.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Segment<'a> {
+    /// Text as it is.
+    Plain(&'a str),
+    /// A one-letter symbol and its subscript: `f_H`, `V_CE`, `R_π0`, `S_i`.
+    Subscripted(&'a str, &'a str),
+}
+
+/// The symbols the review writes with an underscore, whose part after `_` is typeset as a
+/// subscript. Only these: a designer's own `c_d` in a title stays as written.
+pub const SUBSCRIPTED: &[&str] = &[
+    "f_H", "f_L", "f_T", "f_p", "f_z", "V_CE", "V_BE", "V_BC", "V_GS", "V_DS", "V_T", "V_th",
+    "V_ov", "I_C", "I_D", "I_B", "I_S", "R_in", "R_out", "R_s", "R_L", "R_π0", "R_μ0", "R_CL0",
+    "r_o", "r_π", "g_m", "C_π", "C_μ", "C_L", "C_gs", "C_gd", "C_db", "S_i", "t_i", "E_g", "k_B",
+];
+
+/// Splits `text` at the engineering symbols of [`SUBSCRIPTED`] standing as a word of their
+/// own, so the exporters can set the part after `_` as a subscript. Names that merely hold
+/// an underscore (`early_voltage`, `midband_gain`, `Q1.bias_current`) stay plain.
+pub fn symbol_segments(text: &str) -> Vec<Segment<'_>> {
+    let chars: Vec<(usize, char)> = text.char_indices().collect();
+    let word = |c: char| c.is_alphanumeric() || c == '_' || c == '.';
+    let sub_char = |c: char| c.is_alphanumeric() || c == '\'';
+    let mut out = Vec::new();
+    let mut plain_from = 0;
+    let mut k = 0;
+    while k + 1 < chars.len() {
+        let (at, c) = chars[k];
+        let starts_word = k == 0 || !word(chars[k - 1].1);
+        if starts_word && c.is_alphabetic() && chars[k + 1].1 == '_' {
+            let mut end = k + 2;
+            while end < chars.len() && sub_char(chars[end].1) && end - (k + 2) < 3 {
+                end += 1;
+            }
+            let length = end - (k + 2);
+            let ends_word = end == chars.len() || !(word(chars[end].1) && chars[end].1 != '.');
+            let sub_end = chars.get(end).map_or(text.len(), |(i, _)| *i);
+            let known = SUBSCRIPTED.contains(&&text[at..sub_end]);
+            if length >= 1 && ends_word && known {
+                if plain_from < at {
+                    out.push(Segment::Plain(&text[plain_from..at]));
+                }
+                let sub_start = chars[k + 2].0;
+                out.push(Segment::Subscripted(
+                    &text[at..chars[k + 1].0],
+                    &text[sub_start..sub_end],
+                ));
+                plain_from = sub_end;
+                k = end;
+                continue;
+            }
+        }
+        k += 1;
+    }
+    if plain_from < text.len() {
+        out.push(Segment::Plain(&text[plain_from..]));
+    }
+    out
+}
+
+#[cfg(test)]
+mod symbol_tests {
+    use super::Segment::{Plain, Subscripted};
+    use super::*;
+
+    #[test]
+    fn engineering_symbols_get_subscripts_and_names_do_not() {
+        assert_eq!(
+            symbol_segments("f_H = 1 MHz, V_CE 6 V, R_π0."),
+            vec![
+                Subscripted("f", "H"),
+                Plain(" = 1 MHz, "),
+                Subscripted("V", "CE"),
+                Plain(" 6 V, "),
+                Subscripted("R", "π0"),
+                Plain("."),
+            ]
+        );
+        assert_eq!(
+            symbol_segments("Σ|S_i|·t_i"),
+            vec![Plain("Σ|"), Subscripted("S", "i"), Plain("|·"), Subscripted("t", "i")]
+        );
+        for plain in
+            ["RFN1.early_voltage", "midband_gain", "Q1.bias_current", "x_long_name", "a_bcde"]
+        {
+            assert_eq!(symbol_segments(plain), vec![Plain(plain)], "{plain}");
+        }
+    }
+}

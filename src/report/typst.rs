@@ -383,7 +383,16 @@ impl<'p> Writer<'p> {
         match event {
             Event::Start(tag) => self.start(tag),
             Event::End(tag) => self.end(*tag),
-            Event::Text(t) => self.out.push_str(&escape(t)),
+            Event::Text(t) => {
+                for seg in crate::report::symbol_segments(t) {
+                    match seg {
+                        crate::report::Segment::Plain(p) => self.out.push_str(&escape(p)),
+                        crate::report::Segment::Subscripted(base, sub) => {
+                            self.out.push_str(&format!("{}#sub[{}]", escape(base), escape(sub)));
+                        }
+                    }
+                }
+            }
             Event::Code(t) => self.inline_raw(t),
             Event::InlineMath(t) => self.out.push_str(&escape(&format!("${t}$"))),
             Event::DisplayMath(t) => self.out.push_str(&escape(&format!("$${t}$$"))),

@@ -317,3 +317,18 @@ fn a_template_error_names_the_place_and_writes_nothing() {
     assert!(shown.status.success());
     assert_eq!(String::from_utf8_lossy(&shown.stdout), tauweave::report::template::BUILT_IN);
 }
+
+/// Issue 14: the review's symbols are typeset, f_H as f with a subscript H, in the HTML and
+/// in the typst source of the PDF; a name that only holds an underscore stays as written.
+#[test]
+fn symbols_are_typeset_with_subscripts() {
+    let dir = scratch("subscripts");
+    let design = root().join("designs/rx-preamp-ce.yaml");
+    let o = run_in(&dir, &["render", design.to_str().unwrap(), "--runs", "0", "--out", "o"]);
+    assert_eq!(o.status.code(), Some(0), "{}", String::from_utf8_lossy(&o.stderr));
+    let html = std::fs::read_to_string(dir.join("o/report.html")).unwrap();
+    assert!(html.contains("f<sub>H</sub>"), "f_H in the HTML");
+    assert!(html.contains("early_voltage"), "a parameter name is not a symbol");
+    let typ = std::fs::read_to_string(dir.join("o/report.typ")).unwrap();
+    assert!(typ.contains("f#sub[H]"), "f_H in the typst source");
+}
