@@ -308,6 +308,35 @@ fn decade_label(v: f64, unit: &str) -> String {
     si(v, unit, 3)
 }
 
+/// The runs of a log-frequency trace at or above `floor`, each cut where it crosses the
+/// floor (the crossing interpolated in log frequency), so a plot can leave its frame.
+fn above(points: impl Iterator<Item = (f64, f64)>, floor: f64) -> Vec<Vec<(f64, f64)>> {
+    let mut runs: Vec<Vec<(f64, f64)>> = Vec::new();
+    let mut current: Vec<(f64, f64)> = Vec::new();
+    let mut last: Option<(f64, f64)> = None;
+    for (f, y) in points {
+        if let Some((f0, y0)) = last {
+            if (y0 >= floor) != (y >= floor) {
+                let t = (floor - y0) / (y - y0);
+                let fc = 10f64.powf(f0.log10() + t * (f.log10() - f0.log10()));
+                current.push((fc, floor));
+                if y < floor {
+                    runs.push(std::mem::take(&mut current));
+                }
+            }
+        }
+        if y >= floor {
+            current.push((f, y));
+        }
+        last = Some((f, y));
+    }
+    if current.len() >= 2 {
+        runs.push(current);
+    }
+    runs.retain(|r| r.len() >= 2);
+    runs
+}
+
 /// How a vertical marker of the Bode plot is drawn, and what the legend calls it.
 #[derive(Clone, Copy, Debug, PartialEq)]
 enum MarkKind {
@@ -473,6 +502,7 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
         let (lower, key) = rest.split_vertically(px(220));
         let mut mag = ChartBuilder::on(&upper)
             .margin(px(14))
+            .margin_right(px(34))
             .x_label_area_size(px(28))
             .y_label_area_size(px(64))
             .build_cartesian_2d((f0..f1).log_scale(), bottom..top)
@@ -483,7 +513,7 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
             .axis_style(MID.stroke_width(px(1)))
             .set_all_tick_mark_size(px(5))
             .x_label_formatter(&|v| decade_label(*v, "Hz"))
-            .y_label_formatter(&|v| format!("{v:.0} dB"))
+            .y_label_formatter(&|v| format!("{v:.0} dB").replace('-', "−"))
             .label_style(style(12))
             .y_desc("|H|")
             .axis_desc_style(style(13))
@@ -531,11 +561,10 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
             ))
             .ok()?;
         }
-        mag.draw_series(LineSeries::new(
-            sweep.iter().map(|p| (p.frequency_hz, p.magnitude_db)),
-            INK.stroke_width(px(2)),
-        ))
-        .ok()?;
+        // The trace leaves the frame where it falls below it, never runs along its floor.
+        for segment in above(sweep.iter().map(|p| (p.frequency_hz, p.magnitude_db)), bottom) {
+            mag.draw_series(LineSeries::new(segment, INK.stroke_width(px(2)))).ok()?;
+        }
         // The marker numbers, in the headroom at the top, stacked where they would touch.
         let xs: Vec<i32> = marks.iter().map(|m| mag.backend_coord(&(m.f, top)).0).collect();
         let rows = tag_rows(&xs, px(22) as i32);
@@ -546,6 +575,7 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
         }
         let mut phase = ChartBuilder::on(&lower)
             .margin(px(14))
+            .margin_right(px(34))
             .x_label_area_size(px(30))
             .y_label_area_size(px(64))
             .build_cartesian_2d((f0..f1).log_scale(), ph_lo..ph_hi)
@@ -557,7 +587,7 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
             .axis_style(MID.stroke_width(px(1)))
             .set_all_tick_mark_size(px(5))
             .x_label_formatter(&|v| decade_label(*v, "Hz"))
-            .y_label_formatter(&|v| format!("{v:.0}°"))
+            .y_label_formatter(&|v| format!("{v:.0}°").replace('-', "−"))
             .label_style(style(12))
             .y_desc("phase")
             .x_desc("frequency")
@@ -917,6 +947,7 @@ pub fn bode_overlay(
         let (upper, lower) = root.split_vertically(px(340));
         let mut mag = ChartBuilder::on(&upper)
             .margin(px(14))
+            .margin_right(px(34))
             .x_label_area_size(px(28))
             .y_label_area_size(px(64))
             .build_cartesian_2d((f0..f1).log_scale(), bottom..top)
@@ -927,7 +958,7 @@ pub fn bode_overlay(
             .axis_style(MID.stroke_width(px(1)))
             .set_all_tick_mark_size(px(5))
             .x_label_formatter(&|v| decade_label(*v, "Hz"))
-            .y_label_formatter(&|v| format!("{v:.0} dB"))
+            .y_label_formatter(&|v| format!("{v:.0} dB").replace('-', "−"))
             .label_style(style(12))
             .y_desc("|H|")
             .axis_desc_style(style(13))
@@ -943,7 +974,9 @@ pub fn bode_overlay(
             earlier,
         ))
         .ok()?;
-        mag.draw_series(LineSeries::new(line(after, |p| p.magnitude_db), later)).ok()?;
+        for segment in above(after.iter().map(|p| (p.frequency_hz, p.magnitude_db)), bottom) {
+            mag.draw_series(LineSeries::new(segment, later)).ok()?;
+        }
         // The legend, in the panel's top-right corner, in pixels.
         let (w, _) = upper.dim_in_pixel();
         let p = |n: i32| n * px(1) as i32;
@@ -968,6 +1001,7 @@ pub fn bode_overlay(
         }
         let mut phase = ChartBuilder::on(&lower)
             .margin(px(14))
+            .margin_right(px(34))
             .x_label_area_size(px(30))
             .y_label_area_size(px(64))
             .build_cartesian_2d((f0..f1).log_scale(), ph_lo..ph_hi)
@@ -979,7 +1013,7 @@ pub fn bode_overlay(
             .axis_style(MID.stroke_width(px(1)))
             .set_all_tick_mark_size(px(5))
             .x_label_formatter(&|v| decade_label(*v, "Hz"))
-            .y_label_formatter(&|v| format!("{v:.0}°"))
+            .y_label_formatter(&|v| format!("{v:.0}°").replace('-', "−"))
             .label_style(style(12))
             .y_desc("phase")
             .x_desc("frequency")
@@ -1040,6 +1074,17 @@ mod tests {
                 );
             }
         }
+    }
+
+    #[test]
+    fn a_trace_below_the_floor_leaves_the_frame_instead_of_running_along_it() {
+        let trace = [(1.0, 0.0), (10.0, -20.0), (100.0, -60.0), (1000.0, -20.0)];
+        let runs = above(trace.into_iter(), -40.0);
+        assert_eq!(runs.len(), 2, "{runs:?}");
+        // −20 → −60 over one decade crosses −40 half way: at √10 × 10 Hz.
+        let cut = runs[0].last().unwrap();
+        assert!((cut.0 - 10f64.powf(1.5)).abs() < 1e-9 && cut.1 == -40.0, "{cut:?}");
+        assert!(runs.iter().flatten().all(|p| p.1 >= -40.0));
     }
 
     #[test]
