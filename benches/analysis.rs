@@ -102,6 +102,7 @@ fn main() {
             design_text: &text,
             template: &tpl,
             built_in_template: true,
+            schematic: None,
         };
         let study =
             review::review(&d, &ReviewOptions { runs: 0, progress: &|_| {} }).unwrap().study;
@@ -162,6 +163,7 @@ fn main() {
         design_text: &text,
         template: &tpl,
         built_in_template: true,
+        schematic: None,
     };
     let files = report::render(&d, &review, &inputs, &FORMATS).unwrap();
     println!(

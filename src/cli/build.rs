@@ -16,6 +16,7 @@ use crate::cli::progress;
 use crate::cli::source::{LoadedFile, analysis_failure, load_file, template_source};
 use crate::report::export::{self, Exporter};
 use crate::report::manifest::{self, Recipe};
+use crate::report::plots::Supplied;
 use crate::report::template::TemplateSource;
 use crate::report::typst::Paper;
 use crate::report::{self, Inputs, OutputFile, write};
@@ -114,6 +115,44 @@ pub struct BuildOptions {
     pub paper: PaperSize,
     /// The typst program, when named on the command line.
     pub typst: Option<PathBuf>,
+    /// Where the design's schematic drawing is read from.
+    pub drawings: Drawings,
+}
+
+/// Where a design's schematic drawing is read from.
+#[derive(Clone, Debug)]
+pub enum Drawings {
+    /// The folder holding the design file: the path the design gives is relative to it.
+    BesideDesign(PathBuf),
+    /// A rendered folder: its archived copy, `inputs/schematic.svg` or `.png`.
+    Archived(PathBuf),
+}
+
+/// Where a schematic named `name` is archived in a rendered folder.
+pub fn schematic_copy(name: &str) -> String {
+    let png = name.to_ascii_lowercase().ends_with(".png");
+    format!("inputs/schematic.{}", if png { "png" } else { "svg" })
+}
+
+/// The design's schematic, read from where `drawings` says, or the failure to read it.
+fn read_schematic(
+    design: &crate::design::Design,
+    drawings: &Drawings,
+) -> Result<Option<Supplied>, Failure> {
+    let Some(name) = &design.meta.schematic else { return Ok(None) };
+    let path = schematic_copy(name);
+    let from = match drawings {
+        Drawings::BesideDesign(dir) => dir.join(name),
+        Drawings::Archived(folder) => folder.join(&path),
+    };
+    let bytes = std::fs::read(&from).map_err(|e| {
+        Failure::input(
+            format_args!("cannot read the schematic `{}`: {e}", from.display()),
+            Some("put the drawing where `design.schematic` says (relative to the design file), or remove the key"),
+        )
+    })?;
+    let mime = if path.ends_with(".png") { "image/png" } else { "image/svg+xml" };
+    Ok(Some(Supplied { path, mime, bytes }))
 }
 
 /// A render in memory.
@@ -145,11 +184,13 @@ pub fn build(
     let runs = options.runs.unwrap_or(design.analysis.monte_carlo_runs);
     let review = progress::review(design, runs)
         .map_err(|e| Failure::Input(format!("{notes}{}", analysis_failure(file, &e))))?;
+    let schematic = read_schematic(design, &options.drawings)?;
     let inputs = Inputs {
         design_name: &file.name,
         design_text: &file.text,
         template,
         built_in_template: built_in,
+        schematic: schematic.as_ref(),
     };
     let exporters = options.format.exporters(options.paper.paper());
     let exporters: Vec<&dyn Exporter> = exporters.iter().map(Box::as_ref).collect();
@@ -158,7 +199,7 @@ pub fn build(
     let mut pdf_problem = None;
     let mut typst_version = None;
     if options.format.has_pdf() {
-        match make_pdf(&files, options, &design.meta.date) {
+        match make_pdf(&files, schematic.as_ref(), options, &design.meta.date) {
             Ok((version, pdf)) => {
                 if !pdf.warnings.is_empty() {
                     notes.push_str(&format!(
@@ -182,7 +223,9 @@ pub fn build(
         paper: options.paper.name().into(),
         typst: typst_version.clone(),
     };
-    let files = manifest::seal(files, recipe, &file.text, (!built_in).then_some(&*template.text));
+    let extra: Vec<(String, Vec<u8>)> = schematic.into_iter().map(|s| (s.path, s.bytes)).collect();
+    let files =
+        manifest::seal(files, recipe, &file.text, (!built_in).then_some(&*template.text), &extra);
     let failing = review.failing_names();
     Ok(Built { id: design.meta.id.clone(), files, pdf_problem, typst_version, notes, failing })
 }
@@ -191,15 +234,18 @@ pub fn build(
 /// made it.
 fn make_pdf(
     files: &[OutputFile],
+    schematic: Option<&Supplied>,
     options: &BuildOptions,
     date: &str,
 ) -> Result<(String, pdf::Compiled), PdfProblem> {
     let typst = pdf::find(options.typst.as_deref())?;
-    let sources: Vec<OutputFile> = files
+    let mut sources: Vec<OutputFile> = files
         .iter()
         .filter(|f| f.path == report::TYPST_FILE || f.path.starts_with("plots/"))
         .cloned()
         .collect();
+    // The schematic is referenced by its archived path, so typst reads the same bytes.
+    sources.extend(schematic.map(|s| OutputFile { path: s.path.clone(), bytes: s.bytes.clone() }));
     let pdf = pdf::compile(&typst, &sources, date)?;
     Ok((typst.version, pdf))
 }

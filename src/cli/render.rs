@@ -9,7 +9,9 @@ use std::path::PathBuf;
 
 use clap::Args;
 
-use crate::cli::build::{BuildOptions, Format, PaperSize, RenderJob, pdf_fatal, render_and_write};
+use crate::cli::build::{
+    BuildOptions, Drawings, Format, PaperSize, RenderJob, pdf_fatal, render_and_write,
+};
 use crate::cli::{Failure, Outcome};
 
 /// Flags of `tauweave render`.
@@ -52,6 +54,12 @@ impl RenderArgs {
                 runs: self.runs,
                 paper: self.paper,
                 typst: self.typst.clone(),
+                drawings: Drawings::BesideDesign(
+                    self.design
+                        .parent()
+                        .filter(|p| !p.as_os_str().is_empty())
+                        .map_or_else(|| std::path::PathBuf::from("."), |p| p.to_path_buf()),
+                ),
             },
         }
     }

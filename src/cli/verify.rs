@@ -13,7 +13,7 @@ use std::path::PathBuf;
 
 use clap::Args;
 
-use crate::cli::build::{BuildOptions, Format, PaperSize, build};
+use crate::cli::build::{BuildOptions, Drawings, Format, PaperSize, build};
 use crate::cli::pdf;
 use crate::cli::source::LoadedFile;
 use crate::cli::{Failure, Level, Outcome, out, problem};
@@ -82,6 +82,7 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
         paper: PaperSize::from_name(&recipe.paper)
             .ok_or_else(|| unusable(format!("unknown paper `{}` in the manifest", recipe.paper)))?,
         typst: args.typst.clone(),
+        drawings: Drawings::Archived(args.dir.clone()),
     };
     if m.version != env!("CARGO_PKG_VERSION") {
         eprintln!(

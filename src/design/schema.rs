@@ -167,6 +167,9 @@ pub fn design_schema() -> Value {
                 "id" => json!({"type": "string", "pattern": "^[A-Za-z0-9][A-Za-z0-9._-]*$"}),
                 "date" => json!({"type": "string", "pattern": "^[0-9]{4}-[0-9]{2}-[0-9]{2}$"}),
                 "revision" => json!({"anyOf": [{"type": "string"}, {"type": "number"}]}),
+                "schematic" => {
+                    json!({"type": "string", "pattern": "^[^/].*\\.([sS][vV][gG]|[pP][nN][gG])$", "description": "a schematic drawing (.svg or .png) relative to the design file"})
+                }
                 _ => text(k),
             }),
             "environment" => object(ENVIRONMENT_KEYS, &[], |k| match k {

@@ -60,6 +60,9 @@ pub struct Meta {
     pub author: Option<String>,
     /// What the stage is for.
     pub purpose: Option<String>,
+    /// A schematic drawing (`.svg` or `.png`), relative to the design file: shown near the
+    /// top of the review and archived with it.
+    pub schematic: Option<String>,
 }
 
 /// A named param.

@@ -971,6 +971,7 @@ pub fn render(
                   one black and solid."
             .into(),
         svg: svg.clone(),
+        file: None,
     });
     let blocks = Blocks {
         tables: tables(change),

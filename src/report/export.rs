@@ -97,8 +97,8 @@ impl Exporter for Markdown {
         let page = doc.page();
         let mut md = page.markdown.clone();
         for p in &page.plots {
-            md = md
-                .replace(&plot_marker(p.name), &format!("![{}](plots/{}.svg)", p.caption, p.name));
+            let path = p.file.as_ref().map_or(format!("plots/{}.svg", p.name), |f| f.path.clone());
+            md = md.replace(&plot_marker(p.name), &format!("![{}]({path})", p.caption));
         }
         let mut files = plot_files(page);
         files.push(file("report.md", md));
@@ -133,9 +133,14 @@ impl Exporter for Typst {
     }
 }
 
-/// plots/NAME.svg of every plot: report.md and report.typ both reference them.
+/// plots/NAME.svg of every plot tauweave draws: report.md and report.typ both reference
+/// them (a supplied drawing is an input copy, written with the manifest).
 fn plot_files(page: &Page) -> Vec<OutputFile> {
-    page.plots.iter().map(|p| file(&format!("plots/{}.svg", p.name), p.svg.clone())).collect()
+    page.plots
+        .iter()
+        .filter(|p| p.file.is_none())
+        .map(|p| file(&format!("plots/{}.svg", p.name), p.svg.clone()))
+        .collect()
 }
 
 fn file(path: &str, text: String) -> OutputFile {

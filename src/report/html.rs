@@ -2,6 +2,7 @@
 //! sanitised by ammonia, plots spliced in afterwards as inline SVG, wrapped in one
 //! self-contained page with inline CSS, a print stylesheet and a table of contents.
 
+use base64::Engine as _;
 use pulldown_cmark::{Event, HeadingLevel, Options, Parser, Tag, TagEnd, html};
 
 use crate::report::plots::Plot;
@@ -140,10 +141,23 @@ pub fn page(title: &str, markdown: &str, plots: &[Plot]) -> String {
     let (raw, toc) = body(markdown);
     let mut main = sanitise(&raw);
     for p in plots {
+        // A supplied drawing goes in as an image, never inline: its SVG could carry scripts.
+        let drawing = match &p.file {
+            Some(f) => format!(
+                "<img alt=\"{}\" src=\"data:{};base64,{}\">",
+                escape(&p.caption),
+                f.mime,
+                base64::engine::general_purpose::STANDARD.encode(&f.bytes)
+            ),
+            None => p
+                .svg
+                .trim_start_matches("<?xml version=\"1.0\" encoding=\"UTF-8\"?>")
+                .trim()
+                .to_string(),
+        };
         let figure = format!(
-            "<figure class=\"plot\" id=\"plot-{}\">{}<figcaption>{}</figcaption></figure>",
+            "<figure class=\"plot\" id=\"plot-{}\">{drawing}<figcaption>{}</figcaption></figure>",
             p.name,
-            p.svg.trim_start_matches("<?xml version=\"1.0\" encoding=\"UTF-8\"?>").trim(),
             escape(&p.caption)
         );
         // Only the `plot()` directive makes this paragraph: escaped text never holds the

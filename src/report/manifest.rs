@@ -61,12 +61,14 @@ pub fn sha256(bytes: &[u8]) -> String {
 }
 
 /// Adds the input copies and the manifest to a render's files. `template_text` is the
-/// user template's text (absent for the built-in one).
+/// user template's text (absent for the built-in one); `extra` the other inputs (the
+/// schematic drawing) by their path in the folder.
 pub fn seal(
     mut files: Vec<OutputFile>,
     recipe: Recipe,
     design_text: &str,
     template_text: Option<&str>,
+    extra: &[(String, Vec<u8>)],
 ) -> Vec<OutputFile> {
     let outputs: BTreeMap<String, String> =
         files.iter().map(|f| (f.path.clone(), sha256(&f.bytes))).collect();
@@ -76,6 +78,10 @@ pub fn seal(
     if let Some(text) = template_text {
         inputs.insert(TEMPLATE_COPY.to_string(), sha256(text.as_bytes()));
         files.push(OutputFile { path: TEMPLATE_COPY.into(), bytes: text.as_bytes().to_vec() });
+    }
+    for (path, bytes) in extra {
+        inputs.insert(path.clone(), sha256(bytes));
+        files.push(OutputFile { path: path.clone(), bytes: bytes.clone() });
     }
     let manifest = Manifest {
         tool: "tauweave".into(),

@@ -48,6 +48,8 @@ pub struct Inputs<'a> {
     pub template: &'a TemplateSource,
     /// True when the template is the built-in one.
     pub built_in_template: bool,
+    /// The design's schematic drawing, when it names one (as archived in the folder).
+    pub schematic: Option<&'a plots::Supplied>,
 }
 
 /// The typst document of a render, compiled into [`PDF_FILE`] beside it.
@@ -95,7 +97,7 @@ pub fn render(
     let design_name = shown_name(inputs.design_name, manifest::DESIGN_COPY);
     let results = results::document(design, review, hashes, &design_name);
     let page = if exporters.iter().any(|e| e.needs_page()) {
-        Some(page(design, review, &results, inputs.template)?)
+        Some(page(design, review, &results, inputs.template, inputs.schematic)?)
     } else {
         None
     };
@@ -112,9 +114,21 @@ fn page(
     review: &Review,
     results: &results::ResultsDocument,
     template: &TemplateSource,
+    schematic: Option<&plots::Supplied>,
 ) -> Result<Page, TemplateError> {
     let (a, checks, study) = (&review.analysis, &review.requirements, Some(&review.study));
-    let plots = plots::all(a, checks, study);
+    let mut plots = plots::all(a, checks, study);
+    if let Some(f) = schematic {
+        plots.insert(
+            0,
+            plots::Plot {
+                name: "schematic",
+                caption: "Schematic, as supplied with the design.".into(),
+                svg: String::new(),
+                file: Some(f.clone()),
+            },
+        );
+    }
     let blocks = Blocks {
         tables: tables::all(design, a, checks, study),
         known_tables: tables::TABLES.iter().map(|(n, _)| *n).collect(),

@@ -23,12 +23,26 @@ const PALE: RGBColor = RGBColor(200, 200, 200);
 
 /// A named plot.
 pub struct Plot {
-    /// File stem and directive name: `bode`, `pole_zero`, `shares`.
+    /// File stem and directive name: `bode`, `pole_zero`, `shares`, `schematic`.
     pub name: &'static str,
     /// Caption.
     pub caption: String,
-    /// The SVG document.
+    /// The SVG document (empty for a supplied drawing).
     pub svg: String,
+    /// A drawing the design supplies instead of one tauweave draws: it lives in the folder as
+    /// an input copy, and the exporters reference or embed that file.
+    pub file: Option<Supplied>,
+}
+
+/// A drawing the design supplies (its schematic), as archived in the rendered folder.
+#[derive(Clone, Debug)]
+pub struct Supplied {
+    /// Its path in the folder: `inputs/schematic.svg` or `inputs/schematic.png`.
+    pub path: String,
+    /// `image/svg+xml` or `image/png`.
+    pub mime: &'static str,
+    /// Its bytes.
+    pub bytes: Vec<u8>,
 }
 
 /// Plots are drawn on a grid [`SCALE`] times finer than the size they are shown at, so a
@@ -68,31 +82,32 @@ fn style(size: u32) -> TextStyle<'static> {
 }
 
 /// The names of every plot a review can hold (`plot(name=…)` accepts these).
-pub const PLOTS: &[&str] = &["bode", "pole_zero", "shares", "tornado", "histograms"];
+pub const PLOTS: &[&str] = &["schematic", "bode", "pole_zero", "shares", "tornado", "histograms"];
 
 /// Every plot of the review.
 pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study>) -> Vec<Plot> {
     let mut out = Vec::new();
     let extra = study.map(|s| (tornado(s), histograms(s, requirements)));
     if let Some(svg) = bode(a, requirements) {
-        out.push(Plot { name: "bode", caption: "Bode plot: magnitude and phase of the exact response; the numbered lines are the exact −3 dB points (solid), the time-constant estimates (dashed) and the requirement limits (dotted), each named in the legend with the band and the gain window.".into(), svg });
+        out.push(Plot { name: "bode", caption: "Bode plot: magnitude and phase of the exact response; the numbered lines are the exact −3 dB points (solid), the time-constant estimates (dashed) and the requirement limits (dotted), each named in the legend with the band and the gain window.".into(), svg, file: None });
     }
     if let Some(svg) = pole_zero(a) {
         out.push(Plot {
+            file: None,
             name: "pole_zero",
             caption: "Pole–zero map (s/2π): poles ×, zeros ○, on signed logarithmic axes, out to two decades beyond the upper cut-off; roots farther out are listed under the map.".into(),
             svg,
         });
     }
     if let Some(svg) = shares(a) {
-        out.push(Plot { name: "shares", caption: "Share of each capacitor in the open-circuit time-constant sum (upper cut-off) and in Σ 1/τ of the short-circuit constants (lower cut-off).".into(), svg });
+        out.push(Plot { name: "shares", caption: "Share of each capacitor in the open-circuit time-constant sum (upper cut-off) and in Σ 1/τ of the short-circuit constants (lower cut-off).".into(), svg, file: None });
     }
     if let Some((tornado, histograms)) = extra {
         if let Some(svg) = tornado {
-            out.push(Plot { name: "tornado", caption: "Tornado chart: how far each toleranced lever moves the upper cut-off at its tolerance limit (S·t), largest first; dark bars raise f_H, grey bars lower it.".into(), svg });
+            out.push(Plot { name: "tornado", caption: "Tornado chart: how far each toleranced lever moves the upper cut-off at its tolerance limit (S·t), largest first; dark bars raise f_H, grey bars lower it.".into(), svg, file: None });
         }
         if let Some(svg) = histograms {
-            out.push(Plot { name: "histograms", caption: "Monte Carlo histograms of the mid-band gain, the gain flatness (with a stated band) and both cut-offs, each in its requirement's unit; a limit near the data is dotted, one far off is named at the edge.".into(), svg });
+            out.push(Plot { name: "histograms", caption: "Monte Carlo histograms of the mid-band gain, the gain flatness (with a stated band) and both cut-offs, each in its requirement's unit; a limit near the data is dotted, one far off is named at the edge.".into(), svg, file: None });
         }
     }
     out

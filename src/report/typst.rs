@@ -337,7 +337,9 @@ impl<'p> Writer<'p> {
         self.begin_block();
         self.out.push_str(&format!(
             "#figure(\n  image({}, width: 100%),\n  caption: [{}],\n);",
-            string_literal(&format!("plots/{}.svg", plot.name)),
+            string_literal(
+                &plot.file.as_ref().map_or(format!("plots/{}.svg", plot.name), |f| f.path.clone())
+            ),
             escape(&plot.caption)
         ));
     }
@@ -684,7 +686,7 @@ mod tests {
     }
 
     fn plot(name: &'static str, caption: &str) -> Plot {
-        Plot { name, caption: caption.into(), svg: "<svg/>".into() }
+        Plot { name, caption: caption.into(), svg: "<svg/>".into(), file: None }
     }
 
     /// A model of typst's markup lexer, after typst-syntax/src/lexer.rs (`Lexer::next`,

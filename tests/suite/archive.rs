@@ -96,3 +96,50 @@ fn verify_passes_fresh_and_catches_every_changed_byte() {
     assert_eq!(o.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&o.stderr).contains("cannot be verified"));
 }
+
+/// Issue 14: a schematic the design names is shown near the top of the review (as an image,
+/// so a script inside the SVG never runs), copied into the archive, recorded in the manifest
+/// and checked by verify; a missing drawing or a path outside the design's folder is refused.
+#[test]
+fn a_supplied_schematic_is_shown_archived_and_verified() {
+    let dir = scratch("schematic");
+    let design = std::fs::read_to_string(root().join("designs/rx-preamp-ce.yaml")).unwrap();
+    let with = design.replacen(
+        "  author: M. Okafor\n",
+        "  author: M. Okafor\n  schematic: drawings/stage.svg\n",
+        1,
+    );
+    assert_ne!(with, design);
+    std::fs::write(dir.join("d.yaml"), &with).unwrap();
+    let svg = "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"80\" height=\"40\"><rect width=\"80\" \
+               height=\"40\"/><script>alert(1)</script></svg>";
+    std::fs::create_dir_all(dir.join("drawings")).unwrap();
+    std::fs::write(dir.join("drawings/stage.svg"), svg).unwrap();
+    let o = run_in(&dir, &["render", "d.yaml", "--runs", "0", "--format", "html", "--out", "o"]);
+    assert_eq!(o.status.code(), Some(0), "{}", String::from_utf8_lossy(&o.stderr));
+    let out = dir.join("o");
+    assert_eq!(std::fs::read_to_string(out.join("inputs/schematic.svg")).unwrap(), svg);
+    let manifest = std::fs::read_to_string(out.join("manifest.json")).unwrap();
+    assert!(manifest.contains("\"inputs/schematic.svg\""), "{manifest}");
+    let html = std::fs::read_to_string(out.join("report.html")).unwrap();
+    assert!(html.contains("id=\"plot-schematic\"") && html.contains("data:image/svg+xml;base64,"));
+    assert!(!html.contains("<script>alert"), "the drawing is an image, not inline markup");
+    let (code, text) = verify(&out);
+    assert_eq!(code, Some(0), "{text}");
+    // One changed byte in the archived drawing is caught and named.
+    let mut bytes = std::fs::read(out.join("inputs/schematic.svg")).unwrap();
+    bytes[10] ^= 0x01;
+    std::fs::write(out.join("inputs/schematic.svg"), bytes).unwrap();
+    let (code, text) = verify(&out);
+    assert_eq!(code, Some(1), "{text}");
+    assert!(text.contains("inputs/schematic.svg"), "{text}");
+    // A drawing that is not there, and one outside the design's folder.
+    std::fs::remove_file(dir.join("drawings/stage.svg")).unwrap();
+    let o = run_in(&dir, &["render", "d.yaml", "--runs", "0", "--format", "json", "--out", "p"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("cannot read the schematic"));
+    std::fs::write(dir.join("e.yaml"), with.replace("drawings/stage.svg", "../stage.svg")).unwrap();
+    let o = run_in(&dir, &["check", "e.yaml", "--runs", "0"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("tauweave::schematic"));
+}

@@ -199,6 +199,7 @@ fn mutated_templates_render_or_name_themselves_never_a_panic() {
             design_text: &text,
             template: &template,
             built_in_template: false,
+            schematic: None,
         };
         let outcome = catch_unwind(AssertUnwindSafe(|| render(&d, &r, &inputs, &[&Markdown])));
         match outcome {

@@ -17,7 +17,8 @@ pub const TOP_KEYS: &[&str] = &[
     "analysis",
 ];
 /// Keys of `design`.
-pub const META_KEYS: &[&str] = &["id", "title", "revision", "date", "author", "purpose"];
+pub const META_KEYS: &[&str] =
+    &["id", "title", "revision", "date", "author", "purpose", "schematic"];
 /// Keys of `environment`.
 pub const ENVIRONMENT_KEYS: &[&str] = &["temperature", "mains_powered"];
 /// Keys of `signal`.

@@ -236,6 +236,7 @@ impl Reader<'_> {
             date: String::new(),
             author: None,
             purpose: None,
+            schematic: None,
         };
         Some(Design {
             format: format.unwrap_or(1),
@@ -336,8 +337,35 @@ impl Reader<'_> {
         let date = f.require("date", &mut self.diagnostics).and_then(|n| self.date(n));
         let author = f.get("author").and_then(|n| self.text_value(n, "author"));
         let purpose = f.get("purpose").and_then(|n| self.text_value(n, "purpose"));
+        let schematic = f.get("schematic").and_then(|n| self.schematic(n));
         f.finish(&mut self.diagnostics);
-        Some(Meta { id: id?, title: title?, revision: revision?, date: date?, author, purpose })
+        Some(Meta {
+            id: id?,
+            title: title?,
+            revision: revision?,
+            date: date?,
+            author,
+            purpose,
+            schematic,
+        })
+    }
+
+    /// `schematic: stage.svg`: a plain relative path to an `.svg` or `.png` file.
+    fn schematic(&mut self, node: &Node) -> Option<String> {
+        let text = self.text_value(node, "schematic")?;
+        let plain = !text.starts_with('/')
+            && !text.contains('\\')
+            && text.split('/').all(|c| !c.is_empty() && c != "." && c != "..");
+        let lower = text.to_ascii_lowercase();
+        if plain && (lower.ends_with(".svg") || lower.ends_with(".png")) {
+            return Some(text);
+        }
+        self.push(
+            Diagnostic::error("schematic", format!("`{text}` is not a schematic tauweave can show"))
+                .at(node.span, "an .svg or .png file beside the design")
+                .help("give the drawing's path relative to the design file, e.g. `schematic: stage.svg` (SVG or PNG, no `..`)"),
+        );
+        None
     }
 
     fn text_value(&mut self, node: &Node, what: &str) -> Option<String> {
