@@ -323,6 +323,57 @@ fn decade_label(v: f64, unit: &str) -> String {
     si(v, unit, 3)
 }
 
+/// How a frequency panel labels its axes.
+struct Axis {
+    /// Height of the frequency labels, display pixels.
+    x_label_area: u32,
+    /// The vertical axis' name.
+    y_desc: &'static str,
+    /// What follows a vertical tick's number (` dB`, `°`).
+    y_unit: &'static str,
+    /// True to name the frequency axis (the lowest panel).
+    x_desc: bool,
+}
+
+/// A chart on a log-frequency axis.
+type FrequencyChart<'a, 'b> = ChartContext<
+    'a,
+    SVGBackend<'b>,
+    Cartesian2d<LogCoord<f64>, plotters::coord::types::RangedCoordf64>,
+>;
+
+/// A Bode panel on `area`: frequency `f` on a log axis, `y` linear, the house mesh and labels.
+fn frequency_panel<'a, 'b>(
+    area: &'a DrawingArea<SVGBackend<'b>, plotters::coord::Shift>,
+    f: (f64, f64),
+    y: (f64, f64),
+    axis: Axis,
+) -> Option<FrequencyChart<'a, 'b>> {
+    let mut chart = ChartBuilder::on(area)
+        .margin(px(14))
+        .margin_right(px(34))
+        .x_label_area_size(px(axis.x_label_area))
+        .y_label_area_size(px(64))
+        .build_cartesian_2d((f.0..f.1).log_scale(), y.0..y.1)
+        .ok()?;
+    let y_label = |v: &f64| format!("{v:.0}{}", axis.y_unit).replace('-', "−");
+    let mut mesh = chart.configure_mesh();
+    mesh.light_line_style(PALE.mix(0.5).stroke_width(px(1)))
+        .bold_line_style(PALE.stroke_width(px(1)))
+        .axis_style(MID.stroke_width(px(1)))
+        .set_all_tick_mark_size(px(5))
+        .x_label_formatter(&|v| decade_label(*v, "Hz"))
+        .y_label_formatter(&y_label)
+        .label_style(style(12))
+        .y_desc(axis.y_desc)
+        .axis_desc_style(style(13));
+    if axis.x_desc {
+        mesh.x_desc("frequency");
+    }
+    mesh.draw().ok()?;
+    Some(chart)
+}
+
 /// The runs of a log-frequency trace at or above `floor`, each cut where it crosses the
 /// floor (the crossing interpolated in log frequency), so a plot can leave its frame.
 fn above(points: impl Iterator<Item = (f64, f64)>, floor: f64) -> Vec<Vec<(f64, f64)>> {
@@ -515,25 +566,12 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
         root.fill(&WHITE).ok()?;
         let (upper, rest) = root.split_vertically(px(340));
         let (lower, key) = rest.split_vertically(px(220));
-        let mut mag = ChartBuilder::on(&upper)
-            .margin(px(14))
-            .margin_right(px(34))
-            .x_label_area_size(px(28))
-            .y_label_area_size(px(64))
-            .build_cartesian_2d((f0..f1).log_scale(), bottom..top)
-            .ok()?;
-        mag.configure_mesh()
-            .light_line_style(PALE.mix(0.5).stroke_width(px(1)))
-            .bold_line_style(PALE.stroke_width(px(1)))
-            .axis_style(MID.stroke_width(px(1)))
-            .set_all_tick_mark_size(px(5))
-            .x_label_formatter(&|v| decade_label(*v, "Hz"))
-            .y_label_formatter(&|v| format!("{v:.0} dB").replace('-', "−"))
-            .label_style(style(12))
-            .y_desc("|H|")
-            .axis_desc_style(style(13))
-            .draw()
-            .ok()?;
+        let mut mag = frequency_panel(
+            &upper,
+            (f0, f1),
+            (bottom, top),
+            Axis { x_label_area: 28, y_desc: "|H|", y_unit: " dB", x_desc: false },
+        )?;
         if let Some(b) = &a.midband.band {
             let (from, to) = (b.from_hz.max(f0), b.to_hz.min(f1));
             if from < to {
@@ -588,27 +626,12 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
             let pos = (x + px(3) as i32, y_top + px(3) as i32 + px(14) as i32 * *row as i32);
             upper.draw(&Text::new(format!("{}", k + 1), pos, style(12))).ok()?;
         }
-        let mut phase = ChartBuilder::on(&lower)
-            .margin(px(14))
-            .margin_right(px(34))
-            .x_label_area_size(px(30))
-            .y_label_area_size(px(64))
-            .build_cartesian_2d((f0..f1).log_scale(), ph_lo..ph_hi)
-            .ok()?;
-        phase
-            .configure_mesh()
-            .light_line_style(PALE.mix(0.5).stroke_width(px(1)))
-            .bold_line_style(PALE.stroke_width(px(1)))
-            .axis_style(MID.stroke_width(px(1)))
-            .set_all_tick_mark_size(px(5))
-            .x_label_formatter(&|v| decade_label(*v, "Hz"))
-            .y_label_formatter(&|v| format!("{v:.0}°").replace('-', "−"))
-            .label_style(style(12))
-            .y_desc("phase")
-            .x_desc("frequency")
-            .axis_desc_style(style(13))
-            .draw()
-            .ok()?;
+        let mut phase = frequency_panel(
+            &lower,
+            (f0, f1),
+            (ph_lo, ph_hi),
+            Axis { x_label_area: 30, y_desc: "phase", y_unit: "°", x_desc: true },
+        )?;
         for m in &marks {
             let (dash, gap) = dashes(m.kind);
             phase
@@ -960,25 +983,12 @@ pub fn bode_overlay(
         let root = SVGBackend::with_string(&mut svg, (px(860), px(560))).into_drawing_area();
         root.fill(&WHITE).ok()?;
         let (upper, lower) = root.split_vertically(px(340));
-        let mut mag = ChartBuilder::on(&upper)
-            .margin(px(14))
-            .margin_right(px(34))
-            .x_label_area_size(px(28))
-            .y_label_area_size(px(64))
-            .build_cartesian_2d((f0..f1).log_scale(), bottom..top)
-            .ok()?;
-        mag.configure_mesh()
-            .light_line_style(PALE.mix(0.5).stroke_width(px(1)))
-            .bold_line_style(PALE.stroke_width(px(1)))
-            .axis_style(MID.stroke_width(px(1)))
-            .set_all_tick_mark_size(px(5))
-            .x_label_formatter(&|v| decade_label(*v, "Hz"))
-            .y_label_formatter(&|v| format!("{v:.0} dB").replace('-', "−"))
-            .label_style(style(12))
-            .y_desc("|H|")
-            .axis_desc_style(style(13))
-            .draw()
-            .ok()?;
+        let mut mag = frequency_panel(
+            &upper,
+            (f0, f1),
+            (bottom, top),
+            Axis { x_label_area: 28, y_desc: "|H|", y_unit: " dB", x_desc: false },
+        )?;
         let line = |s: &[SweepPoint], f: fn(&SweepPoint) -> f64| -> Vec<(f64, f64)> {
             s.iter().map(|p| (p.frequency_hz, f(p))).collect()
         };
@@ -1014,27 +1024,12 @@ pub fn bode_overlay(
             }
             upper.draw(&Text::new(label.to_string(), (x + p(36), y - p(7)), style(12))).ok()?;
         }
-        let mut phase = ChartBuilder::on(&lower)
-            .margin(px(14))
-            .margin_right(px(34))
-            .x_label_area_size(px(30))
-            .y_label_area_size(px(64))
-            .build_cartesian_2d((f0..f1).log_scale(), ph_lo..ph_hi)
-            .ok()?;
-        phase
-            .configure_mesh()
-            .light_line_style(PALE.mix(0.5).stroke_width(px(1)))
-            .bold_line_style(PALE.stroke_width(px(1)))
-            .axis_style(MID.stroke_width(px(1)))
-            .set_all_tick_mark_size(px(5))
-            .x_label_formatter(&|v| decade_label(*v, "Hz"))
-            .y_label_formatter(&|v| format!("{v:.0}°").replace('-', "−"))
-            .label_style(style(12))
-            .y_desc("phase")
-            .x_desc("frequency")
-            .axis_desc_style(style(13))
-            .draw()
-            .ok()?;
+        let mut phase = frequency_panel(
+            &lower,
+            (f0, f1),
+            (ph_lo, ph_hi),
+            Axis { x_label_area: 30, y_desc: "phase", y_unit: "°", x_desc: true },
+        )?;
         phase
             .draw_series(DashedLineSeries::new(
                 line(before, |p| p.phase_deg),
