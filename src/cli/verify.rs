@@ -48,7 +48,12 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
         .map_err(|e| unusable(format!("{} does not read: {e}", manifest::FILE)))?;
     // Every name the manifest gives is a plain relative path inside the folder; anything
     // else (`/etc/passwd`, `../x`) is never opened.
-    if let Some(bad) = m.inputs.keys().chain(m.outputs.keys()).find(|p| !inside_folder(p)) {
+    if let Some(bad) = m
+        .inputs
+        .keys()
+        .chain(m.outputs.keys())
+        .find(|p| !crate::design::fields::plain_relative_path(p))
+    {
         return Err(unusable(format!(
             "{} names `{bad}`, which is not a file inside the folder",
             manifest::FILE
@@ -206,14 +211,6 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
     }
     eprint!("{message}");
     Ok(Outcome::Failing)
-}
-
-/// True for a plain relative path inside a folder: `report.html`, `plots/bode.svg`; false
-/// for an absolute path, one that climbs (`..`), or one with an empty or odd component.
-fn inside_folder(path: &str) -> bool {
-    !path.is_empty()
-        && !path.contains('\\')
-        && path.split('/').all(|c| !c.is_empty() && c != "." && c != ".." && !c.contains(':'))
 }
 
 /// Two manifests equal once report.pdf and the typst version are left out of both.

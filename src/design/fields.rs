@@ -119,3 +119,13 @@ pub fn list(names: &[&str]) -> String {
         n => format!("{} and {}", quoted[..n - 1].join(", "), quoted[n - 1]),
     }
 }
+
+/// True for a plain relative path inside a folder: `stage.svg`, `drawings/stage.svg`; false
+/// for an absolute path, one that climbs (`..`), or one with an empty, `.` or drive-like
+/// component or a backslash. The design's schematic and a rendered folder's manifest names
+/// must be such paths.
+pub fn plain_relative_path(path: &str) -> bool {
+    !path.is_empty()
+        && !path.contains('\\')
+        && path.split('/').all(|c| !c.is_empty() && c != "." && c != ".." && !c.contains(':'))
+}

@@ -323,6 +323,26 @@ fn decade_label(v: f64, unit: &str) -> String {
     si(v, unit, 3)
 }
 
+/// The magnitude axis of a Bode panel, dB: from the next 10 dB above the trace (or `above`,
+/// when higher) plus `headroom`, down at most 80 dB, or to 5 dB under the trace's lowest.
+fn magnitude_range<'p>(
+    points: impl Iterator<Item = &'p SweepPoint> + Clone,
+    above: f64,
+    headroom: f64,
+) -> (f64, f64) {
+    let high = points.clone().map(|p| p.magnitude_db).fold(f64::MIN, f64::max).max(above);
+    let top = (high / 10.0).ceil() * 10.0 + headroom;
+    let low = points.map(|p| p.magnitude_db).fold(f64::MAX, f64::min);
+    ((top - 80.0).max(low.floor() - 5.0), top)
+}
+
+/// The phase axis of a Bode panel, degrees: whole multiples of 45° around the trace.
+fn phase_range<'p>(points: impl Iterator<Item = &'p SweepPoint> + Clone) -> (f64, f64) {
+    let low = points.clone().map(|p| p.phase_deg).fold(f64::MAX, f64::min);
+    let high = points.map(|p| p.phase_deg).fold(f64::MIN, f64::max);
+    ((low / 45.0).floor() * 45.0, (high / 45.0).ceil() * 45.0 + 1.0)
+}
+
 /// How a frequency panel labels its axes.
 struct Axis {
     /// Height of the frequency labels, display pixels.
@@ -522,15 +542,10 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
         .iter()
         .find(|r| r.name == "midband_gain")
         .map(|r| (r.min.map(|v| 20.0 * v.log10()), r.max.map(|v| 20.0 * v.log10())));
-    let mag_max = sweep.iter().map(|p| p.magnitude_db).fold(f64::MIN, f64::max);
     let window_top = window.and_then(|w| w.1).unwrap_or(f64::MIN);
-    // Headroom above the trace for the marker numbers.
-    let top = (mag_max.max(window_top) / 10.0).ceil() * 10.0 + 10.0;
-    let bottom = (top - 80.0)
-        .max(sweep.iter().map(|p| p.magnitude_db).fold(f64::MAX, f64::min).floor() - 5.0);
-    let ph_min = sweep.iter().map(|p| p.phase_deg).fold(f64::MAX, f64::min);
-    let ph_max = sweep.iter().map(|p| p.phase_deg).fold(f64::MIN, f64::max);
-    let (ph_lo, ph_hi) = ((ph_min / 45.0).floor() * 45.0, (ph_max / 45.0).ceil() * 45.0 + 1.0);
+    // Headroom above the trace (and the gain window) for the marker numbers.
+    let (bottom, top) = magnitude_range(sweep.iter(), window_top, 10.0);
+    let (ph_lo, ph_hi) = phase_range(sweep.iter());
     let mid_db = 20.0 * a.midband.gain.abs().log10();
     let level = mid_db - 3.0103;
     // The legend: one line per entry, the line style first.
@@ -969,13 +984,8 @@ pub fn bode_overlay(
     let both = || before.iter().chain(after.iter());
     let f0 = both().map(|p| p.frequency_hz).fold(f64::MAX, f64::min);
     let f1 = both().map(|p| p.frequency_hz).fold(f64::MIN, f64::max);
-    let mag_max = both().map(|p| p.magnitude_db).fold(f64::MIN, f64::max);
-    let top = (mag_max / 10.0).ceil() * 10.0 + 5.0;
-    let bottom =
-        (top - 80.0).max(both().map(|p| p.magnitude_db).fold(f64::MAX, f64::min).floor() - 5.0);
-    let ph_min = both().map(|p| p.phase_deg).fold(f64::MAX, f64::min);
-    let ph_max = both().map(|p| p.phase_deg).fold(f64::MIN, f64::max);
-    let (ph_lo, ph_hi) = ((ph_min / 45.0).floor() * 45.0, (ph_max / 45.0).ceil() * 45.0 + 1.0);
+    let (bottom, top) = magnitude_range(both(), f64::MIN, 5.0);
+    let (ph_lo, ph_hi) = phase_range(both());
     let earlier = MID.stroke_width(px(2));
     let later = INK.stroke_width(px(2));
     let mut svg = String::new();
@@ -992,13 +1002,9 @@ pub fn bode_overlay(
         let line = |s: &[SweepPoint], f: fn(&SweepPoint) -> f64| -> Vec<(f64, f64)> {
             s.iter().map(|p| (p.frequency_hz, f(p))).collect()
         };
-        mag.draw_series(DashedLineSeries::new(
-            line(before, |p| p.magnitude_db),
-            px(7),
-            px(4),
-            earlier,
-        ))
-        .ok()?;
+        for segment in above(before.iter().map(|p| (p.frequency_hz, p.magnitude_db)), bottom) {
+            mag.draw_series(DashedLineSeries::new(segment, px(7), px(4), earlier)).ok()?;
+        }
         for segment in above(after.iter().map(|p| (p.frequency_hz, p.magnitude_db)), bottom) {
             mag.draw_series(LineSeries::new(segment, later)).ok()?;
         }

@@ -353,9 +353,7 @@ impl Reader<'_> {
     /// `schematic: stage.svg`: a plain relative path to an `.svg` or `.png` file.
     fn schematic(&mut self, node: &Node) -> Option<String> {
         let text = self.text_value(node, "schematic")?;
-        let plain = !text.starts_with('/')
-            && !text.contains('\\')
-            && text.split('/').all(|c| !c.is_empty() && c != "." && c != "..");
+        let plain = crate::design::fields::plain_relative_path(&text);
         let lower = text.to_ascii_lowercase();
         if plain && (lower.ends_with(".svg") || lower.ends_with(".png")) {
             return Some(text);
