@@ -15,6 +15,7 @@ pub mod export;
 pub mod html;
 pub mod manifest;
 pub mod plots;
+pub mod schematic;
 pub mod results;
 pub mod tables;
 pub mod template;
@@ -118,17 +119,21 @@ fn page(
 ) -> Result<Page, TemplateError> {
     let (a, checks, study) = (&review.analysis, &review.requirements, Some(&review.study));
     let mut plots = plots::all(a, checks, study);
-    if let Some(f) = schematic {
-        plots.insert(
-            0,
-            plots::Plot {
-                name: "schematic",
-                caption: "Schematic, as supplied with the design.".into(),
-                svg: String::new(),
-                file: Some(f.clone()),
-            },
-        );
-    }
+    let drawn = match schematic {
+        Some(f) => plots::Plot {
+            name: "schematic",
+            caption: "Schematic, as supplied with the design.".into(),
+            svg: String::new(),
+            file: Some(f.clone()),
+        },
+        None => plots::Plot {
+            name: "schematic",
+            caption: "Connectivity, drawn by tauweave from the netlist (the design names no schematic drawing): supplies along the top, ground along the bottom, the signal source at the left; wires that cross without a dot are not joined.".into(),
+            svg: schematic::draw(design).svg(plots::FONT),
+            file: None,
+        },
+    };
+    plots.insert(0, drawn);
     let blocks = Blocks {
         tables: tables::all(design, a, checks, study),
         known_tables: tables::TABLES.iter().map(|(n, _)| *n).collect(),
