@@ -972,6 +972,7 @@ pub fn render(
             .into(),
         svg: svg.clone(),
         file: None,
+        max_width: None,
     });
     let blocks = Blocks {
         tables: tables(change),

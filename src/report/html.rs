@@ -155,6 +155,11 @@ pub fn page(title: &str, markdown: &str, plots: &[Plot]) -> String {
                 .trim()
                 .to_string(),
         };
+        // A drawing at its natural size is never blown up past it.
+        let drawing = match p.max_width {
+            Some(px) => format!("<div style=\"max-width: {}px\">{drawing}</div>", px.ceil()),
+            None => drawing,
+        };
         let figure = format!(
             "<figure class=\"plot\" id=\"plot-{}\">{drawing}<figcaption>{}</figcaption></figure>",
             p.name,

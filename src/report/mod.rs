@@ -15,8 +15,8 @@ pub mod export;
 pub mod html;
 pub mod manifest;
 pub mod plots;
-pub mod schematic;
 pub mod results;
+pub mod schematic;
 pub mod tables;
 pub mod template;
 pub mod typst;
@@ -125,13 +125,18 @@ fn page(
             caption: "Schematic, as supplied with the design.".into(),
             svg: String::new(),
             file: Some(f.clone()),
+            max_width: None,
         },
-        None => plots::Plot {
+        None => {
+            let drawing = schematic::draw(design);
+            plots::Plot {
             name: "schematic",
             caption: "Connectivity, drawn by tauweave from the netlist (the design names no schematic drawing): supplies along the top, ground along the bottom, the signal source at the left; wires that cross without a dot are not joined.".into(),
-            svg: schematic::draw(design).svg(plots::FONT),
+            svg: drawing.svg(plots::FONT),
             file: None,
-        },
+            max_width: Some(drawing.width.ceil()),
+        }
+        }
     };
     plots.insert(0, drawn);
     let blocks = Blocks {

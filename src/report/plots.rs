@@ -32,7 +32,15 @@ pub struct Plot {
     /// A drawing the design supplies instead of one tauweave draws: it lives in the folder as
     /// an input copy, and the exporters reference or embed that file.
     pub file: Option<Supplied>,
+    /// The widest it should be shown, in CSS px, when wider would blow its text up past the
+    /// body's: a drawing made at its natural size (the netlist schematic). Typst shows it at
+    /// [`PRINT_PT_PER_PX`] pt per px at most. `None`: the full text width.
+    pub max_width: Option<f64>,
 }
+
+/// Print scale of a drawing with a `max_width`: its 13 px text prints at 8.5 pt, the size of
+/// the review's captions and footnotes.
+pub const PRINT_PT_PER_PX: f64 = 8.5 / 13.0;
 
 /// A drawing the design supplies (its schematic), as archived in the rendered folder.
 #[derive(Clone, Debug)]
@@ -89,25 +97,26 @@ pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study
     let mut out = Vec::new();
     let extra = study.map(|s| (tornado(s), histograms(s, requirements)));
     if let Some(svg) = bode(a, requirements) {
-        out.push(Plot { name: "bode", caption: "Bode plot: magnitude and phase of the exact response; the numbered lines are the exact −3 dB points (solid), the time-constant estimates (dashed) and the requirement limits (dotted), each named in the legend with the band and the gain window.".into(), svg, file: None });
+        out.push(Plot { name: "bode", caption: "Bode plot: magnitude and phase of the exact response; the numbered lines are the exact −3 dB points (solid), the time-constant estimates (dashed) and the requirement limits (dotted), each named in the legend with the band and the gain window.".into(), svg, file: None, max_width: None });
     }
     if let Some(svg) = pole_zero(a) {
         out.push(Plot {
             file: None,
+            max_width: None,
             name: "pole_zero",
             caption: "Pole–zero map (s/2π): poles ×, zeros ○, on signed logarithmic axes, out to two decades beyond the upper cut-off; roots farther out are listed under the map.".into(),
             svg,
         });
     }
     if let Some(svg) = shares(a) {
-        out.push(Plot { name: "shares", caption: "Share of each capacitor in the open-circuit time-constant sum (upper cut-off) and in Σ 1/τ of the short-circuit constants (lower cut-off).".into(), svg, file: None });
+        out.push(Plot { name: "shares", caption: "Share of each capacitor in the open-circuit time-constant sum (upper cut-off) and in Σ 1/τ of the short-circuit constants (lower cut-off).".into(), svg, file: None, max_width: None });
     }
     if let Some((tornado, histograms)) = extra {
         if let Some(svg) = tornado {
-            out.push(Plot { name: "tornado", caption: "Tornado chart: how far each toleranced lever moves the upper cut-off at its tolerance limit (S·t), largest first; dark bars raise f_H, grey bars lower it.".into(), svg, file: None });
+            out.push(Plot { name: "tornado", caption: "Tornado chart: how far each toleranced lever moves the upper cut-off at its tolerance limit (S·t), largest first; dark bars raise f_H, grey bars lower it.".into(), svg, file: None, max_width: None });
         }
         if let Some(svg) = histograms {
-            out.push(Plot { name: "histograms", caption: "Monte Carlo histograms of the mid-band gain, the gain flatness (with a stated band) and both cut-offs, each in its requirement's unit; a limit near the data is dotted, one far off is named at the edge.".into(), svg, file: None });
+            out.push(Plot { name: "histograms", caption: "Monte Carlo histograms of the mid-band gain, the gain flatness (with a stated band) and both cut-offs, each in its requirement's unit; a limit near the data is dotted, one far off is named at the edge.".into(), svg, file: None, max_width: None });
         }
     }
     out

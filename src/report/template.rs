@@ -363,8 +363,13 @@ mod tests {
     /// and typst's paragraph detection.
     #[test]
     fn only_the_plot_directive_makes_a_plot() {
-        let plots =
-            [Plot { name: "bode", caption: "Bode".into(), svg: "<svg></svg>".into(), file: None }];
+        let plots = [Plot {
+            name: "bode",
+            caption: "Bode".into(),
+            svg: "<svg></svg>".into(),
+            file: None,
+            max_width: None,
+        }];
         let page = PageSetup { paper: Paper::A4, title: "T", footer: "f" };
         let source = TemplateSource {
             name: "t".into(),

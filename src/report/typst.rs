@@ -335,11 +335,19 @@ impl<'p> Writer<'p> {
     fn figure(&mut self, name: &str) {
         let Some(plot) = self.plots.iter().find(|p| p.name == name) else { return };
         self.begin_block();
-        self.out.push_str(&format!(
-            "#figure(\n  image({}, width: 100%),\n  caption: [{}],\n);",
-            string_literal(
-                &plot.file.as_ref().map_or(format!("plots/{}.svg", plot.name), |f| f.path.clone())
+        let path = string_literal(
+            &plot.file.as_ref().map_or(format!("plots/{}.svg", plot.name), |f| f.path.clone()),
+        );
+        let image = match plot.max_width {
+            // No wider than its natural print size, nor than the text.
+            Some(px) => format!(
+                "layout(size => image({path}, width: calc.min(size.width, {}pt)))",
+                crate::notation::plain(px * crate::report::plots::PRINT_PT_PER_PX, 4)
             ),
+            None => format!("image({path}, width: 100%)"),
+        };
+        self.out.push_str(&format!(
+            "#figure(\n  {image},\n  caption: [{}],\n);",
             escape(&plot.caption)
         ));
     }
@@ -686,7 +694,7 @@ mod tests {
     }
 
     fn plot(name: &'static str, caption: &str) -> Plot {
-        Plot { name, caption: caption.into(), svg: "<svg/>".into(), file: None }
+        Plot { name, caption: caption.into(), svg: "<svg/>".into(), file: None, max_width: None }
     }
 
     /// A model of typst's markup lexer, after typst-syntax/src/lexer.rs (`Lexer::next`,

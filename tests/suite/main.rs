@@ -14,6 +14,7 @@ mod properties;
 mod reference;
 mod report;
 mod schema;
+mod schematic;
 mod support;
 mod tolerance;
 mod watch;

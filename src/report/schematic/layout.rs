@@ -15,10 +15,8 @@
 
 use std::collections::BTreeMap;
 
-use super::{text_width, value_text, Drawing, Point, Shape, Symbol, Text, Wire};
-use crate::design::{
-    BipolarType, Design, DeviceModel, MosType, PartKind, GROUND,
-};
+use super::{Drawing, Point, Shape, Symbol, Text, Wire, text_width, value_text};
+use crate::design::{BipolarType, Design, DeviceModel, GROUND, MosType, PartKind};
 
 /// Vertical distance between levels, px.
 const LEVEL: f64 = 40.0;
@@ -42,17 +40,15 @@ pub fn draw(design: &Design) -> Drawing {
     let net = Net::of(design);
     let stacks = stacks(design, &net);
     let columns = columns(design, &net, &stacks);
-    let mut levels = aligned_levels(design, &net, &stacks, &columns);
+    let levels = aligned_levels(design, &net, &stacks, &columns);
     let mut drawing = build(design, &net, &stacks, &columns, &levels);
     let mut trouble = collisions(&drawing);
     if trouble > 0 && design.parts.len() <= MEND_LIMIT {
-        (levels, drawing, trouble) = mend(design, &net, &stacks, &columns, levels, drawing, trouble);
+        (drawing, trouble) = mend(design, &net, &stacks, &columns, levels, drawing, trouble);
     }
     if trouble > 0 {
-        levels = staircase(&net, &stacks, &columns);
-        drawing = build(design, &net, &stacks, &columns, &levels);
+        drawing = build(design, &net, &stacks, &columns, &staircase(&net, &stacks, &columns));
     }
-    let _ = levels;
     drawing
 }
 
@@ -156,11 +152,19 @@ fn device(design: &Design, kind: &PartKind) -> Option<(String, String, String, b
     match kind {
         PartKind::Bjt { c, b, e, model } => {
             let n = !matches!(&design.models[*model].device, DeviceModel::Bipolar(m) if m.polarity == BipolarType::Pnp);
-            Some(if n { (c.clone(), b.clone(), e.clone(), n) } else { (e.clone(), b.clone(), c.clone(), n) })
+            Some(if n {
+                (c.clone(), b.clone(), e.clone(), n)
+            } else {
+                (e.clone(), b.clone(), c.clone(), n)
+            })
         }
         PartKind::Mosfet { d, g, s, model } => {
             let n = !matches!(&design.models[*model].device, DeviceModel::Mos(m) if m.polarity == MosType::Pmos);
-            Some(if n { (d.clone(), g.clone(), s.clone(), n) } else { (s.clone(), g.clone(), d.clone(), n) })
+            Some(if n {
+                (d.clone(), g.clone(), s.clone(), n)
+            } else {
+                (s.clone(), g.clone(), d.clone(), n)
+            })
         }
         _ => None,
     }
@@ -186,15 +190,20 @@ impl Stack {
 
 fn stacks(design: &Design, net: &Net) -> Vec<Stack> {
     let mut stacks: Vec<Stack> = Vec::new();
-    let find = |stacks: &[Stack], n: &str| stacks.iter().position(|s| s.nodes.iter().any(|m| m == n));
+    let find =
+        |stacks: &[Stack], n: &str| stacks.iter().position(|s| s.nodes.iter().any(|m| m == n));
     for (i, p) in design.parts.iter().enumerate() {
         let Some((up, _, down, _)) = device(design, &p.kind) else { continue };
         let (ru, rd) = (net.is_rail(&up), net.is_rail(&down));
         let top_rail = |n: &str| net.top.iter().any(|(r, _)| r == n);
         match (ru, rd) {
             (false, false) if up != down => match (find(&stacks, &up), find(&stacks, &down)) {
-                (None, None) => stacks.push(Stack { nodes: vec![up, down], links: vec![i], ..Stack::default() }),
-                (Some(s), None) if stacks[s].nodes.last() == Some(&up) && stacks[s].below.is_none() => {
+                (None, None) => {
+                    stacks.push(Stack { nodes: vec![up, down], links: vec![i], ..Stack::default() })
+                }
+                (Some(s), None)
+                    if stacks[s].nodes.last() == Some(&up) && stacks[s].below.is_none() =>
+                {
                     stacks[s].nodes.push(down);
                     stacks[s].links.push(i);
                 }
@@ -219,8 +228,12 @@ fn stacks(design: &Design, net: &Net) -> Vec<Stack> {
                 _ => {}
             },
             (true, false) if top_rail(&up) => match find(&stacks, &down) {
-                None => stacks.push(Stack { nodes: vec![down], above: Some(i), ..Stack::default() }),
-                Some(s) if stacks[s].nodes[0] == down && stacks[s].above.is_none() => stacks[s].above = Some(i),
+                None => {
+                    stacks.push(Stack { nodes: vec![down], above: Some(i), ..Stack::default() })
+                }
+                Some(s) if stacks[s].nodes[0] == down && stacks[s].above.is_none() => {
+                    stacks[s].above = Some(i)
+                }
                 _ => {}
             },
             (false, true) if !top_rail(&down) => match find(&stacks, &up) {
@@ -237,7 +250,9 @@ fn stacks(design: &Design, net: &Net) -> Vec<Stack> {
     let controls: Vec<String> =
         design.parts.iter().filter_map(|p| device(design, &p.kind)).map(|d| d.1).collect();
     let special = |n: &str| {
-        controls.iter().any(|c| c == n) || n == design.output.positive || n == design.signal.positive
+        controls.iter().any(|c| c == n)
+            || n == design.output.positive
+            || n == design.signal.positive
     };
     loop {
         let mut grew = false;
@@ -279,8 +294,10 @@ fn stacks(design: &Design, net: &Net) -> Vec<Stack> {
 fn columns(design: &Design, net: &Net, stacks: &[Stack]) -> Vec<usize> {
     let order = |n: &str| net.inner.iter().position(|m| m == n).unwrap_or(usize::MAX) as f64;
     let of = |n: &str| stacks.iter().position(|s| s.nodes.iter().any(|m| m == n));
-    let mut key: Vec<f64> =
-        stacks.iter().map(|s| s.nodes.iter().map(|n| order(n)).fold(f64::INFINITY, f64::min)).collect();
+    let mut key: Vec<f64> = stacks
+        .iter()
+        .map(|s| s.nodes.iter().map(|n| order(n)).fold(f64::INFINITY, f64::min))
+        .collect();
     for _ in 0..3 {
         for (t, s) in stacks.iter().enumerate() {
             for p in s.parts() {
@@ -308,7 +325,7 @@ fn wishes(design: &Design, net: &Net, stacks: &[Stack]) -> Vec<(String, String, 
     let of = |n: &str| stacks.iter().position(|s| s.nodes.iter().any(|m| m == n));
     let mut out = Vec::new();
     for (i, p) in design.parts.iter().enumerate() {
-        if let Some((up, base, down, _)) = device(design, &p.kind) {
+        if let Some((up, base, _, _)) = device(design, &p.kind) {
             // (base, node, d): level(base) = level(node) + d.
             if let Some(s) = stacks.iter().find(|s| s.parts().any(|q| q == i)) {
                 let (anchor, d) = if s.above == Some(i) {
@@ -318,7 +335,6 @@ fn wishes(design: &Design, net: &Net, stacks: &[Stack]) -> Vec<(String, String, 
                 } else {
                     (up.clone(), 1)
                 };
-                let _ = down;
                 if !net.is_rail(&base) && of(&base) != of(&anchor) {
                     out.push((base, anchor, d));
                 }
@@ -340,7 +356,8 @@ fn aligned_levels(design: &Design, net: &Net, stacks: &[Stack], columns: &[usize
     let wishes = wishes(design, net, stacks);
     let of = |n: &str| stacks.iter().position(|s| s.nodes.iter().any(|m| m == n));
     let mut offset: Vec<Option<i32>> = vec![None; stacks.len()];
-    let rel = |s: usize, n: &str| 2 * stacks[s].nodes.iter().position(|m| m == n).unwrap_or(0) as i32;
+    let rel =
+        |s: usize, n: &str| 2 * stacks[s].nodes.iter().position(|m| m == n).unwrap_or(0) as i32;
     while offset.iter().any(|o| o.is_none()) {
         // Votes for each unplaced stack's offset from wishes tying it to placed stacks.
         let mut best: Option<(usize, usize, i32)> = None; // (votes, stack, offset)
@@ -444,7 +461,7 @@ fn mend(
     mut levels: Levels,
     mut drawing: Drawing,
     mut trouble: usize,
-) -> (Levels, Drawing, usize) {
+) -> (Drawing, usize) {
     let singles: Vec<String> = columns
         .iter()
         .filter(|s| stacks[**s].nodes.len() == 1 && stacks[**s].parts().next().is_none())
@@ -467,7 +484,7 @@ fn mend(
                     (levels, drawing, trouble) = (trial, d, t);
                     improved = true;
                     if trouble == 0 {
-                        return (levels, drawing, trouble);
+                        return (drawing, trouble);
                     }
                 }
             }
@@ -476,7 +493,7 @@ fn mend(
             break;
         }
     }
-    (levels, drawing, trouble)
+    (drawing, trouble)
 }
 
 /// One end of a placed part: its node and that node's level.
@@ -500,7 +517,13 @@ enum Item {
 }
 
 /// Builds the drawing for given levels.
-fn build(design: &Design, net: &Net, stacks: &[Stack], columns: &[usize], levels: &Levels) -> Drawing {
+fn build(
+    design: &Design,
+    net: &Net,
+    stacks: &[Stack],
+    columns: &[usize],
+    levels: &Levels,
+) -> Drawing {
     let of = |n: &str| stacks.iter().position(|s| s.nodes.iter().any(|m| m == n));
     let col = |n: &str| of(n).and_then(|s| columns.iter().position(|c| *c == s)).unwrap_or(0);
     let deepest = levels.values().copied().max().unwrap_or(net.first_inner());
@@ -515,7 +538,12 @@ fn build(design: &Design, net: &Net, stacks: &[Stack], columns: &[usize], levels
         let (a, b) = (end(&design.signal.positive), end(&design.signal.negative));
         let flipped = a.level > b.level;
         let (upper, lower) = if flipped { (b, a) } else { (a, b) };
-        items[col(&design.signal.positive)].push(Item::Upright { part: None, upper, lower, flipped });
+        items[col(&design.signal.positive)].push(Item::Upright {
+            part: None,
+            upper,
+            lower,
+            flipped,
+        });
     }
     for (k, &s) in columns.iter().enumerate() {
         if stacks[s].nodes.len() > 1 || stacks[s].parts().next().is_some() {
@@ -554,7 +582,13 @@ fn build(design: &Design, net: &Net, stacks: &[Stack], columns: &[usize], levels
         if upper.level == lower.level {
             // Both ends on one node (or both on one rail): lie it one level below.
             let at = upper.level + 1;
-            level_items[k].push(Item::Level { part: i, left: upper, right: lower, level: at, flipped });
+            level_items[k].push(Item::Level {
+                part: i,
+                left: upper,
+                right: lower,
+                level: at,
+                flipped,
+            });
             continue;
         }
         items[k].push(Item::Upright { part: Some(i), upper, lower, flipped });
@@ -562,11 +596,10 @@ fn build(design: &Design, net: &Net, stacks: &[Stack], columns: &[usize], levels
     for (k, l) in level_items.into_iter().enumerate() {
         items[k].extend(l);
     }
-    let mut pen = Pen { design, levels: &level, wires: Vec::new(), symbols: Vec::new(), x: MARGIN + 8.0 };
+    let mut pen =
+        Pen { design, levels: &level, wires: Vec::new(), symbols: Vec::new(), x: MARGIN + 8.0 };
     for column in &items {
-        for item in column {
-            pen.place(item, stacks);
-        }
+        pen.column(column, stacks);
         pen.x += 8.0;
     }
     pen.finish(design, net, ground)
@@ -615,7 +648,15 @@ impl<F: Fn(&str) -> i32> Pen<'_, F> {
 
     /// An upright two-terminal part at `x` between `upper` and `lower`, its body one level
     /// from the node end (next to the rail end's node when the upper end is a top rail).
-    fn upright(&mut self, x: f64, part: Option<usize>, upper: &End, lower: &End, flipped: bool, top_rail: bool) -> f64 {
+    fn upright(
+        &mut self,
+        x: f64,
+        part: Option<usize>,
+        upper: &End,
+        lower: &End,
+        flipped: bool,
+        top_rail: bool,
+    ) -> f64 {
         let (name, value, shape) = self.name_of(part);
         let length = if part.is_none() { SOURCE } else { BODY };
         let (yu, yl) = (y(upper.level), y(lower.level));
@@ -636,7 +677,11 @@ impl<F: Fn(&str) -> i32> Pen<'_, F> {
         } else {
             vec![(upper.node.clone(), a), (lower.node.clone(), b)]
         };
-        let gap = if part.is_none() { 20.0 } else { 14.0 };
+        let gap = match shape {
+            Shape::Source => 20.0,
+            Shape::Capacitor | Shape::Controlled => 15.0,
+            _ => 13.0,
+        };
         let text = vec![
             Text { at: (x + gap, centre - 2.0), text: name.clone(), middle: false },
             Text { at: (x + gap, centre + 11.0), text: value.clone(), middle: false },
@@ -648,9 +693,18 @@ impl<F: Fn(&str) -> i32> Pen<'_, F> {
 
     /// A transistor with its collector–emitter line at `x`, its body centred on `centre`, its
     /// base terminal `lead` px left of the line.
-    fn transistor(&mut self, x: f64, centre: f64, part: usize, lead: f64) -> (Point, Point, Point, f64) {
+    fn transistor(
+        &mut self,
+        x: f64,
+        centre: f64,
+        part: usize,
+        lead: f64,
+        gap: f64,
+    ) -> (Point, Point, Point, f64) {
         let p = &self.design.parts[part];
-        let Some((up, base, down, n)) = device(self.design, &p.kind) else { return ((x, centre), (x, centre), (x, centre), 0.0) };
+        let Some((up, base, down, n)) = device(self.design, &p.kind) else {
+            return ((x, centre), (x, centre), (x, centre), 0.0);
+        };
         let top = (x, centre - HALF_DEVICE);
         let bottom = (x, centre + HALF_DEVICE);
         let b = (x - lead, centre);
@@ -663,8 +717,8 @@ impl<F: Fn(&str) -> i32> Pen<'_, F> {
         let (cn, en) = if n { (up.clone(), down.clone()) } else { (down.clone(), up.clone()) };
         let value = value_text(self.design, &p.kind);
         let text = vec![
-            Text { at: (x + 8.0, centre - 2.0), text: p.name.clone(), middle: false },
-            Text { at: (x + 8.0, centre + 11.0), text: value.clone(), middle: false },
+            Text { at: (x + gap, centre - 2.0), text: p.name.clone(), middle: false },
+            Text { at: (x + gap, centre + 11.0), text: value.clone(), middle: false },
         ];
         self.symbols.push(Symbol {
             name: p.name.clone(),
@@ -672,8 +726,7 @@ impl<F: Fn(&str) -> i32> Pen<'_, F> {
             terminals: vec![(cn, c), (base.clone(), b), (en, e)],
             text,
         });
-        let _ = (up, down);
-        (top, b, bottom, 8.0 + text_width(&p.name).max(text_width(&value)))
+        (top, b, bottom, gap + text_width(&p.name).max(text_width(&value)))
     }
 
     /// Joins a transistor's base terminal to its node's level.
@@ -682,22 +735,100 @@ impl<F: Fn(&str) -> i32> Pen<'_, F> {
         self.wire(base, b, (b.0, target));
     }
 
-    fn place(&mut self, item: &Item, stacks: &[Stack]) {
+    /// The vertical extent an item takes in its lane: (top y, bottom y, top node, bottom
+    /// node), or `None` for an item that takes a slot of its own.
+    fn span(&self, item: &Item, stacks: &[Stack]) -> Option<Span> {
+        let at = |n: &str| y((self.levels)(n));
         match item {
-            Item::Upright { part, upper, lower, flipped } => {
-                let x = self.x + 12.0;
-                let top_rail = part.is_some() && upper.level < lower.level && {
-                    let d = self.design;
-                    d.supplies.iter().any(|s| s.node == upper.node && s.voltage.nominal >= 0.0)
-                };
-                let w = self.upright(x, *part, upper, lower, *flipped, top_rail);
-                self.x = x + w + 14.0;
+            Item::Upright { part: Some(_), upper, lower, .. } => {
+                Some((y(upper.level), y(lower.level), upper.node.clone(), lower.node.clone()))
             }
+            Item::Spine(s) => {
+                let stack = &stacks[*s];
+                let part = |i: usize| device(self.design, &self.design.parts[i].kind);
+                let top = match stack.above.and_then(part) {
+                    Some((up, ..)) => up,
+                    None => stack.nodes[0].clone(),
+                };
+                let bottom = match stack.below.and_then(part) {
+                    Some((_, _, down, _)) => down,
+                    None => stack.nodes.last().cloned().unwrap_or_default(),
+                };
+                Some((at(&top), at(&bottom), top, bottom))
+            }
+            _ => None,
+        }
+    }
+
+    /// Places one column's items. A standing part shares a lane (one x) with the column's
+    /// stack or with other standing parts wherever their extents meet only at a common node:
+    /// the collector resistor stands right above its transistor, the two halves of a bias
+    /// divider one over the other.
+    fn column(&mut self, items: &[Item], stacks: &[Stack]) {
+        let mut lanes: Vec<(Vec<&Item>, Vec<Span>)> = Vec::new();
+        let mut rest = Vec::new();
+        for item in items {
+            let Some(span) = self.span(item, stacks) else {
+                rest.push(item);
+                continue;
+            };
+            let spine = matches!(item, Item::Spine(_));
+            let lane = lanes.iter_mut().find(|(taken, spans)| {
+                !spine
+                    && !matches!(taken[0], Item::Upright { part: None, .. })
+                    && spans.iter().all(|s| apart(s, &span))
+            });
+            match lane {
+                Some((taken, spans)) => {
+                    taken.push(item);
+                    spans.push(span);
+                }
+                None => lanes.push((vec![item], vec![span])),
+            }
+        }
+        // The source stands in a lane of its own.
+        for item in items {
+            if matches!(item, Item::Upright { part: None, .. }) {
+                lanes.insert(0, (vec![item], Vec::new()));
+            }
+        }
+        for (taken, _) in lanes {
+            let x = match taken[0] {
+                Item::Spine(s) => self.x + self.spine_lead(&stacks[*s]) + 4.0,
+                _ => self.x + 10.0,
+            };
+            let mut widest: f64 = 0.0;
+            for item in taken {
+                let w = match item {
+                    Item::Spine(s) => self.spine(&stacks[*s], x),
+                    Item::Upright { part, upper, lower, flipped } => {
+                        let top_rail = part.is_some() && upper.level < lower.level && {
+                            let d = self.design;
+                            d.supplies
+                                .iter()
+                                .any(|s| s.node == upper.node && s.voltage.nominal >= 0.0)
+                        };
+                        self.upright(x, *part, upper, lower, *flipped, top_rail)
+                    }
+                    _ => 0.0,
+                };
+                widest = widest.max(w);
+            }
+            self.x = x + widest + 8.0;
+        }
+        for item in rest {
+            self.place(item);
+        }
+    }
+
+    fn place(&mut self, item: &Item) {
+        match item {
             Item::Level { part, left, right, level, flipped } => {
                 let (name, value, shape) = self.name_of(Some(*part));
                 let span = text_width(&name).max(text_width(&value)).max(BODY);
-                let x0 = self.x + 12.0;
-                let (a, b) = ((x0 + (span - BODY) / 2.0, y(*level)), (x0 + (span + BODY) / 2.0, y(*level)));
+                let x0 = self.x + 10.0;
+                let (a, b) =
+                    ((x0 + (span - BODY) / 2.0, y(*level)), (x0 + (span + BODY) / 2.0, y(*level)));
                 // An end on its node's level meets the node's line there; another end turns
                 // to its node's level at the slot's edge.
                 if left.level != *level {
@@ -719,35 +850,65 @@ impl<F: Fn(&str) -> i32> Pen<'_, F> {
                     Text { at: (mid, y(*level) + 21.0), text: value, middle: true },
                 ];
                 self.symbols.push(Symbol { name, shape, terminals, text });
-                self.x = x0 + span + 12.0;
+                self.x = x0 + span + 8.0;
             }
             Item::Loose(i) => {
                 let x = self.x + BASE_LEAD + 4.0;
                 let p = &self.design.parts[*i];
-                let nodes = p.kind.nodes();
-                let centre = y((self.levels)(nodes[1]));
-                let (top, b, bottom, w) = self.transistor(x, centre, *i, BASE_LEAD);
+                let centre = y((self.levels)(p.kind.nodes()[1]));
                 let Some((up, _, down, _)) = device(self.design, &p.kind) else { return };
                 let (yu, yd) = (y((self.levels)(&up)), y((self.levels)(&down)));
-                self.wire(&up, top, (x, yu));
-                self.wire(&down, bottom, (x, yd));
-                let _ = b;
+                // A terminal whose node lies the other way steps out and turns back in a lane
+                // of its own beside the device, so it never runs along its partner.
+                let (turn_up, turn_down) = (yu > centre - HALF_DEVICE, yd < centre + HALF_DEVICE);
+                let gap = if turn_up || turn_down { 30.0 } else { 8.0 };
+                let (top, _, bottom, w) = self.transistor(x, centre, *i, BASE_LEAD, gap);
+                if turn_up {
+                    let out = (x, top.1 - 8.0);
+                    self.wire(&up, top, out);
+                    self.wire(&up, out, (x + 12.0, out.1));
+                    self.wire(&up, (x + 12.0, out.1), (x + 12.0, yu));
+                } else {
+                    self.wire(&up, top, (x, yu));
+                }
+                if turn_down {
+                    let out = (x, bottom.1 + 8.0);
+                    self.wire(&down, bottom, out);
+                    self.wire(&down, out, (x + 20.0, out.1));
+                    self.wire(&down, (x + 20.0, out.1), (x + 20.0, yd));
+                } else {
+                    self.wire(&down, bottom, (x, yd));
+                }
                 self.x = x + w + 14.0;
             }
-            Item::Spine(s) => self.spine(&stacks[*s]),
+            Item::Spine(_) | Item::Upright { .. } => {}
         }
     }
 
     /// A stack on one line: its links between its nodes, hanging devices to the rails.
-    fn spine(&mut self, stack: &Stack) {
-        let devices = stack.parts().filter(|p| device(self.design, &self.design.parts[*p].kind).is_some()).count();
-        let lead = BASE_LEAD + 10.0 * devices.saturating_sub(1) as f64;
-        let x = self.x + lead + 4.0;
+    /// Room a stack's line needs on its left for its devices' base leads.
+    fn spine_lead(&self, stack: &Stack) -> f64 {
+        let devices = stack
+            .parts()
+            .filter(|p| device(self.design, &self.design.parts[*p].kind).is_some())
+            .count();
+        BASE_LEAD + 10.0 * devices.saturating_sub(1) as f64
+    }
+
+    /// A stack on the line at `x`: its links between its nodes, hanging devices to the rails.
+    /// Returns the width its text takes right of the line.
+    fn spine(&mut self, stack: &Stack, x: f64) -> f64 {
         let mut widest: f64 = 0.0;
         let mut k = 0;
         // `centre`: the body's y; the middle of its two nodes unless it hangs from a rail.
-        let mut device_at = |pen: &mut Self, part: usize, upper: (String, f64), lower: (String, f64), centre: f64| -> f64 {
-            let (top, b, bottom, w) = pen.transistor(x, centre, part, BASE_LEAD + 10.0 * k as f64);
+        let mut device_at = |pen: &mut Self,
+                             part: usize,
+                             upper: (String, f64),
+                             lower: (String, f64),
+                             centre: f64|
+         -> f64 {
+            let (top, b, bottom, w) =
+                pen.transistor(x, centre, part, BASE_LEAD + 10.0 * k as f64, 8.0);
             k += 1;
             pen.wire(&upper.0, (x, upper.1), top);
             pen.wire(&lower.0, bottom, (x, lower.1));
@@ -758,10 +919,18 @@ impl<F: Fn(&str) -> i32> Pen<'_, F> {
         let first = &stack.nodes[0];
         let last = stack.nodes.last().cloned().unwrap_or_default();
         if let Some(p) = stack.above {
-            let Some((up, _, _, _)) = device(self.design, &self.design.parts[p].kind) else { return };
+            let Some((up, _, _, _)) = device(self.design, &self.design.parts[p].kind) else {
+                return 0.0;
+            };
             let yl = y((self.levels)(first));
             // The body one level above its node, whatever the rail's distance.
-            let w = device_at(self, p, (up.clone(), y((self.levels)(&up))), (first.clone(), yl), yl - LEVEL);
+            let w = device_at(
+                self,
+                p,
+                (up.clone(), y((self.levels)(&up))),
+                (first.clone(), yl),
+                yl - LEVEL,
+            );
             widest = widest.max(w);
         }
         for (i, &p) in stack.links.iter().enumerate() {
@@ -780,17 +949,26 @@ impl<F: Fn(&str) -> i32> Pen<'_, F> {
             }
         }
         if let Some(p) = stack.below {
-            let Some((_, _, down, _)) = device(self.design, &self.design.parts[p].kind) else { return };
+            let Some((_, _, down, _)) = device(self.design, &self.design.parts[p].kind) else {
+                return 0.0;
+            };
             let yu = y((self.levels)(&last));
-            let w = device_at(self, p, (last.clone(), yu), (down.clone(), y((self.levels)(&down))), yu + LEVEL);
+            let w = device_at(
+                self,
+                p,
+                (last.clone(), yu),
+                (down.clone(), y((self.levels)(&down))),
+                yu + LEVEL,
+            );
             widest = widest.max(w);
         }
-        self.x = x + widest + 14.0;
+        widest
     }
 
     /// Node lines, rails, dots and names.
     fn finish(mut self, design: &Design, net: &Net, ground: i32) -> Drawing {
-        let width = self.x + MARGIN + 60.0;
+        // Wide enough for the output node's line and its port past the last part.
+        let width = self.x + MARGIN + 44.0;
         let mut labels = Vec::new();
         let mut ports = Vec::new();
         // Each inner node: a line through every point that ends on its level.
@@ -802,7 +980,11 @@ impl<F: Fn(&str) -> i32> Pen<'_, F> {
                 .iter()
                 .filter(|w| w.net == *n)
                 .flat_map(|w| [w.a, w.b])
-                .chain(self.symbols.iter().flat_map(|s| s.terminals.iter().filter(|t| t.0 == *n).map(|t| t.1)))
+                .chain(
+                    self.symbols
+                        .iter()
+                        .flat_map(|s| s.terminals.iter().filter(|t| t.0 == *n).map(|t| t.1)),
+                )
                 .filter(|p| (p.1 - yy).abs() < 1e-9)
                 .map(|p| p.0)
                 .collect();
@@ -835,7 +1017,11 @@ impl<F: Fn(&str) -> i32> Pen<'_, F> {
         for (i, (r, v)) in net.bottom.iter().enumerate() {
             let yy = y(ground + i as i32);
             self.wires.push(Wire { net: r.clone(), a: (MARGIN, yy), b: (width - MARGIN, yy) });
-            let text = if r == GROUND { r.clone() } else { format!("{r}  {}", crate::notation::si(*v, "V", 3)) };
+            let text = if r == GROUND {
+                r.clone()
+            } else {
+                format!("{r}  {}", crate::notation::si(*v, "V", 3))
+            };
             labels.push(Text { at: (MARGIN, yy + 14.0), text, middle: false });
         }
         let wires = merged(self.wires);
@@ -845,7 +1031,7 @@ impl<F: Fn(&str) -> i32> Pen<'_, F> {
     }
 }
 
-/// The wires with each node's overlapping or end-to-end collinear pieces joined into one.
+/// The wires with each node's overlapping collinear pieces joined into one.
 fn merged(wires: Vec<Wire>) -> Vec<Wire> {
     let key = |w: &Wire| -> (String, bool, i64) {
         let level = (w.a.1 - w.b.1).abs() < 1e-9;
@@ -868,7 +1054,9 @@ fn merged(wires: Vec<Wire>) -> Vec<Wire> {
         let mut joined: Vec<(f64, f64)> = Vec::new();
         for (lo, hi) in spans {
             match joined.last_mut() {
-                Some(last) if lo <= last.1 + 1e-9 => last.1 = last.1.max(hi),
+                // Overlapping pieces join; pieces that only meet end to end stay two, so a
+                // junction there is still seen (and dotted).
+                Some(last) if lo < last.1 - 1e-9 => last.1 = last.1.max(hi),
                 _ => joined.push((lo, hi)),
             }
         }
@@ -878,6 +1066,24 @@ fn merged(wires: Vec<Wire>) -> Vec<Wire> {
         }
     }
     out
+}
+
+/// A lane's vertical extent: top y, bottom y and the nodes at those ends.
+type Span = (f64, f64, String, String);
+
+/// Whether two extents in one lane stay clear of each other, touching only at a common node.
+fn apart(a: &Span, b: &Span) -> bool {
+    let eps = 1e-9;
+    if a.1 < b.0 - eps || b.1 < a.0 - eps {
+        return true;
+    }
+    if (a.1 - b.0).abs() < eps && a.0 < b.0 {
+        return a.3 == b.2;
+    }
+    if (b.1 - a.0).abs() < eps && b.0 < a.0 {
+        return b.3 == a.2;
+    }
+    false
 }
 
 /// Whether `p` lies on the segment `w` (ends included).
@@ -897,7 +1103,8 @@ fn dots(wires: &[Wire], symbols: &[Symbol]) -> Vec<Point> {
     let mut points: Vec<Point> = wires.iter().flat_map(|w| [w.a, w.b]).collect();
     points.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.total_cmp(&b.1)));
     points.dedup();
-    let terminals: Vec<Point> = symbols.iter().flat_map(|s| s.terminals.iter().map(|t| t.1)).collect();
+    let terminals: Vec<Point> =
+        symbols.iter().flat_map(|s| s.terminals.iter().map(|t| t.1)).collect();
     points
         .into_iter()
         .filter(|p| {
@@ -951,10 +1158,12 @@ fn collisions(d: &Drawing) -> usize {
 /// The box a symbol's body fills, shrunk by a pixel so wires ending on its terminals do not
 /// count as crossing it.
 fn body_box(s: &Symbol) -> (Point, Point) {
-    let xs = s.terminals.iter().map(|t| t.1 .0);
-    let ys = s.terminals.iter().map(|t| t.1 .1);
-    let (mut x0, mut x1) = (xs.clone().fold(f64::INFINITY, f64::min), xs.fold(f64::NEG_INFINITY, f64::max));
-    let (mut y0, mut y1) = (ys.clone().fold(f64::INFINITY, f64::min), ys.fold(f64::NEG_INFINITY, f64::max));
+    let xs = s.terminals.iter().map(|t| t.1.0);
+    let ys = s.terminals.iter().map(|t| t.1.1);
+    let (mut x0, mut x1) =
+        (xs.clone().fold(f64::INFINITY, f64::min), xs.fold(f64::NEG_INFINITY, f64::max));
+    let (mut y0, mut y1) =
+        (ys.clone().fold(f64::INFINITY, f64::min), ys.fold(f64::NEG_INFINITY, f64::max));
     let half = match s.shape {
         Shape::Source => 14.0,
         Shape::Bjt(_) | Shape::Mosfet(_) => 0.0,

@@ -95,9 +95,9 @@ pub struct Drawing {
 }
 
 /// Character width of the drawing's text, display pixels (monospace at [`TEXT_SIZE`]).
-const CHAR: f64 = 6.7;
+const CHAR: f64 = 7.85;
 /// Text size, display pixels.
-const TEXT_SIZE: f64 = 11.0;
+const TEXT_SIZE: f64 = 13.0;
 
 /// The width a line of text takes, display pixels.
 fn text_width(text: &str) -> f64 {
@@ -152,7 +152,12 @@ impl Drawing {
             draw_symbol(&mut s, symbol);
         }
         for p in &self.ports {
-            let _ = writeln!(s, "<circle cx=\"{}\" cy=\"{}\" r=\"4\" fill=\"#FFFFFF\"/>", n(p.0), n(p.1));
+            let _ = writeln!(
+                s,
+                "<circle cx=\"{}\" cy=\"{}\" r=\"4\" fill=\"#FFFFFF\"/>",
+                n(p.0),
+                n(p.1)
+            );
         }
         s.push_str("</g>\n<g fill=\"#141414\" stroke=\"none\">\n");
         for d in &self.dots {
@@ -232,7 +237,8 @@ fn draw_symbol(s: &mut String, symbol: &Symbol) {
             let _ = writeln!(s, "<path d=\"{d}\"/>");
         }
         Shape::Controlled => {
-            let (p, q, r, t) = (at(mid - 12.0, 0.0), at(mid, 10.0), at(mid + 12.0, 0.0), at(mid, -10.0));
+            let (p, q, r, t) =
+                (at(mid - 12.0, 0.0), at(mid, 10.0), at(mid + 12.0, 0.0), at(mid, -10.0));
             line(s, at(0.0, 0.0), p);
             line(s, r, at(len, 0.0));
             let _ = writeln!(
@@ -298,16 +304,14 @@ fn draw_transistor(s: &mut String, symbol: &Symbol) {
     let (c, b, e) = (symbol.terminals[0].1, symbol.terminals[1].1, symbol.terminals[2].1);
     let y = b.1;
     let x = c.0;
-    let up = if c.1 < e.1 { c } else { e };
-    let down = if c.1 < e.1 { e } else { c };
-    let _ = (up, down);
     let arrow = |s: &mut String, from: Point, to: Point| {
         // A filled arrowhead at `to`, pointing from `from`.
         let (dx, dy) = (to.0 - from.0, to.1 - from.1);
         let l = (dx * dx + dy * dy).sqrt();
         let (ux, uy) = (dx / l, dy / l);
         let back = (to.0 - ux * 7.0, to.1 - uy * 7.0);
-        let (p, q) = ((back.0 - uy * 3.5, back.1 + ux * 3.5), (back.0 + uy * 3.5, back.1 - ux * 3.5));
+        let (p, q) =
+            ((back.0 - uy * 3.5, back.1 + ux * 3.5), (back.0 + uy * 3.5, back.1 - ux * 3.5));
         let _ = writeln!(
             s,
             "<path d=\"M{} {}L{} {}L{} {}Z\" fill=\"#141414\"/>",
