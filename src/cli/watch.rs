@@ -1,5 +1,6 @@
-//! `tauweave render --watch`: renders, then renders again whenever the design file or the
-//! template changes, until the process is stopped (Ctrl-C).
+//! `tauweave render --watch`: renders, then renders again whenever the design file, the
+//! template or the schematic drawing the design names changes, until the process is stopped
+//! (Ctrl-C).
 //!
 //! Owns the watch loop: a debounced watcher on the folders holding the inputs (non-recursive,
 //! so an editor that saves by renaming a temporary file over the original is seen), the filter
@@ -8,8 +9,8 @@
 //! writing stay in `build.rs`. A render that fails on its input is reported and watching
 //! goes on; only a failing watcher or an internal error ends the loop, for `main` to report.
 //!
-//! The contents decide, not the events: the loop keeps the bytes of the design and template
-//! as last rendered, and on an event re-reads them and rebuilds only when they differ. So a
+//! The contents decide, not the events: the loop keeps the bytes of the design, template and
+//! drawing as last rendered, and on an event re-reads them and rebuilds only when they differ. So a
 //! `touch` rebuilds nothing, and neither does a render that copies its inputs over the watched
 //! design itself (`render out/x/inputs/design.yaml --out out/x`): an edit there converges after
 //! one rebuild instead of looping. After a render that wrote its files, the bytes kept are its
@@ -28,7 +29,7 @@ use notify::event::{AccessKind, AccessMode};
 use notify::{EventKind, RecursiveMode};
 use notify_debouncer_full::{DebounceEventResult, new_debouncer};
 
-use crate::cli::build::{Format, RenderJob, Written, pdf_fatal, render_and_write};
+use crate::cli::build::{Format, RenderJob, Written, pdf_fatal, render_and_write, schematic_copy};
 use crate::cli::{Failure, Level, Outcome, problem};
 use crate::notation::{absent, plain, si};
 use crate::report::manifest::{DESIGN_COPY, TEMPLATE_COPY};
@@ -37,33 +38,24 @@ use crate::report::results;
 /// How long the inputs must stay quiet before a rebuild: one save is often several writes.
 const QUIET: Duration = Duration::from_millis(200);
 
-/// Renders `job` and renders again on every change of its design or template file; `format`
-/// decides whether a missing report.pdf is an error or a warning. Returns only when watching
-/// becomes impossible or a render hits an internal error.
+/// Renders `job` and renders again on every change of its design, template or schematic
+/// drawing; `format` decides whether a missing report.pdf is an error or a warning. Returns
+/// only when watching becomes impossible or a render hits an internal error.
 pub fn run(job: &RenderJob, format: Format) -> Result<Outcome, Failure> {
-    let inputs: Vec<&Path> =
-        std::iter::once(job.design.as_path()).chain(job.template.as_deref()).collect();
-    let watched = inputs
-        .iter()
-        .map(|p| {
-            watch_key(p).map_err(|e| {
-                Failure::input(
-                    format_args!("cannot watch `{}`: {e}", p.display()),
-                    Some("check that its folder exists"),
-                )
-            })
-        })
-        .collect::<Result<Vec<PathBuf>, Failure>>()?;
-
+    let mut inputs = inputs_of(job)?;
     let (sender, events) = mpsc::channel();
     let mut debouncer = new_debouncer(QUIET, None, sender).map_err(watcher_failure)?;
-    let folders: BTreeSet<&Path> = watched.iter().filter_map(|p| p.parent()).collect();
-    for folder in folders {
-        debouncer.watch(folder, RecursiveMode::NonRecursive).map_err(watcher_failure)?;
-    }
+    let mut folders: BTreeSet<PathBuf> = BTreeSet::new();
+    let mut watch_folders = |inputs: &[Input]| -> Result<(), Failure> {
+        for folder in inputs.iter().filter_map(|i| i.key.parent()) {
+            if folders.insert(folder.to_path_buf()) {
+                debouncer.watch(folder, RecursiveMode::NonRecursive).map_err(watcher_failure)?;
+            }
+        }
+        Ok(())
+    };
+    watch_folders(&inputs)?;
 
-    let names: Vec<String> = inputs.iter().map(|p| format!("{}", p.display())).collect();
-    let watching = format!("watching {} for changes (Ctrl-C to stop)", names.join(" and "));
     // The inputs' bytes as last rendered, and the last render's note on report.pdf.
     let mut rendered = read_inputs(&inputs);
     let mut pdf_shown = None;
@@ -71,18 +63,21 @@ pub fn run(job: &RenderJob, format: Format) -> Result<Outcome, Failure> {
         Ok(written) => {
             eprint!("{}", written.notes);
             eprintln!("{}", written.summary());
-            rendered = input_copies(&written, inputs.len());
+            inputs = inputs_of(job)?;
+            rendered = input_copies(&written, &inputs);
             pdf_note(&written, format, &mut pdf_shown);
         }
         Err(failure) => report_input_failure(failure)?,
     }
-    eprintln!("{watching}");
+    watch_folders(&inputs)?;
+    eprintln!("{}", watching(&inputs));
 
     while let Ok(batch) = events.recv() {
-        let mut changed = touches(batch, &watched);
+        let keys: Vec<PathBuf> = inputs.iter().map(|i| i.key.clone()).collect();
+        let mut changed = touches(batch, &keys);
         // Saves that landed during the last render make one rebuild, not one each.
         for more in events.try_iter() {
-            changed |= touches(more, &watched);
+            changed |= touches(more, &keys);
         }
         if !changed {
             continue;
@@ -94,6 +89,7 @@ pub fn run(job: &RenderJob, format: Format) -> Result<Outcome, Failure> {
         }
         // The clock is read for this line only; nothing written depends on it.
         let started = Instant::now();
+        let before: Vec<PathBuf> = keys;
         match render_and_write(job) {
             Ok(written) => {
                 eprint!("{}", written.notes);
@@ -103,32 +99,83 @@ pub fn run(job: &RenderJob, format: Format) -> Result<Outcome, Failure> {
                     started.elapsed().as_millis(),
                     headline(written.file("results.json").unwrap_or_default())
                 );
-                rendered = input_copies(&written, inputs.len());
+                inputs = inputs_of(job)?;
+                rendered = input_copies(&written, &inputs);
                 pdf_note(&written, format, &mut pdf_shown);
             }
             Err(failure) => {
-                rendered = now;
+                inputs = inputs_of(job)?;
+                let same = inputs.iter().map(|i| &i.key).eq(before.iter());
+                rendered = if same { now } else { read_inputs(&inputs) };
                 report_input_failure(failure)?;
-                eprintln!("{watching}");
+                eprintln!("{}", watching(&inputs));
             }
+        }
+        watch_folders(&inputs)?;
+        // A design that now names another drawing (or none) is watched for that one.
+        if inputs.iter().map(|i| &i.key).ne(before.iter()) {
+            eprintln!("{}", watching(&inputs));
         }
     }
     Err(Failure::Internal("the file watcher stopped".into()))
 }
 
-/// The bytes of each input as they are now; `None` for a file that cannot be read.
-fn read_inputs(inputs: &[&Path]) -> Vec<Option<Vec<u8>>> {
-    inputs.iter().map(|p| std::fs::read(p).ok()).collect()
+/// One file a render reads: where it is, the name the watcher knows it by, and where the
+/// render archives its copy.
+struct Input {
+    path: PathBuf,
+    key: PathBuf,
+    copy: String,
 }
 
-/// The bytes a render read from its inputs, the design and then the template (when it has
-/// one of its own): the copies it wrote into the output folder.
-fn input_copies(written: &Written, count: usize) -> Vec<Option<Vec<u8>>> {
-    [DESIGN_COPY, TEMPLATE_COPY]
-        .iter()
-        .take(count)
-        .map(|c| written.file(c).map(<[u8]>::to_vec))
-        .collect()
+/// The files a render of `job` reads: the design, the template when the job has one, and the
+/// schematic drawing the design names (read from the design as it is now: a design that does
+/// not load, or a drawing whose folder is missing, adds none — the render says why).
+fn inputs_of(job: &RenderJob) -> Result<Vec<Input>, Failure> {
+    let key = |p: &Path| {
+        watch_key(p).map_err(|e| {
+            Failure::input(
+                format_args!("cannot watch `{}`: {e}", p.display()),
+                Some("check that its folder exists"),
+            )
+        })
+    };
+    let mut out =
+        vec![Input { path: job.design.clone(), key: key(&job.design)?, copy: DESIGN_COPY.into() }];
+    if let Some(t) = &job.template {
+        out.push(Input { path: t.clone(), key: key(t)?, copy: TEMPLATE_COPY.into() });
+    }
+    let named = std::fs::read_to_string(&job.design)
+        .ok()
+        .and_then(|text| crate::design::load(&text).design)
+        .and_then(|d| d.meta.schematic);
+    if let Some(name) = named {
+        let path = job.design.parent().unwrap_or(Path::new("")).join(&name);
+        if let Ok(k) = watch_key(&path) {
+            out.push(Input { path, key: k, copy: schematic_copy(&name) });
+        }
+    }
+    Ok(out)
+}
+
+/// `watching design.yaml, stage.svg and my.md for changes (Ctrl-C to stop)`.
+fn watching(inputs: &[Input]) -> String {
+    let names: Vec<String> = inputs.iter().map(|i| format!("{}", i.path.display())).collect();
+    let list = match names.split_last() {
+        Some((last, rest)) if !rest.is_empty() => format!("{} and {last}", rest.join(", ")),
+        _ => names.join(""),
+    };
+    format!("watching {list} for changes (Ctrl-C to stop)")
+}
+
+/// The bytes of each input as they are now; `None` for a file that cannot be read.
+fn read_inputs(inputs: &[Input]) -> Vec<Option<Vec<u8>>> {
+    inputs.iter().map(|i| std::fs::read(&i.path).ok()).collect()
+}
+
+/// The bytes a render read from its inputs: the copies it wrote into the output folder.
+fn input_copies(written: &Written, inputs: &[Input]) -> Vec<Option<Vec<u8>>> {
+    inputs.iter().map(|i| written.file(&i.copy).map(<[u8]>::to_vec)).collect()
 }
 
 /// Says why report.pdf was not made, when it was not and the last render did not already say

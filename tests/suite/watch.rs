@@ -160,3 +160,28 @@ fn expect_quiet(lines: &Receiver<String>, when: &str) {
         panic!("a line {when}: {line}");
     }
 }
+
+/// Issue 14: the schematic drawing a design names is an input like the design: saving the
+/// drawing rebuilds the review (and its archived copy), touching it does not.
+#[test]
+fn watch_rebuilds_when_the_schematic_drawing_changes() {
+    let dir = scratch("watch-schematic");
+    let text = std::fs::read_to_string(root().join("designs/follower-cap-load.yaml")).unwrap();
+    let text = text.replacen("design:\n", "design:\n  schematic: stage.svg\n", 1);
+    std::fs::write(dir.join("design.yaml"), &text).unwrap();
+    let first = "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"10\" height=\"10\"/>\n";
+    std::fs::write(dir.join("stage.svg"), first).unwrap();
+    let (_watching, lines) = watch(&dir, &["design.yaml", "--out", "out", "--format", "md"], &[]);
+    let mut seen = Vec::new();
+    wait_for(&lines, "watching design.yaml and stage.svg for changes", &mut seen);
+    let copy = dir.join("out/inputs/schematic.svg");
+    assert_eq!(std::fs::read_to_string(&copy).unwrap(), first);
+
+    let second = first.replace("width=\"10\"", "width=\"20\"");
+    std::fs::write(dir.join("stage.svg"), &second).unwrap();
+    wait_for(&lines, "rebuilt ", &mut seen);
+    assert_eq!(std::fs::read_to_string(&copy).unwrap(), second);
+
+    std::fs::write(dir.join("stage.svg"), &second).unwrap();
+    expect_quiet(&lines, "after rewriting the drawing with the same bytes");
+}
