@@ -3,7 +3,9 @@
 //! self-contained page with inline CSS, a print stylesheet and a table of contents.
 
 use base64::Engine as _;
-use pulldown_cmark::{Event, HeadingLevel, Options, Parser, Tag, TagEnd, html};
+use pulldown_cmark::{Alignment, Event, HeadingLevel, Options, Parser, Tag, TagEnd, html};
+
+use crate::report::decimal;
 
 use crate::report::plots::Plot;
 use crate::report::template::plot_marker;
@@ -80,8 +82,113 @@ fn body(markdown: &str) -> (String, Vec<(u8, String, String)>) {
         i += 1;
     }
     let mut html_out = String::new();
+    let out_events = decimal_tables(units_kept(out_events));
     html::push_html(&mut html_out, subscripts(out_events).into_iter());
     (html_out, toc)
+}
+
+/// Text in tables with each number held to its unit ([`decimal::keep_units`]).
+fn units_kept(events: Vec<Event<'_>>) -> Vec<Event<'_>> {
+    let mut depth = 0;
+    events
+        .into_iter()
+        .map(|e| match e {
+            Event::Start(Tag::Table(_)) => {
+                depth += 1;
+                e
+            }
+            Event::End(TagEnd::Table) => {
+                depth -= 1;
+                e
+            }
+            Event::Text(t) if depth > 0 => Event::Text(decimal::keep_units(&t).into()),
+            e => e,
+        })
+        .collect()
+}
+
+/// Tables with a column aligned on the decimal point, written here (pulldown-cmark's writer
+/// knows no column spans): such a column becomes two cells per row, the integer part and the
+/// rest, under one header spanning both. Other tables pass through.
+fn decimal_tables(events: Vec<Event<'_>>) -> Vec<Event<'_>> {
+    let mut out = Vec::with_capacity(events.len());
+    let mut i = 0;
+    while i < events.len() {
+        if let Event::Start(Tag::Table(alignments)) = &events[i] {
+            let decimal = decimal::columns(&events, i);
+            let end = events[i..].iter().position(|e| matches!(e, Event::End(TagEnd::Table)));
+            if let (true, Some(end)) = (decimal.contains(&true), end) {
+                let html = table_html(&events[i + 1..i + end], alignments, &decimal);
+                out.push(Event::Html(html.into()));
+                i += end + 1;
+                continue;
+            }
+        }
+        out.push(events[i].clone());
+        i += 1;
+    }
+    out
+}
+
+/// One table's HTML, as pulldown-cmark writes it but with `decimal` columns split in two.
+fn table_html(events: &[Event], alignments: &[Alignment], decimal: &[bool]) -> String {
+    let mut html = String::from("<table>");
+    let (mut in_head, mut column, mut cell): (bool, usize, Vec<Event>) = (false, 0, Vec::new());
+    for e in events {
+        match e {
+            Event::Start(Tag::TableHead) => {
+                in_head = true;
+                html.push_str("<thead><tr>");
+            }
+            Event::End(TagEnd::TableHead) => {
+                in_head = false;
+                html.push_str("</tr></thead><tbody>");
+            }
+            Event::Start(Tag::TableRow) => {
+                column = 0;
+                html.push_str("<tr>");
+            }
+            Event::End(TagEnd::TableRow) => html.push_str("</tr>"),
+            Event::Start(Tag::TableCell) => cell.clear(),
+            Event::End(TagEnd::TableCell) => {
+                let align = match alignments.get(column) {
+                    Some(Alignment::Right) => " style=\"text-align: right\"",
+                    Some(Alignment::Center) => " style=\"text-align: center\"",
+                    _ => "",
+                };
+                let tag = if in_head { "th" } else { "td" };
+                if decimal.get(column) == Some(&true) && !in_head {
+                    let (int, rest) = match cell.as_slice() {
+                        [Event::Text(t)] => decimal::split(t).unwrap_or((t, "")),
+                        _ => ("", ""),
+                    };
+                    html.push_str(&format!(
+                        "<td class=\"int\">{}</td><td class=\"frac\">{}</td>",
+                        inline_html(vec![Event::Text(int.to_string().into())]),
+                        inline_html(vec![Event::Text(rest.to_string().into())])
+                    ));
+                } else {
+                    let span =
+                        if decimal.get(column) == Some(&true) { " colspan=\"2\"" } else { "" };
+                    html.push_str(&format!(
+                        "<{tag}{span}{align}>{}</{tag}>",
+                        inline_html(cell.clone())
+                    ));
+                }
+                column += 1;
+            }
+            other => cell.push(other.clone()),
+        }
+    }
+    html.push_str("</tbody></table>\n");
+    html
+}
+
+/// Inline Markdown events as HTML, symbols subscripted.
+fn inline_html(events: Vec<Event<'_>>) -> String {
+    let mut s = String::new();
+    html::push_html(&mut s, subscripts(events).into_iter());
+    s
 }
 
 /// Running text with its engineering symbols set as subscripts (`f_H` → f<sub>H</sub>); code
@@ -125,7 +232,7 @@ fn sanitise(html: &str) -> String {
         .rm_tags(&["img"])
         .add_generic_attributes(&["id", "class"])
         .add_tag_attributes("td", &["style"])
-        .add_tag_attributes("th", &["style"])
+        .add_tag_attributes("th", &["style", "colspan"])
         .url_schemes(["https", "http", "mailto"].into_iter().collect())
         .link_rel(Some("noopener noreferrer"))
         .clean(html)
@@ -207,6 +314,8 @@ h3 { font-size: 1.05rem; margin: 1.5rem 0 0.4rem; }
 table { border-collapse: collapse; margin: 0.8rem 0; font-size: 13.5px; font-variant-numeric: tabular-nums; }
 th, td { padding: 0.25rem 0.7rem; border-bottom: 1px solid var(--rule); vertical-align: top; }
 td[style*="right"], th[style*="right"] { white-space: nowrap; }
+td.int { text-align: right; padding-right: 0; white-space: nowrap; }
+td.frac { text-align: left; padding-left: 0; white-space: pre-wrap; }
 th { border-bottom: 2px solid var(--ink); text-align: left; font-weight: 600; }
 tbody tr:nth-child(even) { background: var(--pale); }
 figure.plot { margin: 1.2rem 0; }

@@ -10,6 +10,7 @@
 
 pub mod cautions;
 pub mod change;
+pub mod decimal;
 pub mod explain;
 pub mod export;
 pub mod html;

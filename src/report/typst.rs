@@ -13,6 +13,7 @@
 
 use std::collections::BTreeMap;
 
+use crate::report::decimal;
 use pulldown_cmark::TextMergeStream;
 use pulldown_cmark::{Alignment, CodeBlockKind, Event, HeadingLevel, Parser, Tag, TagEnd};
 
@@ -221,6 +222,8 @@ const STYLE: &str = r#"#set text(font: "Libertinus Serif", size: 10pt)
 
 struct TableState {
     columns: usize,
+    /// The columns aligned on the decimal point, each written as two ([`decimal`]).
+    decimal: Vec<bool>,
     in_head: bool,
     /// A header of empty cells is left out (the table starts with its first row).
     no_head: bool,
@@ -275,6 +278,7 @@ struct Writer<'p> {
     /// Found by looking ahead at the start of a list or table, used by `start`.
     next_list_loose: bool,
     next_table_head_empty: bool,
+    next_table_decimal: Vec<bool>,
     in_heading: bool,
     table: Option<TableState>,
     /// A code block being gathered: language and text.
@@ -295,6 +299,7 @@ impl<'p> Writer<'p> {
             lists: Vec::new(),
             next_list_loose: false,
             next_table_head_empty: false,
+            next_table_decimal: Vec::new(),
             in_heading: false,
             table: None,
             code: None,
@@ -323,7 +328,14 @@ impl<'p> Writer<'p> {
                 }
                 Event::Start(Tag::List(_)) => self.next_list_loose = list_is_loose(events, i),
                 Event::Start(Tag::Table(_)) => {
-                    self.next_table_head_empty = table_head_empty(events, i)
+                    self.next_table_head_empty = table_head_empty(events, i);
+                    self.next_table_decimal = decimal::columns(events, i);
+                }
+                Event::Start(Tag::TableCell) if self.skip == 0 => {
+                    if let Some(step) = self.decimal_cell(&events[i + 1..]) {
+                        i += step + 1;
+                        continue;
+                    }
                 }
                 _ => {}
             }
@@ -394,6 +406,13 @@ impl<'p> Writer<'p> {
             Event::Start(tag) => self.start(tag),
             Event::End(tag) => self.end(*tag),
             Event::Text(t) => {
+                let kept;
+                let t = if self.table.is_some() {
+                    kept = decimal::keep_units(t);
+                    kept.as_str()
+                } else {
+                    t
+                };
                 for seg in crate::report::symbol_segments(t) {
                     match seg {
                         crate::report::Segment::Plain(p) => self.out.push_str(&escape(p)),
@@ -493,19 +512,38 @@ impl<'p> Writer<'p> {
             }
             Tag::Table(alignments) => {
                 self.begin_block();
-                let align: Vec<&str> = alignments
-                    .iter()
-                    .map(|a| match a {
+                let decimal = std::mem::take(&mut self.next_table_decimal);
+                let split = |k: usize| decimal.get(k).copied().unwrap_or(false);
+                let mut align: Vec<&str> = Vec::new();
+                // Output columns that lose their inner padding: (right of integer parts, left
+                // of the rest).
+                let (mut ints, mut rests) = (Vec::new(), Vec::new());
+                for (k, a) in alignments.iter().enumerate() {
+                    if split(k) {
+                        ints.push(align.len().to_string());
+                        rests.push((align.len() + 1).to_string());
+                        align.extend(["right", "left"]);
+                        continue;
+                    }
+                    align.push(match a {
                         Alignment::Right => "right",
                         Alignment::Center => "center",
                         Alignment::Left | Alignment::None => "left",
-                    })
-                    .collect();
+                    });
+                }
                 self.out.push_str(&format!(
                     "#table(\n  columns: {},\n  align: ({},),\n",
-                    alignments.len(),
+                    align.len(),
                     align.join(", ")
                 ));
+                if !ints.is_empty() {
+                    self.out.push_str(&format!(
+                        "  inset: (x, _) => (left: if x in ({},) {{ 0pt }} else {{ 5pt }}, \
+                         right: if x in ({},) {{ 0pt }} else {{ 5pt }}, y: 3pt),\n",
+                        rests.join(", "),
+                        ints.join(", ")
+                    ));
+                }
                 let no_head = self.next_table_head_empty;
                 if no_head {
                     // Without a header the first row gets the top rule instead.
@@ -514,6 +552,7 @@ impl<'p> Writer<'p> {
                 }
                 self.table = Some(TableState {
                     columns: alignments.len(),
+                    decimal,
                     in_head: false,
                     no_head,
                     cells: 0,
@@ -536,8 +575,14 @@ impl<'p> Writer<'p> {
             }
             Tag::TableCell => {
                 let (head, skip) = self.head_cell();
+                let spans =
+                    self.table.as_ref().is_some_and(|t| t.decimal.get(t.cells) == Some(&true));
                 if !skip {
-                    self.out.push_str(if head { ", [#strong[" } else { "[" });
+                    self.out.push_str(match (head, spans) {
+                        (true, true) => ", table.cell(colspan: 2)[#strong[",
+                        (true, false) => ", [#strong[",
+                        (false, _) => "[",
+                    });
                 }
                 if let Some(t) = &mut self.table {
                     t.cells += 1;
@@ -621,6 +666,35 @@ impl<'p> Writer<'p> {
         }
     }
 
+    /// A body cell of a decimal column, written as its two cells; `after` holds the events
+    /// after its `Start(TableCell)`. Returns how many of them it used, or `None` for any other
+    /// cell (left to [`Writer::event`]).
+    fn decimal_cell(&mut self, after: &[Event]) -> Option<usize> {
+        let t = self.table.as_ref()?;
+        if t.in_head || t.decimal.get(t.cells) != Some(&true) {
+            return None;
+        }
+        let (int, rest, used) = match after {
+            [Event::End(TagEnd::TableCell), ..] => (String::new(), String::new(), 1),
+            [Event::Text(text), Event::End(TagEnd::TableCell), ..] => {
+                // The space between number and unit stays, at the start of its own cell.
+                let kept = decimal::keep_units(text);
+                let (int, rest) = decimal::split(&kept)?;
+                (int.to_string(), rest.to_string(), 2)
+            }
+            _ => return None,
+        };
+        self.out.push('[');
+        self.event(&Event::Text(int.into()));
+        self.out.push_str("], [");
+        self.event(&Event::Text(rest.into()));
+        self.out.push_str("], ");
+        if let Some(t) = &mut self.table {
+            t.cells += 1;
+        }
+        Some(used)
+    }
+
     /// Whether the current cell is a header cell, and whether it is left out.
     fn head_cell(&self) -> (bool, bool) {
         let head = self.table.as_ref().is_some_and(|t| t.in_head);
@@ -631,7 +705,13 @@ impl<'p> Writer<'p> {
     fn pad_row(&mut self) {
         let Some(t) = &mut self.table else { return };
         while t.cells < t.columns {
-            self.out.push_str(if t.in_head { ", []" } else { "[], " });
+            let spans = t.decimal.get(t.cells) == Some(&true);
+            self.out.push_str(match (t.in_head, spans) {
+                (true, true) => ", table.cell(colspan: 2)[]",
+                (true, false) => ", []",
+                (false, true) => "[], [], ",
+                (false, false) => "[], ",
+            });
             t.cells += 1;
         }
         if !t.in_head && self.out.ends_with(' ') {
@@ -931,9 +1011,14 @@ mod tests {
         let b = body("| name | value | note |\n|:---|---:|:---:|\n| R1 ] | 1 kΩ | #x |\n| R2 |\n");
         assert_eq!(
             b,
-            "#table(\n  columns: 3,\n  align: (left, right, center,),\n  \
-             table.header(repeat: true, [#strong[name];], [#strong[value];], [#strong[note];]),\n  \
-             [R1 \\]], [1 kΩ], [\\#x],\n  [R2], [], [],\n  \
+            // The value column holds numbers: it aligns on the decimal point as two columns
+            // under one header, the number held to its unit by a no-break space.
+            "#table(\n  columns: 4,\n  align: (left, right, left, center,),\n  \
+             inset: (x, _) => (left: if x in (2,) { 0pt } else { 5pt }, \
+             right: if x in (1,) { 0pt } else { 5pt }, y: 3pt),\n  \
+             table.header(repeat: true, [#strong[name];], table.cell(colspan: 2)[#strong[value];], \
+             [#strong[note];]),\n  \
+             [R1 \\]], [1], [\u{a0}kΩ], [\\#x],\n  [R2], [], [], [],\n  \
              table.hline(stroke: 0.8pt),\n);"
         );
     }

@@ -211,11 +211,15 @@ fn one_resistor_changed_shows_that_part_and_what_moved() {
     );
     assert!(md.contains("No requirement changed between pass and fail"), "{md}");
     let html = read(&dir.join("chg"), "change.html");
-    assert!(
-        html.contains(&format!("f_H exact</td><td style=\"text-align: right\">{}</td>", f_h[1]))
-            && html.contains("Change review"),
-        "{html}"
+    // The HTML aligns the column on the decimal point: integer part and rest in two cells,
+    // the number held to its unit by a no-break space.
+    let at = f_h[1].find('.').unwrap_or(f_h[1].len());
+    let (int, rest) = f_h[1].split_at(at);
+    let cells = format!(
+        "f_H exact</td><td class=\"int\">{int}</td><td class=\"frac\">{}</td>",
+        rest.replace(' ', "&nbsp;")
     );
+    assert!(html.contains(&cells) && html.contains("Change review"), "{cells}\n{html}");
 
     // Identical revisions: nothing moved.
     let same = run_in(&dir, &["diff", "rev-a.yaml", "rev-a.yaml", "--runs", "50", "--no-write"]);
