@@ -7,6 +7,7 @@
 //! uses the font family [`FONT`], which the PDF route embeds.
 
 use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
 
 use crate::analysis::requirements::RequirementCheck;
 use crate::analysis::response::SweepPoint;
@@ -53,6 +54,10 @@ pub struct Supplied {
     pub bytes: Vec<u8>,
 }
 
+/// Display width of every plot, px: at the PDF's text width its 12–13 px text prints at about
+/// the size of the captions and footnotes (8.5 pt).
+const WIDTH: u32 = 640;
+
 /// Plots are drawn on a grid [`SCALE`] times finer than the size they are shown at, so a
 /// trace's coordinates fall between whole display pixels and curves come out smooth at
 /// print resolution; the SVG's viewBox keeps the fine grid, its width and height the size.
@@ -67,6 +72,7 @@ fn finish(svg: String) -> String {
     // Name a fallback so a browser without the font still draws monospace text.
     let svg = svg
         .replace(&format!("font-family=\"{FONT}\""), &format!("font-family=\"{FONT}, monospace\""));
+    let svg = subscripted(&svg);
     // `<svg width="W" height="H" viewBox="0 0 W H"`: the displayed size is W/SCALE × H/SCALE.
     let Some(end) = svg.find('>') else { return svg };
     let head = &svg[..end];
@@ -85,8 +91,41 @@ fn finish(svg: String) -> String {
     }
 }
 
+/// The SVG with the engineering symbols of its text set as subscripts (`f_H` → f with a
+/// lowered, smaller H), as the report's text sets them.
+fn subscripted(svg: &str) -> String {
+    let mut out = String::with_capacity(svg.len());
+    let mut rest = svg;
+    while let Some(open) = rest.find("<text") {
+        let Some(tag_end) = rest[open..].find('>').map(|e| open + e + 1) else { break };
+        let Some(close) = rest[tag_end..].find("</text>").map(|e| tag_end + e) else { break };
+        out.push_str(&rest[..tag_end]);
+        let tag = &rest[open..tag_end];
+        let size = tag
+            .split("font-size=\"")
+            .nth(1)
+            .and_then(|t| t.split('"').next())
+            .and_then(|t| t.parse::<f64>().ok())
+            .unwrap_or(12.0);
+        for seg in crate::report::symbol_segments(&rest[tag_end..close]) {
+            match seg {
+                crate::report::Segment::Plain(p) => out.push_str(p),
+                crate::report::Segment::Subscripted(base, sub) => out.push_str(&format!(
+                    "{base}<tspan baseline-shift=\"sub\" font-size=\"{}\">{sub}</tspan>",
+                    (size * 0.75).round()
+                )),
+            }
+        }
+        rest = &rest[close..];
+    }
+    out.push_str(rest);
+    out
+}
+
+/// Text of `size` display px. (plotters writes a font's size divided by 1.24 into the SVG,
+/// so the size asked of it is raised by that much.)
 fn style(size: u32) -> TextStyle<'static> {
-    (FONT, px(size)).into_font().color(&INK)
+    (FONT, px(size) as f64 * 1.24).into_font().color(&INK)
 }
 
 /// The names of every plot a review can hold (`plot(name=…)` accepts these).
@@ -122,6 +161,7 @@ pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study
     out
 }
 
+/// The levers that move the upper cut-off most at their tolerance limits, largest first.
 fn tornado(s: &Study) -> Option<String> {
     let mut rows: Vec<(String, f64)> = s
         .levers
@@ -140,54 +180,156 @@ fn tornado(s: &Study) -> Option<String> {
     if rows.is_empty() {
         return None;
     }
-    let n = rows.len();
-    let reach = rows.iter().map(|r| r.1.abs()).fold(0.0, f64::max) * 1.25;
+    let bars: Vec<Bar> = rows
+        .into_iter()
+        .map(|(name, v)| Bar {
+            label: name,
+            value: v,
+            shown: crate::notation::signed_percent(v / 100.0, 3),
+            dark: v >= 0.0,
+        })
+        .collect();
+    bar_chart(&[(None, bars)], None, "change of f_H at the tolerance limit (dark: raises it)")
+}
+
+/// One bar of a bar chart.
+struct Bar {
+    /// The row's name.
+    label: String,
+    /// Its length, in the axis unit (%).
+    value: f64,
+    /// Its value as written beside the name.
+    shown: String,
+    /// Dark (black) rather than grey.
+    dark: bool,
+}
+
+/// Horizontal bars in groups, each group under an optional heading: names and values in a
+/// column on the left, bars from zero on a percentage axis below, gridlines pale. `range`
+/// fixes the axis; without it the axis spans the values and zero, on a 1-2-5 step.
+fn bar_chart(
+    groups: &[(Option<&str>, Vec<Bar>)],
+    range: Option<(f64, f64)>,
+    desc: &str,
+) -> Option<String> {
+    const ROW: u32 = 24;
+    const HEAD: u32 = 22;
+    let values = groups.iter().flat_map(|g| g.1.iter().map(|b| b.value));
+    let (lo, hi) = range.unwrap_or_else(|| {
+        let (a, b) = values.fold((0.0f64, 0.0f64), |(a, b), v| (a.min(v), b.max(v)));
+        let pad = (b - a).max(1e-9) * 0.06;
+        (if a < 0.0 { a - pad } else { 0.0 }, if b > 0.0 { b + pad } else { 0.0 })
+    });
+    let step = nice_step((hi - lo) / 5.0);
+    let chars = |t: &str| t.chars().count() as u32;
+    let name_w = groups.iter().flat_map(|g| &g.1).map(|b| chars(&b.label)).max().unwrap_or(4);
+    let value_w = groups.iter().flat_map(|g| &g.1).map(|b| chars(&b.shown)).max().unwrap_or(4);
+    let heads = groups.iter().filter(|g| g.0.is_some()).count() as u32;
+    let rows = groups.iter().map(|g| g.1.len()).sum::<usize>() as u32;
+    let height = 20 + HEAD * heads + ROW * rows + 50;
+    // Monospace at 13 px: about 7.9 px a character.
+    let (left, right) = (12 + (name_w + value_w + 3) * 79 / 10, WIDTH - 16);
+    let x = |v: f64| left as f64 + (v - lo) / (hi - lo) * (right - left) as f64;
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, (px(860), px(70 + 26 * n as u32)))
-            .into_drawing_area();
+        let root = SVGBackend::with_string(&mut svg, (px(WIDTH), px(height))).into_drawing_area();
         root.fill(&WHITE).ok()?;
-        let mut chart = ChartBuilder::on(&root)
-            .margin(px(14))
-            .x_label_area_size(px(32))
-            .y_label_area_size(px(0))
-            .build_cartesian_2d(-reach * 1.6..reach, -0.2..n as f64)
-            .ok()?;
-        chart
-            .configure_mesh()
-            .disable_y_mesh()
-            .disable_y_axis()
-            .light_line_style(WHITE.stroke_width(px(1)))
-            .bold_line_style(PALE.stroke_width(px(1)))
-            .axis_style(MID.stroke_width(px(1)))
-            .set_all_tick_mark_size(px(5))
-            .x_label_formatter(&|v| {
-                if *v < -reach - 1e-9 { String::new() } else { format!("{v:+.1} %") }
-            })
-            .label_style(style(11))
-            .x_desc("change of f_H at the tolerance limit")
-            .axis_desc_style(style(12))
-            .draw()
-            .ok()?;
-        chart
-            .draw_series(LineSeries::new([(0.0, 0.0), (0.0, n as f64)], MID.stroke_width(px(1))))
-            .ok()?;
-        chart
-            .draw_series(rows.iter().enumerate().map(|(i, (_, v))| {
-                let y = (n - 1 - i) as f64;
-                let fill = if *v >= 0.0 { INK } else { MID };
-                Rectangle::new([(0.0, y + 0.2), (*v, y + 0.8)], fill.filled())
-            }))
-            .ok()?;
-        chart
-            .draw_series(rows.iter().enumerate().map(|(i, (name, v))| {
-                let y = (n - 1 - i) as f64;
-                Text::new(format!("{name}  {v:+.2} %"), (-reach * 1.58, y + 0.72), style(12))
-            }))
-            .ok()?;
+        let at = |x: f64, y: f64| ((x * SCALE as f64) as i32, (y * SCALE as f64) as i32);
+        let (top, bottom) = (14.0, (height - 50) as f64);
+        // Gridlines over each group's rows (headings stay clear), tick labels below.
+        let first = (lo / step).ceil() as i64;
+        let last = (hi / step).floor() as i64;
+        let mut spans = Vec::new();
+        let mut y = top + 2.0;
+        for (heading, bars) in groups {
+            y += if heading.is_some() { HEAD as f64 } else { 0.0 };
+            spans.push((y, y + (ROW as usize * bars.len()) as f64));
+            y += (ROW as usize * bars.len()) as f64;
+        }
+        for k in first..=last {
+            let v = k as f64 * step;
+            let colour = if k == 0 { MID } else { PALE };
+            for &(a, b) in &spans {
+                root.draw(&PathElement::new(
+                    vec![at(x(v), a), at(x(v), b)],
+                    colour.stroke_width(px(1)),
+                ))
+                .ok()?;
+            }
+            let text = if k == 0 {
+                "0".to_string()
+            } else {
+                crate::notation::plain(v, 3).replacen('-', "−", 1)
+            };
+            let centred = style(12).pos(Pos::new(HPos::Center, VPos::Top));
+            root.draw(&Text::new(format!("{text} %"), at(x(v), bottom + 6.0), centred)).ok()?;
+        }
+        let centred = style(13).pos(Pos::new(HPos::Center, VPos::Top));
+        let middle = (left + right) as f64 / 2.0;
+        root.draw(&Text::new(desc.to_string(), at(middle, bottom + 26.0), centred)).ok()?;
+        let mut y = top + 2.0;
+        for (heading, bars) in groups {
+            if let Some(h) = heading {
+                root.draw(&Text::new(h.to_string(), at(12.0, y + 4.0), style(13))).ok()?;
+                y += HEAD as f64;
+            }
+            for b in bars {
+                root.draw(&Text::new(b.label.clone(), at(12.0, y + 5.0), style(13))).ok()?;
+                let value = style(13).pos(Pos::new(HPos::Right, VPos::Top));
+                root.draw(&Text::new(b.shown.clone(), at(left as f64 - 10.0, y + 5.0), value))
+                    .ok()?;
+                let fill = if b.dark { INK } else { MID };
+                let (a, c) = (x(0.0_f64.clamp(lo, hi)), x(b.value.clamp(lo, hi)));
+                // A bar too short to see is drawn a hair wide, so every row shows one.
+                let (a, c) = if (c - a).abs() < 1.0 {
+                    (a, a + if b.value < 0.0 { -1.0 } else { 1.0 })
+                } else {
+                    (a, c)
+                };
+                root.draw(&Rectangle::new(
+                    [at(a.min(c), y + 4.0), at(a.max(c), y + ROW as f64 - 4.0)],
+                    fill.filled(),
+                ))
+                .ok()?;
+                y += ROW as f64;
+            }
+        }
         root.present().ok()?;
     }
     Some(finish(svg))
+}
+
+/// `text` broken at spaces into lines of at most `width` characters (a longer word stands on
+/// a line of its own); no lines for empty text.
+fn wrap(text: &str, width: usize) -> Vec<String> {
+    let mut lines: Vec<String> = Vec::new();
+    for word in text.split(' ').filter(|w| !w.is_empty()) {
+        match lines.last_mut() {
+            Some(line) if line.chars().count() + 1 + word.chars().count() <= width => {
+                line.push(' ');
+                line.push_str(word);
+            }
+            _ => lines.push(word.to_string()),
+        }
+    }
+    lines
+}
+
+/// A step of 1, 2 or 5 times a power of ten near `raw`.
+fn nice_step(raw: f64) -> f64 {
+    let raw = raw.max(1e-12);
+    let power = 10f64.powf(raw.log10().floor());
+    let m = raw / power;
+    let f = if m <= 1.0 {
+        1.0
+    } else if m <= 2.0 {
+        2.0
+    } else if m <= 5.0 {
+        5.0
+    } else {
+        10.0
+    };
+    f * power
 }
 
 /// One histogram panel: the requirement it belongs to, the axis label, the unit its axis is
@@ -244,7 +386,7 @@ fn histograms(s: &Study, requirements: &[RequirementCheck]) -> Option<String> {
     }
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, (px(860), px(250 * panels.len() as u32)))
+        let root = SVGBackend::with_string(&mut svg, (px(WIDTH), px(250 * panels.len() as u32)))
             .into_drawing_area();
         root.fill(&WHITE).ok()?;
         let areas = root.split_evenly((panels.len(), 1));
@@ -290,7 +432,7 @@ fn histograms(s: &Study, requirements: &[RequirementCheck]) -> Option<String> {
                 .set_all_tick_mark_size(px(5))
                 .x_label_formatter(&|v| axis(*v))
                 .y_label_formatter(&|v| format!("{v:.0}"))
-                .label_style(style(11))
+                .label_style(style(12))
                 .x_desc(panel.label.to_string())
                 .y_desc("runs")
                 .axis_desc_style(style(12))
@@ -319,7 +461,7 @@ fn histograms(s: &Study, requirements: &[RequirementCheck]) -> Option<String> {
                     (lo + (hi - lo) * 0.01, format!("← limit {}", axis(l)))
                 };
                 chart
-                    .draw_series(std::iter::once(Text::new(text, (x, top * 0.93), style(11))))
+                    .draw_series(std::iter::once(Text::new(text, (x, top * 0.93), style(12))))
                     .ok()?;
             }
         }
@@ -585,11 +727,11 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
     let legend_height = 16 + 17 * legend_rows as u32;
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, (px(860), px(560 + legend_height)))
+        let root = SVGBackend::with_string(&mut svg, (px(WIDTH), px(574 + legend_height)))
             .into_drawing_area();
         root.fill(&WHITE).ok()?;
         let (upper, rest) = root.split_vertically(px(340));
-        let (lower, key) = rest.split_vertically(px(220));
+        let (lower, key) = rest.split_vertically(px(234));
         let mut mag = frequency_panel(
             &upper,
             (f0, f1),
@@ -654,7 +796,7 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
             &lower,
             (f0, f1),
             (ph_lo, ph_hi),
-            Axis { x_label_area: 30, y_desc: "phase", y_unit: "°", x_desc: true },
+            Axis { x_label_area: 44, y_desc: "phase", y_unit: "°", x_desc: true },
         )?;
         for m in &marks {
             let (dash, gap) = dashes(m.kind);
@@ -814,17 +956,24 @@ fn pole_zero(a: &Analysis) -> Option<String> {
     let reach_y = all.iter().map(|r| slog(r.im_hz.abs(), unit)).fold(2.0, f64::max).ceil() + 0.5;
     let mut svg = String::new();
     {
-        let extra = if far.is_empty() { 0 } else { 24 };
+        // The list of far roots, wrapped to the plot's width (12 px monospace: 7.44 px a
+        // character).
+        let lines = wrap(
+            &crate::report::decimal::keep_units(&far),
+            ((WIDTH - 80 - 14) as f64 / 7.44) as usize,
+        );
+        let extra = 6 + 18 * lines.len() as u32;
         let root =
-            SVGBackend::with_string(&mut svg, (px(860), px(420 + extra))).into_drawing_area();
+            SVGBackend::with_string(&mut svg, (px(WIDTH), px(432 + extra))).into_drawing_area();
         root.fill(&WHITE).ok()?;
-        let (map, note) = root.split_vertically(px(420));
-        if !far.is_empty() {
-            note.draw(&Text::new(far.clone(), (px(80) as i32, px(4) as i32), style(12))).ok()?;
+        let (map, note) = root.split_vertically(px(432));
+        for (k, line) in lines.iter().enumerate() {
+            let at = (px(80) as i32, px(4 + 18 * k as u32) as i32);
+            note.draw(&Text::new(line.clone(), at, style(12))).ok()?;
         }
         let mut chart = ChartBuilder::on(&map)
             .margin(px(14))
-            .x_label_area_size(px(34))
+            .x_label_area_size(px(46))
             .y_label_area_size(px(80))
             .build_cartesian_2d(-reach_x..reach_x, -reach_y..reach_y)
             .ok()?;
@@ -858,7 +1007,7 @@ fn pole_zero(a: &Analysis) -> Option<String> {
                     format!("j{t}")
                 }
             })
-            .label_style(style(11))
+            .label_style(style(12))
             .x_desc("real part, s/2π (left half-plane: stable)")
             .axis_desc_style(style(12))
             .draw()
@@ -901,7 +1050,7 @@ fn pole_zero(a: &Analysis) -> Option<String> {
                     .draw_series(std::iter::once(Text::new(
                         format!("×{n}"),
                         (x + 0.08, y + 0.25),
-                        style(11),
+                        style(12),
                     )))
                     .ok()?;
             }
@@ -911,69 +1060,31 @@ fn pole_zero(a: &Analysis) -> Option<String> {
     Some(finish(svg))
 }
 
+/// Each capacitor's share of the estimate that sets each cut-off, in two groups.
 fn shares(a: &Analysis) -> Option<String> {
-    let mut rows: Vec<(String, f64, bool)> = Vec::new();
-    for c in &a.high.octc.caps {
-        rows.push((c.part.clone(), c.share, true));
+    let group = |caps: Vec<(String, f64)>, dark: bool| -> Vec<Bar> {
+        caps.into_iter()
+            .map(|(part, share)| Bar {
+                label: part,
+                value: share * 100.0,
+                shown: format!("{} %", crate::notation::plain(share * 100.0, 3)),
+                dark,
+            })
+            .collect()
+    };
+    let high = group(a.high.octc.caps.iter().map(|c| (c.part.clone(), c.share)).collect(), true);
+    let low = group(a.low.sctc.caps.iter().map(|c| (c.part.clone(), c.share)).collect(), false);
+    let mut groups = Vec::new();
+    if !high.is_empty() {
+        groups.push((Some("upper cut-off f_H: share of Σ τ"), high));
     }
-    for c in &a.low.sctc.caps {
-        rows.push((c.part.clone(), c.share, false));
+    if !low.is_empty() {
+        groups.push((Some("lower cut-off f_L: share of Σ 1/τ"), low));
     }
-    if rows.is_empty() {
+    if groups.is_empty() {
         return None;
     }
-    let n = rows.len();
-    let height = 60 + 26 * n as u32;
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, (px(860), px(height))).into_drawing_area();
-        root.fill(&WHITE).ok()?;
-        let mut chart = ChartBuilder::on(&root)
-            .margin(px(14))
-            .x_label_area_size(px(0))
-            .y_label_area_size(px(0))
-            .build_cartesian_2d(-45.0..112.0, -0.7..n as f64)
-            .ok()?;
-        for k in 0..=5 {
-            let x = k as f64 * 20.0;
-            chart
-                .draw_series(LineSeries::new([(x, 0.0), (x, n as f64)], PALE.stroke_width(px(1))))
-                .ok()?;
-            chart
-                .draw_series(std::iter::once(Text::new(
-                    format!("{x:.0} %"),
-                    (x - 2.0, -0.15),
-                    style(11),
-                )))
-                .ok()?;
-        }
-        chart
-            .draw_series(rows.iter().enumerate().map(|(i, (part, _, high))| {
-                let y = (n - 1 - i) as f64;
-                let side = if *high { "f_H" } else { "f_L" };
-                Text::new(format!("{part} ({side})"), (-44.0, y + 0.72), style(12))
-            }))
-            .ok()?;
-        chart
-            .draw_series(rows.iter().enumerate().map(|(i, (_, share, high))| {
-                let y = (n - 1 - i) as f64;
-                let fill = if *high { INK } else { MID };
-                Rectangle::new([(0.0, y + 0.2), (share * 100.0, y + 0.8)], fill.filled())
-            }))
-            .ok()?;
-        chart
-            .draw_series(rows.iter().enumerate().map(|(i, (_, share, _))| {
-                let y = (n - 1 - i) as f64;
-                Text::new(
-                    format!("{:.1} %", share * 100.0),
-                    (share * 100.0 + 1.0, y + 0.72),
-                    style(11),
-                )
-            }))
-            .ok()?;
-        root.present().ok()?;
-    }
-    Some(finish(svg))
+    bar_chart(&groups, Some((0.0, 100.0)), "share of the time-constant estimate")
 }
 
 /// Before and after, overlaid: magnitude and phase of the exact response of two revisions,
@@ -999,7 +1110,7 @@ pub fn bode_overlay(
     let later = INK.stroke_width(px(2));
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, (px(860), px(560))).into_drawing_area();
+        let root = SVGBackend::with_string(&mut svg, (px(WIDTH), px(560))).into_drawing_area();
         root.fill(&WHITE).ok()?;
         let (upper, lower) = root.split_vertically(px(340));
         let mut mag = frequency_panel(
@@ -1043,7 +1154,7 @@ pub fn bode_overlay(
             &lower,
             (f0, f1),
             (ph_lo, ph_hi),
-            Axis { x_label_area: 30, y_desc: "phase", y_unit: "°", x_desc: true },
+            Axis { x_label_area: 44, y_desc: "phase", y_unit: "°", x_desc: true },
         )?;
         phase
             .draw_series(DashedLineSeries::new(
@@ -1081,13 +1192,36 @@ mod tests {
             .collect()
     }
 
+    /// Text in a plot prints no smaller than the captions and footnotes (8.5 pt): a plot fills
+    /// the text width of an A4 page with 2.2 cm margins (595.3 pt − 2 × 62.4 pt = 470.5 pt).
+    #[test]
+    fn plot_text_prints_no_smaller_than_the_captions() {
+        let (a, req, study) = demo();
+        for plot in all(&a, &req, Some(&study)) {
+            let sizes: Vec<f64> = plot
+                .svg
+                .split("<text")
+                .skip(1)
+                .filter_map(|t| t.split("font-size=\"").nth(1)?.split('"').next()?.parse().ok())
+                .collect();
+            assert!(!sizes.is_empty(), "{} has no text", plot.name);
+            let smallest = sizes.iter().copied().fold(f64::INFINITY, f64::min) / SCALE as f64;
+            let printed = smallest * 470.5 / WIDTH as f64;
+            assert!(printed >= 8.4, "{}: smallest text prints at {printed:.2} pt", plot.name);
+        }
+    }
+
     /// Curves are drawn between whole display pixels: a plot whose trace coordinates were
     /// all whole pixels would look stair-stepped at print resolution.
     #[test]
     fn traces_are_not_whole_pixels_only() {
         let (a, req, study) = demo();
         for plot in all(&a, &req, Some(&study)) {
-            assert!(plot.svg.contains(&format!("viewBox=\"0 0 {} ", 860 * SCALE)), "{}", plot.name);
+            assert!(
+                plot.svg.contains(&format!("viewBox=\"0 0 {} ", WIDTH * SCALE)),
+                "{}",
+                plot.name
+            );
             let coords = trace_coordinates(&plot.svg);
             if plot.name == "bode" {
                 let fractional = coords.iter().filter(|v| v.fract() != 0.0).count();
