@@ -977,9 +977,11 @@ fn pole_zero(a: &Analysis) -> Option<String> {
             .y_label_area_size(px(80))
             .build_cartesian_2d(-reach_x..reach_x, -reach_y..reach_y)
             .ok()?;
-        // Every decade when they fit, every other one on wide maps.
-        let step = if reach_x > 7.0 { 2 } else { 1 };
-        let tick = move |v: f64| -> String {
+        // Every decade whose label fits (about 64 px for `−100 MHz`), else every second or
+        // third one.
+        let per_decade = (WIDTH - 80 - 28) as f64 / (2.0 * reach_x);
+        let step_x = ((64.0 / per_decade).ceil() as i64).max(1);
+        let tick = move |v: f64, step: i64| -> String {
             if v.abs() < 1e-9 {
                 return "0".into();
             }
@@ -996,9 +998,9 @@ fn pole_zero(a: &Analysis) -> Option<String> {
             .set_all_tick_mark_size(px(5))
             .x_labels((2.0 * reach_x) as usize + 1)
             .y_labels((2.0 * reach_y) as usize + 1)
-            .x_label_formatter(&|v| tick(*v))
+            .x_label_formatter(&|v| tick(*v, step_x))
             .y_label_formatter(&|v| {
-                let t = tick(*v);
+                let t = tick(*v, 1);
                 if t.is_empty() || t == "0" {
                     t
                 } else if *v < 0.0 {
