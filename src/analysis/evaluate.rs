@@ -11,6 +11,7 @@
 
 use std::f64::consts::PI;
 
+use crate::analysis::adjoint::{self, Gradients};
 use crate::analysis::linear::Factor;
 use crate::analysis::mna::{self, Assembly, CapState, Mna};
 use crate::analysis::poles::{self, Root};
@@ -63,8 +64,42 @@ pub fn analyze(design: &Design) -> Result<Analysis, AnalysisError> {
     core(design)?.complete(&design.analysis)
 }
 
-/// The shared part of every evaluation.
-fn core(design: &Design) -> Result<Core, AnalysisError> {
+/// The figures with their gradients over every element of the linear network (by the
+/// adjoint method, `adjoint.rs`), and that network: what the sensitivities are built from.
+pub(crate) fn metrics_with_gradients(
+    design: &Design,
+) -> Result<(Metrics, LinearNetwork, Gradients), AnalysisError> {
+    let core = core(design)?;
+    let states: Vec<CapState> =
+        (0..core.lin.elements.len()).map(|i| mid_state(&core.lin, i)).collect();
+    let gradients = adjoint::gradients(&adjoint::Inputs {
+        lin: &core.lin,
+        mid_states: &states,
+        band: core.band,
+        f_high: core.f_high,
+        f_low: core.f_low,
+        has_r_in: core.input_resistance.is_some(),
+        has_r_out: core.output_resistance.is_some(),
+    });
+    let metrics = core.metrics();
+    Ok((metrics, core.lin, gradients))
+}
+
+/// The linear network of a design at its operating point and each transistor's bias
+/// current: the start of every evaluation, without any of the analysis after it.
+pub(crate) fn linear_network(design: &Design) -> Result<(LinearNetwork, Vec<f64>), AnalysisError> {
+    let (_, op, lin, _) = bias_and_network(design)?;
+    let bias = op
+        .as_ref()
+        .map(|o| o.devices.iter().map(|d| bias_current(&d.state)).collect())
+        .unwrap_or_default();
+    Ok((lin, bias))
+}
+
+/// The netlist, its operating point, and the small-signal network at that point.
+fn bias_and_network(
+    design: &Design,
+) -> Result<(Netlist, Option<OperatingPoint>, LinearNetwork, Vec<SmallSignal>), AnalysisError> {
     let net = Netlist::from_design(design);
     let op = if net.has_devices() {
         Some(operating_point::solve(&net).map_err(|e| AnalysisError {
@@ -80,11 +115,22 @@ fn core(design: &Design) -> Result<Core, AnalysisError> {
         None
     };
     let (lin, small) = small_signal::linearize(&net, op.as_ref());
-    let state_mid = |i| match cap_set(&lin, i) {
+    Ok((net, op, lin, small))
+}
+
+/// What capacitor `i` is in the mid-band network: low ones shorted, high ones open.
+fn mid_state(lin: &LinearNetwork, i: usize) -> CapState {
+    match cap_set(lin, i) {
         Some(CapSet::Low) => CapState::Short,
         Some(CapSet::High) => CapState::Open,
         None => CapState::Present,
-    };
+    }
+}
+
+/// The shared part of every evaluation.
+fn core(design: &Design) -> Result<Core, AnalysisError> {
+    let (net, op, lin, small) = bias_and_network(design)?;
+    let state_mid = |i| mid_state(&lin, i);
     let mid = mna::assemble(&lin, state_mid, Assembly::default());
     let g = Factor::new(&mid.g).map_err(|s| singular(&lin, &mid, s.unknown, "mid-band"))?;
     let x = g.solve(&mid.b);

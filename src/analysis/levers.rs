@@ -65,6 +65,21 @@ pub struct Lever {
     target: Target,
 }
 
+impl Lever {
+    /// The part whose value this lever is (index into `Design::parts`).
+    pub(crate) fn part(&self) -> Option<usize> {
+        match self.target {
+            Target::Part(i) => Some(i),
+            _ => None,
+        }
+    }
+
+    /// True for the signal source's resistance.
+    pub(crate) fn is_source_resistance(&self) -> bool {
+        self.target == Target::SourceResistance
+    }
+}
+
 fn slot(design: &mut Design, target: Target) -> Option<&mut f64> {
     match target {
         Target::Part(i) => match &mut design.parts[i].kind {

@@ -6,6 +6,7 @@
 //! estimates they give. Or an [`AnalysisError`] that says what failed and what to check.
 //! Never formats numbers for people and never touches files.
 
+pub mod adjoint;
 pub mod evaluate;
 pub mod levers;
 pub mod linear;
