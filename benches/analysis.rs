@@ -62,6 +62,56 @@ fn ladder(n: usize) -> LinearNetwork {
     }
 }
 
+/// A design file for an RC ladder of `n` sections: R from each node to the next, C from each
+/// node to ground, driven through 1 kΩ, loaded by 10 kΩ.
+fn ladder_design(n: usize) -> String {
+    let mut parts = String::new();
+    for i in 1..=n {
+        parts.push_str(&format!(
+            "  R{i}: {{kind: resistor, value: 1k, between: [n{i}, n{}], tolerance: 1 %}}\n",
+            i + 1
+        ));
+        parts.push_str(&format!(
+            "  C{i}: {{kind: capacitor, value: 10p, between: [n{}, gnd], role: parasitic, tolerance: 5 %}}\n",
+            i + 1
+        ));
+    }
+    format!(
+        "tauweave: 1\ndesign: {{id: ladder, title: RC ladder, revision: A, date: 2026-12-03}}\n\
+         signal: {{at: n1, resistance: 1k}}\noutput: {{at: n{}, load_resistance: 10k}}\nparts:\n{parts}",
+        n + 1
+    )
+}
+
+/// A design file for `n` cascaded common-emitter stages, each divider-biased with a
+/// bypassed emitter resistor, coupled by capacitors, with a little collector capacitance.
+fn stages_design(n: usize) -> String {
+    let mut parts =
+        String::from("  CIN: {kind: capacitor, value: 1u, between: [in, b1], role: coupling}\n");
+    for i in 1..=n {
+        parts.push_str(&format!(
+            "  RB1_{i}: {{kind: resistor, value: 47k, between: [vcc, b{i}]}}\n\
+             \x20 RB2_{i}: {{kind: resistor, value: 10k, between: [b{i}, gnd]}}\n\
+             \x20 RC{i}: {{kind: resistor, value: 4k7, between: [vcc, c{i}]}}\n\
+             \x20 RE{i}: {{kind: resistor, value: 1k, between: [e{i}, gnd]}}\n\
+             \x20 CE{i}: {{kind: capacitor, value: 10u, between: [e{i}, gnd], role: bypass}}\n\
+             \x20 CP{i}: {{kind: capacitor, value: 5p, between: [c{i}, gnd], role: parasitic}}\n\
+             \x20 Q{i}: {{kind: bjt, model: N, c: c{i}, b: b{i}, e: e{i}}}\n\
+             \x20 CC{i}: {{kind: capacitor, value: 1u, between: [c{i}, {}], role: coupling}}\n",
+            if i < n { format!("b{}", i + 1) } else { "out".into() }
+        ));
+    }
+    format!(
+        "tauweave: 1\ndesign: {{id: stages, title: stages, revision: A, date: 2026-12-03}}\n\
+         supplies: {{vcc: 12 V}}\nsignal: {{at: in, resistance: 50}}\n\
+         output: {{at: out, load_resistance: 10k}}\nparts:\n{parts}\
+         models:\n  N: {{type: npn, beta: {{value: 150, tolerance: 30 %}}, early_voltage: 80 V, \
+         saturation_current: 2 fA, base_resistance: 20, transit_time: 300 ps, \
+         emitter_junction: {{capacitance: 2 pF, potential: 0.75 V, grading: 0.33}}, \
+         collector_junction: {{capacitance: 1 pF, potential: 0.6 V, grading: 0.33}}}}\n"
+    )
+}
+
 fn main() {
     println!(
         "whole analysis of each example design (operating point, sweep, cut-offs, QZ, time constants)"
@@ -171,6 +221,38 @@ fn main() {
         t.elapsed().as_secs_f64(),
         files.len()
     );
+
+    println!(
+        "\nsensitivities of every figure to every lever: adjoint method against central differences of whole evaluations"
+    );
+    for (what, text) in [
+        ("RC ladder, 10 sections", ladder_design(10)),
+        ("RC ladder, 30 sections", ladder_design(30)),
+        ("RC ladder, 100 sections", ladder_design(100)),
+        ("common-emitter stages, 3", stages_design(3)),
+        ("common-emitter stages, 6", stages_design(6)),
+    ] {
+        let d = design::load(&text).design.expect("valid generated design");
+        let levers = tolerance::levers(&d);
+        let figs = tolerance::figures(&analysis::metrics(&d).unwrap());
+        let (t_adjoint, _) = median(
+            || drop(black_box(tolerance::sensitivities(&d, &levers, &figs))),
+            Duration::from_secs(2),
+            20,
+        );
+        let (t_diff, _) = median(
+            || drop(black_box(tolerance::sensitivities_by_differences(&d, &levers, &figs))),
+            Duration::from_secs(2),
+            5,
+        );
+        println!(
+            "  {what:<28} {:>4} levers: adjoint {:>9.2} ms, differences {:>9.2} ms ({:.1}×)",
+            levers.len(),
+            t_adjoint.as_secs_f64() * 1e3,
+            t_diff.as_secs_f64() * 1e3,
+            t_diff.as_secs_f64() / t_adjoint.as_secs_f64()
+        );
+    }
 
     println!("\nRC ladder: factorise the mid-band G once, then every open-circuit time constant");
     for n in [100usize, 1000, 3000] {
