@@ -25,8 +25,8 @@ pub fn split(text: &str) -> Option<(&str, &str)> {
 
 /// A table cell's text with each number held to its unit and each comparison sign to its
 /// number (`≥ 900 kHz` never breaks between `900` and `kHz`): the space after a word that is
-/// a number (it starts with a digit, or a sign and a digit) or one of `≥ ≤ < > ±` becomes a
-/// no-break space. `R1 and` keeps its space.
+/// a number (it starts with a digit, or a sign and a digit), one of `≥ ≤ < > ±` or a
+/// quantity's symbol (`V_BE`, `gm`) becomes a no-break space. `R1 and` keeps its space.
 pub fn keep_units(text: &str) -> String {
     let mut out = String::with_capacity(text.len());
     let mut word = String::new();
@@ -36,7 +36,10 @@ pub fn keep_units(text: &str) -> String {
                 int.len() == word.len() || { word[int.len()..].starts_with('.') }
             });
             let sign = matches!(word.as_str(), "≥" | "≤" | "<" | ">" | "±");
-            out.push(if number || sign { '\u{a0}' } else { ' ' });
+            // A quantity's symbol stays with its value (`V_BE 773.6 mV`, `gm 164 mS`).
+            let symbol = crate::report::SUBSCRIPTED.contains(&word.as_str())
+                || matches!(word.as_str(), "gm" | "rπ" | "ro" | "rx" | "Cπ" | "Cμ" | "β");
+            out.push(if number || sign || symbol { '\u{a0}' } else { ' ' });
             word.clear();
         } else {
             out.push(c);
@@ -100,6 +103,10 @@ mod tests {
         assert_eq!(keep_units("18 dB … 23 dB"), "18\u{a0}dB … 23\u{a0}dB");
         assert_eq!(keep_units("output resistance"), "output resistance");
         assert_eq!(keep_units("R1 and 2.5 m"), "R1 and 2.5\u{a0}m");
+        assert_eq!(
+            keep_units("I_C 4.24 mA, V_BE 773.6 mV"),
+            "I_C\u{a0}4.24\u{a0}mA, V_BE\u{a0}773.6\u{a0}mV"
+        );
     }
 
     #[test]

@@ -226,6 +226,19 @@ fn subscripts(events: Vec<Event<'_>>) -> Vec<Event<'_>> {
     out
 }
 
+/// Text escaped for HTML with its engineering symbols subscripted (`f_H` → f<sub>H</sub>).
+fn subscripted(text: &str) -> String {
+    crate::report::symbol_segments(text)
+        .into_iter()
+        .map(|seg| match seg {
+            crate::report::Segment::Plain(p) => escape(p),
+            crate::report::Segment::Subscripted(base, sub) => {
+                format!("{}<sub>{}</sub>", escape(base), escape(sub))
+            }
+        })
+        .collect()
+}
+
 fn sanitise(html: &str) -> String {
     // No images from the text: the page stays self-contained (plots are spliced in after).
     ammonia::Builder::default()
@@ -246,7 +259,10 @@ fn escape(text: &str) -> String {
 /// The whole page. `title` is plain text (escaped here).
 pub fn page(title: &str, markdown: &str, plots: &[Plot]) -> String {
     let (raw, toc) = body(markdown);
-    let mut main = sanitise(&raw);
+    // A table wider than the text column scrolls on its own instead of running off the page.
+    let mut main = sanitise(&raw)
+        .replace("<table>", "<div class=\"wide\"><table>")
+        .replace("</table>", "</table></div>");
     for p in plots {
         // A supplied drawing goes in as an image, never inline: its SVG could carry scripts.
         let drawing = match &p.file {
@@ -270,7 +286,7 @@ pub fn page(title: &str, markdown: &str, plots: &[Plot]) -> String {
         let figure = format!(
             "<figure class=\"plot\" id=\"plot-{}\">{drawing}<figcaption>{}</figcaption></figure>",
             p.name,
-            escape(&p.caption)
+            subscripted(&p.caption)
         );
         // Only the `plot()` directive makes this paragraph: escaped text never holds the
         // marker character, which pulldown-cmark and ammonia pass through unchanged.
@@ -314,6 +330,8 @@ h3 { font-size: 1.05rem; margin: 1.5rem 0 0.4rem; }
 table { border-collapse: collapse; margin: 0.8rem 0; font-size: 13.5px; font-variant-numeric: tabular-nums; }
 th, td { padding: 0.25rem 0.7rem; border-bottom: 1px solid var(--rule); vertical-align: top; }
 td[style*="right"], th[style*="right"] { white-space: nowrap; }
+.wide { overflow-x: auto; margin: 0.8rem 0; }
+.wide table { margin: 0; }
 td.int { text-align: right; padding-right: 0; white-space: nowrap; }
 td.frac { text-align: left; padding-left: 0; white-space: pre-wrap; }
 th { border-bottom: 2px solid var(--ink); text-align: left; font-weight: 600; }
@@ -333,6 +351,8 @@ strong { font-weight: 700; }
   figure { break-inside: avoid; }
   thead { display: table-header-group; }
   tr, figcaption { break-inside: avoid; }
+  .wide { overflow: visible; }
+  .wide table { font-size: 8.5pt; }
   tbody tr:nth-child(even) { background: none; }
   a { color: inherit; text-decoration: none; }
 }

@@ -155,7 +155,12 @@ pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study
             out.push(Plot { name: "tornado", caption: "Tornado chart: how far each toleranced lever moves the upper cut-off at its tolerance limit (S·t), largest first; dark bars raise f_H, grey bars lower it.".into(), svg, file: None, max_width: None });
         }
         if let Some(svg) = histograms {
-            out.push(Plot { name: "histograms", caption: "Monte Carlo histograms of the mid-band gain, the gain flatness (with a stated band) and both cut-offs, each in its requirement's unit; a limit near the data is dotted, one far off is named at the edge.".into(), svg, file: None, max_width: None });
+            let flatness =
+                if a.midband.band.is_some() { ", the gain flatness over the band" } else { "" };
+            let caption = format!(
+                "Monte Carlo histograms of the mid-band gain{flatness} and both cut-offs, each in its requirement's unit; a limit near the data is dotted, one far off is named at the edge."
+            );
+            out.push(Plot { name: "histograms", caption, svg, file: None, max_width: None });
         }
     }
     out
@@ -228,7 +233,8 @@ fn bar_chart(
     let rows = groups.iter().map(|g| g.1.len()).sum::<usize>() as u32;
     let height = 20 + HEAD * heads + ROW * rows + 50;
     // Monospace at 13 px: about 7.9 px a character.
-    let (left, right) = (12 + (name_w + value_w + 3) * 79 / 10, WIDTH - 16);
+    // Room on the right for half the last tick label ("100 %").
+    let (left, right) = (12 + (name_w + value_w + 3) * 79 / 10, WIDTH - 34);
     let x = |v: f64| left as f64 + (v - lo) / (hi - lo) * (right - left) as f64;
     let mut svg = String::new();
     {
@@ -386,7 +392,7 @@ fn histograms(s: &Study, requirements: &[RequirementCheck]) -> Option<String> {
     }
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, (px(WIDTH), px(250 * panels.len() as u32)))
+        let root = SVGBackend::with_string(&mut svg, (px(WIDTH), px(200 * panels.len() as u32)))
             .into_drawing_area();
         root.fill(&WHITE).ok()?;
         let areas = root.split_evenly((panels.len(), 1));
@@ -420,6 +426,7 @@ fn histograms(s: &Study, requirements: &[RequirementCheck]) -> Option<String> {
             };
             let mut chart = ChartBuilder::on(area)
                 .margin(px(12))
+                .margin_right(px(40))
                 .x_label_area_size(px(40))
                 .y_label_area_size(px(50))
                 .build_cartesian_2d(lo..hi, 0.0..top)
@@ -430,6 +437,7 @@ fn histograms(s: &Study, requirements: &[RequirementCheck]) -> Option<String> {
                 .bold_line_style(PALE.stroke_width(px(1)))
                 .axis_style(MID.stroke_width(px(1)))
                 .set_all_tick_mark_size(px(5))
+                .x_labels(6)
                 .x_label_formatter(&|v| axis(*v))
                 .y_label_formatter(&|v| format!("{v:.0}"))
                 .label_style(style(12))
@@ -524,16 +532,22 @@ fn frequency_panel<'a, 'b>(
         .margin(px(14))
         .margin_right(px(34))
         .x_label_area_size(px(axis.x_label_area))
-        .y_label_area_size(px(64))
+        .y_label_area_size(px(76))
         .build_cartesian_2d((f.0..f.1).log_scale(), y.0..y.1)
         .ok()?;
     let y_label = |v: &f64| format!("{v:.0}{}", axis.y_unit).replace('-', "−");
+    // Every decade while the labels fit (about 62 px each), else every second one.
+    let every = if (f.1 / f.0).log10() * 62.0 > (WIDTH - 76 - 48) as f64 { 2 } else { 1 };
+    let x_label = |v: &f64| {
+        let k = v.log10().round() as i64;
+        if k.rem_euclid(every) == 0 { decade_label(*v, "Hz") } else { String::new() }
+    };
     let mut mesh = chart.configure_mesh();
     mesh.light_line_style(PALE.mix(0.5).stroke_width(px(1)))
         .bold_line_style(PALE.stroke_width(px(1)))
         .axis_style(MID.stroke_width(px(1)))
         .set_all_tick_mark_size(px(5))
-        .x_label_formatter(&|v| decade_label(*v, "Hz"))
+        .x_label_formatter(&x_label)
         .y_label_formatter(&y_label)
         .label_style(style(12))
         .y_desc(axis.y_desc)
@@ -727,11 +741,11 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
     let legend_height = 16 + 17 * legend_rows as u32;
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, (px(WIDTH), px(574 + legend_height)))
+        let root = SVGBackend::with_string(&mut svg, (px(WIDTH), px(514 + legend_height)))
             .into_drawing_area();
         root.fill(&WHITE).ok()?;
-        let (upper, rest) = root.split_vertically(px(340));
-        let (lower, key) = rest.split_vertically(px(234));
+        let (upper, rest) = root.split_vertically(px(300));
+        let (lower, key) = rest.split_vertically(px(214));
         let mut mag = frequency_panel(
             &upper,
             (f0, f1),
@@ -785,11 +799,28 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
             mag.draw_series(LineSeries::new(segment, INK.stroke_width(px(2)))).ok()?;
         }
         // The marker numbers, in the headroom at the top, stacked where they would touch.
+        // Each number beside its line, on the side where no other line runs through it.
         let xs: Vec<i32> = marks.iter().map(|m| mag.backend_coord(&(m.f, top)).0).collect();
-        let rows = tag_rows(&xs, px(22) as i32);
-        for (k, ((m, x), row)) in marks.iter().zip(&xs).zip(&rows).enumerate() {
+        let starts: Vec<i32> = xs
+            .iter()
+            .enumerate()
+            .map(|(k, &x)| {
+                let w = px(8 * (k + 1).to_string().len() as u32) as i32;
+                let gap = px(3) as i32;
+                let clear = |lo: i32, hi: i32| {
+                    xs.iter().enumerate().all(|(j, &o)| j == k || o < lo || o > hi)
+                };
+                if clear(x, x + gap + w + gap) || !clear(x - gap - w - gap, x) {
+                    x + gap
+                } else {
+                    x - gap - w
+                }
+            })
+            .collect();
+        let rows = tag_rows(&starts, px(22) as i32);
+        for (k, ((m, x), row)) in marks.iter().zip(&starts).zip(&rows).enumerate() {
             let (_, y_top) = mag.backend_coord(&(m.f, top));
-            let pos = (x + px(3) as i32, y_top + px(3) as i32 + px(14) as i32 * *row as i32);
+            let pos = (*x, y_top + px(3) as i32 + px(14) as i32 * *row as i32);
             upper.draw(&Text::new(format!("{}", k + 1), pos, style(12))).ok()?;
         }
         let mut phase = frequency_panel(
@@ -981,6 +1012,9 @@ fn pole_zero(a: &Analysis) -> Option<String> {
         // third one.
         let per_decade = (WIDTH - 80 - 28) as f64 / (2.0 * reach_x);
         let step_x = ((64.0 / per_decade).ceil() as i64).max(1);
+        // Rows need about 20 px each on the imaginary axis.
+        let per_decade_y = (432 - 14 - 46 - 14) as f64 / (2.0 * reach_y);
+        let step_y = ((20.0 / per_decade_y).ceil() as i64).max(1);
         let tick = move |v: f64, step: i64| -> String {
             if v.abs() < 1e-9 {
                 return "0".into();
@@ -1000,7 +1034,7 @@ fn pole_zero(a: &Analysis) -> Option<String> {
             .y_labels((2.0 * reach_y) as usize + 1)
             .x_label_formatter(&|v| tick(*v, step_x))
             .y_label_formatter(&|v| {
-                let t = tick(*v, 1);
+                let t = tick(*v, step_y);
                 if t.is_empty() || t == "0" {
                     t
                 } else if *v < 0.0 {
@@ -1112,9 +1146,9 @@ pub fn bode_overlay(
     let later = INK.stroke_width(px(2));
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, (px(WIDTH), px(560))).into_drawing_area();
+        let root = SVGBackend::with_string(&mut svg, (px(WIDTH), px(520))).into_drawing_area();
         root.fill(&WHITE).ok()?;
-        let (upper, lower) = root.split_vertically(px(340));
+        let (upper, lower) = root.split_vertically(px(300));
         let mut mag = frequency_panel(
             &upper,
             (f0, f1),

@@ -440,7 +440,8 @@ pub struct LeverResults {
 /// `sensitivity`.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct SensitivityResults {
-    /// Relative step of the central differences.
+    /// Relative step of the differences taken through the operating point (the linear
+    /// network's part is exact, by the adjoint method).
     pub step: f64,
     /// Figure names, the order of each lever's `s`.
     pub figures: Vec<String>,

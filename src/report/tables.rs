@@ -580,7 +580,7 @@ fn sensitivity_table(s: &Study) -> String {
     let align: String = "ll".chars().chain(std::iter::repeat_n('r', shown.len())).collect();
     let mut text = markdown_table(&header_refs, &align, rows.into_iter().map(|(_, r)| r).collect());
     text.push_str(&format!(
-        "\nS = ∂ln y/∂ln x by central differences (step {}), the operating point re-solved at each step.\n",
+        "\nS = ∂ln y/∂ln x by the adjoint method: one transposed solve per figure gives its derivative to every element of the small-signal network; a lever that sets the bias moves those elements through the operating point (fourth-order differences of the bias alone, step {}).\n",
         plain(s.step, 2)
     ));
     text

@@ -220,10 +220,15 @@ const STYLE: &str = r#"#set text(font: "Libertinus Serif", size: 10pt)
 #show footnote.entry: set text(size: 8.5pt)
 "#;
 
+/// Rows up to which a table is kept on one page.
+const SHORT_TABLE: usize = 12;
+
 struct TableState {
     columns: usize,
     /// The columns aligned on the decimal point, each written as two ([`decimal`]).
     decimal: Vec<bool>,
+    /// Kept on one page (a short table): no row left alone at a page's foot.
+    whole: bool,
     in_head: bool,
     /// A header of empty cells is left out (the table starts with its first row).
     no_head: bool,
@@ -279,6 +284,7 @@ struct Writer<'p> {
     next_list_loose: bool,
     next_table_head_empty: bool,
     next_table_decimal: Vec<bool>,
+    next_table_rows: usize,
     in_heading: bool,
     table: Option<TableState>,
     /// A code block being gathered: language and text.
@@ -300,6 +306,7 @@ impl<'p> Writer<'p> {
             next_list_loose: false,
             next_table_head_empty: false,
             next_table_decimal: Vec::new(),
+            next_table_rows: 0,
             in_heading: false,
             table: None,
             code: None,
@@ -330,6 +337,11 @@ impl<'p> Writer<'p> {
                 Event::Start(Tag::Table(_)) => {
                     self.next_table_head_empty = table_head_empty(events, i);
                     self.next_table_decimal = decimal::columns(events, i);
+                    self.next_table_rows = events[i..]
+                        .iter()
+                        .take_while(|e| !matches!(e, Event::End(TagEnd::Table)))
+                        .filter(|e| matches!(e, Event::Start(Tag::TableRow)))
+                        .count();
                 }
                 Event::Start(Tag::TableCell) if self.skip == 0 => {
                     if let Some(step) = self.decimal_cell(&events[i + 1..]) {
@@ -358,10 +370,16 @@ impl<'p> Writer<'p> {
             ),
             None => format!("image({path}, width: 100%)"),
         };
-        self.out.push_str(&format!(
-            "#figure(\n  {image},\n  caption: [{}],\n);",
-            escape(&plot.caption)
-        ));
+        let caption: String = crate::report::symbol_segments(&plot.caption)
+            .into_iter()
+            .map(|seg| match seg {
+                crate::report::Segment::Plain(p) => escape(p),
+                crate::report::Segment::Subscripted(base, sub) => {
+                    format!("{}#sub[{}]", escape(base), escape(sub))
+                }
+            })
+            .collect();
+        self.out.push_str(&format!("#figure(\n  {image},\n  caption: [{caption}],\n);"));
     }
 
     /// Separates a new block from what its container already holds.
@@ -531,6 +549,11 @@ impl<'p> Writer<'p> {
                         Alignment::Left | Alignment::None => "left",
                     });
                 }
+                // A short table stays on one page rather than leave a row or two behind.
+                let whole = self.next_table_rows <= SHORT_TABLE;
+                if whole {
+                    self.out.push_str("#block(breakable: false)[");
+                }
                 self.out.push_str(&format!(
                     "#table(\n  columns: {},\n  align: ({},),\n",
                     align.len(),
@@ -553,6 +576,7 @@ impl<'p> Writer<'p> {
                 self.table = Some(TableState {
                     columns: alignments.len(),
                     decimal,
+                    whole,
                     in_head: false,
                     no_head,
                     cells: 0,
@@ -632,6 +656,9 @@ impl<'p> Writer<'p> {
             TagEnd::DefinitionListTitle => self.out.push_str("];"),
             TagEnd::Table => {
                 self.out.push_str("  table.hline(stroke: 0.8pt),\n);");
+                if self.table.as_ref().is_some_and(|t| t.whole) {
+                    self.out.push(']');
+                }
                 self.table = None;
             }
             TagEnd::TableHead => {
@@ -1012,14 +1039,15 @@ mod tests {
         assert_eq!(
             b,
             // The value column holds numbers: it aligns on the decimal point as two columns
-            // under one header, the number held to its unit by a no-break space.
-            "#table(\n  columns: 4,\n  align: (left, right, left, center,),\n  \
+            // under one header, the number held to its unit by a no-break space; a table this
+            // short is kept on one page.
+            "#block(breakable: false)[#table(\n  columns: 4,\n  align: (left, right, left, center,),\n  \
              inset: (x, _) => (left: if x in (2,) { 0pt } else { 5pt }, \
              right: if x in (1,) { 0pt } else { 5pt }, y: 3pt),\n  \
              table.header(repeat: true, [#strong[name];], table.cell(colspan: 2)[#strong[value];], \
              [#strong[note];]),\n  \
              [R1 \\]], [1], [\u{a0}kΩ], [\\#x],\n  [R2], [], [], [],\n  \
-             table.hline(stroke: 0.8pt),\n);"
+             table.hline(stroke: 0.8pt),\n);]"
         );
     }
 
@@ -1043,9 +1071,9 @@ mod tests {
         let b = body("| | |\n|:---|:---|\n| tool | x |\n");
         assert_eq!(
             b,
-            "#table(\n  columns: 2,\n  align: (left, left,),\n  \
+            "#block(breakable: false)[#table(\n  columns: 2,\n  align: (left, left,),\n  \
              stroke: (_, y) => (top: if y == 0 { 0.8pt }, bottom: 0.25pt + luma(205)),\n  \
-             [tool], [x],\n  table.hline(stroke: 0.8pt),\n);"
+             [tool], [x],\n  table.hline(stroke: 0.8pt),\n);]"
         );
     }
 

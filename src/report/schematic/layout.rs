@@ -814,7 +814,7 @@ impl<F: Fn(&str) -> i32> Pen<'_, F> {
                 };
                 widest = widest.max(w);
             }
-            self.x = x + widest + 8.0;
+            self.x = x + widest + 10.0;
         }
         for item in rest {
             self.place(item);
@@ -990,6 +990,10 @@ impl<F: Fn(&str) -> i32> Pen<'_, F> {
                 .collect();
             xs.sort_by(f64::total_cmp);
             xs.dedup();
+            // The name above the line, in the first gap wide enough for it (the output's
+            // stub to its port is no gap: the port's circle sits there).
+            let w = text_width(n) + 8.0;
+            let named = xs.windows(2).find(|g| g[1] - g[0] >= w).map(|g| g[0] + 4.0);
             if n == &design.output.positive {
                 let end = xs.last().copied().unwrap_or(self.x) + 30.0;
                 xs.push(end);
@@ -999,9 +1003,8 @@ impl<F: Fn(&str) -> i32> Pen<'_, F> {
             if hi > lo {
                 self.wires.push(Wire { net: n.clone(), a: (lo, yy), b: (hi, yy) });
             }
-            // The name above the line, in the first gap wide enough for it.
-            let w = text_width(n) + 8.0;
-            let at = xs.windows(2).find(|g| g[1] - g[0] >= w).map_or(hi + 4.0, |g| g[0] + 4.0);
+            let at =
+                named.unwrap_or(if n == &design.output.positive { hi + 12.0 } else { hi + 4.0 });
             labels.push(Text { at: (at, yy - 4.0), text: n.clone(), middle: false });
         }
         // Rails across the whole width, each named at its left end.
