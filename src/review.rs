@@ -10,7 +10,7 @@
 
 use crate::analysis::requirements::{self, RequirementCheck};
 use crate::analysis::tolerance::{self, Study};
-use crate::analysis::{self, Analysis, AnalysisError};
+use crate::analysis::{self, Analysis, AnalysisError, Progress, Stage};
 use crate::design::Design;
 use crate::report::cautions::{self, Caution};
 use crate::report::explain::{self, Explanation};
@@ -19,8 +19,9 @@ use crate::report::explain::{self, Explanation};
 pub struct ReviewOptions<'a> {
     /// Monte Carlo runs (0 skips Monte Carlo; the sensitivities and worst case still run).
     pub runs: u32,
-    /// Called now and then during Monte Carlo with the number of runs done.
-    pub progress: &'a (dyn Fn(u64) + Sync),
+    /// Called at each stage and now and then within the counted ones (sensitivities,
+    /// Monte Carlo) with how far the review is.
+    pub progress: &'a (dyn Fn(Progress) + Sync),
 }
 
 impl ReviewOptions<'_> {
@@ -60,6 +61,7 @@ impl Review {
 /// Reviews `design`: one nominal analysis, the tolerance study around it, the requirement
 /// checks, the cautions and the explanation.
 pub fn review(design: &Design, options: &ReviewOptions) -> Result<Review, AnalysisError> {
+    (options.progress)(Progress { stage: Stage::Analysis, done: 0, total: 0 });
     let analysis = analysis::analyze(design)?;
     let nominal = analysis.metrics();
     let names = analysis.device_names();
@@ -75,6 +77,39 @@ pub fn review(design: &Design, options: &ReviewOptions) -> Result<Review, Analys
 
 #[cfg(test)]
 mod tests {
+
+    /// The progress reports come stage by stage in order, each counted stage from 0 to its
+    /// total: what a progress display relies on.
+    #[test]
+    fn progress_is_reported_stage_by_stage() {
+        let text = std::fs::read_to_string("designs/rx-preamp-ce.yaml").unwrap();
+        let d = crate::design::load(&text).design.unwrap();
+        let seen = std::sync::Mutex::new(Vec::new());
+        let record = |p: Progress| seen.lock().unwrap().push(p);
+        review(&d, &ReviewOptions { runs: 200, progress: &record }).unwrap();
+        let seen = seen.into_inner().unwrap();
+        let stages: Vec<Stage> = seen.iter().map(|p| p.stage).fold(Vec::new(), |mut v, s| {
+            if v.last() != Some(&s) {
+                v.push(s);
+            }
+            v
+        });
+        assert_eq!(
+            stages,
+            [Stage::Analysis, Stage::Sensitivities, Stage::WorstCase, Stage::MonteCarlo]
+        );
+        let levers = tolerance::levers(&d).len() as u64;
+        for p in &seen {
+            assert!(p.done <= p.total || p.total == 0, "{p:?}");
+            match p.stage {
+                Stage::Sensitivities => assert_eq!(p.total, levers),
+                Stage::MonteCarlo => assert_eq!(p.total, 200),
+                Stage::Analysis | Stage::WorstCase => assert_eq!((p.done, p.total), (0, 0)),
+            }
+        }
+        assert!(seen.iter().any(|p| p.stage == Stage::MonteCarlo && p.done == 192), "{seen:?}");
+    }
+
     use super::*;
 
     /// The nominal figures the study starts from are read off the analysis; they must be the

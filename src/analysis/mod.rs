@@ -48,6 +48,43 @@ impl std::fmt::Display for AnalysisError {
     }
 }
 
+/// Where a long review is, for a progress display: the stage, and how far through it when
+/// it counts (`total` 0 when it does not).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Progress {
+    /// The stage.
+    pub stage: Stage,
+    /// Steps done.
+    pub done: u64,
+    /// Steps in all (0: not counted).
+    pub total: u64,
+}
+
+/// A stage of a review.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Stage {
+    /// The nominal analysis (bias, responses, poles and zeros).
+    Analysis,
+    /// One sensitivity per lever.
+    Sensitivities,
+    /// The tolerance corners.
+    WorstCase,
+    /// The Monte Carlo runs.
+    MonteCarlo,
+}
+
+impl Stage {
+    /// What a progress display calls it.
+    pub fn name(self) -> &'static str {
+        match self {
+            Stage::Analysis => "analysis",
+            Stage::Sensitivities => "sensitivities",
+            Stage::WorstCase => "worst case",
+            Stage::MonteCarlo => "Monte Carlo",
+        }
+    }
+}
+
 /// A pole or zero, in Hz (s/2π).
 #[derive(Clone, Copy, Debug, Serialize, PartialEq)]
 pub struct RootHz {

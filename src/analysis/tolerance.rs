@@ -16,7 +16,7 @@ use serde::Serialize;
 
 use crate::analysis::adjoint;
 use crate::analysis::levers;
-use crate::analysis::{Metrics, metrics};
+use crate::analysis::{Metrics, Progress, Stage, metrics};
 use crate::circuit::small_signal::{Linear, LinearNetwork};
 use crate::design::{Design, Distribution, PartKind};
 
@@ -115,6 +115,25 @@ pub const STEP: f64 = 1e-4;
 /// network's make-up (a device entering another region) falls back to central differences
 /// of whole evaluations ([`sensitivities_by_differences`]).
 pub fn sensitivities(design: &Design, levers: &[Lever], figs: &[Figure]) -> Vec<Vec<Option<f64>>> {
+    sensitivities_reporting(design, levers, figs, &|_| {})
+}
+
+/// [`sensitivities`], telling `progress` how many levers are done.
+fn sensitivities_reporting(
+    design: &Design,
+    levers: &[Lever],
+    figs: &[Figure],
+    progress: &(dyn Fn(Progress) + Sync),
+) -> Vec<Vec<Option<f64>>> {
+    let total = levers.len() as u64;
+    progress(Progress { stage: Stage::Sensitivities, done: 0, total });
+    let done = std::sync::atomic::AtomicU64::new(0);
+    let tick = || {
+        let n = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
+        if n % 8 == 0 {
+            progress(Progress { stage: Stage::Sensitivities, done: n, total });
+        }
+    };
     let Ok((nominal, lin, grads)) = crate::analysis::evaluate::metrics_with_gradients(design)
     else {
         return sensitivities_by_differences(design, levers, figs);
@@ -139,6 +158,7 @@ pub fn sensitivities(design: &Design, levers: &[Lever], figs: &[Figure]) -> Vec<
         .map(|i| {
             let chain = direct_chain(design, &levers[i], &lin, transistors)
                 .or_else(|| bias_chain(design, levers, i, &lin));
+            tick();
             let Some((moves, bias)) = chain else {
                 return sensitivities_by_differences(design, &levers[i..=i], figs).remove(0);
             };
@@ -423,14 +443,14 @@ pub fn percentile(sorted: &[f64], p: f64) -> f64 {
 }
 
 /// Runs `runs` Monte Carlo evaluations with the design's seed, and the yields of its
-/// requirements; `progress` is called with the count done.
+/// requirements; `progress` is called now and then with the count done.
 pub fn monte_carlo(
     design: &Design,
     levers: &[Lever],
     figs: &[Figure],
     names: &[String],
     runs: u32,
-    progress: &(dyn Fn(u64) + Sync),
+    progress: &(dyn Fn(Progress) + Sync),
 ) -> MonteCarlo {
     let seed = design.analysis.seed;
     let requirements = &design.requirements;
@@ -441,7 +461,7 @@ pub fn monte_carlo(
             let m = metrics(&perturbed(design, levers, &draw(levers, seed, k))).ok();
             let n = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
             if n % 64 == 0 {
-                progress(n);
+                progress(Progress { stage: Stage::MonteCarlo, done: n, total: runs as u64 });
             }
             m
         })
@@ -540,13 +560,17 @@ pub fn study(
     nominal: &Metrics,
     device_names: &[String],
     runs: u32,
-    progress: &(dyn Fn(u64) + Sync),
+    progress: &(dyn Fn(Progress) + Sync),
 ) -> Study {
     let all = levers(design);
     let figs = figures(nominal);
-    let s = sensitivities(design, &all, &figs);
+    let s = sensitivities_reporting(design, &all, &figs, progress);
+    progress(Progress { stage: Stage::WorstCase, done: 0, total: 0 });
     let worst = worst_case(design, &all, &figs, &s, nominal, device_names);
-    let mc = (runs > 0).then(|| monte_carlo(design, &all, &figs, device_names, runs, progress));
+    let mc = (runs > 0).then(|| {
+        progress(Progress { stage: Stage::MonteCarlo, done: 0, total: runs as u64 });
+        monte_carlo(design, &all, &figs, device_names, runs, progress)
+    });
     Study {
         step: STEP,
         figures: figs.iter().map(|f| f.key(device_names)).collect(),
