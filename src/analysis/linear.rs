@@ -83,30 +83,60 @@ pub fn transfer(g: &Mat<f64>, c: &Mat<f64>, b: &[f64], out: &[f64], s: c64) -> O
 /// small, and a sweep or a cut-off search solves them hundreds of times.
 const SMALL: usize = 24;
 
+thread_local! {
+    /// The working rows of [`transfer_small`], one buffer per thread, reused from call to
+    /// call: a cut-off search or a band scan solves the same small system a hundred times.
+    static WORK: std::cell::RefCell<Vec<c64>> = const { std::cell::RefCell::new(Vec::new()) };
+}
+
 fn transfer_small(g: &Mat<f64>, c: &Mat<f64>, b: &[f64], out: &[f64], s: c64) -> Option<c64> {
+    WORK.with(|work| {
+        let mut work = work.borrow_mut();
+        let n = g.nrows();
+        work.clear();
+        work.resize(n * (n + 2), c64::new(0.0, 0.0));
+        let (a, x) = work.split_at_mut(n * (n + 1));
+        eliminate(g, c, b, out, s, a, x)
+    })
+}
+
+/// Gaussian elimination with partial pivoting on [G + sC | b] in `a` (n × (n + 1), row
+/// major), back substitution into `x`, and y = outᵀx.
+fn eliminate(
+    g: &Mat<f64>,
+    c: &Mat<f64>,
+    b: &[f64],
+    out: &[f64],
+    s: c64,
+    a: &mut [c64],
+    x: &mut [c64],
+) -> Option<c64> {
     let n = g.nrows();
     let w = n + 1;
-    let mut a = vec![c64::new(0.0, 0.0); n * w];
-    let mut scale = 0.0f64;
+    // Magnitudes are compared squared throughout: the same order as |z|, without a square
+    // root (hypot) per entry.
+    let mut scale_sq = 0.0f64;
     for i in 0..n {
         for j in 0..n {
             let v = c64::new(g[(i, j)], 0.0) + s * c[(i, j)];
-            scale = scale.max(v.norm());
+            scale_sq = scale_sq.max(v.re * v.re + v.im * v.im);
             a[i * w + j] = v;
         }
         a[i * w + n] = c64::new(b[i], 0.0);
     }
+    let floor_sq = PIVOT_TOLERANCE * PIVOT_TOLERANCE * scale_sq;
+    let size_sq = |z: c64| z.re * z.re + z.im * z.im;
     // Gaussian elimination with partial pivoting on [A | b].
     for k in 0..n {
-        let (mut p, mut best) = (k, a[k * w + k].norm());
+        let (mut p, mut best) = (k, size_sq(a[k * w + k]));
         for i in k + 1..n {
-            let m = a[i * w + k].norm();
+            let m = size_sq(a[i * w + k]);
             if m > best {
                 p = i;
                 best = m;
             }
         }
-        if best.partial_cmp(&(PIVOT_TOLERANCE * scale)) != Some(std::cmp::Ordering::Greater) {
+        if best.partial_cmp(&floor_sq) != Some(std::cmp::Ordering::Greater) {
             return None;
         }
         if p != k {
@@ -126,7 +156,6 @@ fn transfer_small(g: &Mat<f64>, c: &Mat<f64>, b: &[f64], out: &[f64], s: c64) ->
             }
         }
     }
-    let mut x = vec![c64::new(0.0, 0.0); n];
     for i in (0..n).rev() {
         let mut acc = a[i * w + n];
         for j in i + 1..n {

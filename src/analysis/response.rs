@@ -139,13 +139,17 @@ pub fn crossing(
     if below(from)? < 0.0 {
         return None;
     }
-    // Jump toward the time-constant estimate (halfway there on a log scale) when the
-    // response is still above the level there: the grid walk then starts close to the edge.
+    // Jump toward the time-constant estimate when the response is still above the level
+    // there — first to within 20 % of it (where a dominant pole's estimate usually lands),
+    // else to within a factor of two: the grid walk then starts close to the edge.
     if let Some(e) = estimate {
-        let target = if up { e / 2.0 } else { e * 2.0 };
-        let beyond_start = if up { target > from } else { target < from };
-        if beyond_start && below(target).is_some_and(|g| g >= 0.0) {
-            f_prev = target;
+        let targets = if up { [e / 1.25, e / 2.0] } else { [e * 1.25, e * 2.0] };
+        for target in targets {
+            let beyond_start = if up { target > from } else { target < from };
+            if beyond_start && below(target).is_some_and(|g| g >= 0.0) {
+                f_prev = target;
+                break;
+            }
         }
     }
     loop {
