@@ -11,7 +11,7 @@ use serde::Serialize;
 
 use faer::Mat;
 
-use crate::analysis::linear::{Factor, brent, transfer};
+use crate::analysis::linear::{Factor, SparseSystem, brent, transfer};
 use crate::analysis::mna::Mna;
 use crate::design::Band;
 
@@ -35,6 +35,25 @@ pub struct Transfer {
     b: Vec<f64>,
     out: Vec<f64>,
     direct: f64,
+    /// The same system in sparse form, when it is large and mostly zero.
+    sparse: Option<SparseSystem>,
+}
+
+/// Unknowns above which a mostly-zero system is solved in sparse form.
+const SPARSE_FROM: usize = 60;
+
+/// The sparse form of (g, c) when it pays: more than [`SPARSE_FROM`] unknowns, at most a
+/// fifth of the entries non-zero.
+fn sparse_form(g: &Mat<f64>, c: &Mat<f64>) -> Option<SparseSystem> {
+    let n = g.nrows();
+    if n <= SPARSE_FROM {
+        return None;
+    }
+    let nonzero = (0..n)
+        .flat_map(|i| (0..n).map(move |j| (i, j)))
+        .filter(|&(i, j)| g[(i, j)] != 0.0 || c[(i, j)] != 0.0)
+        .count();
+    (nonzero * 5 <= n * n).then(|| SparseSystem::new(g, c)).flatten()
 }
 
 impl Transfer {
@@ -47,6 +66,7 @@ impl Transfer {
             b: m.b.clone(),
             out: m.out.clone(),
             direct: 0.0,
+            sparse: sparse_form(&m.g, &m.c),
         };
         let dynamic: Vec<usize> =
             (0..n).filter(|&i| (0..n).any(|j| m.c[(i, j)] != 0.0 || m.c[(j, i)] != 0.0)).collect();
@@ -77,13 +97,18 @@ impl Transfer {
             .map(|j| m.out[dynamic[j]] - (0..f).map(|k| m.out[fixed[k]] * x[(k, j)]).sum::<f64>())
             .collect();
         let direct = (0..f).map(|k| m.out[fixed[k]] * x[(k, d)]).sum();
-        Transfer { g, c, b, out, direct }
+        let sparse = sparse_form(&g, &c);
+        Transfer { g, c, b, out, direct, sparse }
     }
 
     /// H(j2πf).
     pub fn at(&self, f: f64) -> Option<c64> {
-        transfer(&self.g, &self.c, &self.b, &self.out, c64::new(0.0, 2.0 * PI * f))
-            .map(|h| h + self.direct)
+        let s = c64::new(0.0, 2.0 * PI * f);
+        match &self.sparse {
+            Some(sparse) => sparse.transfer(&self.b, &self.out, s),
+            None => transfer(&self.g, &self.c, &self.b, &self.out, s),
+        }
+        .map(|h| h + self.direct)
     }
 }
 

@@ -334,7 +334,13 @@ pub fn summary(design: &Design, warnings: usize) -> String {
         .collect();
     rows.push(("parts", user_parts.len().to_string(), kind_text.join(", ")));
     let nodes = design.nodes();
-    rows.push(("nodes", nodes.len().to_string(), nodes.join(" ")));
+    // A generated network can have thousands of nodes: the first ones and the last name it.
+    let shown = if nodes.len() > 16 {
+        format!("{} … {}", nodes[..12].join(" "), nodes[nodes.len() - 2..].join(" "))
+    } else {
+        nodes.join(" ")
+    };
+    rows.push(("nodes", nodes.len().to_string(), shown));
     let models: Vec<String> = design
         .models
         .iter()
