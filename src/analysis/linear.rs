@@ -288,6 +288,20 @@ impl SparseSystem {
             .ok()?;
         let rhs = Mat::<c64>::from_fn(n, 1, |i, _| c64::new(b[i], 0.0));
         let x = lu.solve(&rhs);
+        // The sparse LU fails only on a structurally singular matrix; a numerically singular
+        // one gives an answer amplified past any physical one. Refused as the dense
+        // elimination refuses a pivot under PIVOT_TOLERANCE of the largest entry: when the
+        // solution's size times the largest entry exceeds the source's by 1/PIVOT_TOLERANCE.
+        let size = |v: c64| v.re.abs().max(v.im.abs());
+        let scale = values.iter().map(|v| size(*v)).fold(0.0, f64::max);
+        let x_max = (0..n).map(|i| size(x[(i, 0)])).fold(0.0, f64::max);
+        let b_max = b.iter().map(|v| v.abs()).fold(0.0, f64::max);
+        let amplified = x_max * scale * PIVOT_TOLERANCE;
+        if amplified.partial_cmp(&b_max) != Some(std::cmp::Ordering::Less)
+            && amplified.partial_cmp(&b_max) != Some(std::cmp::Ordering::Equal)
+        {
+            return None;
+        }
         let y = (0..n).map(|i| x[(i, 0)] * out[i]).fold(c64::new(0.0, 0.0), |acc, v| acc + v);
         y.is_finite().then_some(y)
     }
