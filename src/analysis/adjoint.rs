@@ -80,8 +80,13 @@ struct Solved {
     lambda: Vec<c64>,
 }
 
-/// Solves (G + sC)x = rhs and (G + sC)ᵀλ = functional, dense LU with partial pivoting.
+/// Solves (G + sC)x = rhs and (G + sC)ᵀλ = functional with one factorisation: sparse for a
+/// large mostly-zero network (as the response is), dense LU with partial pivoting otherwise.
 fn solve(m: &Mna, s: c64, rhs: &[f64], functional: &[f64]) -> Option<Solved> {
+    if let Some(sparse) = crate::analysis::response::sparse_form(&m.g, &m.c) {
+        let (x, lambda) = sparse.solve_pair(s, rhs, functional)?;
+        return Some(Solved { x, lambda });
+    }
     let n = m.size();
     let a = Mat::<c64>::from_fn(n, n, |i, j| c64::new(m.g[(i, j)], 0.0) + s * m.c[(i, j)]);
     let column = |v: &[f64]| Mat::<c64>::from_fn(n, 1, |i, _| c64::new(v[i], 0.0));

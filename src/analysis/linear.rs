@@ -271,6 +271,35 @@ impl SparseSystem {
         Some(SparseSystem { n, col_ptr, row_idx, g: gv, c: cv, symbolic })
     }
 
+    /// x = (G + sC)⁻¹ rhs and λ = (G + sC)⁻ᵀ functional from one numeric factorisation, or
+    /// None when singular there (the adjoint method's pair of solves).
+    pub fn solve_pair(
+        &self,
+        s: c64,
+        rhs: &[f64],
+        functional: &[f64],
+    ) -> Option<(Vec<c64>, Vec<c64>)> {
+        let n = self.n;
+        let values: Vec<c64> =
+            self.g.iter().zip(&self.c).map(|(g, c)| c64::new(*g, 0.0) + s * *c).collect();
+        let pattern = faer::sparse::SymbolicSparseColMatRef::new_checked(
+            n,
+            n,
+            &self.col_ptr,
+            None,
+            &self.row_idx,
+        );
+        let a = faer::sparse::SparseColMatRef::new(pattern, &values);
+        let lu = faer::sparse::linalg::solvers::Lu::try_new_with_symbolic(self.symbolic.clone(), a)
+            .ok()?;
+        let column = |v: &[f64]| Mat::<c64>::from_fn(n, 1, |i, _| c64::new(v[i], 0.0));
+        let x = lu.solve(column(rhs));
+        let lambda = lu.solve_transpose(column(functional));
+        let x: Vec<c64> = (0..n).map(|i| x[(i, 0)]).collect();
+        let lambda: Vec<c64> = (0..n).map(|i| lambda[(i, 0)]).collect();
+        x.iter().chain(&lambda).all(|v| v.is_finite()).then_some((x, lambda))
+    }
+
     /// y = outᵀ (G + sC)⁻¹ b, or None when singular there.
     pub fn transfer(&self, b: &[f64], out: &[f64], s: c64) -> Option<c64> {
         let n = self.n;

@@ -44,7 +44,7 @@ const SPARSE_FROM: usize = 60;
 
 /// The sparse form of (g, c) when it pays: more than [`SPARSE_FROM`] unknowns, at most a
 /// fifth of the entries non-zero.
-fn sparse_form(g: &Mat<f64>, c: &Mat<f64>) -> Option<SparseSystem> {
+pub(crate) fn sparse_form(g: &Mat<f64>, c: &Mat<f64>) -> Option<SparseSystem> {
     let n = g.nrows();
     if n <= SPARSE_FROM {
         return None;
