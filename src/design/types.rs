@@ -41,8 +41,9 @@ pub struct Design {
     /// Sweep and Monte Carlo settings.
     pub analysis: AnalysisSettings,
     /// Where each key was written, by dotted path (`parts.R1.value`), for later messages.
+    /// Shared, not copied, by the perturbed copies tolerance work makes of a design.
     #[serde(skip)]
-    pub places: BTreeMap<String, Span>,
+    pub places: std::sync::Arc<BTreeMap<String, Span>>,
 }
 
 /// Identification of a design.

@@ -251,7 +251,7 @@ impl Reader<'_> {
             models,
             requirements,
             analysis: analysis.unwrap_or_else(AnalysisSettings::defaults),
-            places: std::mem::take(&mut self.places),
+            places: std::sync::Arc::new(std::mem::take(&mut self.places)),
         })
     }
 
