@@ -242,19 +242,9 @@ fn input_resistance(
     if den == 0.0 {
         return None;
     }
-    let functional = |p: usize, n: usize| {
-        let mut f = vec![0.0; mid.size()];
-        if let Some(r) = Mna::row(p) {
-            f[r] += 1.0;
-        }
-        if let Some(r) = Mna::row(n) {
-            f[r] -= 1.0;
-        }
-        f
-    };
     let zero = c64::new(0.0, 0.0);
     let d = |p, n| -> Option<Vec<f64>> {
-        let s = solve(mid, zero, &mid.b, &functional(p, n))?;
+        let s = solve(mid, zero, &mid.b, &mid.incidence(p, n))?;
         Some(
             contractions(lin, mid, states, Assembly::default(), zero, &s)
                 .iter()
@@ -286,14 +276,7 @@ fn input_resistance(
 fn output_resistance(lin: &LinearNetwork, states: &[CapState]) -> Option<Vec<f64>> {
     let opts = Assembly { without_load: true, ..Assembly::default() };
     let unloaded = mna::assemble(lin, |i| states[i], opts);
-    let mut inject = vec![0.0; unloaded.size()];
-    let (op, on) = lin.output;
-    if let Some(r) = Mna::row(op) {
-        inject[r] += 1.0;
-    }
-    if let Some(r) = Mna::row(on) {
-        inject[r] -= 1.0;
-    }
+    let inject = unloaded.incidence(lin.output.0, lin.output.1);
     let zero = c64::new(0.0, 0.0);
     let sol = solve(&unloaded, zero, &inject, &unloaded.out)?;
     Some(contractions(lin, &unloaded, states, opts, zero, &sol).iter().map(|k| -k.re).collect())

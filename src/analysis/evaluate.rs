@@ -524,15 +524,7 @@ fn port_resistances(
     let unloaded =
         mna::assemble(lin, state_mid, Assembly { without_load: true, ..Assembly::default() });
     let output = Factor::new(&unloaded.g).ok().and_then(|f| {
-        let mut inject = vec![0.0; unloaded.size()];
-        let (op, on) = lin.output;
-        if let Some(r) = Mna::row(op) {
-            inject[r] += 1.0;
-        }
-        if let Some(r) = Mna::row(on) {
-            inject[r] -= 1.0;
-        }
-        let y = f.solve(&inject);
+        let y = f.solve(&unloaded.incidence(lin.output.0, lin.output.1));
         let r: f64 = y.iter().zip(&unloaded.out).map(|(a, b)| a * b).sum();
         r.is_finite().then_some(r)
     });

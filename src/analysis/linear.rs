@@ -271,6 +271,24 @@ impl SparseSystem {
         Some(SparseSystem { n, col_ptr, row_idx, g: gv, c: cv, symbolic })
     }
 
+    /// The numeric LU of G + sC on the shared symbolic analysis, and the entries it
+    /// factorised.
+    fn factor(&self, s: c64) -> Option<(faer::sparse::linalg::solvers::Lu<usize, c64>, Vec<c64>)> {
+        let values: Vec<c64> =
+            self.g.iter().zip(&self.c).map(|(g, c)| c64::new(*g, 0.0) + s * *c).collect();
+        let pattern = faer::sparse::SymbolicSparseColMatRef::new_checked(
+            self.n,
+            self.n,
+            &self.col_ptr,
+            None,
+            &self.row_idx,
+        );
+        let a = faer::sparse::SparseColMatRef::new(pattern, &values);
+        let lu = faer::sparse::linalg::solvers::Lu::try_new_with_symbolic(self.symbolic.clone(), a)
+            .ok()?;
+        Some((lu, values))
+    }
+
     /// x = (G + sC)⁻¹ rhs and λ = (G + sC)⁻ᵀ functional from one numeric factorisation, or
     /// None when singular there (the adjoint method's pair of solves).
     pub fn solve_pair(
@@ -303,18 +321,7 @@ impl SparseSystem {
     /// y = outᵀ (G + sC)⁻¹ b, or None when singular there.
     pub fn transfer(&self, b: &[f64], out: &[f64], s: c64) -> Option<c64> {
         let n = self.n;
-        let values: Vec<c64> =
-            self.g.iter().zip(&self.c).map(|(g, c)| c64::new(*g, 0.0) + s * *c).collect();
-        let pattern = faer::sparse::SymbolicSparseColMatRef::new_checked(
-            n,
-            n,
-            &self.col_ptr,
-            None,
-            &self.row_idx,
-        );
-        let a = faer::sparse::SparseColMatRef::new(pattern, &values);
-        let lu = faer::sparse::linalg::solvers::Lu::try_new_with_symbolic(self.symbolic.clone(), a)
-            .ok()?;
+        let (lu, values) = self.factor(s)?;
         let rhs = Mat::<c64>::from_fn(n, 1, |i, _| c64::new(b[i], 0.0));
         let x = lu.solve(&rhs);
         // The sparse LU fails only on a structurally singular matrix; a numerically singular

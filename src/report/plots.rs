@@ -514,6 +514,12 @@ struct Axis {
     x_desc: bool,
 }
 
+/// The magnitude panel of every Bode plot: |H| in dB, the frequency labelled below the phase.
+const MAGNITUDE: Axis = Axis { x_label_area: 28, y_desc: "|H|", y_unit: " dB", x_desc: false };
+
+/// The phase panel of every Bode plot, with the frequency axis named.
+const PHASE: Axis = Axis { x_label_area: 44, y_desc: "phase", y_unit: "°", x_desc: true };
+
 /// A chart on a log-frequency axis.
 type FrequencyChart<'a, 'b> = ChartContext<
     'a,
@@ -746,12 +752,7 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
         root.fill(&WHITE).ok()?;
         let (upper, rest) = root.split_vertically(px(300));
         let (lower, key) = rest.split_vertically(px(214));
-        let mut mag = frequency_panel(
-            &upper,
-            (f0, f1),
-            (bottom, top),
-            Axis { x_label_area: 28, y_desc: "|H|", y_unit: " dB", x_desc: false },
-        )?;
+        let mut mag = frequency_panel(&upper, (f0, f1), (bottom, top), MAGNITUDE)?;
         if let Some(b) = &a.midband.band {
             let (from, to) = (b.from_hz.max(f0), b.to_hz.min(f1));
             if from < to {
@@ -823,12 +824,7 @@ fn bode(a: &Analysis, requirements: &[RequirementCheck]) -> Option<String> {
             let pos = (*x, y_top + px(3) as i32 + px(14) as i32 * *row as i32);
             upper.draw(&Text::new(format!("{}", k + 1), pos, style(12))).ok()?;
         }
-        let mut phase = frequency_panel(
-            &lower,
-            (f0, f1),
-            (ph_lo, ph_hi),
-            Axis { x_label_area: 44, y_desc: "phase", y_unit: "°", x_desc: true },
-        )?;
+        let mut phase = frequency_panel(&lower, (f0, f1), (ph_lo, ph_hi), PHASE)?;
         for m in &marks {
             let (dash, gap) = dashes(m.kind);
             phase
@@ -1149,12 +1145,7 @@ pub fn bode_overlay(
         let root = SVGBackend::with_string(&mut svg, (px(WIDTH), px(520))).into_drawing_area();
         root.fill(&WHITE).ok()?;
         let (upper, lower) = root.split_vertically(px(300));
-        let mut mag = frequency_panel(
-            &upper,
-            (f0, f1),
-            (bottom, top),
-            Axis { x_label_area: 28, y_desc: "|H|", y_unit: " dB", x_desc: false },
-        )?;
+        let mut mag = frequency_panel(&upper, (f0, f1), (bottom, top), MAGNITUDE)?;
         let line = |s: &[SweepPoint], f: fn(&SweepPoint) -> f64| -> Vec<(f64, f64)> {
             s.iter().map(|p| (p.frequency_hz, f(p))).collect()
         };
@@ -1186,12 +1177,7 @@ pub fn bode_overlay(
             }
             upper.draw(&Text::new(label.to_string(), (x + p(36), y - p(7)), style(12))).ok()?;
         }
-        let mut phase = frequency_panel(
-            &lower,
-            (f0, f1),
-            (ph_lo, ph_hi),
-            Axis { x_label_area: 44, y_desc: "phase", y_unit: "°", x_desc: true },
-        )?;
+        let mut phase = frequency_panel(&lower, (f0, f1), (ph_lo, ph_hi), PHASE)?;
         phase
             .draw_series(DashedLineSeries::new(
                 line(before, |p| p.phase_deg),

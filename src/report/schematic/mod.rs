@@ -189,6 +189,15 @@ fn n(v: f64) -> String {
     if t == "-0" { "0".into() } else { t.to_string() }
 }
 
+/// A closed outline through `points`.
+fn polygon(s: &mut String, points: &[Point]) {
+    let mut d = String::new();
+    for (k, p) in points.iter().enumerate() {
+        let _ = write!(d, "{}{} {}", if k == 0 { 'M' } else { 'L' }, n(p.0), n(p.1));
+    }
+    let _ = writeln!(s, "<path d=\"{d}Z\"/>");
+}
+
 /// Draws a symbol between its terminals.
 fn draw_symbol(s: &mut String, symbol: &Symbol) {
     let line = |s: &mut String, a: Point, b: Point| {
@@ -208,18 +217,7 @@ fn draw_symbol(s: &mut String, symbol: &Symbol) {
     match symbol.shape {
         Shape::Resistor => {
             let (p, q, r, t) = (at(0.0, 5.0), at(len, 5.0), at(len, -5.0), at(0.0, -5.0));
-            let _ = writeln!(
-                s,
-                "<path d=\"M{} {}L{} {}L{} {}L{} {}Z\"/>",
-                n(p.0),
-                n(p.1),
-                n(q.0),
-                n(q.1),
-                n(r.0),
-                n(r.1),
-                n(t.0),
-                n(t.1)
-            );
+            polygon(s, &[p, q, r, t]);
         }
         Shape::Capacitor => {
             line(s, at(0.0, 0.0), at(mid - 3.5, 0.0));
@@ -241,35 +239,13 @@ fn draw_symbol(s: &mut String, symbol: &Symbol) {
                 (at(mid - 12.0, 0.0), at(mid, 10.0), at(mid + 12.0, 0.0), at(mid, -10.0));
             line(s, at(0.0, 0.0), p);
             line(s, r, at(len, 0.0));
-            let _ = writeln!(
-                s,
-                "<path d=\"M{} {}L{} {}L{} {}L{} {}Z\"/>",
-                n(p.0),
-                n(p.1),
-                n(q.0),
-                n(q.1),
-                n(r.0),
-                n(r.1),
-                n(t.0),
-                n(t.1)
-            );
+            polygon(s, &[p, q, r, t]);
             line(s, at(mid - 6.0, 0.0), at(mid + 6.0, 0.0));
         }
         Shape::Source => {
             // The series resistance from the positive terminal, then the generator.
             let (p, q, r, t) = (at(0.0, 5.0), at(24.0, 5.0), at(24.0, -5.0), at(0.0, -5.0));
-            let _ = writeln!(
-                s,
-                "<path d=\"M{} {}L{} {}L{} {}L{} {}Z\"/>",
-                n(p.0),
-                n(p.1),
-                n(q.0),
-                n(q.1),
-                n(r.0),
-                n(r.1),
-                n(t.0),
-                n(t.1)
-            );
+            polygon(s, &[p, q, r, t]);
             line(s, at(24.0, 0.0), at(len - 28.0, 0.0));
             let c = at(len - 14.0, 0.0);
             let _ = writeln!(s, "<circle cx=\"{}\" cy=\"{}\" r=\"14\"/>", n(c.0), n(c.1));
