@@ -298,18 +298,7 @@ impl SparseSystem {
         functional: &[f64],
     ) -> Option<(Vec<c64>, Vec<c64>)> {
         let n = self.n;
-        let values: Vec<c64> =
-            self.g.iter().zip(&self.c).map(|(g, c)| c64::new(*g, 0.0) + s * *c).collect();
-        let pattern = faer::sparse::SymbolicSparseColMatRef::new_checked(
-            n,
-            n,
-            &self.col_ptr,
-            None,
-            &self.row_idx,
-        );
-        let a = faer::sparse::SparseColMatRef::new(pattern, &values);
-        let lu = faer::sparse::linalg::solvers::Lu::try_new_with_symbolic(self.symbolic.clone(), a)
-            .ok()?;
+        let (lu, _) = self.factor(s)?;
         let column = |v: &[f64]| Mat::<c64>::from_fn(n, 1, |i, _| c64::new(v[i], 0.0));
         let x = lu.solve(column(rhs));
         let lambda = lu.solve_transpose(column(functional));
