@@ -88,7 +88,8 @@ fn solve(m: &Mna, s: c64, rhs: &[f64], functional: &[f64]) -> Option<Solved> {
         return Some(Solved { x, lambda });
     }
     let n = m.size();
-    let a = Mat::<c64>::from_fn(n, n, |i, j| c64::new(m.g[(i, j)], 0.0) + s * m.c[(i, j)]);
+    let (g, c) = (m.g.dense(), m.c.dense());
+    let a = Mat::<c64>::from_fn(n, n, |i, j| c64::new(g[(i, j)], 0.0) + s * c[(i, j)]);
     let column = |v: &[f64]| Mat::<c64>::from_fn(n, 1, |i, _| c64::new(v[i], 0.0));
     // One factorisation serves both: Aᵀλ = c is solved with A's own LU.
     let lu = a.partial_piv_lu();
@@ -146,17 +147,7 @@ fn contractions(
 
 /// λᵀ C x: with the sign flipped, ∂y/∂s.
 fn c_contraction(m: &Mna, sol: &Solved) -> c64 {
-    let n = m.size();
-    let mut acc = c64::new(0.0, 0.0);
-    for i in 0..n {
-        for j in 0..n {
-            let c = m.c[(i, j)];
-            if c != 0.0 {
-                acc += sol.lambda[i] * c * sol.x[j];
-            }
-        }
-    }
-    acc
+    m.c.entries().fold(c64::new(0.0, 0.0), |acc, (i, j, c)| acc + sol.lambda[i] * c * sol.x[j])
 }
 
 /// |H| at `f` on the full network with its gradient over the elements and its derivative in

@@ -14,12 +14,12 @@ use std::f64::consts::PI;
 use crate::analysis::adjoint::{self, Gradients};
 use crate::analysis::linear::Factor;
 use crate::analysis::mna::{self, Assembly, CapState, Mna};
-use crate::analysis::poles::{self, Root};
+use crate::analysis::poles::{self, Root, Window};
 use crate::analysis::response::{self, BandResponse, SweepPoint, Transfer};
-use crate::analysis::time_constants::{self, CapRef, OpenCircuit, ShortCircuitCap};
+use crate::analysis::time_constants::{self, CapRef, ShortCircuitCap};
 use crate::analysis::{
     Analysis, AnalysisError, BandReport, CapacitorClass, DeviceReport, EstimateErrors, High, Low,
-    Metrics, Midband, Octc, OperatingPointReport, Peaking, RootHz, Sctc,
+    Metrics, Midband, Octc, OperatingPointReport, Peaking, RootHz, RootWindow, Sctc,
 };
 use crate::circuit::netlist::{CapSet, Netlist};
 use crate::circuit::operating_point::{self, DeviceState, OperatingPoint};
@@ -37,8 +37,13 @@ struct Core {
     gain: f64,
     input_resistance: Option<f64>,
     output_resistance: Option<f64>,
+    /// The mid-band network and its factorisation, kept for the full analysis's time
+    /// constants.
+    mid: Mna,
+    g: Factor,
     high_caps: Vec<CapRef>,
-    octc: OpenCircuit,
+    /// Σ R_i0 C_i of the high capacitors, s.
+    b1: f64,
     sctc_caps: Vec<ShortCircuitCap>,
     f_high_est: Option<f64>,
     f_low_est: Option<f64>,
@@ -137,9 +142,9 @@ fn core(design: &Design) -> Result<Core, AnalysisError> {
     let gain: f64 = x.iter().zip(&mid.out).map(|(a, b)| a * b).sum();
     let (input_resistance, output_resistance) = port_resistances(&lin, &x, state_mid);
     let (high_caps, low_caps) = cap_refs(&lin, &mid);
-    let octc = time_constants::open_circuit(&mid, &g, &high_caps);
+    let b1 = time_constants::open_circuit_sum(&mid, &g, &high_caps);
     let (sctc_caps, inverse_tau_sum) = time_constants::short_circuit(&mid, &g, &low_caps);
-    let f_high_est = (octc.b1 > 0.0).then(|| 1.0 / (2.0 * PI * octc.b1));
+    let f_high_est = (b1 > 0.0).then(|| 1.0 / (2.0 * PI * b1));
     let f_low_est = (inverse_tau_sum > 0.0).then(|| inverse_tau_sum / (2.0 * PI));
     let settings = &design.analysis;
     let frequency_hz = midband_frequency(f_low_est, f_high_est, settings);
@@ -159,8 +164,10 @@ fn core(design: &Design) -> Result<Core, AnalysisError> {
         gain,
         input_resistance,
         output_resistance,
+        mid,
+        g,
         high_caps,
-        octc,
+        b1,
         sctc_caps,
         f_high_est,
         f_low_est,
@@ -196,7 +203,14 @@ impl Core {
     /// high-frequency and the low-frequency networks, the sweep, the second-order and
     /// root-sum-square estimates, their errors and any peaking.
     fn complete(self, settings: &AnalysisSettings) -> Result<Analysis, AnalysisError> {
-        let roots = Roots::of(&self.lin, &self.full)?;
+        let window = root_window(self.f_low, self.f_high, settings);
+        let roots = Roots::of(&self.lin, &self.full, window)?;
+        let root_window = (!poles::finds_all(&self.full.c)).then(|| RootWindow {
+            from_hz: window.from_hz,
+            to_hz: window.to_hz,
+            dynamic_unknowns: crate::analysis::schur::dynamic_unknowns(&self.full.c).len(),
+            qz_up_to: poles::QZ_UP_TO,
+        });
         let frequencies = response::grid(
             settings.sweep_start_hz,
             settings.sweep_stop_hz,
@@ -205,9 +219,10 @@ impl Core {
         let sweep = response::sweep(&self.transfer, &frequencies);
         let peaking = peaking(&sweep, self.gain.abs());
         let has_high = !self.high_caps.is_empty();
-        let b1 = self.octc.b1;
-        let second_order =
-            time_constants::second_order_omega(b1, self.octc.b2).map(|w| w / (2.0 * PI));
+        let octc = time_constants::open_circuit(&self.mid, &self.g, &self.high_caps);
+        let b1 = octc.b1;
+        debug_assert_eq!(b1.to_bits(), self.b1.to_bits(), "the lean and the full b1 agree");
+        let second_order = time_constants::second_order_omega(b1, octc.b2).map(|w| w / (2.0 * PI));
         let (rss_high, rss_low) = (roots.rss_high(), roots.rss_low());
         let (f_high, f_low) = (self.f_high, self.f_low);
         let capacitors = capacitor_classes(&self.lin);
@@ -234,11 +249,11 @@ impl Core {
             high: High {
                 f3db_hz: f_high,
                 b1_s: has_high.then_some(b1),
-                b2_s2: has_high.then_some(self.octc.b2),
+                b2_s2: has_high.then_some(octc.b2),
                 dominance_ratio: (roots.high_poles.len() >= 2)
                     .then(|| roots.high_poles[1].norm() / roots.high_poles[0].norm()),
                 octc: Octc {
-                    caps: self.octc.caps,
+                    caps: octc.caps,
                     sum_tau_s: has_high.then_some(b1),
                     f_estimate_hz: self.f_high_est,
                 },
@@ -268,6 +283,7 @@ impl Core {
             },
             poles: hz(&roots.poles),
             zeros: hz(&roots.zeros),
+            root_window,
             sweep,
             has_inductors: self.has_inductors,
         })
@@ -347,7 +363,7 @@ struct Roots {
 }
 
 impl Roots {
-    fn of(lin: &LinearNetwork, full: &Mna) -> Result<Roots, AnalysisError> {
+    fn of(lin: &LinearNetwork, full: &Mna, window: Window) -> Result<Roots, AnalysisError> {
         let partial = Assembly { inductors_shorted: true, ..Assembly::default() };
         let high_net = mna::assemble(
             lin,
@@ -371,9 +387,9 @@ impl Roots {
             },
             partial,
         );
-        let (poles, zeros) = poles_and_zeros(full)?;
-        let (high_poles, high_zeros) = poles_and_zeros(&high_net)?;
-        let (low_poles, low_zeros) = poles_and_zeros(&low_net)?;
+        let (poles, zeros) = poles_and_zeros(full, window)?;
+        let (high_poles, high_zeros) = poles_and_zeros(&high_net, window)?;
+        let (low_poles, low_zeros) = poles_and_zeros(&low_net, window)?;
         Ok(Roots { poles, zeros, high_poles, high_zeros, low_poles, low_zeros })
     }
 
@@ -406,16 +422,33 @@ impl Roots {
     }
 }
 
+/// Where the poles and zeros of a network too large for QZ are looked for: two decades
+/// beyond each cut-off (three below the upper one when there is no lower one, as a direct
+/// coupled network's poles lie at and above it), the sweep's ends where a cut-off is missing.
+fn root_window(f_low: Option<f64>, f_high: Option<f64>, settings: &AnalysisSettings) -> Window {
+    let from_hz = match (f_low, f_high) {
+        (Some(l), _) => l / 100.0,
+        (None, Some(h)) => h / 1e3,
+        (None, None) => settings.sweep_start_hz,
+    };
+    let to_hz = match (f_high, f_low) {
+        (Some(h), _) => h * 100.0,
+        (None, Some(l)) => (l * 1e3).max(settings.sweep_stop_hz),
+        (None, None) => settings.sweep_stop_hz,
+    };
+    Window { from_hz, to_hz }
+}
+
 /// The poles of `m` and its zeros from the source to the output (zeros within rounding of
 /// the origin snapped onto it).
-fn poles_and_zeros(m: &Mna) -> Result<(Vec<Root>, Vec<Root>), AnalysisError> {
+fn poles_and_zeros(m: &Mna, window: Window) -> Result<(Vec<Root>, Vec<Root>), AnalysisError> {
     let qz_failed = || AnalysisError {
         message: "the QZ eigenvalue iteration did not converge".into(),
         help: "this is unusual; check for capacitances or resistances many decades apart".into(),
         place: None,
     };
-    let poles = poles::poles(m).ok_or_else(qz_failed)?;
-    let zeros = poles::snap_origin(poles::zeros(m).ok_or_else(qz_failed)?, &poles);
+    let poles = poles::poles(m, window).ok_or_else(qz_failed)?;
+    let zeros = poles::snap_origin(poles::zeros(m, window).ok_or_else(qz_failed)?, &poles);
     Ok((poles, zeros))
 }
 
@@ -443,8 +476,8 @@ fn capacitor_classes(lin: &LinearNetwork) -> Vec<CapacitorClass> {
         .collect()
 }
 
-fn singular(lin: &LinearNetwork, m: &Mna, unknown: usize, what: &str) -> AnalysisError {
-    let node = if unknown < m.nodes { Some(lin.nodes[unknown + 1].clone()) } else { None };
+fn singular(lin: &LinearNetwork, m: &Mna, unknown: Option<usize>, what: &str) -> AnalysisError {
+    let node = unknown.filter(|u| *u < m.nodes).map(|u| lin.nodes[u + 1].clone());
     let floating = floating_nodes(lin, m);
     let named = if floating.is_empty() { node.into_iter().collect() } else { floating };
     if named.is_empty() {
@@ -473,10 +506,8 @@ fn singular(lin: &LinearNetwork, m: &Mna, unknown: usize, what: &str) -> Analysi
 
 /// Nodes whose row and column of G are empty.
 fn floating_nodes(lin: &LinearNetwork, m: &Mna) -> Vec<String> {
-    (0..m.nodes)
-        .filter(|&r| (0..m.size()).all(|c| m.g[(r, c)] == 0.0 && m.g[(c, r)] == 0.0))
-        .map(|r| lin.nodes[r + 1].clone())
-        .collect()
+    let touched = m.g.touches();
+    (0..m.nodes).filter(|&r| !touched[r]).map(|r| lin.nodes[r + 1].clone()).collect()
 }
 
 /// The exact −3 dB points: searched outward from mid-band (or, when |H| is already below

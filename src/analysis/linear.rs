@@ -1,30 +1,79 @@
-//! Dense factorisations used by the analysis: real LU of G (one per network, reused for
-//! every solve) and complex LU of G + jωC for the frequency response.
+//! The factorisations used by the analysis: real LU of G (one per network, reused for every
+//! solve; dense for the small systems of amplifier stages, sparse for large mostly-zero ones)
+//! and complex LU of G + sC for the frequency response.
 //!
-//! In: faer matrices. Out: solutions, or [`Singular`] when a pivot vanishes. No netlist.
+//! In: faer matrices or [`Matrix`]. Out: solutions, or [`Singular`] when a pivot vanishes.
+//! No netlist.
 
 use faer::linalg::solvers::{PartialPivLu, Solve};
+use faer::sparse::linalg::solvers::{Lu, SymbolicLu};
 use faer::{Mat, c64};
+
+use crate::analysis::matrix::Matrix;
 
 /// The matrix is singular (to working precision).
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub struct Singular {
-    /// The first unknown whose pivot vanished.
-    pub unknown: usize,
+    /// The first unknown whose pivot vanished, when the factorisation can tell (the sparse
+    /// one cannot: it sees only that the solution grows past any physical one).
+    pub unknown: Option<usize>,
+}
+
+/// Unknowns above which a mostly-zero system is factorised in sparse form.
+pub const SPARSE_FROM: usize = 60;
+
+/// Whether a system of `n` unknowns with `nonzeros` entries is solved in sparse form: more
+/// than [`SPARSE_FROM`] unknowns and at most a fifth of the entries non-zero. Below that a
+/// dense LU is faster (and the cut-off searches of a stage solve it hundreds of times).
+pub fn sparse_pays(n: usize, nonzeros: usize) -> bool {
+    n > SPARSE_FROM && nonzeros * 5 <= n * n
 }
 
 /// A factorised real matrix.
 pub struct Factor {
-    lu: PartialPivLu<f64>,
+    lu: Kind,
     n: usize,
+}
+
+enum Kind {
+    Dense(PartialPivLu<f64>),
+    Sparse(Lu<usize, f64>),
 }
 
 /// Relative size below which a pivot counts as zero.
 const PIVOT_TOLERANCE: f64 = 1e-13;
 
 impl Factor {
-    /// Factorises `a`, refusing a singular one.
-    pub fn new(a: &Mat<f64>) -> Result<Factor, Singular> {
+    /// Factorises `a`, refusing a singular one: sparse when that pays ([`sparse_pays`]).
+    pub fn new(a: &Matrix) -> Result<Factor, Singular> {
+        let n = a.size();
+        if !sparse_pays(n, a.nonzeros()) {
+            return Factor::dense(&a.dense());
+        }
+        let (col_ptr, rows, values) = a.parts();
+        let refused = Singular { unknown: None };
+        let pattern = faer::sparse::SymbolicSparseColMatRef::new_checked(n, n, col_ptr, None, rows);
+        let symbolic = SymbolicLu::try_new(pattern).map_err(|_| refused)?;
+        let matrix = faer::sparse::SparseColMatRef::new(pattern, values);
+        let lu = Lu::try_new_with_symbolic(symbolic, matrix).map_err(|_| refused)?;
+        let factor = Factor { lu: Kind::Sparse(lu), n };
+        // A numerically singular matrix factorises, and then amplifies: refused as the dense
+        // LU refuses a pivot under PIVOT_TOLERANCE of the largest entry, when the solution
+        // for a right-hand side of ones, times the largest entry, exceeds 1/PIVOT_TOLERANCE.
+        let x = factor.solve(&vec![1.0; n]);
+        let x_max = x
+            .iter()
+            .fold(0.0f64, |m, v| if v.is_finite() { m.max(v.abs()) } else { f64::INFINITY });
+        if (x_max * a.max_abs() * PIVOT_TOLERANCE).partial_cmp(&1.0)
+            != Some(std::cmp::Ordering::Less)
+        {
+            return Err(refused);
+        }
+        Ok(factor)
+    }
+
+    /// Factorises a dense matrix, refusing a singular one.
+    pub fn dense(a: &Mat<f64>) -> Result<Factor, Singular> {
         let n = a.nrows();
         let scale = (0..n)
             .flat_map(|i| (0..n).map(move |j| (i, j)))
@@ -35,22 +84,38 @@ impl Factor {
             if u[(i, i)].abs().partial_cmp(&(PIVOT_TOLERANCE * scale))
                 != Some(std::cmp::Ordering::Greater)
             {
-                return Err(Singular { unknown: i });
+                return Err(Singular { unknown: Some(i) });
             }
         }
-        Ok(Factor { lu, n })
+        Ok(Factor { lu: Kind::Dense(lu), n })
     }
 
     /// Solves a x = rhs.
     pub fn solve(&self, rhs: &[f64]) -> Vec<f64> {
         let r = Mat::<f64>::from_fn(self.n, 1, |i, _| rhs[i]);
-        let x = self.lu.solve(&r);
+        let x = self.solve_columns(&r);
         (0..self.n).map(|i| x[(i, 0)]).collect()
     }
 
     /// Solves a X = R for every column of R at once.
     pub fn solve_columns(&self, rhs: &Mat<f64>) -> Mat<f64> {
-        self.lu.solve(rhs)
+        match &self.lu {
+            Kind::Dense(lu) => lu.solve(rhs),
+            Kind::Sparse(lu) => lu.solve(rhs),
+        }
+    }
+
+    /// Solves aᵀ X = R for every column of R at once.
+    pub fn solve_transpose_columns(&self, rhs: &Mat<f64>) -> Mat<f64> {
+        match &self.lu {
+            Kind::Dense(lu) => lu.solve_transpose(rhs),
+            Kind::Sparse(lu) => lu.solve_transpose(rhs),
+        }
+    }
+
+    /// Unknowns.
+    pub fn size(&self) -> usize {
+        self.n
     }
 }
 
@@ -245,35 +310,46 @@ pub struct SparseSystem {
     row_idx: Vec<usize>,
     g: Vec<f64>,
     c: Vec<f64>,
-    symbolic: faer::sparse::linalg::solvers::SymbolicLu<usize>,
+    symbolic: SymbolicLu<usize>,
 }
 
 impl SparseSystem {
     /// The pattern of G and C together, or None when the symbolic analysis fails.
-    pub fn new(g: &Mat<f64>, c: &Mat<f64>) -> Option<SparseSystem> {
-        let n = g.nrows();
+    pub fn new(g: &Matrix, c: &Matrix) -> Option<SparseSystem> {
+        let n = g.size();
+        let mut stamps: Vec<(usize, usize, f64, f64)> = g
+            .entries()
+            .map(|(i, j, v)| (i, j, v, 0.0))
+            .chain(c.entries().map(|(i, j, v)| (i, j, 0.0, v)))
+            .collect();
+        stamps.sort_by_key(|s| (s.1, s.0));
         let (mut col_ptr, mut row_idx, mut gv, mut cv) =
-            (vec![0usize], Vec::new(), Vec::new(), Vec::new());
+            (vec![0usize], Vec::new(), Vec::<f64>::new(), Vec::<f64>::new());
+        let mut k = 0;
         for j in 0..n {
-            for i in 0..n {
-                let (a, b) = (g[(i, j)], c[(i, j)]);
-                if a != 0.0 || b != 0.0 {
+            while k < stamps.len() && stamps[k].1 == j {
+                let (i, _, a, b) = stamps[k];
+                if row_idx.len() > col_ptr[j] && row_idx.last() == Some(&i) {
+                    *gv.last_mut().expect("entry") += a;
+                    *cv.last_mut().expect("entry") += b;
+                } else {
                     row_idx.push(i);
                     gv.push(a);
                     cv.push(b);
                 }
+                k += 1;
             }
             col_ptr.push(row_idx.len());
         }
         let pattern =
             faer::sparse::SymbolicSparseColMatRef::new_checked(n, n, &col_ptr, None, &row_idx);
-        let symbolic = faer::sparse::linalg::solvers::SymbolicLu::try_new(pattern).ok()?;
+        let symbolic = SymbolicLu::try_new(pattern).ok()?;
         Some(SparseSystem { n, col_ptr, row_idx, g: gv, c: cv, symbolic })
     }
 
     /// The numeric LU of G + sC on the shared symbolic analysis, and the entries it
     /// factorised.
-    fn factor(&self, s: c64) -> Option<(faer::sparse::linalg::solvers::Lu<usize, c64>, Vec<c64>)> {
+    fn factor(&self, s: c64) -> Option<(Lu<usize, c64>, Vec<c64>)> {
         let values: Vec<c64> =
             self.g.iter().zip(&self.c).map(|(g, c)| c64::new(*g, 0.0) + s * *c).collect();
         let pattern = faer::sparse::SymbolicSparseColMatRef::new_checked(
@@ -284,8 +360,7 @@ impl SparseSystem {
             &self.row_idx,
         );
         let a = faer::sparse::SparseColMatRef::new(pattern, &values);
-        let lu = faer::sparse::linalg::solvers::Lu::try_new_with_symbolic(self.symbolic.clone(), a)
-            .ok()?;
+        let lu = Lu::try_new_with_symbolic(self.symbolic.clone(), a).ok()?;
         Some((lu, values))
     }
 
@@ -347,9 +422,9 @@ mod tests {
     #[test]
     fn singular_is_refused() {
         let a = Mat::<f64>::from_fn(2, 2, |i, j| [[1.0, 2.0], [2.0, 4.0]][i][j]);
-        assert!(Factor::new(&a).is_err());
+        assert!(Factor::dense(&a).is_err());
         let a = Mat::<f64>::from_fn(2, 2, |i, j| [[2.0, 1.0], [1.0, 3.0]][i][j]);
-        let x = Factor::new(&a).unwrap().solve(&[3.0, 4.0]);
+        let x = Factor::dense(&a).unwrap().solve(&[3.0, 4.0]);
         assert!((x[0] - 1.0).abs() < 1e-15 && (x[1] - 1.0).abs() < 1e-15);
     }
 
@@ -377,7 +452,7 @@ mod tests {
         b[0] = gr;
         let mut out = vec![0.0; n];
         out[n - 1] = 1.0;
-        let sparse = SparseSystem::new(&g, &c).unwrap();
+        let sparse = SparseSystem::new(&Matrix::from_dense(&g), &Matrix::from_dense(&c)).unwrap();
         for f in [1e3, 1e5, 1e6] {
             let s = c64::new(0.0, 2.0 * std::f64::consts::PI * f);
             let (a, d) =

@@ -1,13 +1,13 @@
 //! Modified nodal analysis: the matrices G and C of (G + sC)x = b·u, y = cᵀx.
 //!
 //! In: a [`LinearNetwork`] and what to do with each capacitor (keep, short, open). Out: an
-//! [`Mna`] with dense faer matrices (Ho, Ruehli & Brennan, IEEE TCAS 22(6), 1975). Unknowns
+//! [`Mna`] with G and C in compressed-column form (Ho, Ruehli & Brennan, IEEE TCAS 22(6),
+//! 1975), sized by the parts rather than by the square of the nodes. Unknowns
 //! are the node voltages (ground excluded), then branch currents of voltage-defined
 //! elements: the source, grounded supplies, voltage amplifiers, inductors, shorted
 //! capacitors. No solving here.
 
-use faer::Mat;
-
+use crate::analysis::matrix::Matrix;
 use crate::circuit::small_signal::{Linear, LinearNetwork};
 use crate::union_find::UnionFind;
 
@@ -26,9 +26,9 @@ pub enum CapState {
 #[derive(Clone, Debug)]
 pub struct Mna {
     /// Conductance part.
-    pub g: Mat<f64>,
+    pub g: Matrix,
     /// Capacitance (and −inductance) part.
-    pub c: Mat<f64>,
+    pub c: Matrix,
     /// Input column (the source EMF).
     pub b: Vec<f64>,
     /// Output row: y = v(out_p) − v(out_n).
@@ -105,17 +105,17 @@ pub fn assemble(net: &LinearNetwork, state: impl Fn(usize) -> CapState, opts: As
         }
     }
     let size = next;
-    let mut g = Mat::<f64>::zeros(size, size);
-    let mut c = Mat::<f64>::zeros(size, size);
+    let mut g: Vec<(usize, usize, f64)> = Vec::new();
+    let mut c: Vec<(usize, usize, f64)> = Vec::new();
     let mut b = vec![0.0; size];
     let row = Mna::row;
-    let put = |m: &mut Mat<f64>, r: Option<usize>, k: Option<usize>, v: f64| {
+    let put = |m: &mut Vec<(usize, usize, f64)>, r: Option<usize>, k: Option<usize>, v: f64| {
         if let (Some(r), Some(k)) = (r, k) {
-            m[(r, k)] += v;
+            m.push((r, k, v));
         }
     };
     // A voltage-defined branch between x and y: KCL incidence and the branch row.
-    let incidence = |g: &mut Mat<f64>, br: usize, x: usize, y: usize| {
+    let incidence = |g: &mut Vec<(usize, usize, f64)>, br: usize, x: usize, y: usize| {
         put(g, row(x), Some(br), 1.0);
         put(g, row(y), Some(br), -1.0);
         put(g, Some(br), row(x), 1.0);
@@ -153,7 +153,7 @@ pub fn assemble(net: &LinearNetwork, state: impl Fn(usize) -> CapState, opts: As
                 let br = branch[i].expect("branch");
                 incidence(&mut g, br, a, bb);
                 if !opts.inductors_shorted {
-                    c[(br, br)] -= l; // v_a − v_b − sL·i = 0
+                    c.push((br, br, -l)); // v_a − v_b − sL·i = 0
                 }
             }
             Linear::Vccs { a, b: bb, p, n, gm, .. } => {
@@ -178,5 +178,5 @@ pub fn assemble(net: &LinearNetwork, state: impl Fn(usize) -> CapState, opts: As
     if let Some(r) = row(net.output.1) {
         out[r] -= 1.0;
     }
-    Mna { g, c, b, out, nodes, branch }
+    Mna { g: Matrix::from_stamps(size, g), c: Matrix::from_stamps(size, c), b, out, nodes, branch }
 }

@@ -10,10 +10,12 @@ pub mod adjoint;
 pub mod evaluate;
 pub mod levers;
 pub mod linear;
+pub mod matrix;
 pub mod mna;
 pub mod poles;
 pub mod requirements;
 pub mod response;
+pub mod schur;
 pub mod time_constants;
 pub mod tolerance;
 
@@ -299,11 +301,28 @@ pub struct Analysis {
     pub poles: Vec<RootHz>,
     /// Zeros from the source to the output.
     pub zeros: Vec<RootHz>,
+    /// For a network too large for QZ, where its poles and zeros were looked for (all the
+    /// lists above, and those of the high and low networks, hold only what lies there);
+    /// None when every root was found.
+    pub root_window: Option<RootWindow>,
     /// The frequency response over the design's sweep.
     #[serde(skip)]
     pub sweep: Vec<SweepPoint>,
     /// True when the network has inductors (the time constants treat them as wires).
     pub has_inductors: bool,
+}
+
+/// Where the roots of a large network were looked for, and why.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct RootWindow {
+    /// |s|/2π from, Hz.
+    pub from_hz: f64,
+    /// |s|/2π to, Hz.
+    pub to_hz: f64,
+    /// Unknowns a capacitor or inductor touches.
+    pub dynamic_unknowns: usize,
+    /// The most of those for which QZ finds every root.
+    pub qz_up_to: usize,
 }
 
 /// The figures tolerance analysis follows, from one evaluation of a design.

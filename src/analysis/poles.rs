@@ -7,9 +7,14 @@
 //! unit norm first, and an eigenvalue is infinite when |β| is negligible against |α| —
 //! a naive |β| threshold misclassifies pF-scale pencils.
 
+use std::f64::consts::PI;
+
 use faer::{Mat, c64};
 
+use crate::analysis::linear::Factor;
+use crate::analysis::matrix::Matrix;
 use crate::analysis::mna::Mna;
+use crate::analysis::schur;
 
 /// |β|/|α| below which an eigenvalue of the normalised pencil counts as infinite.
 const INFINITE_RATIO: f64 = 1e-11;
@@ -27,34 +32,184 @@ fn frobenius(m: &Mat<f64>) -> f64 {
     s.sqrt()
 }
 
-/// Finite eigenvalues s of det(A + sB) = 0, sorted by |s| then by imaginary part.
+/// Dynamic unknowns (those a capacitor or inductor touches) up to which every finite root
+/// is found, by QZ on the reduced pencil. Above, QZ's n³ work and n² memory outgrow the rest
+/// of the analysis (1,000 unknowns: seconds), and the roots near the band are found by
+/// shift-and-invert Arnoldi instead ([`shift_invert_roots`]).
+pub const QZ_UP_TO: usize = 200;
+
+/// Where roots are wanted when a pencil is too large for QZ: |s|/2π from `from_hz` to
+/// `to_hz`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Window {
+    /// Lowest |s|/2π, Hz.
+    pub from_hz: f64,
+    /// Highest |s|/2π, Hz.
+    pub to_hz: f64,
+}
+
+/// Whether every finite root of a pencil with this B is found (QZ), rather than those in the
+/// window.
+pub fn finds_all(b: &Matrix) -> bool {
+    schur::dynamic_unknowns(b).len() <= QZ_UP_TO
+}
+
+/// Finite eigenvalues s of det(A + sB) = 0, sorted by |s| then by imaginary part: all of them
+/// when [`finds_all`], else those in `window`.
 ///
-/// Unknowns whose row and column of B are empty (no capacitor or inductor touches them)
-/// are eliminated first by a Schur complement, A_DD − A_DS A_SS⁻¹ A_SD: they carry only
-/// infinite eigenvalues, and QZ on the smaller pencil is both faster and cleaner.
-pub fn pencil_roots(a: &Mat<f64>, b: &Mat<f64>) -> Option<Vec<Root>> {
-    let n = a.nrows();
-    let dynamic: Vec<usize> =
-        (0..n).filter(|&i| (0..n).any(|j| b[(i, j)] != 0.0 || b[(j, i)] != 0.0)).collect();
-    if dynamic.len() < n && !dynamic.is_empty() {
-        let fixed: Vec<usize> = (0..n).filter(|i| !dynamic.contains(i)).collect();
-        let a_ss = Mat::<f64>::from_fn(fixed.len(), fixed.len(), |i, j| a[(fixed[i], fixed[j])]);
-        if let Ok(f) = crate::analysis::linear::Factor::new(&a_ss) {
-            let a_sd =
-                Mat::<f64>::from_fn(fixed.len(), dynamic.len(), |i, j| a[(fixed[i], dynamic[j])]);
-            let x = f.solve_columns(&a_sd);
-            let reduced = Mat::<f64>::from_fn(dynamic.len(), dynamic.len(), |i, j| {
-                let correction: f64 =
-                    (0..fixed.len()).map(|k| a[(dynamic[i], fixed[k])] * x[(k, j)]).sum();
-                a[(dynamic[i], dynamic[j])] - correction
-            });
-            let b_dd = Mat::<f64>::from_fn(dynamic.len(), dynamic.len(), |i, j| {
-                b[(dynamic[i], dynamic[j])]
-            });
-            return qz_roots(&reduced, &b_dd);
+/// Unknowns whose row and column of B are empty are eliminated first by a Schur complement
+/// (`schur.rs`): they carry only infinite eigenvalues, and QZ on the smaller pencil is both
+/// faster and cleaner.
+pub fn pencil_roots(a: &Matrix, b: &Matrix, window: Window) -> Option<Vec<Root>> {
+    let n = a.size();
+    if !finds_all(b) {
+        return shift_invert_roots(a, b, window);
+    }
+    let zeros = vec![0.0; n];
+    match schur::reduce(a, b, &zeros, &zeros) {
+        Some(r) => qz_roots(&r.g, &r.c),
+        None if n <= QZ_UP_TO => qz_roots(&a.dense(), &b.dense()),
+        None => shift_invert_roots(a, b, window),
+    }
+}
+
+/// Arnoldi vectors per shift.
+const KRYLOV: usize = 30;
+
+/// Shifts per decade of the window to begin with; more are put where neighbouring shifts'
+/// converged discs leave a gap.
+const SHIFTS_PER_DECADE: f64 = 2.0;
+
+/// Most shifts for one pencil.
+const MOST_SHIFTS: usize = 400;
+
+/// The finite roots of det(A + sB) = 0 with |s|/2π in `window`, by shift-and-invert Arnoldi
+/// (Saad, Numerical Methods for Large Eigenvalue Problems, 2nd ed., 2011, §§6.2, 8.1;
+/// Ericsson & Ruhe, Math. Comp. 35, 1980): for a real shift σ, the eigenvalues θ of
+/// (A + σB)⁻¹B are 1/(σ − s), so the roots nearest σ are the largest θ and converge first.
+/// Shifts at σ = −2πf, two a decade across the window to begin with, one sparse LU each,
+/// [`KRYLOV`] vectors orthogonalised twice (classical Gram–Schmidt with reorthogonalisation);
+/// a Ritz value is kept when its residual estimate |h_{m+1,m} y_m| is under 1e-8 of |θ|.
+/// Every root within the distance of the nearest unconverged Ritz value from σ counts as
+/// found; where two neighbouring shifts' discs leave a gap on the axis, a shift is put
+/// between them, until the window is covered (or [`MOST_SHIFTS`] are spent). A root repeated
+/// exactly (identical isolated sections) is found once: one Krylov sequence sees one
+/// eigenvector of a repeated eigenvalue.
+pub fn shift_invert_roots(a: &Matrix, b: &Matrix, window: Window) -> Option<Vec<Root>> {
+    let (lo, hi) = (2.0 * PI * window.from_hz, 2.0 * PI * window.to_hz);
+    if !(lo > 0.0 && hi > lo && hi.is_finite()) {
+        return None;
+    }
+    let count = ((hi / lo).log10() * SHIFTS_PER_DECADE).ceil().max(1.0) as usize;
+    // (ω, roots, reach): the shift at σ = −ω, what it found, and how far from σ it vouches.
+    let mut done: Vec<(f64, Vec<Root>, f64)> = Vec::new();
+    let mut todo: Vec<f64> =
+        (0..=count).map(|k| lo * (hi / lo).powf(k as f64 / count as f64)).collect();
+    while !todo.is_empty() && done.len() < MOST_SHIFTS {
+        for omega in std::mem::take(&mut todo) {
+            // A shift that lands on a root makes A + σB singular: step off it a little.
+            let (roots, reach) =
+                [1.0, 1.013, 0.987].iter().find_map(|nudge| arnoldi_at(a, b, -omega * nudge))?;
+            done.push((omega, roots, reach));
+        }
+        done.sort_by(|x, y| x.0.total_cmp(&y.0));
+        for pair in done.windows(2) {
+            let ((w1, _, r1), (w2, _, r2)) = (&pair[0], &pair[1]);
+            if w1 + r1 < w2 - r2 && w2 / w1 > 1.01 {
+                todo.push((w1 * w2).sqrt());
+            }
         }
     }
-    qz_roots(a, b)
+    let mut found: Vec<Root> = done.into_iter().flat_map(|(_, roots, _)| roots).collect();
+    found.retain(|s| s.norm() >= lo * (1.0 - 1e-9) && s.norm() <= hi * (1.0 + 1e-9));
+    found.sort_by(|x, y| x.norm().total_cmp(&y.norm()).then(x.im.total_cmp(&y.im)));
+    // The same root found from neighbouring shifts: kept once.
+    let mut roots: Vec<Root> = Vec::new();
+    for s in found {
+        if !roots.iter().rev().take(64).any(|r| (r - s).norm() <= 1e-6 * s.norm()) {
+            roots.push(s);
+        }
+    }
+    tidy(&mut roots);
+    Some(roots)
+}
+
+/// The converged roots from one shift σ and the distance from σ within which they are all
+/// the roots there are (that of the nearest unconverged Ritz value), or None when A + σB is
+/// singular.
+fn arnoldi_at(a: &Matrix, b: &Matrix, sigma: f64) -> Option<(Vec<Root>, f64)> {
+    let n = a.size();
+    let shifted = Matrix::from_stamps(
+        n,
+        a.entries().chain(b.entries().map(|(i, j, v)| (i, j, sigma * v))).collect(),
+    );
+    let lu = Factor::new(&shifted).ok()?;
+    let apply = |v: &[f64]| -> Vec<f64> {
+        let mut w = vec![0.0; n];
+        for (i, j, x) in b.entries() {
+            w[i] += x * v[j];
+        }
+        lu.solve(&w)
+    };
+    let norm = |v: &[f64]| v.iter().map(|x| x * x).sum::<f64>().sqrt();
+    // A fixed start (same bits every run), passed once through the operator so it holds no
+    // part along the infinite eigenvalues (B's null space).
+    let start: Vec<f64> = (0..n).map(|i| 1.0 + ((i * 7919) % 101) as f64 / 101.0).collect();
+    let mut v0 = apply(&start);
+    let size = norm(&v0);
+    if !(size > 0.0 && size.is_finite()) {
+        return Some((Vec::new(), f64::INFINITY));
+    }
+    v0.iter_mut().for_each(|x| *x /= size);
+    let m = KRYLOV.min(n);
+    let mut basis = vec![v0];
+    let mut h = Mat::<f64>::zeros(m + 1, m);
+    let mut steps = m;
+    for j in 0..m {
+        let mut w = apply(&basis[j]);
+        for _ in 0..2 {
+            for (i, v) in basis.iter().enumerate() {
+                let dot: f64 = v.iter().zip(&w).map(|(p, q)| p * q).sum();
+                h[(i, j)] += dot;
+                w.iter_mut().zip(v).for_each(|(q, p)| *q -= dot * p);
+            }
+        }
+        let beta = norm(&w);
+        h[(j + 1, j)] = beta;
+        let scale = (0..=j).map(|i| h[(i, j)].abs()).fold(beta, f64::max);
+        if beta <= 1e-13 * scale || j + 1 == m {
+            // An invariant subspace (every root it holds is exact) or the last vector.
+            steps = j + 1;
+            break;
+        }
+        w.iter_mut().for_each(|x| *x /= beta);
+        basis.push(w);
+    }
+    let hm = Mat::<f64>::from_fn(steps, steps, |i, j| h[(i, j)]);
+    let beta = h[(steps, steps - 1)];
+    let exhausted = beta <= 1e-13 * hm.norm_max();
+    let eigen = hm.eigen().ok()?;
+    let (theta, y) = (eigen.S(), eigen.U());
+    let mut roots = Vec::new();
+    let mut reach = f64::INFINITY;
+    let to_root = |t: c64| c64::new(sigma, 0.0) - c64::new(1.0, 0.0) / t;
+    for k in 0..steps {
+        let t = theta[k];
+        let y_norm = (0..steps).map(|i| y[(i, k)].norm_sqr()).sum::<f64>().sqrt();
+        let residual = beta.abs() * y[(steps - 1, k)].norm() / y_norm;
+        if t.norm() == 0.0 {
+            continue;
+        }
+        let s = to_root(t);
+        if exhausted || residual <= 1e-8 * t.norm() {
+            if s.is_finite() {
+                roots.push(s);
+            }
+        } else {
+            reach = reach.min((s - c64::new(sigma, 0.0)).norm());
+        }
+    }
+    Some((roots, reach))
 }
 
 fn qz_roots(a: &Mat<f64>, b: &Mat<f64>) -> Option<Vec<Root>> {
@@ -216,35 +371,37 @@ pub fn snap_origin(mut zeros: Vec<Root>, poles: &[Root]) -> Vec<Root> {
     zeros
 }
 
-/// The poles of a network, rad/s.
-pub fn poles(m: &Mna) -> Option<Vec<Root>> {
-    pencil_roots(&m.g, &m.c)
+/// The poles of a network, rad/s: all of them, or those in `window` for a large one.
+pub fn poles(m: &Mna, window: Window) -> Option<Vec<Root>> {
+    pencil_roots(&m.g, &m.c, window)
 }
 
-/// The transmission zeros from the source to the output, rad/s.
-pub fn zeros(m: &Mna) -> Option<Vec<Root>> {
+/// The transmission zeros from the source to the output, rad/s: all of them, or those in
+/// `window` for a large network.
+pub fn zeros(m: &Mna, window: Window) -> Option<Vec<Root>> {
     let n = m.size();
-    let a = Mat::<f64>::from_fn(n + 1, n + 1, |i, j| match (i < n, j < n) {
-        (true, true) => m.g[(i, j)],
-        (true, false) => -m.b[i],
-        (false, true) => m.out[j],
-        (false, false) => 0.0,
-    });
-    let b =
-        Mat::<f64>::from_fn(n + 1, n + 1, |i, j| if i < n && j < n { m.c[(i, j)] } else { 0.0 });
-    pencil_roots(&a, &b)
+    let a =
+        m.g.entries()
+            .chain((0..n).filter(|&i| m.b[i] != 0.0).map(|i| (i, n, -m.b[i])))
+            .chain((0..n).filter(|&j| m.out[j] != 0.0).map(|j| (n, j, m.out[j])))
+            .collect();
+    let a = Matrix::from_stamps(n + 1, a);
+    let b = Matrix::from_stamps(n + 1, m.c.entries().collect());
+    pencil_roots(&a, &b, window)
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
 
+    const ANY: Window = Window { from_hz: 1e-3, to_hz: 1e15 };
+
     #[test]
     fn two_pole_pencil() {
         // diag(G) = (1e-3, 2e-3) S, diag(C) = (1 pF, 1 pF): poles at −1e9 and −2e9 rad/s.
         let g = Mat::<f64>::from_fn(2, 2, |i, j| if i == j { [1e-3, 2e-3][i] } else { 0.0 });
         let c = Mat::<f64>::from_fn(2, 2, |i, j| if i == j { 1e-12 } else { 0.0 });
-        let p = pencil_roots(&g, &c).unwrap();
+        let p = pencil_roots(&Matrix::from_dense(&g), &Matrix::from_dense(&c), ANY).unwrap();
         assert_eq!(p.len(), 2);
         assert!((p[0].re + 1e9).abs() < 1e-3 && (p[1].re + 2e9).abs() < 1e-3, "{p:?}");
     }
@@ -254,7 +411,7 @@ mod tests {
         // Second unknown has no capacitance: one finite pole only.
         let g = Mat::<f64>::from_fn(2, 2, |i, j| [[2e-3, -1e-3], [-1e-3, 2e-3]][i][j]);
         let c = Mat::<f64>::from_fn(2, 2, |i, j| if i == 0 && j == 0 { 1e-12 } else { 0.0 });
-        let p = pencil_roots(&g, &c).unwrap();
+        let p = pencil_roots(&Matrix::from_dense(&g), &Matrix::from_dense(&c), ANY).unwrap();
         assert_eq!(p.len(), 1, "{p:?}");
         assert!((p[0].re + 1.5e9).abs() < 1e-2, "{p:?}");
     }

@@ -11,8 +11,10 @@ use serde::Serialize;
 
 use faer::Mat;
 
-use crate::analysis::linear::{Factor, SparseSystem, brent, transfer};
+use crate::analysis::linear::{SPARSE_FROM, SparseSystem, brent, sparse_pays, transfer};
+use crate::analysis::matrix::Matrix;
 use crate::analysis::mna::Mna;
+use crate::analysis::schur;
 use crate::design::Band;
 
 /// One sweep point.
@@ -28,87 +30,50 @@ pub struct SweepPoint {
 
 /// The transfer function with the static unknowns (those no capacitor or inductor
 /// touches) eliminated once: H(s) = y0 + c′ᵀ(G′ + sC′)⁻¹ b′, where G′ is the Schur
-/// complement. Exact; each frequency then costs a factorisation of the small dynamic part.
-pub struct Transfer {
-    g: Mat<f64>,
-    c: Mat<f64>,
-    b: Vec<f64>,
-    out: Vec<f64>,
-    direct: f64,
-    /// The same system in sparse form, when it is large and mostly zero.
-    sparse: Option<SparseSystem>,
+/// complement (`schur.rs`). Exact; each frequency then costs a factorisation of the small
+/// dynamic part. A network with many dynamic unknowns (a ladder of parasitics) is kept whole
+/// and solved in sparse form instead: its reduction would be large and dense.
+pub struct Transfer(Form);
+
+enum Form {
+    Dense { g: Mat<f64>, c: Mat<f64>, b: Vec<f64>, out: Vec<f64>, direct: f64 },
+    Sparse { system: SparseSystem, b: Vec<f64>, out: Vec<f64> },
 }
 
-/// Unknowns above which a mostly-zero system is solved in sparse form.
-const SPARSE_FROM: usize = 60;
-
-/// The sparse form of (g, c) when it pays: more than [`SPARSE_FROM`] unknowns, at most a
-/// fifth of the entries non-zero.
-pub(crate) fn sparse_form(g: &Mat<f64>, c: &Mat<f64>) -> Option<SparseSystem> {
-    let n = g.nrows();
-    if n <= SPARSE_FROM {
-        return None;
-    }
-    let nonzero = (0..n)
-        .flat_map(|i| (0..n).map(move |j| (i, j)))
-        .filter(|&(i, j)| g[(i, j)] != 0.0 || c[(i, j)] != 0.0)
-        .count();
-    (nonzero * 5 <= n * n).then(|| SparseSystem::new(g, c)).flatten()
+/// The sparse form of (g, c) when it pays ([`sparse_pays`]).
+pub(crate) fn sparse_form(g: &Matrix, c: &Matrix) -> Option<SparseSystem> {
+    sparse_pays(g.size(), g.nonzeros() + c.nonzeros()).then(|| SparseSystem::new(g, c)).flatten()
 }
 
 impl Transfer {
-    /// Reduces `m` (or keeps it whole when its static part is singular).
+    /// Reduces `m` (or keeps it whole when its static part is singular, or it has many
+    /// dynamic unknowns).
     pub fn new(m: &Mna) -> Transfer {
-        let n = m.size();
-        let whole = || Transfer {
-            g: m.g.clone(),
-            c: m.c.clone(),
-            b: m.b.clone(),
-            out: m.out.clone(),
-            direct: 0.0,
-            sparse: sparse_form(&m.g, &m.c),
-        };
-        let dynamic: Vec<usize> =
-            (0..n).filter(|&i| (0..n).any(|j| m.c[(i, j)] != 0.0 || m.c[(j, i)] != 0.0)).collect();
-        let fixed: Vec<usize> = (0..n).filter(|i| !dynamic.contains(i)).collect();
-        if fixed.is_empty() || dynamic.is_empty() {
-            return whole();
+        let dynamic = schur::dynamic_unknowns(&m.c).len();
+        if dynamic <= SPARSE_FROM
+            && let Some(r) = schur::reduce(&m.g, &m.c, &m.b, &m.out)
+        {
+            return Transfer(Form::Dense { g: r.g, c: r.c, b: r.b, out: r.out, direct: r.direct });
         }
-        let (d, f) = (dynamic.len(), fixed.len());
-        let g_ss = Mat::<f64>::from_fn(f, f, |i, j| m.g[(fixed[i], fixed[j])]);
-        let Ok(lu) = Factor::new(&g_ss) else { return whole() };
-        // X = G_SS⁻¹ [G_SD | b_S]
-        let rhs = Mat::<f64>::from_fn(f, d + 1, |i, j| {
-            if j < d { m.g[(fixed[i], dynamic[j])] } else { m.b[fixed[i]] }
-        });
-        let x = lu.solve_columns(&rhs);
-        let g = Mat::<f64>::from_fn(d, d, |i, j| {
-            m.g[(dynamic[i], dynamic[j])]
-                - (0..f).map(|k| m.g[(dynamic[i], fixed[k])] * x[(k, j)]).sum::<f64>()
-        });
-        let c = Mat::<f64>::from_fn(d, d, |i, j| m.c[(dynamic[i], dynamic[j])]);
-        let b = (0..d)
-            .map(|i| {
-                m.b[dynamic[i]]
-                    - (0..f).map(|k| m.g[(dynamic[i], fixed[k])] * x[(k, d)]).sum::<f64>()
-            })
-            .collect();
-        let out = (0..d)
-            .map(|j| m.out[dynamic[j]] - (0..f).map(|k| m.out[fixed[k]] * x[(k, j)]).sum::<f64>())
-            .collect();
-        let direct = (0..f).map(|k| m.out[fixed[k]] * x[(k, d)]).sum();
-        let sparse = sparse_form(&g, &c);
-        Transfer { g, c, b, out, direct, sparse }
+        Transfer(match sparse_form(&m.g, &m.c) {
+            Some(system) => Form::Sparse { system, b: m.b.clone(), out: m.out.clone() },
+            None => Form::Dense {
+                g: m.g.dense(),
+                c: m.c.dense(),
+                b: m.b.clone(),
+                out: m.out.clone(),
+                direct: 0.0,
+            },
+        })
     }
 
     /// H(j2πf).
     pub fn at(&self, f: f64) -> Option<c64> {
         let s = c64::new(0.0, 2.0 * PI * f);
-        match &self.sparse {
-            Some(sparse) => sparse.transfer(&self.b, &self.out, s),
-            None => transfer(&self.g, &self.c, &self.b, &self.out, s),
+        match &self.0 {
+            Form::Sparse { system, b, out } => system.transfer(b, out, s),
+            Form::Dense { g, c, b, out, direct } => transfer(g, c, b, out, s).map(|h| h + direct),
         }
-        .map(|h| h + self.direct)
     }
 }
 

@@ -76,59 +76,100 @@ pub struct OpenCircuit {
     pub b2: f64,
 }
 
+/// Right-hand sides solved at once: enough to batch the solves, few enough that a network
+/// of thousands of capacitors never holds an n × m block.
+const CHUNK: usize = 64;
+
+/// b1 = Σ R_i0 C_i alone: the sum the lean evaluation needs, from one solve per capacitor
+/// (the same solves, in the same order, as [`open_circuit`]'s, so the same bits).
+pub fn open_circuit_sum(mna: &Mna, g: &Factor, caps: &[CapRef]) -> f64 {
+    let n = mna.size();
+    let mut b1 = 0.0;
+    for first in (0..caps.len()).step_by(CHUNK) {
+        let last = (first + CHUNK).min(caps.len());
+        let x = g.solve_columns(&incidence_columns(n, &caps[first..last]));
+        for (k, c) in caps[first..last].iter().enumerate() {
+            b1 += c.c * across(&x, k, c);
+        }
+    }
+    b1
+}
+
+/// The incidence vectors of `caps` as the columns of an n-row matrix.
+fn incidence_columns(n: usize, caps: &[CapRef]) -> Mat<f64> {
+    Mat::<f64>::from_fn(n, caps.len(), |r, k| {
+        let d = &caps[k];
+        (Mna::row(d.a) == Some(r)) as i32 as f64 - (Mna::row(d.b) == Some(r)) as i32 as f64
+    })
+}
+
+/// v_a − v_b of capacitor `d` in column `col` of node-voltage solutions `x`.
+fn across(x: &Mat<f64>, col: usize, d: &CapRef) -> f64 {
+    let va = Mna::row(d.a).map_or(0.0, |r| x[(r, col)]);
+    let vb = Mna::row(d.b).map_or(0.0, |r| x[(r, col)]);
+    va - vb
+}
+
 /// Open-circuit time constants of `caps` in the factorised mid-band system.
+///
+/// The capacitors' columns of M = DᵀG⁻¹D are solved [`CHUNK`] at a time, and beyond the first
+/// chunk each column's row through the transposed system (M_ji = d_iᵀG⁻ᵀd_j), so b2 is summed pair by pair,
+/// C_iC_j(M_iiM_jj − M_ijM_ji) for i < j, without storing M. Memory grows as n·CHUNK + m,
+/// work as the solves do (and as m² for the pairs).
 pub fn open_circuit(mna: &Mna, g: &Factor, caps: &[CapRef]) -> OpenCircuit {
     let n = mna.size();
     let m = caps.len();
     if m == 0 {
         return OpenCircuit { caps: Vec::new(), b1: 0.0, b2: 0.0 };
     }
-    // One solve per capacitor (batched), plus one per terminal node for the Miller view.
+    let mut diagonal = vec![0.0; m];
+    let mut b2 = 0.0;
+    for first in (0..m).step_by(CHUNK) {
+        let last = (first + CHUNK).min(m);
+        let rhs = incidence_columns(n, &caps[first..last]);
+        let x = g.solve_columns(&rhs);
+        // Rows of M for the pairs with earlier chunks; within a chunk, M_ji is read off
+        // column i itself (a pair of parallel capacitors then cancels exactly).
+        let y = (first > 0).then(|| g.solve_transpose_columns(&rhs));
+        for (k, j) in (first..last).enumerate() {
+            diagonal[j] = across(&x, k, &caps[j]);
+        }
+        for (k, j) in (first..last).enumerate() {
+            let cj = &caps[j];
+            for (i, ci) in caps[..j].iter().enumerate() {
+                let m_ij = across(&x, k, ci);
+                let m_ji = match &y {
+                    Some(y) if i < first => across(y, k, ci),
+                    _ => across(&x, i - first, cj),
+                };
+                b2 += ci.c * cj.c * (diagonal[i] * diagonal[j] - m_ij * m_ji);
+            }
+        }
+    }
+    // One solve per terminal node for the Miller view: the resistance from it to ground.
     let mut terminals: Vec<usize> =
         caps.iter().flat_map(|c| [c.a, c.b]).filter(|&t| t != 0).collect();
     terminals.sort_unstable();
     terminals.dedup();
-    let rhs = Mat::<f64>::from_fn(n, m + terminals.len(), |r, k| {
-        if k < m {
-            let d = &caps[k];
-            let plus = Mna::row(d.a) == Some(r);
-            let minus = Mna::row(d.b) == Some(r);
-            (plus as i32 - minus as i32) as f64
-        } else {
-            (Mna::row(terminals[k - m]) == Some(r)) as i32 as f64
-        }
-    });
-    let x = g.solve_columns(&rhs);
-    let project = |k: usize, col: usize| -> f64 {
-        let d = &caps[k];
-        let va = Mna::row(d.a).map_or(0.0, |r| x[(r, col)]);
-        let vb = Mna::row(d.b).map_or(0.0, |r| x[(r, col)]);
-        va - vb
-    };
-    let mut mm = vec![vec![0.0; m]; m];
-    for (i, row) in mm.iter_mut().enumerate() {
-        for (j, v) in row.iter_mut().enumerate() {
-            *v = project(i, j);
+    let mut to_ground_of = vec![0.0; terminals.len()];
+    for first in (0..terminals.len()).step_by(CHUNK) {
+        let last = (first + CHUNK).min(terminals.len());
+        let rhs = Mat::<f64>::from_fn(n, last - first, |r, k| {
+            (Mna::row(terminals[first + k]) == Some(r)) as i32 as f64
+        });
+        let x = g.solve_columns(&rhs);
+        for (k, t) in (first..last).enumerate() {
+            to_ground_of[t] = Mna::row(terminals[t]).map_or(0.0, |r| x[(r, k)]);
         }
     }
-    let to_ground = |node: usize| -> f64 {
-        match terminals.iter().position(|&t| t == node) {
-            Some(k) => Mna::row(node).map_or(0.0, |r| x[(r, m + k)]),
-            None => 0.0,
-        }
-    };
-    let b1: f64 = (0..m).map(|i| caps[i].c * mm[i][i]).sum();
-    let mut b2 = 0.0;
-    for i in 0..m {
-        for j in i + 1..m {
-            b2 += caps[i].c * caps[j].c * (mm[i][i] * mm[j][j] - mm[i][j] * mm[j][i]);
-        }
-    }
+    let to_ground =
+        |node: usize| -> f64 { terminals.binary_search(&node).map_or(0.0, |k| to_ground_of[k]) };
+    let b1 = diagonal.iter().zip(caps).fold(0.0, |acc, (d, c)| acc + c.c * d);
     let out = caps
         .iter()
         .enumerate()
         .map(|(i, c)| {
-            let r = mm[i][i];
+            let r = diagonal[i];
             let (ra, rb) = (to_ground(c.a), to_ground(c.b));
             OpenCircuitCap {
                 part: c.name.clone(),
@@ -152,16 +193,18 @@ pub fn short_circuit(mna: &Mna, g: &Factor, caps: &[CapRef]) -> (Vec<ShortCircui
     if m == 0 {
         return (Vec::new(), 0.0);
     }
-    let rhs = Mat::<f64>::from_fn(n, m, |r, k| (caps[k].branch == Some(r)) as i32 as f64);
-    let x = g.solve_columns(&rhs);
-    let rs: Vec<f64> = caps
-        .iter()
-        .enumerate()
-        .map(|(k, c)| {
+    let mut rs = Vec::with_capacity(m);
+    for first in (0..m).step_by(CHUNK) {
+        let last = (first + CHUNK).min(m);
+        let rhs = Mat::<f64>::from_fn(n, last - first, |r, k| {
+            (caps[first + k].branch == Some(r)) as i32 as f64
+        });
+        let x = g.solve_columns(&rhs);
+        rs.extend(caps[first..last].iter().enumerate().map(|(k, c)| {
             let diag = x[(c.branch.expect("low cap has a branch"), k)];
             if diag == 0.0 { f64::INFINITY } else { -1.0 / diag }
-        })
-        .collect();
+        }));
+    }
     let inverse_sum: f64 = caps.iter().zip(&rs).map(|(c, r)| 1.0 / (r * c.c)).sum();
     let out = caps
         .iter()

@@ -214,7 +214,9 @@ impl Netlist {
     /// Builds the netlist of a validated design with its nominal values.
     pub fn from_design(design: &Design) -> Netlist {
         let design_nodes = design.nodes();
-        let index = |name: &str| design_nodes.iter().position(|n| n == name).unwrap_or(0);
+        let positions: std::collections::HashMap<&str, usize> =
+            design_nodes.iter().enumerate().map(|(k, n)| (n.as_str(), k)).collect();
+        let index = |name: &str| positions.get(name).copied().unwrap_or(0);
         let mut elements = Vec::new();
         // Internal base nodes: r_x is a real resistor at DC and at small signal alike.
         let mut internal: Vec<(usize, String)> = Vec::new();

@@ -511,8 +511,10 @@ impl Design {
     /// Every node name, ground first, then in order of first use.
     pub fn nodes(&self) -> Vec<String> {
         let mut seen: Vec<String> = vec![GROUND.to_string()];
+        let mut known: std::collections::HashSet<String> = seen.iter().cloned().collect();
         let mut add = |n: &str| {
-            if !seen.iter().any(|s| s == n) {
+            if !known.contains(n) {
+                known.insert(n.to_string());
                 seen.push(n.to_string());
             }
         };
