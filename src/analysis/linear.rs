@@ -382,6 +382,14 @@ impl SparseSystem {
         x.iter().chain(&lambda).all(|v| v.is_finite()).then_some((x, lambda))
     }
 
+    /// x = (G + sC)⁻¹ rhs for a complex right-hand side, or None when singular there.
+    pub fn solve(&self, s: c64, rhs: &[c64]) -> Option<Vec<c64>> {
+        let (lu, _) = self.factor(s)?;
+        let x = lu.solve(Mat::<c64>::from_fn(self.n, 1, |i, _| rhs[i]));
+        let x: Vec<c64> = (0..self.n).map(|i| x[(i, 0)]).collect();
+        x.iter().all(|v| v.is_finite()).then_some(x)
+    }
+
     /// y = outᵀ (G + sC)⁻¹ b, or None when singular there.
     pub fn transfer(&self, b: &[f64], out: &[f64], s: c64) -> Option<c64> {
         let n = self.n;

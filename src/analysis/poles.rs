@@ -11,7 +11,7 @@ use std::f64::consts::PI;
 
 use faer::{Mat, c64};
 
-use crate::analysis::linear::Factor;
+use crate::analysis::linear::{Factor, SparseSystem};
 use crate::analysis::matrix::Matrix;
 use crate::analysis::mna::Mna;
 use crate::analysis::schur;
@@ -102,7 +102,7 @@ pub fn shift_invert_roots(a: &Matrix, b: &Matrix, window: Window) -> Option<Vec<
     }
     let count = ((hi / lo).log10() * SHIFTS_PER_DECADE).ceil().max(1.0) as usize;
     // (ω, roots, reach): the shift at σ = −ω, what it found, and how far from σ it vouches.
-    let mut done: Vec<(f64, Vec<Root>, f64)> = Vec::new();
+    let mut done: Vec<(f64, Vec<Candidate>, f64)> = Vec::new();
     let mut todo: Vec<f64> =
         (0..=count).map(|k| lo * (hi / lo).powf(k as f64 / count as f64)).collect();
     while !todo.is_empty() && done.len() < MOST_SHIFTS {
@@ -120,13 +120,28 @@ pub fn shift_invert_roots(a: &Matrix, b: &Matrix, window: Window) -> Option<Vec<
             }
         }
     }
-    let mut found: Vec<Root> = done.into_iter().flat_map(|(_, roots, _)| roots).collect();
-    found.retain(|s| s.norm() >= lo * (1.0 - 1e-9) && s.norm() <= hi * (1.0 + 1e-9));
-    found.sort_by(|x, y| x.norm().total_cmp(&y.norm()).then(x.im.total_cmp(&y.im)));
-    // The same root found from neighbouring shifts: kept once.
+    let mut found: Vec<Candidate> = done.into_iter().flat_map(|(_, roots, _)| roots).collect();
+    // Roots at the origin (coupling capacitors' zeros) converge from the lowest shift and
+    // are kept; others below the window may be incomplete and are left out.
+    let inside = |s: &Root| {
+        let size = s.norm();
+        (size >= lo * (1.0 - 1e-9) || size <= 1e-6 * lo) && size <= hi * (1.0 + 1e-9)
+    };
+    found.retain(|c| inside(&c.s));
+    // The same root found from several shifts: the copy from the nearest shift is kept, then
+    // refined (a root at the origin is exact already).
+    found.sort_by(|x, y| x.distance.total_cmp(&y.distance));
+    let mut kept: Vec<Candidate> = Vec::new();
+    for c in found {
+        if !kept.iter().any(|k| (k.s - c.s).norm() <= 1e-5 * c.s.norm().max(k.s.norm())) {
+            kept.push(c);
+        }
+    }
+    let system = SparseSystem::new(a, b)?;
     let mut roots: Vec<Root> = Vec::new();
-    for s in found {
-        if !roots.iter().rev().take(64).any(|r| (r - s).norm() <= 1e-6 * s.norm()) {
+    for c in kept {
+        let s = if c.s.norm() <= 1e-6 * lo { c.s } else { refine(&system, b, c.s, c.vector) };
+        if inside(&s) && !roots.iter().any(|r| (r - s).norm() <= 1e-9 * s.norm()) {
             roots.push(s);
         }
     }
@@ -134,10 +149,52 @@ pub fn shift_invert_roots(a: &Matrix, b: &Matrix, window: Window) -> Option<Vec<
     Some(roots)
 }
 
+/// A converged Ritz value, its vector, and its distance from the shift relative to its size
+/// (the nearer, the more accurate).
+struct Candidate {
+    s: Root,
+    vector: Vec<c64>,
+    distance: f64,
+}
+
+/// Inverse iteration at the root itself (Wilkinson, 1965, ch. 9; Saad, 2011, §4.1): from a
+/// Ritz pair (s, z), solve (A + sB)w = Bz, and w ≈ z/(s − λ) gives λ = s − zᴴz/zᴴw; three
+/// steps on the sparse complex LU take a Ritz value of a non-normal pencil (buffers, one-way
+/// stages) from its residual's accuracy to rounding.
+fn refine(system: &SparseSystem, b: &Matrix, mut s: Root, mut z: Vec<c64>) -> Root {
+    let n = z.len();
+    for _ in 0..3 {
+        let mut bz = vec![c64::new(0.0, 0.0); n];
+        for (i, j, v) in b.entries() {
+            bz[i] += z[j] * v;
+        }
+        let Some(w) = system.solve(s, &bz) else { return s };
+        let zz: c64 = z.iter().map(|v| v.conj() * v).sum();
+        let zw: c64 = z.iter().zip(&w).map(|(p, q)| p.conj() * q).sum();
+        if zw.norm() == 0.0 {
+            return s;
+        }
+        let next = s - zz / zw;
+        // A real root stays real; a step that leaves the root's neighbourhood is refused.
+        let next = if s.im == 0.0 { c64::new(next.re, 0.0) } else { next };
+        if !next.is_finite() || (next - s).norm() > 1e-3 * s.norm() {
+            return s;
+        }
+        let size = w.iter().map(|v| v.norm_sqr()).sum::<f64>().sqrt();
+        z = w.iter().map(|v| v / size).collect();
+        let settled = (next - s).norm() <= 1e-14 * s.norm();
+        s = next;
+        if settled {
+            break;
+        }
+    }
+    s
+}
+
 /// The converged roots from one shift σ and the distance from σ within which they are all
 /// the roots there are (that of the nearest unconverged Ritz value), or None when A + σB is
 /// singular.
-fn arnoldi_at(a: &Matrix, b: &Matrix, sigma: f64) -> Option<(Vec<Root>, f64)> {
+fn arnoldi_at(a: &Matrix, b: &Matrix, sigma: f64) -> Option<(Vec<Candidate>, f64)> {
     let n = a.size();
     let shifted = Matrix::from_stamps(
         n,
@@ -203,7 +260,17 @@ fn arnoldi_at(a: &Matrix, b: &Matrix, sigma: f64) -> Option<(Vec<Root>, f64)> {
         let s = to_root(t);
         if exhausted || residual <= 1e-8 * t.norm() {
             if s.is_finite() {
-                roots.push(s);
+                // The Ritz vector V y, for the refinement.
+                let vector = (0..n)
+                    .map(|r| {
+                        (0..steps).fold(c64::new(0.0, 0.0), |acc, i| acc + basis[i][r] * y[(i, k)])
+                    })
+                    .collect();
+                roots.push(Candidate {
+                    s,
+                    vector,
+                    distance: (s - c64::new(sigma, 0.0)).norm() / s.norm(),
+                });
             }
         } else {
             reach = reach.min((s - c64::new(sigma, 0.0)).norm());

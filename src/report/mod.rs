@@ -121,25 +121,28 @@ fn page(
     let (a, checks, study) = (&review.analysis, &review.requirements, Some(&review.study));
     let mut plots = plots::all(a, checks, study);
     let drawn = match schematic {
-        Some(f) => plots::Plot {
+        None if !schematic::drawn(design) => None,
+        Some(f) => Some(plots::Plot {
             name: "schematic",
             caption: "Schematic, as supplied with the design.".into(),
             svg: String::new(),
             file: Some(f.clone()),
             max_width: None,
-        },
+        }),
         None => {
             let drawing = schematic::draw(design);
-            plots::Plot {
+            Some(plots::Plot {
             name: "schematic",
             caption: "Connectivity, drawn by tauweave from the netlist (the design names no schematic drawing): supplies along the top, ground along the bottom, the signal source at the left; wires that cross without a dot are not joined.".into(),
             svg: drawing.svg(plots::FONT),
             file: None,
             max_width: Some(drawing.width.ceil()),
-        }
+        })
         }
     };
-    plots.insert(0, drawn);
+    if let Some(drawn) = drawn {
+        plots.insert(0, drawn);
+    }
     let blocks = Blocks {
         tables: tables::all(design, a, checks, study),
         known_tables: tables::TABLES.iter().map(|(n, _)| *n).collect(),

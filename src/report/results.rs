@@ -299,6 +299,19 @@ pub struct RootResults {
     pub im_hz: f64,
 }
 
+/// `root_window`: where the roots of a large network were looked for.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct RootWindowResults {
+    /// Lowest |s|/2π searched, Hz.
+    pub from_hz: f64,
+    /// Highest |s|/2π searched, Hz.
+    pub to_hz: f64,
+    /// Unknowns a capacitor or inductor touches.
+    pub dynamic_unknowns: usize,
+    /// The most of those for which every root is found (by QZ).
+    pub qz_up_to: usize,
+}
+
 /// `high`: the upper cut-off and its estimates.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct HighResults {
@@ -539,6 +552,10 @@ pub struct ResultsDocument {
     pub poles: Vec<RootResults>,
     /// Zeros from the source to the output.
     pub zeros: Vec<RootResults>,
+    /// For a network too large for QZ: where its roots were looked for (every pole and zero
+    /// list holds only those there). Null when every root was found.
+    #[serde(default)]
+    pub root_window: Option<RootWindowResults>,
     /// True when the network has inductors (the time constants treat them as wires).
     pub has_inductors: bool,
     /// Each requirement at nominal values, at its tolerance corner and its yield.
@@ -625,6 +642,12 @@ pub fn document(
         low: low(a),
         poles: roots(&a.poles),
         zeros: roots(&a.zeros),
+        root_window: a.root_window.map(|w| RootWindowResults {
+            from_hz: w.from_hz,
+            to_hz: w.to_hz,
+            dynamic_unknowns: w.dynamic_unknowns,
+            qz_up_to: w.qz_up_to,
+        }),
         has_inductors: a.has_inductors,
         requirements: review.requirements.iter().map(requirement).collect(),
         sensitivity: Some(sensitivity(&review.study)),

@@ -14,7 +14,7 @@ use crate::report::explain::Explanation;
 use crate::report::results::{
     CapacitorResults, CautionResults, HighResults, LowResults, MidbandResults,
     OperatingPointResults, Provenance, RequirementResults, ResultsDocument, RootResults,
-    SensitivityResults, ToleranceSummary, Tool,
+    RootWindowResults, SensitivityResults, ToleranceSummary, Tool,
 };
 use crate::report::template::MARKER;
 
@@ -112,6 +112,13 @@ pub struct DesignView {
     pub signal: String,
     /// Output, formatted.
     pub output: String,
+    /// Parts.
+    pub parts: usize,
+    /// Whether the review holds a schematic: the design's own drawing, or tauweave's when
+    /// the design has few enough parts to draw.
+    pub has_schematic: bool,
+    /// Parts up to which tauweave draws the connectivity itself.
+    pub drawn_up_to: usize,
 }
 
 /// The template API: the keys of results.json, with `design` extended and escaped and the
@@ -139,6 +146,8 @@ pub struct View<'a> {
     pub poles: &'a [RootResults],
     /// Zeros from the source to the output.
     pub zeros: &'a [RootResults],
+    /// Where the roots of a network too large for QZ were looked for.
+    pub root_window: &'a Option<RootWindowResults>,
     /// True when the network has inductors.
     pub has_inductors: bool,
     /// Requirements at nominal values, corners and yields.
@@ -171,6 +180,7 @@ impl<'a> View<'a> {
             low: &doc.low,
             poles: &doc.poles,
             zeros: &doc.zeros,
+            root_window: &doc.root_window,
             has_inductors: doc.has_inductors,
             requirements: &doc.requirements,
             sensitivity: &doc.sensitivity,
@@ -205,6 +215,9 @@ pub fn design_view(design: &Design) -> DesignView {
             si(design.signal.resistance.nominal, "Ω", 4)
         ),
         output: pair(&design.output.positive, &design.output.negative),
+        parts: design.parts.len(),
+        has_schematic: design.meta.schematic.is_some() || crate::report::schematic::drawn(design),
+        drawn_up_to: crate::report::schematic::DRAWN_UP_TO,
     }
 }
 

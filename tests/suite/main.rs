@@ -9,6 +9,7 @@ mod failures;
 mod fuzz;
 mod hardening;
 mod identities;
+mod large;
 mod pdf;
 mod properties;
 mod reference;

@@ -16,6 +16,17 @@ use crate::design::{Design, PartKind};
 
 pub use layout::draw;
 
+/// Parts up to which tauweave draws a design's connectivity itself. A drawing of more (a
+/// ladder of extracted parasitics) would be a wall of symbols nobody reads, and the layout's
+/// collision checks grow faster than the parts; such a design is reviewed without one unless
+/// it names a drawing of its own.
+pub const DRAWN_UP_TO: usize = 80;
+
+/// Whether tauweave draws this design's connectivity (when it names no drawing).
+pub fn drawn(design: &crate::design::Design) -> bool {
+    design.parts.len() <= DRAWN_UP_TO
+}
+
 /// A point, in display pixels (y grows downward).
 pub type Point = (f64, f64);
 
