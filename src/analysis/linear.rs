@@ -50,13 +50,7 @@ impl Factor {
         if !sparse_pays(n, a.nonzeros()) {
             return Factor::dense(&a.dense());
         }
-        let (col_ptr, rows, values) = a.parts();
-        let refused = Singular { unknown: None };
-        let pattern = faer::sparse::SymbolicSparseColMatRef::new_checked(n, n, col_ptr, None, rows);
-        let symbolic = SymbolicLu::try_new(pattern).map_err(|_| refused)?;
-        let matrix = faer::sparse::SparseColMatRef::new(pattern, values);
-        let lu = Lu::try_new_with_symbolic(symbolic, matrix).map_err(|_| refused)?;
-        let factor = Factor { lu: Kind::Sparse(lu), n };
+        let factor = Factor::new_unguarded(a)?;
         // A numerically singular matrix factorises, and then amplifies: refused as the dense
         // LU refuses a pivot under PIVOT_TOLERANCE of the largest entry, when the solution
         // for a right-hand side of ones, times the largest entry, exceeds 1/PIVOT_TOLERANCE.
@@ -67,9 +61,28 @@ impl Factor {
         if (x_max * a.max_abs() * PIVOT_TOLERANCE).partial_cmp(&1.0)
             != Some(std::cmp::Ordering::Less)
         {
-            return Err(refused);
+            return Err(Singular { unknown: None });
         }
         Ok(factor)
+    }
+
+    /// Factorises `a` as [`Factor::new`] does, refusing it only when the factorisation itself
+    /// fails (a zero pivot), not when it is merely near singular: for a shift-and-invert
+    /// operator, whose shift may sit close to a root on purpose. Solutions may be infinite;
+    /// the caller checks them.
+    pub fn new_unguarded(a: &Matrix) -> Result<Factor, Singular> {
+        let n = a.size();
+        if !sparse_pays(n, a.nonzeros()) {
+            let lu = a.dense().partial_piv_lu();
+            return Ok(Factor { lu: Kind::Dense(lu), n });
+        }
+        let (col_ptr, rows, values) = a.parts();
+        let refused = Singular { unknown: None };
+        let pattern = faer::sparse::SymbolicSparseColMatRef::new_checked(n, n, col_ptr, None, rows);
+        let symbolic = SymbolicLu::try_new(pattern).map_err(|_| refused)?;
+        let matrix = faer::sparse::SparseColMatRef::new(pattern, values);
+        let lu = Lu::try_new_with_symbolic(symbolic, matrix).map_err(|_| refused)?;
+        Ok(Factor { lu: Kind::Sparse(lu), n })
     }
 
     /// Factorises a dense matrix, refusing a singular one.

@@ -78,7 +78,7 @@ pub struct OpenCircuit {
 
 /// Right-hand sides solved at once: enough to batch the solves, few enough that a network
 /// of thousands of capacitors never holds an n × m block.
-const CHUNK: usize = 64;
+const CHUNK: usize = 32;
 
 /// b1 = Σ R_i0 C_i alone: the sum the lean evaluation needs, from one solve per capacitor
 /// (the same solves, in the same order, as [`open_circuit`]'s, so the same bits).

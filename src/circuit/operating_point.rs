@@ -10,6 +10,9 @@
 use faer::Mat;
 use faer::linalg::solvers::Solve;
 
+use crate::analysis::linear::{Factor, SPARSE_FROM, sparse_pays};
+use crate::analysis::matrix::Matrix;
+
 use crate::circuit::devices::{self, BjtEval, BjtRegion, MosEval, MosRegion};
 use crate::circuit::netlist::{Element, Netlist};
 
@@ -323,6 +326,23 @@ struct Diverged {
     iterations: usize,
 }
 
+/// One Newton step's linear solve: dense LU for the small systems of a stage, the sparse LU
+/// (`analysis/linear.rs`) for a large mostly-zero one, where the dense one grows as n³.
+/// Non-finite entries in the answer mark a singular step; the caller reports divergence.
+fn solve_step(a: &Mat<f64>, rhs: &[f64]) -> Vec<f64> {
+    let n = a.nrows();
+    if n > SPARSE_FROM {
+        let m = Matrix::from_dense(a);
+        if sparse_pays(n, m.nonzeros())
+            && let Ok(lu) = Factor::new_unguarded(&m)
+        {
+            return lu.solve(rhs);
+        }
+    }
+    let sol = a.partial_piv_lu().solve(&Mat::<f64>::from_fn(n, 1, |r, _| rhs[r]));
+    (0..n).map(|r| sol[(r, 0)]).collect()
+}
+
 /// Newton iterations from `start` with supplies × `ramp` and shunt `gmin`.
 fn newton(
     net: &Netlist,
@@ -353,9 +373,7 @@ fn newton(
             state[i] = v;
             stamp_device(&mut a, &mut rhs, el, v, vt);
         }
-        let rhs_mat = Mat::<f64>::from_fn(layout.size, 1, |r, _| rhs[r]);
-        let sol = a.partial_piv_lu().solve(&rhs_mat);
-        let new: Vec<f64> = (0..layout.size).map(|r| sol[(r, 0)]).collect();
+        let new = solve_step(&a, &rhs);
         if new.iter().any(|v| !v.is_finite()) {
             return Err(Diverged { node: worst.0, device: worst.1, iterations: it + 1 });
         }
@@ -498,9 +516,7 @@ fn finish(
                 stamp_device(&mut a, &mut rhs, el, v, vt);
             }
         }
-        let rhs_mat = Mat::<f64>::from_fn(layout.size, 1, |r, _| rhs[r]);
-        let sol = a.partial_piv_lu().solve(&rhs_mat);
-        let new: Vec<f64> = (0..layout.size).map(|r| sol[(r, 0)]).collect();
+        let new = solve_step(&a, &rhs);
         if new.iter().all(|v| v.is_finite()) {
             attempt.x = new;
         }
