@@ -112,6 +112,17 @@ fn stages_design(n: usize) -> String {
     )
 }
 
+/// `n` cascaded common-emitter stages with unbypassed emitter resistors, each with a gain
+/// near one (so a long chain neither overflows nor vanishes): four nodes a stage (collector,
+/// base, emitter, internal base).
+fn level_stages_design(n: usize) -> String {
+    stages_design(n)
+        .lines()
+        .filter(|l| !l.trim_start().starts_with("CE"))
+        .map(|l| l.replace("value: 4k7, between: [vcc", "value: 1k2, between: [vcc") + "\n")
+        .collect()
+}
+
 fn main() {
     println!(
         "whole analysis of each example design (operating point, sweep, cut-offs, QZ, time constants)"
@@ -252,6 +263,26 @@ fn main() {
             t_diff.as_secs_f64() * 1e3,
             t_diff.as_secs_f64() / t_adjoint.as_secs_f64()
         );
+    }
+
+    println!(
+        "\nscale: the whole review without Monte Carlo (what `check --runs 0` does: analysis, sensitivities, worst case) of generated networks"
+    );
+    for (what, nodes, text) in [
+        ("RC ladder", 100, ladder_design(100)),
+        ("RC ladder", 300, ladder_design(300)),
+        ("RC ladder", 1000, ladder_design(1000)),
+        ("RC ladder", 3000, ladder_design(3000)),
+        ("common-emitter stages", 100, level_stages_design(25)),
+        ("common-emitter stages", 300, level_stages_design(75)),
+    ] {
+        let d = design::load(&text).design.expect("valid generated design");
+        let (t, runs) = median(
+            || drop(black_box(review::review(&d, &ReviewOptions { runs: 0, progress: &|_| {} }))),
+            Duration::from_secs(4),
+            5,
+        );
+        println!("  {what:<24} {nodes:>5} nodes {:>10.3} s  ({runs} runs)", t.as_secs_f64());
     }
 
     println!("\nRC ladder: factorise the mid-band G once, then every open-circuit time constant");

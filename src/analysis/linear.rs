@@ -449,6 +449,34 @@ mod tests {
         assert!((x[0] - 1.0).abs() < 1e-15 && (x[1] - 1.0).abs() < 1e-15);
     }
 
+    /// The sparse real LU (above 60 unknowns) solves as the dense one does, and refuses a
+    /// singular matrix as the dense one does: a 100-node resistor chain to ground, then the
+    /// same with its one path to ground removed (every row sums to zero: singular).
+    #[test]
+    fn sparse_and_dense_factors_agree() {
+        let n = 100;
+        let chain = |grounded: bool| {
+            let mut stamps = Vec::new();
+            for i in 0..n - 1 {
+                let g = 1e-3 * (1.0 + i as f64 / 10.0);
+                stamps.extend([(i, i, g), (i + 1, i + 1, g), (i, i + 1, -g), (i + 1, i, -g)]);
+            }
+            if grounded {
+                stamps.push((0, 0, 1e-2));
+            }
+            Matrix::from_stamps(n, stamps)
+        };
+        let a = chain(true);
+        assert!(sparse_pays(n, a.nonzeros()));
+        let rhs: Vec<f64> = (0..n).map(|i| (i as f64).sin()).collect();
+        let (x, y) =
+            (Factor::new(&a).unwrap().solve(&rhs), Factor::dense(&a.dense()).unwrap().solve(&rhs));
+        let size = y.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        assert!(x.iter().zip(&y).all(|(p, q)| (p - q).abs() <= 1e-10 * size), "{x:?} {y:?}");
+        assert!(Factor::dense(&chain(false).dense()).is_err());
+        assert!(Factor::new(&chain(false)).is_err());
+    }
+
     /// The sparse solve gives the dense one's answer (an RC ladder of 150 sections, the
     /// response at three frequencies across its roll-off) to rounding.
     #[test]
