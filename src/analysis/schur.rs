@@ -22,7 +22,8 @@ pub struct Reduced {
     pub c: Mat<f64>,
     /// b_D − G_DS G_SS⁻¹ b_S.
     pub b: Vec<f64>,
-    /// out_D − G_SS⁻ᵀ-weighted out_S: outᵀ with the static unknowns substituted.
+    /// out_D − X_Dᵀ out_S (X = G_SS⁻¹ G_SD): the output row with the static unknowns
+    /// substituted.
     pub out: Vec<f64>,
     /// The part of the output that passes straight through the static unknowns.
     pub direct: f64,

@@ -75,10 +75,10 @@ fn identities_hold_on_every_example_and_reference_design() {
 }
 
 /// A small deterministic generator (64-bit LCG, Knuth's MMIX constants).
-struct Lcg(u64);
+pub struct Lcg(pub u64);
 
 impl Lcg {
-    fn next(&mut self) -> f64 {
+    pub fn next(&mut self) -> f64 {
         self.0 = self.0.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
         (self.0 >> 11) as f64 / (1u64 << 53) as f64
     }

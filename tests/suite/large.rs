@@ -6,17 +6,8 @@
 
 use serde_json::Value;
 
+use crate::identities::Lcg;
 use crate::support::{reference_results, run_in, scratch};
-
-/// A small deterministic generator (64-bit LCG, Knuth's MMIX constants).
-struct Lcg(u64);
-
-impl Lcg {
-    fn next(&mut self) -> f64 {
-        self.0 = self.0.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
-        (self.0 >> 11) as f64 / (1u64 << 53) as f64
-    }
-}
 
 /// An uneven RC line of `sections` (values spread ±40 %), buffered halfway by a
 /// transconductance into a resistor (a one-way stage: G is not symmetric), ending in a
