@@ -93,6 +93,14 @@ pub fn assemble(net: &LinearNetwork, state: impl Fn(usize) -> CapState, opts: As
             wires.join(*node, 0);
         }
     }
+    // A supply node is ground to a small signal: its KCL row and column would couple every
+    // part on the rail (one dense row that defeats a sparse ordering), so stamps into it are
+    // left out. It keeps its unknown, held at 0 V by the supply's branch row; the supply's
+    // branch current then balances only what is injected at the rail (zero for the source),
+    // and every adjoint and injected solution is unchanged (both are 0 at the rail).
+    let mut railed = wires.clone();
+    let on_rail = |n: usize| n != 0 && railed.find(n) == railed.find(0);
+    let rail: Vec<bool> = (0..net.nodes.len()).map(on_rail).collect();
     for (i, el) in net.elements.iter().enumerate() {
         let needs = match el {
             Linear::Grounded { .. } | Linear::Vcvs { .. } | Linear::Inductor { .. } => true,
@@ -108,7 +116,7 @@ pub fn assemble(net: &LinearNetwork, state: impl Fn(usize) -> CapState, opts: As
     let mut g: Vec<(usize, usize, f64)> = Vec::new();
     let mut c: Vec<(usize, usize, f64)> = Vec::new();
     let mut b = vec![0.0; size];
-    let row = Mna::row;
+    let row = |n: usize| if rail[n] { None } else { Mna::row(n) };
     let put = |m: &mut Vec<(usize, usize, f64)>, r: Option<usize>, k: Option<usize>, v: f64| {
         if let (Some(r), Some(k)) = (r, k) {
             m.push((r, k, v));
@@ -168,14 +176,19 @@ pub fn assemble(net: &LinearNetwork, state: impl Fn(usize) -> CapState, opts: As
                 put(&mut g, Some(br), row(p), -gain);
                 put(&mut g, Some(br), row(n), gain);
             }
-            Linear::Grounded { node } => incidence(&mut g, branch[i].expect("branch"), node, 0),
+            Linear::Grounded { node } => {
+                let br = branch[i].expect("branch");
+                let r = Mna::row(node);
+                put(&mut g, r, Some(br), 1.0);
+                put(&mut g, Some(br), r, 1.0);
+            }
         }
     }
     let mut out = vec![0.0; size];
-    if let Some(r) = row(net.output.0) {
+    if let Some(r) = Mna::row(net.output.0) {
         out[r] += 1.0;
     }
-    if let Some(r) = row(net.output.1) {
+    if let Some(r) = Mna::row(net.output.1) {
         out[r] -= 1.0;
     }
     Mna { g: Matrix::from_stamps(size, g), c: Matrix::from_stamps(size, c), b, out, nodes, branch }
