@@ -313,6 +313,70 @@ pub fn brent(mut f: impl FnMut(f64) -> f64, mut a: f64, mut b: f64, tol: f64) ->
     b
 }
 
+/// A real system stamped again and again at the same places with new values — the Newton
+/// steps of a large bias network — factorised sparse on one symbolic analysis made once.
+pub struct Restamped {
+    n: usize,
+    col_ptr: Vec<usize>,
+    rows: Vec<usize>,
+    /// The stored entry each stamp adds into, in stamp order.
+    slot: Vec<usize>,
+    symbolic: SymbolicLu<usize>,
+}
+
+impl Restamped {
+    /// The pattern of stamps at `places` (row, column) in an n × n system, or None when the
+    /// symbolic analysis fails.
+    pub fn new(n: usize, places: &[(usize, usize)]) -> Option<Restamped> {
+        let mut order: Vec<usize> = (0..places.len()).collect();
+        order.sort_by_key(|&k| (places[k].1, places[k].0));
+        let (mut col_ptr, mut rows) = (vec![0usize], Vec::new());
+        let mut slot = vec![0; places.len()];
+        let mut k = 0;
+        for j in 0..n {
+            while k < order.len() && places[order[k]].1 == j {
+                let i = places[order[k]].0;
+                if rows.len() == col_ptr[j] || rows.last() != Some(&i) {
+                    rows.push(i);
+                }
+                slot[order[k]] = rows.len() - 1;
+                k += 1;
+            }
+            col_ptr.push(rows.len());
+        }
+        let pattern = faer::sparse::SymbolicSparseColMatRef::new_checked(n, n, &col_ptr, None, &rows);
+        let symbolic = SymbolicLu::try_new(pattern).ok()?;
+        Some(Restamped { n, col_ptr, rows, slot, symbolic })
+    }
+
+    /// Entries stored.
+    pub fn nonzeros(&self) -> usize {
+        self.rows.len()
+    }
+
+    /// Solves the system whose stamps (at the places given to [`Restamped::new`], in the same
+    /// order) have `values`, for `rhs`. Each stored entry sums its stamps in stamp order, so
+    /// the same values give the same bits. None when a pivot is exactly zero; an answer
+    /// amplified past any physical one is returned for the caller to judge.
+    pub fn solve(&self, values: impl Iterator<Item = f64>, rhs: &[f64]) -> Option<Vec<f64>> {
+        let mut entries = vec![0.0; self.rows.len()];
+        for (slot, v) in self.slot.iter().zip(values) {
+            entries[*slot] += v;
+        }
+        let pattern = faer::sparse::SymbolicSparseColMatRef::new_checked(
+            self.n,
+            self.n,
+            &self.col_ptr,
+            None,
+            &self.rows,
+        );
+        let a = faer::sparse::SparseColMatRef::new(pattern, &entries);
+        let lu = Lu::try_new_with_symbolic(self.symbolic.clone(), a).ok()?;
+        let x = lu.solve(Mat::<f64>::from_fn(self.n, 1, |i, _| rhs[i]));
+        Some((0..self.n).map(|i| x[(i, 0)]).collect())
+    }
+}
+
 /// G + sC in sparse compressed-column form, with one symbolic LU (fill-reducing ordering and
 /// elimination structure) shared by every frequency: above a few dozen unknowns, a network's
 /// matrices are mostly zero, and a dense complex LU per frequency grows as n³ where the sparse

@@ -10,8 +10,7 @@
 use faer::Mat;
 use faer::linalg::solvers::Solve;
 
-use crate::analysis::linear::{Factor, SPARSE_FROM, sparse_pays};
-use crate::analysis::matrix::Matrix;
+use crate::analysis::linear::{Restamped, SPARSE_FROM, sparse_pays};
 
 use crate::circuit::devices::{self, BjtEval, BjtRegion, MosEval, MosRegion};
 use crate::circuit::netlist::{Element, Netlist};
@@ -133,6 +132,8 @@ struct Layout {
     branch: Vec<Option<usize>>,
     /// Branch index of each supply.
     supply_branch: Vec<usize>,
+    /// The supply voltage of each unknown that is a supply rail's node voltage.
+    rail: Vec<Option<f64>>,
 }
 
 impl Layout {
@@ -156,7 +157,65 @@ impl Layout {
                 _ => None,
             })
             .collect();
-        Layout { nodes, size: next, branch, supply_branch }
+        let mut rail = vec![None; next];
+        for &(node, volts) in &net.supplies {
+            if let Some(r) = at(node) {
+                rail[r] = Some(volts);
+            }
+        }
+        Layout { nodes, size: next, branch, supply_branch, rail }
+    }
+}
+
+/// The DC system of one Newton step: stamps (row, column, value) and the right-hand side.
+/// The stamps land at the same places, in the same order, every step (a zero is stamped as
+/// a zero), so a large network's sparse LU reuses one symbolic analysis. A supply rail's
+/// voltage is known: its KCL row is left out (the supply takes whatever current balances
+/// it) and its column moves to the right-hand side, so a rail shared by every stage is no
+/// dense row and column to defeat the sparse ordering. The rail keeps its unknown, held at
+/// the supply's voltage by the supply's branch row.
+#[derive(Clone)]
+struct System {
+    stamps: Vec<(usize, usize, f64)>,
+    rhs: Vec<f64>,
+    /// The voltage of each rail unknown at this system's supply ramp.
+    fixed: Vec<Option<f64>>,
+}
+
+impl System {
+    fn add(&mut self, r: Option<usize>, c: Option<usize>, v: f64) {
+        let (Some(r), Some(c)) = (r, c) else { return };
+        if self.fixed[r].is_some() {
+            return;
+        }
+        match self.fixed[c] {
+            Some(volts) => self.rhs[r] -= v * volts,
+            None => self.stamps.push((r, c, v)),
+        }
+    }
+
+    fn add_rhs(&mut self, r: Option<usize>, v: f64) {
+        if let Some(r) = r
+            && self.fixed[r].is_none()
+        {
+            self.rhs[r] += v;
+        }
+    }
+
+    fn conductance(&mut self, x: usize, y: usize, g: f64) {
+        self.add(at(x), at(x), g);
+        self.add(at(y), at(y), g);
+        self.add(at(x), at(y), -g);
+        self.add(at(y), at(x), -g);
+    }
+
+    /// Σ_c A[r][c]·x[c] − rhs[r] for every row.
+    fn residual(&self, x: &[f64]) -> Vec<f64> {
+        let mut residual: Vec<f64> = self.rhs.iter().map(|b| -b).collect();
+        for &(r, c, v) in &self.stamps {
+            residual[r] += v * x[c];
+        }
+        residual
     }
 }
 
@@ -165,69 +224,54 @@ fn at(node: usize) -> Option<usize> {
     node.checked_sub(1)
 }
 
-fn add(a: &mut Mat<f64>, r: Option<usize>, c: Option<usize>, v: f64) {
-    if let (Some(r), Some(c)) = (r, c) {
-        a[(r, c)] += v;
-    }
-}
-
-fn add_rhs(rhs: &mut [f64], r: Option<usize>, v: f64) {
-    if let Some(r) = r {
-        rhs[r] += v;
-    }
-}
-
-fn conductance(a: &mut Mat<f64>, x: usize, y: usize, g: f64) {
-    add(a, at(x), at(x), g);
-    add(a, at(y), at(y), g);
-    add(a, at(x), at(y), -g);
-    add(a, at(y), at(x), -g);
-}
-
-/// Stamps the linear elements and supplies (scaled by `ramp`) and a shunt `gmin` per node.
-fn linear_system(net: &Netlist, layout: &Layout, ramp: f64, gmin: f64) -> (Mat<f64>, Vec<f64>) {
-    let mut a = Mat::<f64>::zeros(layout.size, layout.size);
-    let mut rhs = vec![0.0; layout.size];
+/// Stamps the linear elements and supplies (scaled by `ramp`) and a shunt `gmin` per node
+/// (stamped when zero too, to keep the places of the stamps).
+fn linear_system(net: &Netlist, layout: &Layout, ramp: f64, gmin: f64) -> System {
+    let fixed = layout.rail.iter().map(|v| v.map(|volts| volts * ramp)).collect();
+    let mut a = System { stamps: Vec::new(), rhs: vec![0.0; layout.size], fixed };
     for i in 0..layout.nodes {
-        a[(i, i)] += gmin;
+        a.add(Some(i), Some(i), gmin);
     }
     let (sp, sn, rs) = net.signal;
-    conductance(&mut a, sp, sn, 1.0 / rs);
+    a.conductance(sp, sn, 1.0 / rs);
     for (k, &(node, volts)) in net.supplies.iter().enumerate() {
         let br = layout.supply_branch[k];
-        add(&mut a, at(node), Some(br), 1.0);
-        add(&mut a, Some(br), at(node), 1.0);
-        rhs[br] = volts * ramp;
+        // The supply's own branch: kept whole, it holds the rail at its voltage.
+        if let Some(r) = at(node) {
+            a.stamps.push((r, br, 1.0));
+            a.stamps.push((br, r, 1.0));
+        }
+        a.rhs[br] = volts * ramp;
     }
     for (i, el) in net.elements.iter().enumerate() {
         match *el {
-            Element::Resistor { a: x, b: y, r, .. } => conductance(&mut a, x, y, 1.0 / r),
+            Element::Resistor { a: x, b: y, r, .. } => a.conductance(x, y, 1.0 / r),
             Element::Transconductance { a: x, b: y, p, n, gm, .. } => {
-                add(&mut a, at(x), at(p), gm);
-                add(&mut a, at(x), at(n), -gm);
-                add(&mut a, at(y), at(p), -gm);
-                add(&mut a, at(y), at(n), gm);
+                a.add(at(x), at(p), gm);
+                a.add(at(x), at(n), -gm);
+                a.add(at(y), at(p), -gm);
+                a.add(at(y), at(n), gm);
             }
             Element::VoltageAmplifier { a: x, b: y, p, n, gain, .. } => {
                 let br = layout.branch[i];
-                add(&mut a, at(x), br, 1.0);
-                add(&mut a, at(y), br, -1.0);
-                add(&mut a, br, at(x), 1.0);
-                add(&mut a, br, at(y), -1.0);
-                add(&mut a, br, at(p), -gain);
-                add(&mut a, br, at(n), gain);
+                a.add(at(x), br, 1.0);
+                a.add(at(y), br, -1.0);
+                a.add(br, at(x), 1.0);
+                a.add(br, at(y), -1.0);
+                a.add(br, at(p), -gain);
+                a.add(br, at(n), gain);
             }
             Element::Inductor { a: x, b: y, .. } => {
                 let br = layout.branch[i];
-                add(&mut a, at(x), br, 1.0);
-                add(&mut a, at(y), br, -1.0);
-                add(&mut a, br, at(x), 1.0);
-                add(&mut a, br, at(y), -1.0);
+                a.add(at(x), br, 1.0);
+                a.add(at(y), br, -1.0);
+                a.add(br, at(x), 1.0);
+                a.add(br, at(y), -1.0);
             }
             Element::Capacitor { .. } | Element::Bjt { .. } | Element::Mosfet { .. } => {}
         }
     }
-    (a, rhs)
+    a
 }
 
 fn voltage(x: &[f64], node: usize) -> f64 {
@@ -250,7 +294,7 @@ fn controls(el: &Element, x: &[f64]) -> Option<[f64; 2]> {
 }
 
 /// Adds device `el`, linearised at normalised controls `v`, to the system.
-fn stamp_device(a: &mut Mat<f64>, rhs: &mut [f64], el: &Element, v: [f64; 2], vt: f64) {
+fn stamp_device(a: &mut System, el: &Element, v: [f64; 2], vt: f64) {
     match el {
         Element::Bjt { c, b, e, params, .. } => {
             let s = params.sign;
@@ -263,10 +307,10 @@ fn stamp_device(a: &mut Mat<f64>, rhs: &mut [f64], el: &Element, v: [f64; 2], vt
                 (e, -(ev.dic_dvbe + ev.dib_dvbe), -(ev.dic_dvbc + ev.dib_dvbc), -(ev.ic + ev.ib)),
             ];
             for (row, g_be, g_bc, i0) in rows {
-                add(a, row, b, g_be + g_bc);
-                add(a, row, e, -g_be);
-                add(a, row, c, -g_bc);
-                add_rhs(rhs, row, -s * (i0 - g_be * v[0] - g_bc * v[1]));
+                a.add(row, b, g_be + g_bc);
+                a.add(row, e, -g_be);
+                a.add(row, c, -g_bc);
+                a.add_rhs(row, -s * (i0 - g_be * v[0] - g_bc * v[1]));
             }
         }
         Element::Mosfet { d, g, s: src, params, .. } => {
@@ -274,10 +318,10 @@ fn stamp_device(a: &mut Mat<f64>, rhs: &mut [f64], el: &Element, v: [f64; 2], vt
             let ev = devices::mosfet(params, v[0], v[1]);
             let (d, g, src) = (at(*d), at(*g), at(*src));
             for (row, k) in [(d, 1.0), (src, -1.0)] {
-                add(a, row, g, k * ev.gm);
-                add(a, row, d, k * ev.gds);
-                add(a, row, src, -k * (ev.gm + ev.gds));
-                add_rhs(rhs, row, -k * sign * (ev.id - ev.gm * v[0] - ev.gds * v[1]));
+                a.add(row, g, k * ev.gm);
+                a.add(row, d, k * ev.gds);
+                a.add(row, src, -k * (ev.gm + ev.gds));
+                a.add_rhs(row, -k * sign * (ev.id - ev.gm * v[0] - ev.gds * v[1]));
             }
         }
         _ => {}
@@ -327,38 +371,55 @@ struct Diverged {
 }
 
 /// One Newton step's linear solve: dense LU for the small systems of a stage, the sparse LU
-/// (`analysis/linear.rs`) for a large mostly-zero one, where the dense one grows as n³.
-/// Non-finite entries in the answer mark a singular step; the caller reports divergence.
-fn solve_step(a: &Mat<f64>, rhs: &[f64]) -> Vec<f64> {
-    let n = a.nrows();
-    if n > SPARSE_FROM {
-        let m = Matrix::from_dense(a);
-        if sparse_pays(n, m.nonzeros())
-            && let Ok(lu) = Factor::new_unguarded(&m)
-        {
-            return lu.solve(rhs);
-        }
+/// on the network's one symbolic analysis (`sparse`, see [`sparse_steps`]) for a large
+/// mostly-zero one, where the dense one grows as n³. Non-finite entries in the answer mark
+/// a singular step; the caller reports divergence.
+fn solve_step(a: &System, sparse: Option<&Restamped>) -> Vec<f64> {
+    let n = a.rhs.len();
+    if let Some(lu) = sparse {
+        return lu
+            .solve(a.stamps.iter().map(|s| s.2), &a.rhs)
+            .unwrap_or_else(|| vec![f64::NAN; n]);
     }
-    let sol = a.partial_piv_lu().solve(&Mat::<f64>::from_fn(n, 1, |r, _| rhs[r]));
+    let mut dense = Mat::<f64>::zeros(n, n);
+    for &(r, c, v) in &a.stamps {
+        dense[(r, c)] += v;
+    }
+    let sol = dense.partial_piv_lu().solve(&Mat::<f64>::from_fn(n, 1, |r, _| a.rhs[r]));
     (0..n).map(|r| sol[(r, 0)]).collect()
 }
 
+/// The symbolic sparse LU of a Newton step's system, when the network is large and mostly
+/// zero enough for it to pay; None for the dense path.
+fn sparse_steps(net: &Netlist, layout: &Layout, vt: f64, controls: &[[f64; 2]]) -> Option<Restamped> {
+    if layout.size <= SPARSE_FROM {
+        return None;
+    }
+    let mut a = linear_system(net, layout, 1.0, 0.0);
+    for (el, v) in net.elements.iter().zip(controls) {
+        stamp_device(&mut a, el, *v, vt);
+    }
+    let places: Vec<(usize, usize)> = a.stamps.iter().map(|s| (s.0, s.1)).collect();
+    let lu = Restamped::new(layout.size, &places)?;
+    sparse_pays(layout.size, lu.nonzeros()).then_some(lu)
+}
+
 /// Newton iterations from `start` with supplies × `ramp` and shunt `gmin`.
-fn newton(
-    net: &Netlist,
-    layout: &Layout,
+struct Steps<'a> {
+    net: &'a Netlist,
+    layout: &'a Layout,
     vt: f64,
-    ramp: f64,
-    gmin: f64,
-    start: &Attempt,
-) -> Result<Attempt, Diverged> {
+    sparse: Option<&'a Restamped>,
+}
+
+fn newton(steps: &Steps, ramp: f64, gmin: f64, start: &Attempt) -> Result<Attempt, Diverged> {
+    let Steps { net, layout, vt, sparse } = *steps;
     let mut x = start.x.clone();
     let mut state = start.controls.clone();
-    let (base, base_rhs) = linear_system(net, layout, ramp, gmin);
+    let base = linear_system(net, layout, ramp, gmin);
     let mut worst = (0usize, None);
     for it in 0..MAX_ITERATIONS {
         let mut a = base.clone();
-        let mut rhs = base_rhs.clone();
         let mut limited = false;
         let mut biggest_device_step = 0.0;
         for (i, el) in net.elements.iter().enumerate() {
@@ -371,9 +432,9 @@ fn newton(
             }
             limited |= l;
             state[i] = v;
-            stamp_device(&mut a, &mut rhs, el, v, vt);
+            stamp_device(&mut a, el, v, vt);
         }
-        let new = solve_step(&a, &rhs);
+        let new = solve_step(&a, sparse);
         if new.iter().any(|v| !v.is_finite()) {
             return Err(Diverged { node: worst.0, device: worst.1, iterations: it + 1 });
         }
@@ -407,7 +468,9 @@ pub fn solve(net: &Netlist) -> Result<OperatingPoint, BiasError> {
     let mut iterations = 0;
     let mut last_failure = None;
     // 1. Plain Newton.
-    let mut found = match newton(net, &layout, vt, 1.0, 0.0, &fresh) {
+    let sparse = sparse_steps(net, &layout, vt, &fresh.controls);
+    let steps = Steps { net, layout: &layout, vt, sparse: sparse.as_ref() };
+    let mut found = match newton(&steps, 1.0, 0.0, &fresh) {
         Ok(a) => Some((a, Method::Newton)),
         Err(d) => {
             iterations += d.iterations;
@@ -421,7 +484,7 @@ pub fn solve(net: &Netlist) -> Result<OperatingPoint, BiasError> {
         let mut ok = true;
         let mut gmin = 1e-2;
         loop {
-            match newton(net, &layout, vt, 1.0, gmin, &state) {
+            match newton(&steps, 1.0, gmin, &state) {
                 Ok(a) => state = a,
                 Err(d) => {
                     iterations = d.iterations;
@@ -446,7 +509,7 @@ pub fn solve(net: &Netlist) -> Result<OperatingPoint, BiasError> {
         let mut ok = true;
         while ramp < 1.0 {
             let next = (ramp + step).min(1.0);
-            match newton(net, &layout, vt, next, 0.0, &state) {
+            match newton(&steps, next, 0.0, &state) {
                 Ok(a) => {
                     state = a;
                     ramp = next;
@@ -481,7 +544,7 @@ pub fn solve(net: &Netlist) -> Result<OperatingPoint, BiasError> {
             node,
         });
     };
-    Ok(finish(net, &layout, vt, attempt, method))
+    Ok(finish(&steps, attempt, method))
 }
 
 fn fresh_clone(a: &Attempt) -> Attempt {
@@ -500,33 +563,29 @@ fn element_name(el: &Element) -> Option<&str> {
 }
 
 /// Polishes the solution with two unlimited Newton steps, then reports it.
-fn finish(
-    net: &Netlist,
-    layout: &Layout,
-    vt: f64,
-    mut attempt: Attempt,
-    method: Method,
-) -> OperatingPoint {
-    let (base, base_rhs) = linear_system(net, layout, 1.0, 0.0);
+fn finish(steps: &Steps, mut attempt: Attempt, method: Method) -> OperatingPoint {
+    let Steps { net, layout, vt, sparse } = *steps;
+    let base = linear_system(net, layout, 1.0, 0.0);
     for _ in 0..2 {
         let mut a = base.clone();
-        let mut rhs = base_rhs.clone();
         for el in &net.elements {
             if let Some(v) = controls(el, &attempt.x) {
-                stamp_device(&mut a, &mut rhs, el, v, vt);
+                stamp_device(&mut a, el, v, vt);
             }
         }
-        let new = solve_step(&a, &rhs);
+        let new = solve_step(&a, sparse);
         if new.iter().all(|v| v.is_finite()) {
             attempt.x = new;
         }
     }
     let x = &attempt.x;
-    // KCL with the exact device currents.
-    let mut residual = vec![0.0; layout.size];
-    for r in 0..layout.size {
-        residual[r] = (0..layout.size).map(|c| base[(r, c)] * x[c]).sum::<f64>() - base_rhs[r];
-    }
+    // KCL with the exact device currents (a rail's row is the supply's to balance).
+    let mut residual = base.residual(x);
+    let add_rhs = |residual: &mut Vec<f64>, r: Option<usize>, v: f64| {
+        if let Some(r) = r {
+            residual[r] += v;
+        }
+    };
     let mut devices_out = Vec::new();
     for el in &net.elements {
         match el {
@@ -578,7 +637,9 @@ fn finish(
             _ => {}
         }
     }
-    let kcl = residual[..layout.nodes].iter().fold(0.0f64, |m, r| m.max(r.abs()));
+    let kcl = (0..layout.nodes)
+        .filter(|r| layout.rail[*r].is_none())
+        .fold(0.0f64, |m, r| m.max(residual[r].abs()));
     let mut node_voltages = vec![0.0];
     node_voltages.extend_from_slice(&x[..layout.nodes]);
     OperatingPoint {
