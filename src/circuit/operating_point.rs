@@ -104,6 +104,10 @@ pub struct OperatingPoint {
     pub kcl_residual_a: f64,
     /// The thermal voltage used, V.
     pub thermal_voltage_v: f64,
+    /// Every unknown of the DC system: node voltages (ground excluded), then the branch
+    /// currents of supplies, voltage amplifiers and inductors.
+    #[serde(skip)]
+    pub solution: Vec<f64>,
 }
 
 /// Why the operating point could not be found.
@@ -279,7 +283,7 @@ fn voltage(x: &[f64], node: usize) -> f64 {
 }
 
 /// Normalised controlling voltages of device `el` at node voltages `x`.
-fn controls(el: &Element, x: &[f64]) -> Option<[f64; 2]> {
+pub(crate) fn controls(el: &Element, x: &[f64]) -> Option<[f64; 2]> {
     match el {
         Element::Bjt { c, b, e, params, .. } => {
             let (vc, vb, ve) = (voltage(x, *c), voltage(x, *b), voltage(x, *e));
@@ -578,64 +582,18 @@ fn finish(steps: &Steps, mut attempt: Attempt, method: Method) -> OperatingPoint
             attempt.x = new;
         }
     }
-    let x = &attempt.x;
+    let x = attempt.x;
     // KCL with the exact device currents (a rail's row is the supply's to balance).
-    let mut residual = base.residual(x);
-    let add_rhs = |residual: &mut Vec<f64>, r: Option<usize>, v: f64| {
-        if let Some(r) = r {
-            residual[r] += v;
-        }
-    };
+    let mut residual = base.residual(&x);
     let mut devices_out = Vec::new();
     for el in &net.elements {
-        match el {
-            Element::Bjt { name, c, b, e, params } => {
-                let v = controls(el, x).unwrap_or([0.0; 2]);
-                let ev = devices::bjt(params, v[0], v[1], vt);
-                let s = params.sign;
-                let (ic, ib) = (s * ev.ic, s * ev.ib);
-                add_rhs(&mut residual, at(*c), ic);
-                add_rhs(&mut residual, at(*b), ib);
-                add_rhs(&mut residual, at(*e), -(ic + ib));
-                let (vc, vb, ve) = (voltage(x, *c), voltage(x, *b), voltage(x, *e));
-                devices_out.push(DeviceBias {
-                    part: name.clone(),
-                    power_w: ic * (vc - ve) + ib * (vb - ve),
-                    max_power_w: params.max_power,
-                    state: DeviceState::Bjt {
-                        region: devices::bjt_region(v[0], v[1]),
-                        ic_a: ic,
-                        ib_a: ib,
-                        vbe_v: vb - ve,
-                        vce_v: vc - ve,
-                        vcb_v: vc - vb,
-                        eval: ev,
-                    },
-                });
+        let Some(v) = controls(el, &x) else { continue };
+        for (node, current) in device_currents(el, v, vt) {
+            if let Some(r) = at(node) {
+                residual[r] += current;
             }
-            Element::Mosfet { name, d, g, s: src, params } => {
-                let v = controls(el, x).unwrap_or([0.0; 2]);
-                let ev = devices::mosfet(params, v[0], v[1]);
-                let id = params.sign * ev.id;
-                add_rhs(&mut residual, at(*d), id);
-                add_rhs(&mut residual, at(*src), -id);
-                let (vd, vg, vs) = (voltage(x, *d), voltage(x, *g), voltage(x, *src));
-                devices_out.push(DeviceBias {
-                    part: name.clone(),
-                    power_w: id * (vd - vs),
-                    max_power_w: params.max_power,
-                    state: DeviceState::Mosfet {
-                        region: devices::mos_region(params, v[0], v[1]),
-                        id_a: id,
-                        vgs_v: vg - vs,
-                        vds_v: vd - vs,
-                        overdrive_v: v[0] - params.sign * params.vth,
-                        eval: ev,
-                    },
-                });
-            }
-            _ => {}
         }
+        devices_out.extend(device_bias(el, v, vt));
     }
     let kcl = (0..layout.nodes)
         .filter(|r| layout.rail[*r].is_none())
@@ -650,6 +608,72 @@ fn finish(steps: &Steps, mut attempt: Attempt, method: Method) -> OperatingPoint
         devices: devices_out,
         kcl_residual_a: kcl,
         thermal_voltage_v: vt,
+        solution: x,
+    }
+}
+
+/// The currents device `el` draws into each of its terminals (node, A, positive into the
+/// device) at normalised controls `v`: what its KCL rows hold.
+pub(crate) fn device_currents(el: &Element, v: [f64; 2], vt: f64) -> Vec<(usize, f64)> {
+    match el {
+        Element::Bjt { c, b, e, params, .. } => {
+            let ev = devices::bjt(params, v[0], v[1], vt);
+            let (ic, ib) = (params.sign * ev.ic, params.sign * ev.ib);
+            vec![(*c, ic), (*b, ib), (*e, -(ic + ib))]
+        }
+        Element::Mosfet { d, s: src, params, .. } => {
+            let id = params.sign * devices::mosfet(params, v[0], v[1]).id;
+            vec![(*d, id), (*src, -id)]
+        }
+        _ => Vec::new(),
+    }
+}
+
+/// The bias of device `el` at normalised controls `v` (None for a part that is no
+/// transistor). Terminal voltages follow from the controls: V_BE = s·v₀, V_CB = −s·v₁ for
+/// the bipolar transistor, V_GS = s·v₀, V_DS = s·v₁ for the MOSFET (s the polarity sign).
+pub fn device_bias(el: &Element, v: [f64; 2], vt: f64) -> Option<DeviceBias> {
+    match el {
+        Element::Bjt { name, params, .. } => {
+            let ev = devices::bjt(params, v[0], v[1], vt);
+            let s = params.sign;
+            let (ic, ib) = (s * ev.ic, s * ev.ib);
+            let (vbe, vcb) = (s * v[0], -s * v[1]);
+            let vce = vcb + vbe;
+            Some(DeviceBias {
+                part: name.clone(),
+                power_w: ic * vce + ib * vbe,
+                max_power_w: params.max_power,
+                state: DeviceState::Bjt {
+                    region: devices::bjt_region(v[0], v[1]),
+                    ic_a: ic,
+                    ib_a: ib,
+                    vbe_v: vbe,
+                    vce_v: vce,
+                    vcb_v: vcb,
+                    eval: ev,
+                },
+            })
+        }
+        Element::Mosfet { name, params, .. } => {
+            let ev = devices::mosfet(params, v[0], v[1]);
+            let id = params.sign * ev.id;
+            let (vgs, vds) = (params.sign * v[0], params.sign * v[1]);
+            Some(DeviceBias {
+                part: name.clone(),
+                power_w: id * vds,
+                max_power_w: params.max_power,
+                state: DeviceState::Mosfet {
+                    region: devices::mos_region(params, v[0], v[1]),
+                    id_a: id,
+                    vgs_v: vgs,
+                    vds_v: vds,
+                    overdrive_v: v[0] - params.sign * params.vth,
+                    eval: ev,
+                },
+            })
+        }
+        _ => None,
     }
 }
 
