@@ -60,19 +60,6 @@ pub struct Inputs<'a> {
     pub has_r_out: bool,
 }
 
-/// The value θ of element `k` that tolerance work moves: conductance, capacitance,
-/// inductance, transconductance or voltage gain; `None` for a supply.
-pub fn value(el: &Linear) -> Option<f64> {
-    match *el {
-        Linear::Conductance { g, .. } => Some(g),
-        Linear::Capacitor { c, .. } => Some(c),
-        Linear::Inductor { l, .. } => Some(l),
-        Linear::Vccs { gm, .. } => Some(gm),
-        Linear::Vcvs { gain, .. } => Some(gain),
-        Linear::Grounded { .. } => None,
-    }
-}
-
 /// A solved network: A = G + sC at one s, its solution x for the source (or another
 /// right-hand side) and the adjoint λ for the output row (or another functional).
 struct Solved {

@@ -69,11 +69,23 @@ pub fn analyze(design: &Design) -> Result<Analysis, AnalysisError> {
     core(design)?.complete(&design.analysis)
 }
 
+/// A nominal evaluation with what the sensitivities are built from.
+pub(crate) struct Differentiated {
+    /// The figures.
+    pub metrics: Metrics,
+    /// The netlist and its operating point (None without transistors).
+    pub net: Netlist,
+    pub op: Option<OperatingPoint>,
+    /// The small-signal network.
+    pub lin: LinearNetwork,
+    /// Each figure's gradient over the network's elements.
+    pub gradients: Gradients,
+}
+
 /// The figures with their gradients over every element of the linear network (by the
-/// adjoint method, `adjoint.rs`), and that network: what the sensitivities are built from.
-pub(crate) fn metrics_with_gradients(
-    design: &Design,
-) -> Result<(Metrics, LinearNetwork, Gradients), AnalysisError> {
+/// adjoint method, `adjoint.rs`), that network, and the netlist and operating point it
+/// came from: what the sensitivities are built from.
+pub(crate) fn metrics_with_gradients(design: &Design) -> Result<Differentiated, AnalysisError> {
     let core = core(design)?;
     let states: Vec<CapState> =
         (0..core.lin.elements.len()).map(|i| mid_state(&core.lin, i)).collect();
@@ -87,18 +99,7 @@ pub(crate) fn metrics_with_gradients(
         has_r_out: core.output_resistance.is_some(),
     });
     let metrics = core.metrics();
-    Ok((metrics, core.lin, gradients))
-}
-
-/// The linear network of a design at its operating point and each transistor's bias
-/// current: the start of every evaluation, without any of the analysis after it.
-pub(crate) fn linear_network(design: &Design) -> Result<(LinearNetwork, Vec<f64>), AnalysisError> {
-    let (_, op, lin, _) = bias_and_network(design)?;
-    let bias = op
-        .as_ref()
-        .map(|o| o.devices.iter().map(|d| bias_current(&d.state)).collect())
-        .unwrap_or_default();
-    Ok((lin, bias))
+    Ok(Differentiated { metrics, net: core.net, op: core.op, lin: core.lin, gradients })
 }
 
 /// The netlist, its operating point, and the small-signal network at that point.

@@ -344,7 +344,8 @@ impl Restamped {
             }
             col_ptr.push(rows.len());
         }
-        let pattern = faer::sparse::SymbolicSparseColMatRef::new_checked(n, n, &col_ptr, None, &rows);
+        let pattern =
+            faer::sparse::SymbolicSparseColMatRef::new_checked(n, n, &col_ptr, None, &rows);
         let symbolic = SymbolicLu::try_new(pattern).ok()?;
         Some(Restamped { n, col_ptr, rows, slot, symbolic })
     }

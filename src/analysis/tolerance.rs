@@ -14,7 +14,6 @@ use rand_chacha::ChaCha8Rng;
 use rayon::prelude::*;
 use serde::Serialize;
 
-use crate::analysis::adjoint;
 use crate::analysis::levers;
 use crate::analysis::{Metrics, Progress, Stage, metrics};
 use crate::circuit::small_signal::{Linear, LinearNetwork};
@@ -134,10 +133,10 @@ fn sensitivities_reporting(
             progress(Progress { stage: Stage::Sensitivities, done: n, total });
         }
     };
-    let Ok((nominal, lin, grads)) = crate::analysis::evaluate::metrics_with_gradients(design)
-    else {
+    let Ok(nominal) = crate::analysis::evaluate::metrics_with_gradients(design) else {
         return sensitivities_by_differences(design, levers, figs);
     };
+    let (grads, lin) = (&nominal.gradients, &nominal.lin);
     let transistors = design
         .parts
         .iter()
@@ -153,11 +152,12 @@ fn sensitivities_reporting(
             Figure::Bias(_) => None,
         }
     };
+    let dc = transistors.then(|| DcChain::new(design, &nominal)).flatten();
     let out = (0..levers.len())
         .into_par_iter()
         .map(|i| {
-            let chain = direct_chain(design, &levers[i], &lin, transistors)
-                .or_else(|| bias_chain(design, levers, i, &lin));
+            let chain = direct_chain(design, &levers[i], lin, transistors)
+                .or_else(|| dc.as_ref()?.chain(levers, i));
             let Some((moves, bias)) = chain else {
                 tick();
                 return sensitivities_by_differences(design, &levers[i..=i], figs).remove(0);
@@ -175,7 +175,7 @@ fn sensitivities_reporting(
                 .map(|(j, &f)| match f {
                     Figure::Bias(k) => bias.get(k).copied().filter(|v| v.is_finite()),
                     _ => {
-                        let y = f.of(&nominal).filter(|y| *y > 0.0)?;
+                        let y = f.of(&nominal.metrics).filter(|y| *y > 0.0)?;
                         match gradient(f) {
                             Some(g) => {
                                 Some(g.iter().zip(&moves).map(|(a, b)| a * b).sum::<f64>() / y)
@@ -216,7 +216,7 @@ fn direct_chain(
     let k = lin.elements.iter().position(|e| element_name(e) == Some(name))?;
     moves[k] = match lin.elements[k] {
         Linear::Conductance { g, .. } => -g,
-        ref other => adjoint::value(other)?,
+        ref other => other.value()?,
     };
     let devices = design
         .parts
@@ -261,39 +261,182 @@ const FOURTH_ORDER: Stencil = Stencil { step: STEP, points: FIVE_POINT };
 /// against.
 const REFERENCE: Stencil = Stencil { step: 5e-4, points: FIVE_POINT };
 
-/// ∂θ/∂ln p over the elements and ∂ln I/∂ln p of each bias current, by fourth-order central
-/// differences of the operating point and the small-signal models alone (no AC analysis).
-/// None when a step fails or changes the network's make-up.
-fn bias_chain(
-    design: &Design,
-    levers: &[Lever],
-    i: usize,
-    lin: &LinearNetwork,
-) -> Option<(Vec<f64>, Vec<f64>)> {
-    let same = |l: &LinearNetwork| {
-        l.elements.len() == lin.elements.len()
-            && l.elements.iter().zip(&lin.elements).all(|(a, b)| element_name(a) == element_name(b))
-    };
-    let mut moves = vec![0.0; lin.elements.len()];
-    let mut bias: Vec<f64> = Vec::new();
-    let h = FOURTH_ORDER.step;
-    for &(k, w) in FOURTH_ORDER.points {
-        let factor = (k * h).exp();
-        let (l, currents) =
-            crate::analysis::evaluate::linear_network(&perturbed(design, levers, &[(i, factor)]))
-                .ok()?;
-        if !same(&l) {
-            return None;
-        }
-        for (m, e) in moves.iter_mut().zip(&l.elements) {
-            *m += w * adjoint::value(e).unwrap_or(0.0) / h;
-        }
-        bias.resize(currents.len(), 0.0);
-        for (b, c) in bias.iter_mut().zip(&currents) {
-            *b += w * if *c > 0.0 { c.ln() } else { f64::NAN } / h;
-        }
+/// The step of the differences that give each transistor's small-signal values as functions
+/// of its two controlling voltages, as a fraction of the scale over which its current
+/// changes: 1/(1/V_T + max |∂ln I/∂v|) — V_T for a bipolar transistor in its active region,
+/// far less in saturation, where the current is a small difference of two exponentials.
+/// At a hundredth of that scale the five-point rule's truncation is near 1e-10 and its
+/// rounding near 1e-12.
+const CONTROL_STEP: f64 = 1e-2;
+
+/// ∂ln I/∂v of a transistor's bias current over its two normalised controls, exactly, from
+/// the derivatives its model gives.
+fn ln_current_slopes(state: &crate::circuit::operating_point::DeviceState) -> [f64; 2] {
+    use crate::circuit::operating_point::DeviceState;
+    match state {
+        DeviceState::Bjt { eval, .. } => [eval.dic_dvbe / eval.ic, eval.dic_dvbc / eval.ic],
+        DeviceState::Mosfet { eval, .. } => [eval.gm / eval.id, eval.gds / eval.id],
     }
-    Some((moves, bias))
+}
+
+/// The chain from a lever through the operating point to the small-signal elements and the
+/// bias currents, by the direct method on the DC Jacobian (`circuit/bias_response.rs`),
+/// factorised once for every lever: one solve per lever gives the change of every node
+/// voltage, and each transistor's elements follow from its own two controlling voltages
+/// through slopes taken once per transistor. A resistor's or a controlled source's change
+/// of the residual is exact; a lever that acts everywhere (a model parameter, a supply, the
+/// temperature, the source resistance) is taken by differences of the residual and of the
+/// models at the unchanged solution — a few levers, each costing one netlist, never a
+/// Newton solve. The adjoint alternative (one transposed solve per figure) would save
+/// nothing here: every transistor's bias current is a figure, as many as the levers grow.
+struct DcChain<'a> {
+    design: &'a Design,
+    net: &'a crate::circuit::netlist::Netlist,
+    lin: &'a LinearNetwork,
+    response: crate::circuit::bias_response::BiasResponse,
+    /// Per transistor: ∂θ/∂v_k of each of its elements, and ∂ln I/∂v_k, for its two
+    /// controls k.
+    slopes: Vec<([Vec<f64>; 2], [f64; 2])>,
+    /// Netlist element of each name.
+    elements: std::collections::HashMap<&'a str, usize>,
+    /// Small-signal element of each name.
+    linear: std::collections::HashMap<&'a str, usize>,
+}
+
+impl<'a> DcChain<'a> {
+    fn new(
+        design: &'a Design,
+        nominal: &'a crate::analysis::evaluate::Differentiated,
+    ) -> Option<DcChain<'a>> {
+        use crate::circuit::{operating_point, small_signal};
+        let (net, lin) = (&nominal.net, &nominal.lin);
+        let op = nominal.op.as_ref()?;
+        let response = crate::circuit::bias_response::BiasResponse::new(net, op)?;
+        let vt = op.thermal_voltage_v;
+        // The device's element values at controls v.
+        let values = |k: usize, v: [f64; 2]| -> Option<Vec<f64>> {
+            let el = &net.elements[k];
+            let bias = operating_point::device_bias(el, v, vt)?;
+            let (els, _) = small_signal::device_elements(el, &bias.state, vt)?;
+            Some(els.iter().map(|e| e.value().unwrap_or(0.0)).collect())
+        };
+        let mut slopes = Vec::new();
+        for (j, (k, v)) in response.device_controls(net).into_iter().enumerate() {
+            let size = lin.devices.get(j)?.len();
+            let bias = operating_point::device_bias(&net.elements[k], v, vt)?;
+            let ln_current = ln_current_slopes(&bias.state);
+            if !ln_current.iter().all(|s| s.is_finite()) {
+                return None;
+            }
+            let step = CONTROL_STEP / (1.0 / vt + ln_current[0].abs().max(ln_current[1].abs()));
+            let mut per = [vec![0.0; size], vec![0.0; size]];
+            for c in 0..2 {
+                for &(m, w) in FIVE_POINT {
+                    let mut moved = v;
+                    moved[c] += m * step;
+                    let at = values(k, moved)?;
+                    if at.len() != size {
+                        return None;
+                    }
+                    for (s, value) in per[c].iter_mut().zip(at) {
+                        *s += w * value / step;
+                    }
+                }
+            }
+            slopes.push((per, ln_current));
+        }
+        Some(DcChain {
+            design,
+            net,
+            lin,
+            response,
+            slopes,
+            elements: net.elements.iter().enumerate().map(|(k, e)| (e.name(), k)).collect(),
+            linear: lin
+                .elements
+                .iter()
+                .enumerate()
+                .filter_map(|(k, e)| Some((element_name(e)?, k)))
+                .collect(),
+        })
+    }
+
+    /// ∂θ/∂ln p over the elements and ∂ln I/∂ln p of each bias current for lever `i`; None
+    /// when a difference changes the network's make-up.
+    fn chain(&self, levers: &[Lever], i: usize) -> Option<(Vec<f64>, Vec<f64>)> {
+        let lin = self.lin;
+        let mut moves = vec![0.0; lin.elements.len()];
+        let mut bias = vec![0.0; self.slopes.len()];
+        let own = levers[i].part().and_then(|p| {
+            let name = self.design.parts[p].name.as_str();
+            let k = *self.elements.get(name)?;
+            Some((self.response.part_residual(self.net, k)?, self.linear.get(name).copied()))
+        });
+        let residual = match own {
+            Some((r, element)) => {
+                if let Some(m) = element {
+                    moves[m] = match lin.elements[m] {
+                        Linear::Conductance { g, .. } => -g,
+                        ref other => other.value()?,
+                    };
+                }
+                r
+            }
+            None => self.acting_everywhere(levers, i, &mut moves, &mut bias)?,
+        };
+        let dx = self.response.solve(&residual);
+        let dv = self.response.device_moves(self.net, &dx);
+        for (j, ((per, ln_current), d)) in self.slopes.iter().zip(&dv).enumerate() {
+            for c in 0..2 {
+                for (m, s) in lin.devices[j].clone().zip(&per[c]) {
+                    moves[m] += s * d[c];
+                }
+                bias[j] += ln_current[c] * d[c];
+            }
+        }
+        Some((moves, bias))
+    }
+
+    /// For a lever that acts everywhere: adds its direct effect at the unchanged solution
+    /// to `moves` and `bias`, and returns ∂R/∂ln p — each by fourth-order differences of
+    /// the changed netlist, the residual, and the models at the solution.
+    fn acting_everywhere(
+        &self,
+        levers: &[Lever],
+        i: usize,
+        moves: &mut [f64],
+        bias: &mut [f64],
+    ) -> Option<Vec<f64>> {
+        use crate::circuit::{netlist::Netlist, small_signal};
+        let h = FOURTH_ORDER.step;
+        let mut residual: Vec<f64> = Vec::new();
+        for &(k, w) in FOURTH_ORDER.points {
+            let net = Netlist::from_design(&perturbed(self.design, levers, &[(i, (k * h).exp())]));
+            let r = self.response.residual(&net);
+            residual.resize(r.len(), 0.0);
+            for (a, b) in residual.iter_mut().zip(&r) {
+                *a += w * b / h;
+            }
+            let op = self.response.devices_at(&net);
+            let (l, _) = small_signal::linearize(&net, Some(&op));
+            let same = l.elements.len() == self.lin.elements.len()
+                && l.elements
+                    .iter()
+                    .zip(&self.lin.elements)
+                    .all(|(a, b)| element_name(a) == element_name(b));
+            if !same || op.devices.len() != bias.len() {
+                return None;
+            }
+            for (m, e) in moves.iter_mut().zip(&l.elements) {
+                *m += w * e.value().unwrap_or(0.0) / h;
+            }
+            for (b, d) in bias.iter_mut().zip(&op.devices) {
+                let current = crate::analysis::evaluate::bias_current(&d.state);
+                *b += w * if current > 0.0 { current.ln() } else { f64::NAN } / h;
+            }
+        }
+        Some(residual)
+    }
 }
 
 /// S by central differences of whole evaluations, with the operating point re-solved at

@@ -5,6 +5,7 @@
 //! [`operating_point::OperatingPoint`] and the [`small_signal::LinearNetwork`] the analysis
 //! works on. Knows nothing of frequency responses, templates or files.
 
+pub mod bias_response;
 pub mod devices;
 pub mod netlist;
 pub mod operating_point;

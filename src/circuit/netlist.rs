@@ -193,6 +193,21 @@ pub enum Element {
     },
 }
 
+impl Element {
+    /// Its name: a designator, or one derived from it (`Q1.rx`, `load.r`).
+    pub fn name(&self) -> &str {
+        match self {
+            Element::Resistor { name, .. }
+            | Element::Capacitor { name, .. }
+            | Element::Inductor { name, .. }
+            | Element::Transconductance { name, .. }
+            | Element::VoltageAmplifier { name, .. }
+            | Element::Bjt { name, .. }
+            | Element::Mosfet { name, .. } => name,
+        }
+    }
+}
+
 /// The circuit with numbered nodes.
 #[derive(Clone, Debug)]
 pub struct Netlist {

@@ -129,19 +129,19 @@ impl std::fmt::Display for BiasError {
 
 /// Unknown layout of the DC system: node voltages (ground excluded), then branch currents
 /// of supplies, voltage amplifiers and inductors.
-struct Layout {
-    nodes: usize,
-    size: usize,
+pub(super) struct Layout {
+    pub(super) nodes: usize,
+    pub(super) size: usize,
     /// Branch index of each element that has one (by element index).
-    branch: Vec<Option<usize>>,
+    pub(super) branch: Vec<Option<usize>>,
     /// Branch index of each supply.
-    supply_branch: Vec<usize>,
-    /// The supply voltage of each unknown that is a supply rail's node voltage.
-    rail: Vec<Option<f64>>,
+    pub(super) supply_branch: Vec<usize>,
+    /// Whether each unknown is a supply rail's node voltage.
+    pub(super) rail: Vec<bool>,
 }
 
 impl Layout {
-    fn new(net: &Netlist) -> Layout {
+    pub(super) fn new(net: &Netlist) -> Layout {
         let nodes = net.nodes.len() - 1;
         let mut next = nodes;
         let supply_branch: Vec<usize> = (0..net.supplies.len())
@@ -161,10 +161,10 @@ impl Layout {
                 _ => None,
             })
             .collect();
-        let mut rail = vec![None; next];
-        for &(node, volts) in &net.supplies {
+        let mut rail = vec![false; next];
+        for &(node, _) in &net.supplies {
             if let Some(r) = at(node) {
-                rail[r] = Some(volts);
+                rail[r] = true;
             }
         }
         Layout { nodes, size: next, branch, supply_branch, rail }
@@ -179,8 +179,8 @@ impl Layout {
 /// dense row and column to defeat the sparse ordering. The rail keeps its unknown, held at
 /// the supply's voltage by the supply's branch row.
 #[derive(Clone)]
-struct System {
-    stamps: Vec<(usize, usize, f64)>,
+pub(super) struct System {
+    pub(super) stamps: Vec<(usize, usize, f64)>,
     rhs: Vec<f64>,
     /// The voltage of each rail unknown at this system's supply ramp.
     fixed: Vec<Option<f64>>,
@@ -214,7 +214,7 @@ impl System {
     }
 
     /// Σ_c A[r][c]·x[c] − rhs[r] for every row.
-    fn residual(&self, x: &[f64]) -> Vec<f64> {
+    pub(super) fn residual(&self, x: &[f64]) -> Vec<f64> {
         let mut residual: Vec<f64> = self.rhs.iter().map(|b| -b).collect();
         for &(r, c, v) in &self.stamps {
             residual[r] += v * x[c];
@@ -224,14 +224,19 @@ impl System {
 }
 
 /// The row/column of a node (None for ground).
-fn at(node: usize) -> Option<usize> {
+pub(super) fn at(node: usize) -> Option<usize> {
     node.checked_sub(1)
 }
 
 /// Stamps the linear elements and supplies (scaled by `ramp`) and a shunt `gmin` per node
 /// (stamped when zero too, to keep the places of the stamps).
-fn linear_system(net: &Netlist, layout: &Layout, ramp: f64, gmin: f64) -> System {
-    let fixed = layout.rail.iter().map(|v| v.map(|volts| volts * ramp)).collect();
+pub(super) fn linear_system(net: &Netlist, layout: &Layout, ramp: f64, gmin: f64) -> System {
+    let mut fixed = vec![None; layout.size];
+    for &(node, volts) in &net.supplies {
+        if let Some(r) = at(node) {
+            fixed[r] = Some(volts * ramp);
+        }
+    }
     let mut a = System { stamps: Vec::new(), rhs: vec![0.0; layout.size], fixed };
     for i in 0..layout.nodes {
         a.add(Some(i), Some(i), gmin);
@@ -298,7 +303,7 @@ pub(crate) fn controls(el: &Element, x: &[f64]) -> Option<[f64; 2]> {
 }
 
 /// Adds device `el`, linearised at normalised controls `v`, to the system.
-fn stamp_device(a: &mut System, el: &Element, v: [f64; 2], vt: f64) {
+pub(super) fn stamp_device(a: &mut System, el: &Element, v: [f64; 2], vt: f64) {
     match el {
         Element::Bjt { c, b, e, params, .. } => {
             let s = params.sign;
@@ -381,9 +386,7 @@ struct Diverged {
 fn solve_step(a: &System, sparse: Option<&Restamped>) -> Vec<f64> {
     let n = a.rhs.len();
     if let Some(lu) = sparse {
-        return lu
-            .solve(a.stamps.iter().map(|s| s.2), &a.rhs)
-            .unwrap_or_else(|| vec![f64::NAN; n]);
+        return lu.solve(a.stamps.iter().map(|s| s.2), &a.rhs).unwrap_or_else(|| vec![f64::NAN; n]);
     }
     let mut dense = Mat::<f64>::zeros(n, n);
     for &(r, c, v) in &a.stamps {
@@ -395,7 +398,12 @@ fn solve_step(a: &System, sparse: Option<&Restamped>) -> Vec<f64> {
 
 /// The symbolic sparse LU of a Newton step's system, when the network is large and mostly
 /// zero enough for it to pay; None for the dense path.
-fn sparse_steps(net: &Netlist, layout: &Layout, vt: f64, controls: &[[f64; 2]]) -> Option<Restamped> {
+fn sparse_steps(
+    net: &Netlist,
+    layout: &Layout,
+    vt: f64,
+    controls: &[[f64; 2]],
+) -> Option<Restamped> {
     if layout.size <= SPARSE_FROM {
         return None;
     }
@@ -537,7 +545,7 @@ pub fn solve(net: &Netlist) -> Result<OperatingPoint, BiasError> {
     let Some((attempt, method)) = found else {
         let d = last_failure.expect("a failed attempt is recorded");
         let node = net.nodes.get(d.node).cloned().unwrap_or_else(|| "gnd".into());
-        let device = d.device.and_then(|i| element_name(&net.elements[i]).map(str::to_string));
+        let device = d.device.map(|i| net.elements[i].name().to_string());
         let about = device.as_ref().map_or(String::new(), |dv| format!(" around `{dv}`"));
         return Err(BiasError {
             message: format!(
@@ -553,17 +561,6 @@ pub fn solve(net: &Netlist) -> Result<OperatingPoint, BiasError> {
 
 fn fresh_clone(a: &Attempt) -> Attempt {
     Attempt { x: a.x.clone(), controls: a.controls.clone(), iterations: a.iterations }
-}
-
-fn element_name(el: &Element) -> Option<&str> {
-    match el {
-        Element::Bjt { name, .. } | Element::Mosfet { name, .. } => Some(name),
-        Element::Resistor { name, .. }
-        | Element::Capacitor { name, .. }
-        | Element::Inductor { name, .. }
-        | Element::Transconductance { name, .. }
-        | Element::VoltageAmplifier { name, .. } => Some(name),
-    }
 }
 
 /// Polishes the solution with two unlimited Newton steps, then reports it.
@@ -596,7 +593,7 @@ fn finish(steps: &Steps, mut attempt: Attempt, method: Method) -> OperatingPoint
         devices_out.extend(device_bias(el, v, vt));
     }
     let kcl = (0..layout.nodes)
-        .filter(|r| layout.rail[*r].is_none())
+        .filter(|r| !layout.rail[*r])
         .fold(0.0f64, |m, r| m.max(residual[r].abs()));
     let mut node_voltages = vec![0.0];
     node_voltages.extend_from_slice(&x[..layout.nodes]);

@@ -89,6 +89,21 @@ pub enum Linear {
     },
 }
 
+impl Linear {
+    /// The value θ that tolerance work moves: conductance, capacitance, inductance,
+    /// transconductance or voltage gain; `None` for a supply.
+    pub fn value(&self) -> Option<f64> {
+        match *self {
+            Linear::Conductance { g, .. } => Some(g),
+            Linear::Capacitor { c, .. } => Some(c),
+            Linear::Inductor { l, .. } => Some(l),
+            Linear::Vccs { gm, .. } => Some(gm),
+            Linear::Vcvs { gain, .. } => Some(gain),
+            Linear::Grounded { .. } => None,
+        }
+    }
+}
+
 /// The small-signal network of a design at its operating point.
 #[derive(Clone, Debug)]
 pub struct LinearNetwork {
@@ -104,6 +119,8 @@ pub struct LinearNetwork {
     pub output: (usize, usize),
     /// Index of the load resistance element, if any (excluded for the output resistance).
     pub load_resistance: Option<usize>,
+    /// The elements each transistor became, in the operating point's device order.
+    pub devices: Vec<std::ops::Range<usize>>,
 }
 
 /// Small-signal parameters of one transistor, with its capacitances.
@@ -155,6 +172,7 @@ pub fn linearize(net: &Netlist, op: Option<&OperatingPoint>) -> (LinearNetwork, 
     let mut load_resistance = None;
     let vt = devices::thermal_voltage(net.temperature_k);
     let mut device_index = 0;
+    let mut devices = Vec::new();
     let new_node = |nodes: &mut Vec<String>, name: String| {
         nodes.push(name);
         nodes.len() - 1
@@ -197,152 +215,15 @@ pub fn linearize(net: &Netlist, op: Option<&OperatingPoint>) -> (LinearNetwork, 
                 n: *n,
                 gain: *gain,
             }),
-            Element::Bjt { name, c, b, e, params: p } => {
-                let Some(DeviceState::Bjt { eval, vbe_v, vcb_v, .. }) =
-                    op.map(|o| &o.devices[device_index].state)
-                else {
-                    continue;
-                };
+            Element::Bjt { .. } | Element::Mosfet { .. } => {
+                let Some(bias) = op.map(|o| &o.devices[device_index]) else { continue };
                 device_index += 1;
-                // Two-port in (v_be, v_ce), normalised polarity; signs cancel at small signal.
-                let gm = eval.dic_dvbe + eval.dic_dvbc;
-                let go = -eval.dic_dvbc;
-                let gpi = eval.dib_dvbe + eval.dib_dvbc;
-                let gmu = -eval.dib_dvbc; // ∂ib/∂vce, tiny and negative in the active region
-                let bi = if p.rb > 0.0 {
-                    let bi = new_node(&mut nodes, format!("{name}.b'"));
-                    elements.push(Linear::Conductance {
-                        name: format!("{name}.rx"),
-                        a: *b,
-                        b: bi,
-                        g: 1.0 / p.rb,
-                    });
-                    bi
-                } else {
-                    *b
-                };
-                elements.push(Linear::Conductance {
-                    name: format!("{name}.rpi"),
-                    a: bi,
-                    b: *e,
-                    g: gpi,
-                });
-                elements.push(Linear::Vccs {
-                    name: format!("{name}.gm"),
-                    a: *c,
-                    b: *e,
-                    p: bi,
-                    n: *e,
-                    gm,
-                });
-                elements.push(Linear::Conductance {
-                    name: format!("{name}.ro"),
-                    a: *c,
-                    b: *e,
-                    g: go,
-                });
-                // Base current's dependence on v_ce (reverse transfer), kept for exactness.
-                elements.push(Linear::Vccs {
-                    name: format!("{name}.gmu"),
-                    a: bi,
-                    b: *e,
-                    p: *c,
-                    n: *e,
-                    gm: gmu,
-                });
-                let vbe_n = p.sign * vbe_v;
-                let vbc_n = -p.sign * vcb_v;
-                let cje = devices::depletion_capacitance(p.cje, vbe_n);
-                let cmu = devices::depletion_capacitance(p.cjc, vbc_n);
-                let tf = devices::transit_time(p, cje, cmu, vt);
-                let cpi = tf * gm + cje;
-                for (suffix, a, bb, c) in [("cpi", bi, *e, cpi), ("cmu", bi, *c, cmu)] {
-                    if c > 0.0 {
-                        elements.push(Linear::Capacitor {
-                            name: format!("{name}.{suffix}"),
-                            a,
-                            b: bb,
-                            c,
-                            set: CapSet::High,
-                            reason: CapReason::Device,
-                        });
-                    }
+                let from = elements.len();
+                if let Some((els, small)) = device_elements(el, &bias.state, vt) {
+                    elements.extend(els);
+                    params.push(small);
                 }
-                params.push(SmallSignal {
-                    part: name.clone(),
-                    gm_s: gm,
-                    ro_ohm: (go > 0.0).then(|| 1.0 / go),
-                    rpi_ohm: Some(1.0 / gpi),
-                    rx_ohm: Some(p.rb + p.rb_external),
-                    beta_ac: Some(gm / gpi),
-                    cpi_f: Some(cpi),
-                    cmu_f: Some(cmu),
-                    transit_time_s: Some(tf),
-                    ft_hz: (cpi + cmu > 0.0)
-                        .then(|| gm / (2.0 * std::f64::consts::PI * (cpi + cmu))),
-                    cgs_f: None,
-                    cgd_f: None,
-                    cdb_f: None,
-                });
-            }
-            Element::Mosfet { name, d, g, s, params: p } => {
-                let Some(DeviceState::Mosfet { eval, region, .. }) =
-                    op.map(|o| &o.devices[device_index].state)
-                else {
-                    continue;
-                };
-                device_index += 1;
-                elements.push(Linear::Vccs {
-                    name: format!("{name}.gm"),
-                    a: *d,
-                    b: *s,
-                    p: *g,
-                    n: *s,
-                    gm: eval.gm,
-                });
-                elements.push(Linear::Conductance {
-                    name: format!("{name}.ro"),
-                    a: *d,
-                    b: *s,
-                    g: eval.gds,
-                });
-                // Meyer-style partition of the channel charge (Razavi, ch. 2).
-                let (cgs_channel, cgd_channel) = match region {
-                    MosRegion::Saturation => (2.0 / 3.0 * p.gate_oxide_f, 0.0),
-                    MosRegion::Triode => (0.5 * p.gate_oxide_f, 0.5 * p.gate_oxide_f),
-                    MosRegion::CutOff => (0.0, 0.0),
-                };
-                let cgs = p.cgs_direct.unwrap_or(cgs_channel + p.overlap_f);
-                let cgd = p.cgd_direct.unwrap_or(cgd_channel + p.overlap_f);
-                for (suffix, a, bb, c) in
-                    [("cgs", *g, *s, cgs), ("cgd", *g, *d, cgd), ("cdb", *d, *s, p.cdb)]
-                {
-                    if c > 0.0 {
-                        elements.push(Linear::Capacitor {
-                            name: format!("{name}.{suffix}"),
-                            a,
-                            b: bb,
-                            c,
-                            set: CapSet::High,
-                            reason: CapReason::Device,
-                        });
-                    }
-                }
-                params.push(SmallSignal {
-                    part: name.clone(),
-                    gm_s: eval.gm,
-                    ro_ohm: (eval.gds > 0.0).then(|| 1.0 / eval.gds),
-                    rpi_ohm: None,
-                    rx_ohm: None,
-                    beta_ac: None,
-                    cpi_f: None,
-                    cmu_f: None,
-                    transit_time_s: None,
-                    ft_hz: None,
-                    cgs_f: Some(cgs),
-                    cgd_f: Some(cgd),
-                    cdb_f: Some(p.cdb),
-                });
+                devices.push(from..elements.len());
             }
         }
     }
@@ -357,6 +238,147 @@ pub fn linearize(net: &Netlist, op: Option<&OperatingPoint>) -> (LinearNetwork, 
         source_terminal: (sp, rs),
         output: net.output,
         load_resistance,
+        devices,
     };
     (network, params)
+}
+
+/// The small-signal elements of transistor `el` at bias `state` (hybrid-π for the bipolar
+/// transistor, gm/ro/C for the MOSFET), with its parameters; None for any other element or
+/// a state of the other kind. The base resistance r_x is a netlist resistor already.
+pub fn device_elements(
+    el: &Element,
+    state: &DeviceState,
+    vt: f64,
+) -> Option<(Vec<Linear>, SmallSignal)> {
+    let mut elements = Vec::new();
+    match (el, state) {
+        (
+            Element::Bjt { name, c, b, e, params: p },
+            DeviceState::Bjt { eval, vbe_v, vcb_v, .. },
+        ) => {
+            // Two-port in (v_be, v_ce), normalised polarity; signs cancel at small signal.
+            let gm = eval.dic_dvbe + eval.dic_dvbc;
+            let go = -eval.dic_dvbc;
+            let gpi = eval.dib_dvbe + eval.dib_dvbc;
+            let gmu = -eval.dib_dvbc; // ∂ib/∂vce, tiny and negative in the active region
+            let bi = *b;
+            elements.push(Linear::Conductance {
+                name: format!("{name}.rpi"),
+                a: bi,
+                b: *e,
+                g: gpi,
+            });
+            elements.push(Linear::Vccs {
+                name: format!("{name}.gm"),
+                a: *c,
+                b: *e,
+                p: bi,
+                n: *e,
+                gm,
+            });
+            elements.push(Linear::Conductance { name: format!("{name}.ro"), a: *c, b: *e, g: go });
+            // Base current's dependence on v_ce (reverse transfer), kept for exactness.
+            elements.push(Linear::Vccs {
+                name: format!("{name}.gmu"),
+                a: bi,
+                b: *e,
+                p: *c,
+                n: *e,
+                gm: gmu,
+            });
+            let vbe_n = p.sign * vbe_v;
+            let vbc_n = -p.sign * vcb_v;
+            let cje = devices::depletion_capacitance(p.cje, vbe_n);
+            let cmu = devices::depletion_capacitance(p.cjc, vbc_n);
+            let tf = devices::transit_time(p, cje, cmu, vt);
+            let cpi = tf * gm + cje;
+            for (suffix, a, bb, c) in [("cpi", bi, *e, cpi), ("cmu", bi, *c, cmu)] {
+                if c > 0.0 {
+                    elements.push(Linear::Capacitor {
+                        name: format!("{name}.{suffix}"),
+                        a,
+                        b: bb,
+                        c,
+                        set: CapSet::High,
+                        reason: CapReason::Device,
+                    });
+                }
+            }
+            let small = SmallSignal {
+                part: name.clone(),
+                gm_s: gm,
+                ro_ohm: (go > 0.0).then(|| 1.0 / go),
+                rpi_ohm: Some(1.0 / gpi),
+                rx_ohm: Some(p.rb + p.rb_external),
+                beta_ac: Some(gm / gpi),
+                cpi_f: Some(cpi),
+                cmu_f: Some(cmu),
+                transit_time_s: Some(tf),
+                ft_hz: (cpi + cmu > 0.0).then(|| gm / (2.0 * std::f64::consts::PI * (cpi + cmu))),
+                cgs_f: None,
+                cgd_f: None,
+                cdb_f: None,
+            };
+            Some((elements, small))
+        }
+        (
+            Element::Mosfet { name, d, g, s, params: p },
+            DeviceState::Mosfet { eval, region, .. },
+        ) => {
+            elements.push(Linear::Vccs {
+                name: format!("{name}.gm"),
+                a: *d,
+                b: *s,
+                p: *g,
+                n: *s,
+                gm: eval.gm,
+            });
+            elements.push(Linear::Conductance {
+                name: format!("{name}.ro"),
+                a: *d,
+                b: *s,
+                g: eval.gds,
+            });
+            // Meyer-style partition of the channel charge (Razavi, ch. 2).
+            let (cgs_channel, cgd_channel) = match region {
+                MosRegion::Saturation => (2.0 / 3.0 * p.gate_oxide_f, 0.0),
+                MosRegion::Triode => (0.5 * p.gate_oxide_f, 0.5 * p.gate_oxide_f),
+                MosRegion::CutOff => (0.0, 0.0),
+            };
+            let cgs = p.cgs_direct.unwrap_or(cgs_channel + p.overlap_f);
+            let cgd = p.cgd_direct.unwrap_or(cgd_channel + p.overlap_f);
+            for (suffix, a, bb, c) in
+                [("cgs", *g, *s, cgs), ("cgd", *g, *d, cgd), ("cdb", *d, *s, p.cdb)]
+            {
+                if c > 0.0 {
+                    elements.push(Linear::Capacitor {
+                        name: format!("{name}.{suffix}"),
+                        a,
+                        b: bb,
+                        c,
+                        set: CapSet::High,
+                        reason: CapReason::Device,
+                    });
+                }
+            }
+            let small = SmallSignal {
+                part: name.clone(),
+                gm_s: eval.gm,
+                ro_ohm: (eval.gds > 0.0).then(|| 1.0 / eval.gds),
+                rpi_ohm: None,
+                rx_ohm: None,
+                beta_ac: None,
+                cpi_f: None,
+                cmu_f: None,
+                transit_time_s: None,
+                ft_hz: None,
+                cgs_f: Some(cgs),
+                cgd_f: Some(cgd),
+                cdb_f: Some(p.cdb),
+            };
+            Some((elements, small))
+        }
+        _ => None,
+    }
 }
