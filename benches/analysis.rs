@@ -59,6 +59,7 @@ fn ladder(n: usize) -> LinearNetwork {
         source_terminal: (1, 1e3),
         output: (n, 0),
         load_resistance: None,
+        devices: Vec::new(),
     }
 }
 
