@@ -64,6 +64,28 @@ pub fn metrics(design: &Design) -> Result<Metrics, AnalysisError> {
     Ok(core(design)?.metrics())
 }
 
+/// The operating point of a design, None without transistors or when it does not converge.
+pub(crate) fn operating_point(design: &Design) -> Option<OperatingPoint> {
+    let net = Netlist::from_design(design);
+    net.has_devices().then(|| operating_point::solve(&net).ok()).flatten()
+}
+
+/// Each transistor's bias current (A, its magnitude), from the operating point alone —
+/// Newton started from `near`, the nominal design's — what a bias current's worst-case
+/// corner needs, without the frequency analysis. None when the bias does not converge.
+pub(crate) fn bias_currents(design: &Design, near: Option<&OperatingPoint>) -> Option<Vec<f64>> {
+    let net = Netlist::from_design(design);
+    if !net.has_devices() {
+        return Some(Vec::new());
+    }
+    let op = match near {
+        Some(near) => operating_point::solve_near(&net, near),
+        None => operating_point::solve(&net),
+    }
+    .ok()?;
+    Some(op.devices.iter().map(|d| bias_current(&d.state)).collect())
+}
+
 /// The whole analysis of a design at its nominal values.
 pub fn analyze(design: &Design) -> Result<Analysis, AnalysisError> {
     core(design)?.complete(&design.analysis)

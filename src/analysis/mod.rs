@@ -326,7 +326,7 @@ pub struct RootWindow {
 }
 
 /// The figures tolerance analysis follows, from one evaluation of a design.
-#[derive(Clone, Debug, PartialEq, Serialize)]
+#[derive(Clone, Debug, Default, PartialEq, Serialize)]
 pub struct Metrics {
     /// |mid-band gain|, V/V: the exact gain at the operating band's centre when the design
     /// states a band, else the idealised gain.

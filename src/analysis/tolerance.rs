@@ -520,30 +520,84 @@ pub fn worst_case(
     nominal: &Metrics,
     names: &[String],
 ) -> Vec<WorstCase> {
-    figs.iter()
+    // Each figure's bound and its two corners, chosen by the signs of its sensitivities: a
+    // corner is a sign per lever (0 for one without a tolerance or a sensitivity), a byte
+    // each, so a network of thousands of parts keeps its corners small.
+    let plans: Vec<(usize, f64, f64, Vec<i8>)> = figs
+        .iter()
         .enumerate()
         .filter_map(|(k, f)| {
             let y0 = f.of(nominal)?;
             let mut bound = 0.0;
-            let mut up = Vec::new();
-            let mut down = Vec::new();
+            let mut signs = vec![0i8; levers.len()];
             for (i, l) in levers.iter().enumerate() {
                 let (Some(t), Some(sens)) = (l.tolerance, s[i][k]) else { continue };
                 bound += sens.abs() * t.fraction;
-                let sign = if sens >= 0.0 { 1.0 } else { -1.0 };
-                up.push((i, 1.0 + sign * t.fraction));
-                down.push((i, 1.0 - sign * t.fraction));
+                signs[i] = if sens >= 0.0 { 1 } else { -1 };
             }
-            let eval = |c: &[(usize, f64)]| {
-                metrics(&perturbed(design, levers, c)).ok().and_then(|m| f.of(&m))
-            };
-            Some(WorstCase {
+            Some((k, y0, bound, signs))
+        })
+        .collect();
+    // Figures whose sensitivities share their signs share their corners: each distinct
+    // corner is evaluated once, in parallel, and collected in order — in full when any
+    // figure but a bias current needs it, else the operating point alone (a chain of many
+    // stages has as many bias currents as transistors, each with its own corners).
+    let mut distinct: Vec<Vec<i8>> = Vec::new();
+    let mut full: Vec<bool> = Vec::new();
+    let mut index: std::collections::HashMap<Vec<i8>, usize> = std::collections::HashMap::new();
+    let mut which: Vec<[usize; 2]> = Vec::with_capacity(plans.len());
+    for (k, _, _, signs) in &plans {
+        let mut at = [0; 2];
+        let down: Vec<i8> = signs.iter().map(|s| -s).collect();
+        for (slot, corner) in at.iter_mut().zip([signs.clone(), down]) {
+            *slot = *index.entry(corner.clone()).or_insert_with(|| {
+                distinct.push(corner);
+                full.push(false);
+                distinct.len() - 1
+            });
+            full[*slot] |= !matches!(figs[*k], Figure::Bias(_));
+        }
+        which.push(at);
+    }
+    let factors = |signs: &[i8]| -> Vec<(usize, f64)> {
+        signs
+            .iter()
+            .enumerate()
+            .filter(|(_, s)| **s != 0)
+            .filter_map(|(i, s)| Some((i, 1.0 + f64::from(*s) * levers[i].tolerance?.fraction)))
+            .collect()
+    };
+    let near = full
+        .iter()
+        .any(|f| !f)
+        .then(|| crate::analysis::evaluate::operating_point(design))
+        .flatten();
+    let evaluated: Vec<Option<Metrics>> = distinct
+        .par_iter()
+        .zip(&full)
+        .map(|(c, full)| {
+            let d = perturbed(design, levers, &factors(c));
+            if *full {
+                metrics(&d).ok()
+            } else {
+                let bias = crate::analysis::evaluate::bias_currents(&d, near.as_ref())?;
+                Some(Metrics { bias, ..Metrics::default() })
+            }
+        })
+        .collect();
+    plans
+        .iter()
+        .zip(&which)
+        .map(|((k, y0, bound, _), [high, low])| {
+            let f = figs[*k];
+            let value = |c: usize| evaluated[c].as_ref().and_then(|m| f.of(m));
+            WorstCase {
                 figure: f.key(names),
-                nominal: y0,
-                linear_bound: bound,
-                high_corner: eval(&up),
-                low_corner: eval(&down),
-            })
+                nominal: *y0,
+                linear_bound: *bound,
+                high_corner: value(*high),
+                low_corner: value(*low),
+            }
         })
         .collect()
 }
@@ -851,6 +905,36 @@ mod tests {
 #[cfg(test)]
 mod adjoint_tests {
     use super::*;
+
+    /// A bias current's worst-case corner is solved from the operating point alone, Newton
+    /// started from the nominal solution; a full evaluation solves it from zero. Both are
+    /// the same root of the same equations: they agree to the Newton tolerance.
+    #[test]
+    fn a_bias_only_corner_matches_the_full_evaluation_of_that_corner() {
+        for name in ["designs/rx-preamp-ce.yaml", "designs/if-cascode.yaml"] {
+            let d = crate::design::load(&std::fs::read_to_string(name).unwrap()).design.unwrap();
+            let all = levers(&d);
+            let near = crate::analysis::evaluate::operating_point(&d).expect("bias converges");
+            // Every toleranced lever to the edge of its band, alternately up and down.
+            let corner: Vec<(usize, f64)> = all
+                .iter()
+                .enumerate()
+                .filter_map(|(i, l)| Some((i, l.tolerance?.fraction)))
+                .enumerate()
+                .map(|(n, (i, t))| (i, if n % 2 == 0 { 1.0 + t } else { 1.0 - t }))
+                .collect();
+            assert!(corner.len() > 3, "{name}: too few toleranced levers to move");
+            let moved = perturbed(&d, &all, &corner);
+            let alone = crate::analysis::evaluate::bias_currents(&moved, Some(&near)).unwrap();
+            let full = metrics(&moved).unwrap().bias;
+            let nominal = metrics(&d).unwrap().bias;
+            assert_eq!(alone.len(), full.len());
+            for ((a, b), n) in alone.iter().zip(&full).zip(&nominal) {
+                assert!((a - b).abs() <= 1e-9 * b, "{name}: {a} vs {b}");
+                assert!((b - n).abs() > 1e-6 * n, "{name}: the corner did not move the bias");
+            }
+        }
+    }
 
     /// The adjoint sensitivities against fourth-order central differences of whole
     /// evaluations (Director & Rohrer's method against the definition of the derivative):
