@@ -205,25 +205,100 @@ pub fn band_response(m: &Transfer, band: Band) -> Option<BandResponse> {
     })
 }
 
-/// The maximiser of a unimodal `f` on [lo, hi] by golden-section search (Kiefer, 1953), to
-/// 1e-6 of the interval: near a smooth extreme the value's error is the square of that.
-fn golden(mut f: impl FnMut(f64) -> Option<f64>, mut lo: f64, mut hi: f64) -> Option<f64> {
-    let r = (5f64.sqrt() - 1.0) / 2.0;
-    let (mut c, mut d) = (hi - r * (hi - lo), lo + r * (hi - lo));
-    let (mut fc, mut fd) = (f(c)?, f(d)?);
-    let width = hi - lo;
-    while hi - lo > 1e-6 * width {
-        if fc > fd {
-            hi = d;
-            (d, fd) = (c, fc);
-            c = hi - r * (hi - lo);
-            fc = f(c)?;
+/// The maximiser of a unimodal `f` on [lo, hi], to 1e-6 of the interval — near a smooth
+/// extreme the value's error is the square of that — by Brent's method: parabolic steps
+/// through the best three points, golden-section steps when a parabola would leave the
+/// bracket or shrink it too slowly (Brent, "Algorithms for Minimization without
+/// Derivatives", 1973, ch. 5, from memory). About ten evaluations where golden section
+/// alone takes thirty.
+fn golden(mut f: impl FnMut(f64) -> Option<f64>, lo: f64, hi: f64) -> Option<f64> {
+    let ratio = 0.5 * (3.0 - 5f64.sqrt());
+    let tol = 1e-6 * (hi - lo);
+    let (mut a, mut b) = (lo, hi);
+    let mut x = a + ratio * (b - a);
+    let (mut w, mut v) = (x, x);
+    // Minimise −f.
+    let mut fx = -f(x)?;
+    let (mut fw, mut fv) = (fx, fx);
+    let (mut d, mut e) = (0.0f64, 0.0f64);
+    loop {
+        let xm = 0.5 * (a + b);
+        let tol1 = f64::EPSILON.sqrt() * x.abs() + tol / 3.0;
+        let tol2 = 2.0 * tol1;
+        if (x - xm).abs() <= tol2 - 0.5 * (b - a) {
+            return Some(x);
+        }
+        let mut golden_step = true;
+        if e.abs() > tol1 {
+            let r = (x - w) * (fx - fv);
+            let mut q = (x - v) * (fx - fw);
+            let mut p = (x - v) * q - (x - w) * r;
+            q = 2.0 * (q - r);
+            if q > 0.0 {
+                p = -p;
+            } else {
+                q = -q;
+            }
+            let previous = e;
+            e = d;
+            if p.abs() < (0.5 * q * previous).abs() && p > q * (a - x) && p < q * (b - x) {
+                d = p / q;
+                let u = x + d;
+                if u - a < tol2 || b - u < tol2 {
+                    d = tol1.copysign(xm - x);
+                }
+                golden_step = false;
+            }
+        }
+        if golden_step {
+            e = if x < xm { b - x } else { a - x };
+            d = ratio * e;
+        }
+        let u = x + if d.abs() >= tol1 { d } else { tol1.copysign(d) };
+        let fu = -f(u)?;
+        if fu <= fx {
+            if u < x {
+                b = x;
+            } else {
+                a = x;
+            }
+            (v, fv, w, fw, x, fx) = (w, fw, x, fx, u, fu);
         } else {
-            lo = c;
-            (c, fc) = (d, fd);
-            d = lo + r * (hi - lo);
-            fd = f(d)?;
+            if u < x {
+                a = u;
+            } else {
+                b = u;
+            }
+            if fu <= fw || w == x {
+                (v, fv, w, fw) = (w, fw, u, fu);
+            } else if fu <= fv || v == x || v == w {
+                (v, fv) = (u, fu);
+            }
         }
     }
-    Some((lo + hi) / 2.0)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The maximiser of a smooth peak: 1/(1 + (x − c)²) peaks at c (by inspection), to the
+    /// stated 1e-6 of the interval, in far fewer evaluations than golden section's ~30.
+    #[test]
+    fn the_extreme_search_finds_a_smooth_peak_in_few_evaluations() {
+        for c in [0.137, 0.5, 0.91] {
+            let mut calls = 0;
+            let at = golden(
+                |x| {
+                    calls += 1;
+                    Some(1.0 / (1.0 + (x - c) * (x - c)))
+                },
+                0.0,
+                1.0,
+            )
+            .unwrap();
+            assert!((at - c).abs() < 1e-6, "{at} vs {c}");
+            assert!(calls <= 15, "{calls} evaluations");
+        }
+    }
 }

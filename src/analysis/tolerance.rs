@@ -567,18 +567,15 @@ pub fn worst_case(
             .filter_map(|(i, s)| Some((i, 1.0 + f64::from(*s) * levers[i].tolerance?.fraction)))
             .collect()
     };
-    let near = full
-        .iter()
-        .any(|f| !f)
-        .then(|| crate::analysis::evaluate::operating_point(design))
-        .flatten();
+    // Every corner's Newton starts at the nominal operating point.
+    let near = crate::analysis::evaluate::operating_point(design);
     let evaluated: Vec<Option<Metrics>> = distinct
         .par_iter()
         .zip(&full)
         .map(|(c, full)| {
             let d = perturbed(design, levers, &factors(c));
             if *full {
-                metrics(&d).ok()
+                crate::analysis::evaluate::metrics_near(&d, near.as_ref()).ok()
             } else {
                 let bias = crate::analysis::evaluate::bias_currents(&d, near.as_ref())?;
                 Some(Metrics { bias, ..Metrics::default() })
@@ -683,10 +680,13 @@ pub fn monte_carlo(
     let seed = design.analysis.seed;
     let requirements = &design.requirements;
     let done = std::sync::atomic::AtomicU64::new(0);
+    // Every run's Newton starts at the nominal operating point.
+    let near = crate::analysis::evaluate::operating_point(design);
     let samples: Vec<Option<Metrics>> = (0..runs as u64)
         .into_par_iter()
         .map(|k| {
-            let m = metrics(&perturbed(design, levers, &draw(levers, seed, k))).ok();
+            let sample = perturbed(design, levers, &draw(levers, seed, k));
+            let m = crate::analysis::evaluate::metrics_near(&sample, near.as_ref()).ok();
             let n = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
             if n % 64 == 0 {
                 progress(Progress { stage: Stage::MonteCarlo, done: n, total: runs as u64 });
