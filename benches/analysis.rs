@@ -276,6 +276,8 @@ fn main() {
         ("RC ladder", 3000, ladder_design(3000)),
         ("common-emitter stages", 100, level_stages_design(25)),
         ("common-emitter stages", 300, level_stages_design(75)),
+        ("common-emitter stages", 1000, level_stages_design(250)),
+        ("common-emitter stages", 3000, level_stages_design(750)),
     ] {
         let d = design::load(&text).design.expect("valid generated design");
         let (t, runs) = median(
