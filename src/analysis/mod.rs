@@ -12,6 +12,7 @@ pub mod levers;
 pub mod linear;
 pub mod matrix;
 pub mod mna;
+pub mod noise;
 pub mod poles;
 pub mod requirements;
 pub mod response;

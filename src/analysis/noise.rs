@@ -1,0 +1,560 @@
+//! Noise: every part's noise sources, their transfer to the output by the adjoint system,
+//! and what the stage adds to its source — output and input-referred densities, noise
+//! figure, the equivalent input generators, integrated noise over a band, and who
+//! contributes.
+//!
+//! In: the small-signal network with every capacitor present (its [`Mna`]), the operating
+//! point's bias currents and the temperature. Out: [`NoiseSources`] and, per frequency,
+//! [`Spectrum`]s; integrals over a band. No formatting, no files.
+//!
+//! Sources, each an uncorrelated current between two nodes (common practice; Gray, Hurst,
+//! Lewis & Meyer, *Analysis and Design of Analog Integrated Circuits*, noise chapter, from
+//! memory):
+//! - a resistor: thermal noise 4kT/R (the signal source's resistance at T0 = 290 K, the
+//!   temperature the noise figure is defined at; every other part at the design's);
+//! - a bipolar transistor: collector shot noise 2qI_C from collector to emitter, base shot
+//!   noise 2qI_B from the internal base to the emitter, and its base resistance's thermal
+//!   noise (a resistor). The two shot noises are taken as uncorrelated, as the hybrid-π
+//!   model's usual noise model does;
+//! - a MOSFET: channel thermal noise 4kTγg_m from drain to source, γ = 2/3 (long channel in
+//!   saturation, from memory);
+//! - the small-signal resistances rπ and r_o, and ideal controlled sources: none.
+//!
+//! One transposed solve per frequency gives every source's transfer at once: with
+//! (G + sC)ᵀλ = c for the output row c, a unit current from node a to node b reaches the
+//! output as λ_b − λ_a (Rohrer, Nagel, Meyer & Weber, IEEE JSSC 6(4), 1971, from memory;
+//! it is the adjoint identity used for the sensitivities, `adjoint.rs`).
+
+use faer::{Mat, c64};
+
+use crate::analysis::linear::{SparseSystem, sparse_pays};
+use crate::analysis::mna::Mna;
+use crate::circuit::devices::{BOLTZMANN, ELEMENTARY_CHARGE};
+use crate::circuit::operating_point::{DeviceState, OperatingPoint};
+use crate::circuit::small_signal::{Linear, LinearNetwork};
+
+/// The standard noise temperature of a source, K (IEEE Std 161; the noise figure's
+/// reference, common practice).
+pub const T0: f64 = 290.0;
+
+/// Channel thermal-noise coefficient γ of a MOSFET in saturation (long channel, 2/3; from
+/// memory).
+pub const GAMMA: f64 = 2.0 / 3.0;
+
+/// How a source makes its noise.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Mechanism {
+    /// A resistor's thermal noise, 4kT/R.
+    Thermal,
+    /// A bipolar transistor's base resistance, 4kT/r_x.
+    BaseResistance,
+    /// Collector shot noise, 2qI_C.
+    CollectorShot,
+    /// Base shot noise, 2qI_B.
+    BaseShot,
+    /// MOSFET channel thermal noise, 4kTγg_m.
+    Channel,
+}
+
+impl Mechanism {
+    /// In words, for the review.
+    pub fn describe(self) -> &'static str {
+        match self {
+            Mechanism::Thermal => "thermal noise",
+            Mechanism::BaseResistance => "base-resistance thermal noise",
+            Mechanism::CollectorShot => "collector shot noise",
+            Mechanism::BaseShot => "base shot noise",
+            Mechanism::Channel => "channel thermal noise",
+        }
+    }
+}
+
+/// One noise source: a white current of density `density` (A²/Hz) from node `a` to `b`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Source {
+    /// The part it belongs to (`R1`, `Q1`, `source`, `load`).
+    pub part: String,
+    /// How.
+    pub mechanism: Mechanism,
+    /// Terminal the current leaves.
+    pub a: usize,
+    /// Terminal it enters.
+    pub b: usize,
+    /// A²/Hz.
+    pub density: f64,
+    /// True for the signal source's own resistance.
+    pub is_source: bool,
+}
+
+/// Every noise source of a network.
+pub fn sources(lin: &LinearNetwork, op: Option<&OperatingPoint>, kelvin: f64) -> Vec<Source> {
+    let in_device: Vec<bool> =
+        (0..lin.elements.len()).map(|k| lin.devices.iter().any(|r| r.contains(&k))).collect();
+    let mut out = Vec::new();
+    for (k, el) in lin.elements.iter().enumerate() {
+        let Linear::Conductance { name, a, b, g } = el else { continue };
+        if in_device[k] || *g <= 0.0 {
+            continue;
+        }
+        let is_source = name == "source.r";
+        let (part, mechanism) = match name.split_once('.') {
+            Some((part, "rx")) => (part.to_string(), Mechanism::BaseResistance),
+            Some((part, _)) => (part.to_string(), Mechanism::Thermal),
+            None => (name.clone(), Mechanism::Thermal),
+        };
+        let t = if is_source { T0 } else { kelvin };
+        out.push(Source {
+            part,
+            mechanism,
+            a: *a,
+            b: *b,
+            density: 4.0 * BOLTZMANN * t * g,
+            is_source,
+        });
+    }
+    let Some(op) = op else { return out };
+    for (range, bias) in lin.devices.iter().zip(&op.devices) {
+        let element = |suffix: &str| {
+            range.clone().map(|k| &lin.elements[k]).find(|e| match e {
+                Linear::Conductance { name, .. } | Linear::Vccs { name, .. } => {
+                    name.rsplit_once('.').is_some_and(|(_, s)| s == suffix)
+                }
+                _ => false,
+            })
+        };
+        let part = bias.part.clone();
+        match &bias.state {
+            DeviceState::Bjt { ic_a, ib_a, .. } => {
+                if let Some(Linear::Vccs { a, b, .. }) = element("gm") {
+                    out.push(Source {
+                        part: part.clone(),
+                        mechanism: Mechanism::CollectorShot,
+                        a: *a,
+                        b: *b,
+                        density: 2.0 * ELEMENTARY_CHARGE * ic_a.abs(),
+                        is_source: false,
+                    });
+                }
+                if let Some(Linear::Conductance { a, b, .. }) = element("rpi") {
+                    out.push(Source {
+                        part,
+                        mechanism: Mechanism::BaseShot,
+                        a: *a,
+                        b: *b,
+                        density: 2.0 * ELEMENTARY_CHARGE * ib_a.abs(),
+                        is_source: false,
+                    });
+                }
+            }
+            DeviceState::Mosfet { .. } => {
+                if let Some(Linear::Vccs { a, b, gm, .. }) = element("gm") {
+                    out.push(Source {
+                        part,
+                        mechanism: Mechanism::Channel,
+                        a: *a,
+                        b: *b,
+                        density: 4.0 * BOLTZMANN * kelvin * GAMMA * gm.abs(),
+                        is_source: false,
+                    });
+                }
+            }
+        }
+    }
+    out
+}
+
+/// The noise at one frequency.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Spectrum {
+    /// Hz.
+    pub frequency_hz: f64,
+    /// |H|, the signal's gain from the source EMF to the output.
+    pub gain: f64,
+    /// Each source's output density, V²/Hz, in the order of the sources.
+    pub each: Vec<f64>,
+}
+
+impl Spectrum {
+    /// Total output density, V²/Hz.
+    pub fn output(&self) -> f64 {
+        self.each.iter().sum()
+    }
+
+    /// Output density less the signal source's own, V²/Hz: what the stage adds.
+    pub fn added(&self, sources: &[Source]) -> f64 {
+        self.each.iter().zip(sources).filter(|(_, s)| !s.is_source).map(|(v, _)| v).sum()
+    }
+
+    /// Input-referred density (at the source EMF), V²/Hz.
+    pub fn input(&self) -> Option<f64> {
+        (self.gain > 0.0).then(|| self.output() / (self.gain * self.gain))
+    }
+
+    /// Noise factor F = total output noise ÷ the part the source resistance (at T0)
+    /// makes; None without a source resistance or where it does not reach the output.
+    pub fn factor(&self, sources: &[Source]) -> Option<f64> {
+        let from_source: f64 =
+            self.each.iter().zip(sources).filter(|(_, s)| s.is_source).map(|(v, _)| v).sum();
+        (from_source > 0.0).then(|| self.output() / from_source)
+    }
+}
+
+/// The network solved for noise at any frequency: one factorisation and two solves each.
+pub struct Solver<'a> {
+    mna: &'a Mna,
+    sparse: Option<SparseSystem>,
+}
+
+impl<'a> Solver<'a> {
+    /// A solver for the full network `mna` (every capacitor present).
+    pub fn new(mna: &'a Mna) -> Solver<'a> {
+        let n = mna.size();
+        let sparse = sparse_pays(n, mna.g.nonzeros() + mna.c.nonzeros())
+            .then(|| SparseSystem::new(&mna.g, &mna.c))
+            .flatten();
+        Solver { mna, sparse }
+    }
+
+    /// x = A⁻¹b and λ = A⁻ᵀc at s = j2πf, or None where A is singular.
+    fn pair(&self, f: f64) -> Option<(Vec<c64>, Vec<c64>)> {
+        let s = c64::new(0.0, 2.0 * std::f64::consts::PI * f);
+        if let Some(sparse) = &self.sparse {
+            return sparse.solve_pair(s, &self.mna.b, &self.mna.out);
+        }
+        let n = self.mna.size();
+        let (g, c) = (self.mna.g.dense(), self.mna.c.dense());
+        let a = Mat::<c64>::from_fn(n, n, |i, j| c64::new(g[(i, j)], 0.0) + s * c[(i, j)]);
+        let lu = a.partial_piv_lu();
+        let column = |v: &[f64]| Mat::<c64>::from_fn(n, 1, |i, _| c64::new(v[i], 0.0));
+        use faer::linalg::solvers::Solve;
+        let x = lu.solve(column(&self.mna.b));
+        let lambda = lu.solve_transpose(column(&self.mna.out));
+        let x: Vec<c64> = (0..n).map(|i| x[(i, 0)]).collect();
+        let lambda: Vec<c64> = (0..n).map(|i| lambda[(i, 0)]).collect();
+        x.iter().chain(&lambda).all(|v| v.is_finite()).then_some((x, lambda))
+    }
+
+    /// Each source's output density and the signal gain at `f`.
+    pub fn spectrum(&self, sources: &[Source], f: f64) -> Option<Spectrum> {
+        let (x, lambda) = self.pair(f)?;
+        let gain = self.mna.out.iter().zip(&x).map(|(c, v)| v * *c).sum::<c64>().norm();
+        let at = |node: usize| Mna::row(node).map_or(c64::new(0.0, 0.0), |r| lambda[r]);
+        let each = sources.iter().map(|s| (at(s.b) - at(s.a)).norm_sqr() * s.density).collect();
+        Some(Spectrum { frequency_hz: f, gain, each })
+    }
+
+    /// |Z|: the output voltage per ampere injected into node `node` from ground, at `f`.
+    pub fn transimpedance(&self, node: usize, f: f64) -> Option<f64> {
+        let (_, lambda) = self.pair(f)?;
+        Some(Mna::row(node).map_or(0.0, |r| lambda[r].norm()))
+    }
+}
+
+/// The stage's equivalent input noise generators at `f`, from the sources `keep` admits
+/// (the signal source's own never): e_n² (V²/Hz), the output noise with the source shorted
+/// referred to the input by the gain, and i_n² (A²/Hz), the output noise with the source
+/// open referred by the transimpedance from the input node. "Shorted" is a source
+/// resistance of 1 µΩ: its error, about 1 µΩ over the input resistance, is far below any
+/// other. None when either network cannot be solved or does not pass a signal.
+pub fn input_generators(
+    lin: &LinearNetwork,
+    op: Option<&OperatingPoint>,
+    kelvin: f64,
+    f: f64,
+    keep: impl Fn(&Source) -> bool,
+) -> Option<(f64, f64)> {
+    let k = lin
+        .elements
+        .iter()
+        .position(|e| matches!(e, Linear::Conductance { name, .. } if name == "source.r"))?;
+    let with_source = |g: f64| {
+        let mut changed = lin.clone();
+        if let Linear::Conductance { g: value, .. } = &mut changed.elements[k] {
+            *value = g;
+        }
+        changed
+    };
+    let added = |lin: &LinearNetwork| -> Option<(Spectrum, Mna)> {
+        let srcs: Vec<Source> =
+            sources(lin, op, kelvin).into_iter().filter(|s| !s.is_source && keep(s)).collect();
+        let mna = crate::analysis::mna::assemble(
+            lin,
+            |_| crate::analysis::mna::CapState::Present,
+            crate::analysis::mna::Assembly::default(),
+        );
+        let spectrum = Solver::new(&mna).spectrum(&srcs, f)?;
+        Some((spectrum, mna))
+    };
+    let (shorted, _) = added(&with_source(1e6))?;
+    let open = with_source(0.0);
+    let (opened, mna) = added(&open)?;
+    let z = Solver::new(&mna).transimpedance(lin.source_terminal.0, f)?;
+    (shorted.gain > 0.0 && z > 0.0)
+        .then(|| (shorted.output() / (shorted.gain * shorted.gain), opened.output() / (z * z)))
+}
+
+/// The optimum source resistance e_n/i_n and the noise factor there, 1 + 2·e_n·i_n/(4kT0),
+/// treating e_n and i_n as uncorrelated (Gray, Hurst, Lewis & Meyer, noise chapter, from
+/// memory); the noise factor at the design's own source is exact, correlation included.
+pub fn optimum(e_n2: f64, i_n2: f64) -> Option<(f64, f64)> {
+    (e_n2 > 0.0 && i_n2 > 0.0)
+        .then(|| ((e_n2 / i_n2).sqrt(), 1.0 + 2.0 * (e_n2 * i_n2).sqrt() / (4.0 * BOLTZMANN * T0)))
+}
+
+/// ∫ g(f) df from `from` to `to` (Hz, both > 0) of a vector of non-negative densities, by
+/// adaptive Simpson's rule in ln f (Lyness, 1969, from memory) to `1e-9` of the total, each
+/// component integrated on the same nodes. None when g cannot be evaluated somewhere.
+pub fn integrate(
+    mut g: impl FnMut(f64) -> Option<Vec<f64>>,
+    from: f64,
+    to: f64,
+) -> Option<Vec<f64>> {
+    // In u = ln f: ∫ g(e^u) e^u du.
+    let mut h = |u: f64| -> Option<Vec<f64>> {
+        let f = u.exp();
+        Some(g(f)?.into_iter().map(|v| v * f).collect())
+    };
+    let (a, b) = (from.ln(), to.ln());
+    // Start from 64 panels so no narrow peak between coarse nodes is missed.
+    const PANELS: usize = 64;
+    let width = (b - a) / PANELS as f64;
+    let mut total: Option<Vec<f64>> = None;
+    let mut left = h(a)?;
+    for k in 0..PANELS {
+        let (lo, hi) = (a + width * k as f64, a + width * (k + 1) as f64);
+        let right = h(hi)?;
+        let mid = h(0.5 * (lo + hi))?;
+        let piece = simpson(&mut h, (lo, &left), (0.5 * (lo + hi), &mid), (hi, &right), 40)?;
+        total = Some(match total {
+            None => piece,
+            Some(t) => t.iter().zip(&piece).map(|(x, y)| x + y).collect(),
+        });
+        left = right;
+    }
+    total
+}
+
+type Point<'a> = (f64, &'a Vec<f64>);
+
+/// One adaptive Simpson panel: split until the two halves agree with the whole to 1e-10
+/// of its sum (Richardson's correction added).
+fn simpson(
+    h: &mut impl FnMut(f64) -> Option<Vec<f64>>,
+    (a, fa): Point,
+    (m, fm): Point,
+    (b, fb): Point,
+    depth: u32,
+) -> Option<Vec<f64>> {
+    let rule = |fa: &Vec<f64>, fm: &Vec<f64>, fb: &Vec<f64>, w: f64| -> Vec<f64> {
+        fa.iter().zip(fm).zip(fb).map(|((x, y), z)| w / 6.0 * (x + 4.0 * y + z)).collect()
+    };
+    let whole = rule(fa, fm, fb, b - a);
+    let (lm, rm) = (0.5 * (a + m), 0.5 * (m + b));
+    let (flm, frm) = (h(lm)?, h(rm)?);
+    let left = rule(fa, &flm, fm, m - a);
+    let right = rule(fm, &frm, fb, b - m);
+    let sum = |v: &[f64]| v.iter().sum::<f64>();
+    let halves: Vec<f64> = left.iter().zip(&right).map(|(x, y)| x + y).collect();
+    let error = sum(&halves) - sum(&whole);
+    if depth == 0 || error.abs() <= 1e-10 * sum(&halves).abs() {
+        return Some(halves.iter().zip(&whole).map(|(h2, h1)| h2 + (h2 - h1) / 15.0).collect());
+    }
+    let l = simpson(h, (a, fa), (lm, &flm), (m, fm), depth - 1)?;
+    let r = simpson(h, (m, fm), (rm, &frm), (b, fb), depth - 1)?;
+    Some(l.iter().zip(&r).map(|(x, y)| x + y).collect())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::analysis::mna::{self, Assembly, CapState};
+    use crate::circuit::netlist::Netlist;
+    use crate::circuit::{operating_point, small_signal};
+
+    struct Case {
+        lin: LinearNetwork,
+        op: Option<OperatingPoint>,
+        mna: Mna,
+        kelvin: f64,
+    }
+
+    fn case(text: &str) -> Case {
+        let loaded = crate::design::load(text);
+        let d = loaded.design.unwrap_or_else(|| panic!("{:?}", loaded.diagnostics));
+        let net = Netlist::from_design(&d);
+        let op = net.has_devices().then(|| operating_point::solve(&net).expect("bias"));
+        let (lin, _) = small_signal::linearize(&net, op.as_ref());
+        let mna = mna::assemble(&lin, |_| CapState::Present, Assembly::default());
+        Case { lin, op, mna, kelvin: d.temperature_k }
+    }
+
+    const K: f64 = BOLTZMANN;
+
+    fn close(got: f64, want: f64, rel: f64, what: &str) {
+        assert!((got - want).abs() <= rel * want.abs(), "{what}: {got:e} vs {want:e}");
+    }
+
+    #[test]
+    fn an_rc_low_pass_integrates_to_kt_over_c() {
+        // The kT/C identity (a textbook identity, common practice): the noise of any
+        // resistance into C integrates to kT/C over all frequencies. With the source's
+        // 1 kΩ at T0 and R1's 9 kΩ at 350 K in series, T is the resistance-weighted mean.
+        let c = case(
+            "tauweave: 1\ndesign: {id: t, title: t, revision: A, date: 2026-12-03}\n\
+             environment: {temperature: 350 K}\n\
+             signal: {at: in, resistance: 1k}\noutput: {at: out}\nparts:\n\
+             \x20 R1: {kind: resistor, value: 9k, between: [in, out]}\n\
+             \x20 C1: {kind: capacitor, value: 1n, between: [out, gnd]}\n",
+        );
+        let srcs = sources(&c.lin, None, c.kelvin);
+        assert_eq!(srcs.len(), 2, "{srcs:?}");
+        let solver = Solver::new(&c.mna);
+        let fc = 1.0 / (2.0 * std::f64::consts::PI * 10e3 * 1e-9);
+        let total =
+            integrate(|f| Some(vec![solver.spectrum(&srcs, f)?.output()]), fc * 1e-9, fc * 1e9)
+                .unwrap()[0];
+        let t_mean = (T0 * 1e3 + 350.0 * 9e3) / 10e3;
+        close(total, K * t_mean / 1e-9, 1e-6, "∫ output noise");
+    }
+
+    /// A common-emitter stage, no capacitance but a 1 F coupling capacitor (a short at the
+    /// test frequency), I_C near 1 mA, β = 100, no Early effect, base resistance `rx`.
+    fn common_emitter(rx: &str, celsius: &str) -> Case {
+        case(&format!(
+            "tauweave: 1\ndesign: {{id: t, title: t, revision: A, date: 2026-12-03}}\n\
+             environment: {{temperature: {celsius} °C}}\n\
+             supplies: {{vcc: 12 V}}\nsignal: {{at: in, resistance: 1k}}\noutput: {{at: coll}}\n\
+             parts:\n\
+             \x20 C1: {{kind: capacitor, value: 1, between: [in, base], role: coupling}}\n\
+             \x20 RB: {{kind: resistor, value: 1M, between: [vcc, base]}}\n\
+             \x20 RC: {{kind: resistor, value: 1k, between: [vcc, coll]}}\n\
+             \x20 Q1: {{kind: bjt, model: N, c: coll, b: base, e: gnd}}\n\
+             models:\n  N: {{type: npn, beta: 100, saturation_current: 1e-15 A, base_resistance: {rx}}}\n"
+        ))
+    }
+
+    /// gm, rπ, I_C and I_B of the first transistor.
+    fn hybrid_pi(c: &Case) -> (f64, f64, f64, f64) {
+        let value = |suffix: &str| {
+            c.lin.elements[c.lin.devices[0].clone()]
+                .iter()
+                .find_map(|e| match e {
+                    Linear::Conductance { name, g, .. } | Linear::Vccs { name, gm: g, .. }
+                        if name.ends_with(suffix) =>
+                    {
+                        Some(*g)
+                    }
+                    _ => None,
+                })
+                .unwrap()
+        };
+        let DeviceState::Bjt { ic_a, ib_a, .. } = c.op.as_ref().unwrap().devices[0].state else {
+            panic!("a bipolar transistor")
+        };
+        (value(".gm"), 1.0 / value(".rpi"), ic_a, ib_a)
+    }
+
+    #[test]
+    fn a_common_emitter_transistor_has_the_published_input_noise_generators() {
+        let c = common_emitter("10", "27");
+        let (gm, rpi, ic, ib) = hybrid_pi(&c);
+        let (kt, q, rx) = (K * c.kelvin, ELEMENTARY_CHARGE, 10.0);
+        let (e2, i2) =
+            input_generators(&c.lin, c.op.as_ref(), c.kelvin, 1e6, |s| s.part == "Q1").unwrap();
+        // Derived by hand from the hybrid-π model with the input shorted and opened:
+        // r_x's 4kT·r_x, base shot through r_x, collector shot referred through the gain.
+        let e2_exact = 4.0 * kt * rx
+            + 2.0 * q * ib * rx * rx
+            + 2.0 * q * ic / (gm * gm) * (1.0 + rx / rpi).powi(2);
+        // With the source open, RB (1 MΩ, to AC ground at the base) shunts the input.
+        let rb = 1e6;
+        let i2_exact = 2.0 * q * ib * ((rb + rx) / rb).powi(2)
+            + 2.0 * q * ic * ((rb + rx + rpi) / (gm * rpi * rb)).powi(2);
+        close(e2, e2_exact, 1e-7, "e_n² against the hybrid-π derivation");
+        close(i2, i2_exact, 1e-7, "i_n² against the hybrid-π derivation");
+        // Gray, Hurst, Lewis & Meyer (noise chapter, from memory): e_n² = 4kT(r_x + 1/(2g_m))
+        // and i_n² = 2qI_B, each neglecting terms of order r_x/rπ and 1/β.
+        close(e2, 4.0 * kt * (rx + 0.5 / gm), 0.01, "e_n² against the published form");
+        close(i2, 2.0 * q * ib, 0.02, "i_n² against the published form");
+    }
+
+    #[test]
+    fn a_common_emitter_transistor_has_the_published_optimum_source_and_noise_figure() {
+        // At T0 and r_x = 0 (Gray, Hurst, Lewis & Meyer, noise chapter, from memory):
+        // R_opt = √β/g_m and F_min = 1 + 1/√β, to order 1/β.
+        let c = common_emitter("0", "16.85");
+        let (gm, rpi, ic, ib) = hybrid_pi(&c);
+        let beta = gm * rpi;
+        let (e2, i2) =
+            input_generators(&c.lin, c.op.as_ref(), c.kelvin, 1e6, |s| s.part == "Q1").unwrap();
+        let (r_opt, f_min) = optimum(e2, i2).unwrap();
+        close(r_opt, beta.sqrt() / gm, 0.01, "R_opt");
+        close(f_min, 1.0 + 1.0 / beta.sqrt(), 0.01, "F_min");
+        // The noise factor of the transistor from the 1 kΩ source, exactly: the hybrid-π
+        // derivation (by hand) against the adjoint sum over Q1's sources and the source's.
+        let srcs: Vec<Source> = sources(&c.lin, c.op.as_ref(), c.kelvin)
+            .into_iter()
+            .filter(|s| s.is_source || s.part == "Q1")
+            .collect();
+        let s = Solver::new(&c.mna).spectrum(&srcs, 1e6).unwrap();
+        // RB (1 MΩ to AC ground) at the base: the source sees a Thévenin R_th = R_s ∥ RB
+        // behind a divider RB/(R_s + RB).
+        let (q, rs, rb) = (ELEMENTARY_CHARGE, 1e3, 1e6);
+        let (rth, divider) = (rs * rb / (rs + rb), (rs + rb) / rb);
+        let added = (2.0 * q * ib * rth * rth + 2.0 * q * ic * ((rth + rpi) / (gm * rpi)).powi(2))
+            * divider
+            * divider;
+        close(s.factor(&srcs).unwrap(), 1.0 + added / (4.0 * K * T0 * rs), 1e-7, "F at 1 kΩ");
+        // and the published approximation F ≈ 1 + 1/(2g_mR_s) + g_mR_s/(2β) within 3 %.
+        let published = 1.0 + 0.5 / (gm * rs) + gm * rs / (2.0 * beta);
+        close(s.factor(&srcs).unwrap(), published, 0.03, "F against the published form");
+    }
+
+    #[test]
+    fn a_common_source_transistor_has_the_published_input_noise_voltage() {
+        // e_n² = 4kTγ/g_m (Razavi, noise chapter, from memory), γ = 2/3.
+        let c = case(
+            "tauweave: 1\ndesign: {id: t, title: t, revision: A, date: 2026-12-03}\n\
+             supplies: {vdd: 5 V, vg: 2 V}\nsignal: {at: in, resistance: 1k}\noutput: {at: d}\n\
+             parts:\n\
+             \x20 C1: {kind: capacitor, value: 1 µF, between: [in, g], role: coupling}\n\
+             \x20 RG: {kind: resistor, value: 1M, between: [vg, g]}\n\
+             \x20 RD: {kind: resistor, value: 2k, between: [vdd, d]}\n\
+             \x20 M1: {kind: mosfet, model: N, d: d, g: g, s: gnd}\n\
+             models:\n  N: {type: nmos, threshold: 1 V, process_transconductance: 200 µA/V², \
+             width: 20 µm, length: 1 µm}\n",
+        );
+        let gm = c.lin.elements[c.lin.devices[0].clone()]
+            .iter()
+            .find_map(|e| match e {
+                Linear::Vccs { gm, .. } => Some(*gm),
+                _ => None,
+            })
+            .unwrap();
+        let (e2, _) =
+            input_generators(&c.lin, c.op.as_ref(), c.kelvin, 1e6, |s| s.part == "M1").unwrap();
+        close(e2, 4.0 * K * c.kelvin * GAMMA / gm, 1e-7, "e_n²");
+    }
+
+    #[test]
+    fn a_resistor_divider_at_a_stated_temperature_gives_4ktr() {
+        // 4kTR of each resistor through the divider (Johnson–Nyquist, common practice):
+        // R2's current noise sees R2 ∥ (R1 + Rs); R1's and Rs's voltages are divided by 3.
+        let c = case(
+            "tauweave: 1\ndesign: {id: t, title: t, revision: A, date: 2026-12-03}\n\
+             environment: {temperature: 350 K}\n\
+             signal: {at: in, resistance: 1k}\noutput: {at: out}\nparts:\n\
+             \x20 R1: {kind: resistor, value: 1k, between: [in, out]}\n\
+             \x20 R2: {kind: resistor, value: 1k, between: [out, gnd]}\n",
+        );
+        let srcs = sources(&c.lin, None, c.kelvin);
+        let s = Solver::new(&c.mna).spectrum(&srcs, 1e3).unwrap();
+        let z = 1e3 * 2e3 / 3e3;
+        let want = 4.0 * K * (350.0 / 1e3 * z * z + (350.0 * 1e3 + T0 * 1e3) / 9.0);
+        close(s.output(), want, 1e-9, "output density");
+        // The noise factor: everything over the source's share.
+        let from_source = 4.0 * K * T0 * 1e3 / 9.0;
+        close(s.factor(&srcs).unwrap(), want / from_source, 1e-9, "noise factor");
+    }
+}
