@@ -14,6 +14,7 @@ use std::f64::consts::PI;
 use crate::analysis::adjoint::{self, Gradients};
 use crate::analysis::linear::Factor;
 use crate::analysis::mna::{self, Assembly, CapState, Mna};
+use crate::analysis::noise;
 use crate::analysis::poles::{self, Root, Window};
 use crate::analysis::response::{self, BandResponse, SweepPoint, Transfer};
 use crate::analysis::time_constants::{self, CapRef, ShortCircuitCap};
@@ -267,6 +268,20 @@ impl Core {
         let operating_point = self.operating_point_report();
         // With a stated band, mid-band is its centre; otherwise between the estimates.
         let frequency_hz = self.band.map_or(self.frequency_hz, |(b, _)| b.centre_hz());
+        let noise_band = match (self.band, f_low, f_high) {
+            (Some((b, _)), _, _) => Some((b.from_hz, b.to_hz, noise::BandBasis::Stated)),
+            (None, Some(lo), Some(hi)) if hi > lo => Some((lo, hi, noise::BandBasis::Cutoffs)),
+            _ => None,
+        };
+        let noise = noise::review(&noise::Request {
+            lin: &self.lin,
+            op: self.op.as_ref(),
+            mna: &self.full,
+            kelvin: self.net.temperature_k,
+            spot_hz: frequency_hz,
+            band: noise_band,
+            frequencies: &frequencies,
+        });
         Ok(Analysis {
             operating_point,
             capacitors,
@@ -324,6 +339,7 @@ impl Core {
             root_window,
             sweep,
             has_inductors: self.has_inductors,
+            noise,
         })
     }
 

@@ -311,6 +311,9 @@ pub struct Analysis {
     pub sweep: Vec<SweepPoint>,
     /// True when the network has inductors (the time constants treat them as wires).
     pub has_inductors: bool,
+    /// Noise: densities, noise figure, equivalent input generators, contributors; None when
+    /// the network cannot be solved at the spot frequency.
+    pub noise: Option<noise::NoiseReport>,
 }
 
 /// Where the roots of a large network were looked for, and why.

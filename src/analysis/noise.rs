@@ -302,18 +302,27 @@ pub fn optimum(e_n2: f64, i_n2: f64) -> Option<(f64, f64)> {
         .then(|| ((e_n2 / i_n2).sqrt(), 1.0 + 2.0 * (e_n2 * i_n2).sqrt() / (4.0 * BOLTZMANN * T0)))
 }
 
+/// Evaluations an integral may take: a smooth band needs a few hundred; an integrand that
+/// will not settle (a notch where the input-referred density soars) stops here with the
+/// estimate it has.
+const MOST_EVALUATIONS: usize = 4000;
+
 /// ∫ g(f) df from `from` to `to` (Hz, both > 0) of a vector of non-negative densities, by
-/// adaptive Simpson's rule in ln f (Lyness, 1969, from memory) to `1e-9` of the total, each
-/// component integrated on the same nodes. None when g cannot be evaluated somewhere.
+/// adaptive Simpson's rule in ln f (Lyness, 1969, from memory) to 1e-10 of each panel's
+/// total, each component integrated on the same nodes, at most [`MOST_EVALUATIONS`]
+/// evaluations. None when g cannot be evaluated somewhere or is not finite.
 pub fn integrate(
     mut g: impl FnMut(f64) -> Option<Vec<f64>>,
     from: f64,
     to: f64,
 ) -> Option<Vec<f64>> {
     // In u = ln f: ∫ g(e^u) e^u du.
+    let evaluations = std::cell::Cell::new(0usize);
     let mut h = |u: f64| -> Option<Vec<f64>> {
         let f = u.exp();
-        Some(g(f)?.into_iter().map(|v| v * f).collect())
+        evaluations.set(evaluations.get() + 1);
+        let v: Vec<f64> = g(f)?.into_iter().map(|v| v * f).collect();
+        v.iter().all(|x| x.is_finite()).then_some(v)
     };
     let (a, b) = (from.ln(), to.ln());
     // Start from 64 panels so no narrow peak between coarse nodes is missed.
@@ -325,7 +334,12 @@ pub fn integrate(
         let (lo, hi) = (a + width * k as f64, a + width * (k + 1) as f64);
         let right = h(hi)?;
         let mid = h(0.5 * (lo + hi))?;
-        let piece = simpson(&mut h, (lo, &left), (0.5 * (lo + hi), &mid), (hi, &right), 40)?;
+        let piece = simpson(
+            &mut h,
+            [(lo, &left), (0.5 * (lo + hi), &mid), (hi, &right)],
+            12,
+            &evaluations,
+        )?;
         total = Some(match total {
             None => piece,
             Some(t) => t.iter().zip(&piece).map(|(x, y)| x + y).collect(),
@@ -341,10 +355,9 @@ type Point<'a> = (f64, &'a Vec<f64>);
 /// of its sum (Richardson's correction added).
 fn simpson(
     h: &mut impl FnMut(f64) -> Option<Vec<f64>>,
-    (a, fa): Point,
-    (m, fm): Point,
-    (b, fb): Point,
+    [(a, fa), (m, fm), (b, fb)]: [Point; 3],
     depth: u32,
+    evaluations: &std::cell::Cell<usize>,
 ) -> Option<Vec<f64>> {
     let rule = |fa: &Vec<f64>, fm: &Vec<f64>, fb: &Vec<f64>, w: f64| -> Vec<f64> {
         fa.iter().zip(fm).zip(fb).map(|((x, y), z)| w / 6.0 * (x + 4.0 * y + z)).collect()
@@ -357,12 +370,202 @@ fn simpson(
     let sum = |v: &[f64]| v.iter().sum::<f64>();
     let halves: Vec<f64> = left.iter().zip(&right).map(|(x, y)| x + y).collect();
     let error = sum(&halves) - sum(&whole);
-    if depth == 0 || error.abs() <= 1e-10 * sum(&halves).abs() {
+    let settled = error.abs() <= 1e-10 * sum(&halves).abs();
+    if depth == 0 || settled || evaluations.get() >= MOST_EVALUATIONS {
         return Some(halves.iter().zip(&whole).map(|(h2, h1)| h2 + (h2 - h1) / 15.0).collect());
     }
-    let l = simpson(h, (a, fa), (lm, &flm), (m, fm), depth - 1)?;
-    let r = simpson(h, (m, fm), (rm, &frm), (b, fb), depth - 1)?;
+    let l = simpson(h, [(a, fa), (lm, &flm), (m, fm)], depth - 1, evaluations)?;
+    let r = simpson(h, [(m, fm), (rm, &frm), (b, fb)], depth - 1, evaluations)?;
     Some(l.iter().zip(&r).map(|(x, y)| x + y).collect())
+}
+
+/// One part's noise by one mechanism.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct Contributor {
+    /// `R1`, `Q1`, `source`, `load`.
+    pub part: String,
+    /// How.
+    pub mechanism: Mechanism,
+    /// Its output density at the spot frequency, V²/Hz.
+    pub density_v2_per_hz: f64,
+    /// Its share of the output density there.
+    pub share: f64,
+    /// Its share of the output noise integrated over the band.
+    pub band_share: Option<f64>,
+}
+
+/// Where the noise is integrated.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum BandBasis {
+    /// The design's stated operating band.
+    Stated,
+    /// Between the exact −3 dB frequencies.
+    Cutoffs,
+}
+
+/// Noise integrated over a band.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct NoiseBand {
+    /// Hz.
+    pub start_hz: f64,
+    /// Hz.
+    pub stop_hz: f64,
+    /// Which band.
+    pub basis: BandBasis,
+    /// rms output noise, V.
+    pub output_rms_v: f64,
+    /// rms noise referred to the source EMF, V.
+    pub input_rms_v: f64,
+}
+
+/// Noise at one sweep frequency.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct NoisePoint {
+    /// Hz.
+    pub frequency_hz: f64,
+    /// V/√Hz at the output.
+    pub output_density_v_per_rthz: f64,
+    /// V/√Hz referred to the source EMF.
+    pub input_density_v_per_rthz: Option<f64>,
+    /// dB, with the source at T0.
+    pub noise_figure_db: Option<f64>,
+}
+
+/// The noise review of a stage.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct NoiseReport {
+    /// The design temperature every part but the source is at, K.
+    pub temperature_k: f64,
+    /// The source resistance, Ω (at T0 = 290 K).
+    pub source_resistance_ohm: f64,
+    /// Where the spot values are taken, Hz.
+    pub spot_frequency_hz: f64,
+    /// V/√Hz at the output.
+    pub output_density_v_per_rthz: f64,
+    /// V/√Hz referred to the source EMF.
+    pub input_density_v_per_rthz: Option<f64>,
+    /// F, with the source at T0.
+    pub noise_factor: Option<f64>,
+    /// 10·log10 F, dB.
+    pub noise_figure_db: Option<f64>,
+    /// The stage's equivalent input noise voltage (source shorted), V/√Hz.
+    pub e_n_v_per_rthz: Option<f64>,
+    /// The stage's equivalent input noise current (source open), A/√Hz.
+    pub i_n_a_per_rthz: Option<f64>,
+    /// e_n/i_n, Ω.
+    pub r_opt_ohm: Option<f64>,
+    /// The noise figure at R_opt, dB (e_n and i_n taken as uncorrelated).
+    pub nf_min_db: Option<f64>,
+    /// Integrated over the band.
+    pub band: Option<NoiseBand>,
+    /// Each part and mechanism, largest first.
+    pub contributors: Vec<Contributor>,
+    /// Over the sweep.
+    pub sweep: Vec<NoisePoint>,
+}
+
+/// What the noise review is asked.
+pub struct Request<'a> {
+    /// The network with every capacitor present.
+    pub lin: &'a LinearNetwork,
+    /// Its operating point.
+    pub op: Option<&'a OperatingPoint>,
+    /// Its assembled system.
+    pub mna: &'a Mna,
+    /// Design temperature, K.
+    pub kelvin: f64,
+    /// The spot frequency, Hz.
+    pub spot_hz: f64,
+    /// The band to integrate over, if any.
+    pub band: Option<(f64, f64, BandBasis)>,
+    /// The sweep.
+    pub frequencies: &'a [f64],
+}
+
+/// The noise review; None when the network cannot be solved at the spot frequency.
+pub fn review(r: &Request) -> Option<NoiseReport> {
+    let srcs = sources(r.lin, r.op, r.kelvin);
+    let solver = Solver::new(r.mna);
+    let spot = solver.spectrum(&srcs, r.spot_hz)?;
+    let total = spot.output();
+    let figure = |s: &Spectrum| s.factor(&srcs).map(|f| 10.0 * f.log10());
+    let generators = input_generators(r.lin, r.op, r.kelvin, r.spot_hz, |_| true);
+    let optimum = generators.and_then(|(e2, i2)| optimum(e2, i2));
+    // Integrate every source and the input-referred total on the same nodes.
+    let band = r.band.and_then(|(from, to, basis)| {
+        let n = srcs.len();
+        let sums = integrate(
+            |f| {
+                let s = solver.spectrum(&srcs, f)?;
+                let mut v = s.each.clone();
+                v.push(s.input()?);
+                debug_assert_eq!(v.len(), n + 1);
+                Some(v)
+            },
+            from,
+            to,
+        )?;
+        Some((from, to, basis, sums))
+    });
+    let band_total = band.as_ref().map(|(_, _, _, sums)| sums[..srcs.len()].iter().sum::<f64>());
+    let mut contributors: Vec<Contributor> = Vec::new();
+    for (k, src) in srcs.iter().enumerate() {
+        let in_band = band.as_ref().map(|(_, _, _, sums)| sums[k]);
+        match contributors.iter_mut().find(|c| c.part == src.part && c.mechanism == src.mechanism) {
+            Some(c) => {
+                c.density_v2_per_hz += spot.each[k];
+                c.band_share = c.band_share.zip(in_band).map(|(a, b)| a + b);
+            }
+            None => contributors.push(Contributor {
+                part: src.part.clone(),
+                mechanism: src.mechanism,
+                density_v2_per_hz: spot.each[k],
+                share: 0.0,
+                band_share: in_band,
+            }),
+        }
+    }
+    for c in &mut contributors {
+        c.share = if total > 0.0 { c.density_v2_per_hz / total } else { 0.0 };
+        c.band_share = c.band_share.zip(band_total).map(|(v, t)| if t > 0.0 { v / t } else { 0.0 });
+    }
+    contributors.sort_by(|a, b| b.share.total_cmp(&a.share).then_with(|| a.part.cmp(&b.part)));
+    let sweep = r
+        .frequencies
+        .iter()
+        .filter_map(|&f| {
+            let s = solver.spectrum(&srcs, f)?;
+            Some(NoisePoint {
+                frequency_hz: f,
+                output_density_v_per_rthz: s.output().sqrt(),
+                input_density_v_per_rthz: s.input().map(f64::sqrt),
+                noise_figure_db: figure(&s),
+            })
+        })
+        .collect();
+    Some(NoiseReport {
+        temperature_k: r.kelvin,
+        source_resistance_ohm: r.lin.source_terminal.1,
+        spot_frequency_hz: r.spot_hz,
+        output_density_v_per_rthz: total.sqrt(),
+        input_density_v_per_rthz: spot.input().map(f64::sqrt),
+        noise_factor: spot.factor(&srcs),
+        noise_figure_db: figure(&spot),
+        e_n_v_per_rthz: generators.map(|(e2, _)| e2.sqrt()),
+        i_n_a_per_rthz: generators.map(|(_, i2)| i2.sqrt()),
+        r_opt_ohm: optimum.map(|(r, _)| r),
+        nf_min_db: optimum.map(|(_, f)| 10.0 * f.log10()),
+        band: band.map(|(start_hz, stop_hz, basis, sums)| NoiseBand {
+            start_hz,
+            stop_hz,
+            basis,
+            output_rms_v: sums[..srcs.len()].iter().sum::<f64>().sqrt(),
+            input_rms_v: sums[srcs.len()].sqrt(),
+        }),
+        contributors,
+        sweep,
+    })
 }
 
 #[cfg(test)]

@@ -297,8 +297,97 @@ pub fn analysis_text(a: &Analysis) -> String {
             &rows,
         ));
     }
+    if let Some(n) = &a.noise {
+        out.push_str(&noise_block(n));
+    }
     let _ = writeln!(out, "\npoles  {}", roots(&a.poles));
     let _ = writeln!(out, "zeros  {}", roots(&a.zeros));
+    out
+}
+
+/// How many contributors the noise block lists before summing the rest.
+const NOISE_ROWS: usize = 6;
+
+/// The noise block: spot densities, noise figure, the input generators and the optimum
+/// source, the band's rms, and who contributes.
+fn noise_block(n: &crate::analysis::noise::NoiseReport) -> String {
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "\nnoise  (at {}; the {} source resistance at 290 K, every other part at {} °C)",
+        si(n.spot_frequency_hz, "Hz", 4),
+        si(n.source_resistance_ohm, "Ω", 4),
+        plain(n.temperature_k - 273.15, 4)
+    );
+    let density = |v: Option<f64>, unit: &str| v.map_or_else(absent, |v| si(v, unit, 4));
+    let _ = writeln!(out, "  output        {}", si(n.output_density_v_per_rthz, "V/√Hz", 4));
+    let _ = writeln!(
+        out,
+        "  input         {}  referred to the source EMF",
+        density(n.input_density_v_per_rthz, "V/√Hz")
+    );
+    if let (Some(nf), Some(f)) = (n.noise_figure_db, n.noise_factor) {
+        let _ = writeln!(out, "  noise figure  {} dB  (F = {})", plain(nf, 4), plain(f, 4));
+    }
+    if let (Some(e), Some(i)) = (n.e_n_v_per_rthz, n.i_n_a_per_rthz) {
+        let optimum = match (n.r_opt_ohm, n.nf_min_db) {
+            (Some(r), Some(nf)) => {
+                format!("  optimum source {}, {} dB there", si(r, "Ω", 4), plain(nf, 4))
+            }
+            _ => String::new(),
+        };
+        let _ =
+            writeln!(out, "  e_n, i_n      {}, {}{optimum}", si(e, "V/√Hz", 4), si(i, "A/√Hz", 4));
+    }
+    if let Some(b) = &n.band {
+        let basis = match b.basis {
+            crate::analysis::noise::BandBasis::Stated => "the operating band",
+            crate::analysis::noise::BandBasis::Cutoffs => "between the cut-offs",
+        };
+        let _ = writeln!(
+            out,
+            "  band          {} … {} ({basis}): {} rms at the output, {} rms at the input",
+            si(b.start_hz, "Hz", 3),
+            si(b.stop_hz, "Hz", 3),
+            si(b.output_rms_v, "V", 4),
+            si(b.input_rms_v, "V", 4)
+        );
+    }
+    let percent = |v: f64| format!("{} %", plain(100.0 * v, 3));
+    let mut rows: Vec<Vec<String>> = n
+        .contributors
+        .iter()
+        .take(NOISE_ROWS)
+        .map(|c| {
+            vec![
+                c.part.clone(),
+                c.mechanism.describe().to_string(),
+                percent(c.share),
+                c.band_share.map_or_else(absent, percent),
+            ]
+        })
+        .collect();
+    if n.contributors.len() > NOISE_ROWS {
+        let rest = &n.contributors[NOISE_ROWS..];
+        let band: Option<f64> = rest.iter().map(|c| c.band_share).sum();
+        rows.push(vec![
+            format!("{} others", rest.len()),
+            String::new(),
+            percent(rest.iter().map(|c| c.share).sum()),
+            band.map_or_else(absent, percent),
+        ]);
+    }
+    let _ = writeln!(out);
+    out.push_str(&render(
+        2,
+        &[
+            ("contributor", Align::Left),
+            ("mechanism", Align::Left),
+            ("share", Align::Right),
+            ("in band", Align::Right),
+        ],
+        &rows,
+    ));
     out
 }
 

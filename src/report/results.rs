@@ -529,6 +529,67 @@ pub struct CautionResults {
     pub text: String,
 }
 
+/// `noise`: what the stage adds to its source's noise.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct NoiseResults {
+    /// The design temperature every part but the source is at, K.
+    pub temperature_k: f64,
+    /// The source resistance, Ω, whose noise is taken at T0 = 290 K.
+    pub source_resistance_ohm: f64,
+    /// Where the spot values are taken: the band's centre, else the mid-band frequency, Hz.
+    pub spot_frequency_hz: f64,
+    /// Output noise density, V/√Hz.
+    pub output_density_v_per_rthz: f64,
+    /// Noise density referred to the source EMF, V/√Hz.
+    pub input_density_v_per_rthz: Option<f64>,
+    /// Noise factor F (source at T0).
+    pub noise_factor: Option<f64>,
+    /// Noise figure 10·log10 F, dB.
+    pub noise_figure_db: Option<f64>,
+    /// Equivalent input noise voltage of the stage (source shorted), V/√Hz.
+    pub e_n_v_per_rthz: Option<f64>,
+    /// Equivalent input noise current of the stage (source open), A/√Hz.
+    pub i_n_a_per_rthz: Option<f64>,
+    /// Optimum source resistance e_n/i_n, Ω.
+    pub r_opt_ohm: Option<f64>,
+    /// Noise figure at the optimum source resistance, dB (e_n, i_n taken as uncorrelated).
+    pub nf_min_db: Option<f64>,
+    /// Integrated over the stated band, else between the exact cut-offs; null without either.
+    pub band: Option<NoiseBandResults>,
+    /// Each part and mechanism, largest share at the spot frequency first.
+    pub contributors: Vec<ContributorResults>,
+}
+
+/// `noise.band`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct NoiseBandResults {
+    /// Hz.
+    pub start_hz: f64,
+    /// Hz.
+    pub stop_hz: f64,
+    /// `stated` (the design's operating band) or `cutoffs` (between f_L and f_H).
+    pub basis: String,
+    /// rms output noise over the band, V.
+    pub output_rms_v: f64,
+    /// rms noise referred to the source EMF over the band, V.
+    pub input_rms_v: f64,
+}
+
+/// `noise.contributors[]`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct ContributorResults {
+    /// `R1`, `Q1`, `source` (the signal source's resistance), `load`.
+    pub part: String,
+    /// `thermal`, `base_resistance`, `collector_shot`, `base_shot` or `channel`.
+    pub mechanism: String,
+    /// Output density at the spot frequency, V²/Hz.
+    pub density_v2_per_hz: f64,
+    /// Share of the output density at the spot frequency.
+    pub share: f64,
+    /// Share of the output noise integrated over the band.
+    pub band_share: Option<f64>,
+}
+
 /// The whole results document: results.json.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct ResultsDocument {
@@ -558,6 +619,9 @@ pub struct ResultsDocument {
     pub root_window: Option<RootWindowResults>,
     /// True when the network has inductors (the time constants treat them as wires).
     pub has_inductors: bool,
+    /// Noise (null when the network cannot be solved at the spot frequency).
+    #[serde(default)]
+    pub noise: Option<NoiseResults>,
     /// Each requirement at nominal values, at its tolerance corner and its yield.
     pub requirements: Vec<RequirementResults>,
     /// Normalised sensitivities of every figure to every lever.
@@ -566,6 +630,40 @@ pub struct ResultsDocument {
     pub tolerance: Option<ToleranceSummary>,
     /// The cautions that apply.
     pub cautions: Vec<CautionResults>,
+}
+
+fn noise(n: &crate::analysis::noise::NoiseReport) -> NoiseResults {
+    NoiseResults {
+        temperature_k: n.temperature_k,
+        source_resistance_ohm: n.source_resistance_ohm,
+        spot_frequency_hz: n.spot_frequency_hz,
+        output_density_v_per_rthz: n.output_density_v_per_rthz,
+        input_density_v_per_rthz: n.input_density_v_per_rthz,
+        noise_factor: n.noise_factor,
+        noise_figure_db: n.noise_figure_db,
+        e_n_v_per_rthz: n.e_n_v_per_rthz,
+        i_n_a_per_rthz: n.i_n_a_per_rthz,
+        r_opt_ohm: n.r_opt_ohm,
+        nf_min_db: n.nf_min_db,
+        band: n.band.as_ref().map(|b| NoiseBandResults {
+            start_hz: b.start_hz,
+            stop_hz: b.stop_hz,
+            basis: name_of(&b.basis),
+            output_rms_v: b.output_rms_v,
+            input_rms_v: b.input_rms_v,
+        }),
+        contributors: n
+            .contributors
+            .iter()
+            .map(|c| ContributorResults {
+                part: c.part.clone(),
+                mechanism: name_of(&c.mechanism),
+                density_v2_per_hz: c.density_v2_per_hz,
+                share: c.share,
+                band_share: c.band_share,
+            })
+            .collect(),
+    }
 }
 
 /// The tool's identity.
@@ -649,6 +747,7 @@ pub fn document(
             qz_up_to: w.qz_up_to,
         }),
         has_inductors: a.has_inductors,
+        noise: a.noise.as_ref().map(noise),
         requirements: review.requirements.iter().map(requirement).collect(),
         sensitivity: Some(sensitivity(&review.study)),
         tolerance: Some(tolerance_summary(&review.study)),
