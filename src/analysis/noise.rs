@@ -325,12 +325,15 @@ pub fn integrate(
         v.iter().all(|x| x.is_finite()).then_some(v)
     };
     let (a, b) = (from.ln(), to.ln());
-    // Start from 64 panels so no narrow peak between coarse nodes is missed.
-    const PANELS: usize = 64;
-    let width = (b - a) / PANELS as f64;
+    // Start from 16 panels and at least four a decade (five evaluations each at least), so
+    // a peak is seen before the adaptive splitting decides where to look closer: a wide
+    // panel's two Simpson estimates can agree by accident.
+    let decades = (b - a) / std::f64::consts::LN_10;
+    let panels = ((4.0 * decades).ceil() as usize).max(16);
+    let width = (b - a) / panels as f64;
     let mut total: Option<Vec<f64>> = None;
     let mut left = h(a)?;
-    for k in 0..PANELS {
+    for k in 0..panels {
         let (lo, hi) = (a + width * k as f64, a + width * (k + 1) as f64);
         let right = h(hi)?;
         let mid = h(0.5 * (lo + hi))?;

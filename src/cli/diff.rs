@@ -111,12 +111,15 @@ fn side(path: &Path, runs: Option<u32>) -> Result<Side, Failure> {
 fn read_sweep(path: &Path) -> Option<Vec<SweepPoint>> {
     let text = std::fs::read_to_string(path).ok()?;
     let mut lines = text.lines();
-    if lines.next()? != "frequency_hz,magnitude_db,phase_deg" {
+    // The response's three columns lead; the noise columns after them (empty where absent)
+    // are not drawn, and a file from before they were written reads the same.
+    if !lines.next()?.starts_with("frequency_hz,magnitude_db,phase_deg") {
         return None;
     }
     lines
         .map(|line| {
-            let v: Vec<f64> = line.split(',').map(|x| x.parse().ok()).collect::<Option<_>>()?;
+            let v: Vec<f64> =
+                line.split(',').take(3).map(|x| x.parse().ok()).collect::<Option<_>>()?;
             match v[..] {
                 [frequency_hz, magnitude_db, phase_deg]
                     if v.iter().all(|x| x.is_finite()) && frequency_hz > 0.0 =>

@@ -49,7 +49,8 @@ pub trait Exporter {
 /// results.json: the results contract.
 pub struct Json;
 
-/// sweep.csv: the exact frequency response, frequency_hz, magnitude_db, phase_deg.
+/// sweep.csv: the exact frequency response, frequency_hz, magnitude_db, phase_deg, and the
+/// noise: output and input-referred densities and the noise figure.
 pub struct Csv;
 
 /// report.md with plots/*.svg beside it.
@@ -78,11 +79,25 @@ impl Exporter for Csv {
         false
     }
     fn export(&self, doc: &Document) -> Vec<OutputFile> {
-        let mut out = String::from("frequency_hz,magnitude_db,phase_deg\n");
-        for p in &doc.review.analysis.sweep {
+        let mut out = String::from(
+            "frequency_hz,magnitude_db,phase_deg,output_noise_v_per_rthz,\
+             input_noise_v_per_rthz,noise_figure_db\n",
+        );
+        let a = &doc.review.analysis;
+        let noise: std::collections::HashMap<u64, &crate::analysis::noise::NoisePoint> =
+            a.noise.iter().flat_map(|n| &n.sweep).map(|p| (p.frequency_hz.to_bits(), p)).collect();
+        // An empty cell where a value does not exist (never NaN).
+        let cell = |v: Option<f64>| v.map_or(String::new(), |v| format!("{v:.9e}"));
+        for p in &a.sweep {
+            let n = noise.get(&p.frequency_hz.to_bits());
             out.push_str(&format!(
-                "{:.9e},{:.9e},{:.9e}\n",
-                p.frequency_hz, p.magnitude_db, p.phase_deg
+                "{:.9e},{:.9e},{:.9e},{},{},{}\n",
+                p.frequency_hz,
+                p.magnitude_db,
+                p.phase_deg,
+                cell(n.map(|n| n.output_density_v_per_rthz)),
+                cell(n.and_then(|n| n.input_density_v_per_rthz)),
+                cell(n.and_then(|n| n.noise_figure_db)),
             ));
         }
         vec![file("sweep.csv", out)]

@@ -55,7 +55,17 @@ fn render_writes_every_output_for_every_example() {
         assert!(html.matches("<table>").count() >= 12, "{name}: too few tables");
         let csv = std::fs::read_to_string(out.join("sweep.csv")).unwrap();
         assert!(
-            csv.starts_with("frequency_hz,magnitude_db,phase_deg\n") && csv.lines().count() > 100
+            csv.starts_with(
+                "frequency_hz,magnitude_db,phase_deg,output_noise_v_per_rthz,\
+                 input_noise_v_per_rthz,noise_figure_db\n"
+            ) && csv.lines().count() > 100
+        );
+        // Every row has its noise: six numbers, none empty on an example design.
+        assert!(
+            csv.lines()
+                .skip(1)
+                .all(|l| l.split(',').filter(|c| c.parse::<f64>().is_ok()).count() == 6),
+            "{name}: a sweep row without its noise"
         );
     }
 }
