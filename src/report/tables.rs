@@ -24,6 +24,11 @@ pub const TABLES: &[(&str, &str)] = &[
     ("low_estimates", "lower cut-off: exact value and the estimates with their errors"),
     ("sctc", "short-circuit time constants: R seen, τ, share"),
     ("poles_zeros", "poles and zeros of the whole response"),
+    ("noise", "noise at the spot frequency: densities, noise figure, input generators, band rms"),
+    (
+        "noise_contributors",
+        "each part's noise by mechanism: share at the spot frequency and in band",
+    ),
     (
         "requirements",
         "each requirement: nominal value, pass or fail, margin, worst-case corner, yield",
@@ -147,11 +152,66 @@ pub fn all(
     t.insert("capacitors", capacitors_table(a));
     cut_off_tables(&mut t, a);
     t.insert("poles_zeros", poles_zeros_table(a));
+    if let Some(n) = &a.noise {
+        t.insert("noise", noise_table(n));
+        t.insert("noise_contributors", noise_contributors_table(n));
+    }
     t.insert("requirements", requirements_table(reqs));
     if let Some(s) = study {
         study_tables(&mut t, s);
     }
     t
+}
+
+/// `noise`: the spot values, the input generators with the optimum source, the band's rms.
+fn noise_table(n: &crate::analysis::noise::NoiseReport) -> String {
+    let opt = |v: Option<f64>, unit: &str| v.map_or_else(absent, |v| si(v, unit, 4));
+    let db = |v: Option<f64>| v.map_or_else(absent, |v| format!("{} dB", plain(v, 3)));
+    let mut rows = vec![
+        vec!["output noise density".into(), si(n.output_density_v_per_rthz, "V/√Hz", 4)],
+        vec![
+            "input-referred density (at the source EMF)".into(),
+            opt(n.input_density_v_per_rthz, "V/√Hz"),
+        ],
+        vec![
+            format!("noise figure (source {} at 290 K)", si(n.source_resistance_ohm, "Ω", 4)),
+            db(n.noise_figure_db),
+        ],
+        vec!["equivalent input noise voltage e_n".into(), opt(n.e_n_v_per_rthz, "V/√Hz")],
+        vec!["equivalent input noise current i_n".into(), opt(n.i_n_a_per_rthz, "A/√Hz")],
+        vec!["optimum source resistance e_n/i_n".into(), opt(n.r_opt_ohm, "Ω")],
+        vec!["noise figure at the optimum source".into(), db(n.nf_min_db)],
+    ];
+    if let Some(b) = &n.band {
+        let band = format!("{} … {}", si(b.start_hz, "Hz", 3), si(b.stop_hz, "Hz", 3));
+        rows.push(vec![
+            format!("output noise, {band}"),
+            format!("{} rms", si(b.output_rms_v, "V", 4)),
+        ]);
+        rows.push(vec![
+            format!("input-referred noise, {band}"),
+            format!("{} rms", si(b.input_rms_v, "V", 4)),
+        ]);
+    }
+    markdown_table(&[&format!("at {}", si(n.spot_frequency_hz, "Hz", 4)), "value"], "lr", rows)
+}
+
+/// `noise_contributors`: each part's noise by mechanism, largest first.
+fn noise_contributors_table(n: &crate::analysis::noise::NoiseReport) -> String {
+    let rows = n
+        .contributors
+        .iter()
+        .map(|c| {
+            vec![
+                cell(&c.part),
+                c.mechanism.describe().to_string(),
+                si(c.density_v2_per_hz.sqrt(), "V/√Hz", 3),
+                format!("{} %", plain(100.0 * c.share, 3)),
+                c.band_share.map_or_else(absent, |s| format!("{} %", plain(100.0 * s, 3))),
+            ]
+        })
+        .collect();
+    markdown_table(&["part", "mechanism", "at the output", "share", "share in band"], "llrrr", rows)
 }
 
 /// `parts`: every part with its kind, value, tolerance, connections and note.

@@ -12,7 +12,7 @@ use crate::design::Design;
 use crate::notation::si;
 use crate::report::explain::Explanation;
 use crate::report::results::{
-    CapacitorResults, CautionResults, HighResults, LowResults, MidbandResults,
+    CapacitorResults, CautionResults, HighResults, LowResults, MidbandResults, NoiseResults,
     OperatingPointResults, Provenance, RequirementResults, ResultsDocument, RootResults,
     RootWindowResults, SensitivityResults, ToleranceSummary, Tool,
 };
@@ -150,6 +150,8 @@ pub struct View<'a> {
     pub root_window: &'a Option<RootWindowResults>,
     /// True when the network has inductors.
     pub has_inductors: bool,
+    /// Noise: spot densities, noise figure, input generators, band rms, contributors.
+    pub noise: &'a Option<NoiseResults>,
     /// Requirements at nominal values, corners and yields.
     pub requirements: &'a [RequirementResults],
     /// Sensitivities.
@@ -182,6 +184,7 @@ impl<'a> View<'a> {
             zeros: &doc.zeros,
             root_window: &doc.root_window,
             has_inductors: doc.has_inductors,
+            noise: &doc.noise,
             requirements: &doc.requirements,
             sensitivity: &doc.sensitivity,
             tolerance: &doc.tolerance,
