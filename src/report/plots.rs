@@ -129,7 +129,8 @@ fn style(size: u32) -> TextStyle<'static> {
 }
 
 /// The names of every plot a review can hold (`plot(name=…)` accepts these).
-pub const PLOTS: &[&str] = &["schematic", "bode", "pole_zero", "shares", "tornado", "histograms"];
+pub const PLOTS: &[&str] =
+    &["schematic", "bode", "pole_zero", "shares", "noise", "tornado", "histograms"];
 
 /// Every plot of the review.
 pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study>) -> Vec<Plot> {
@@ -150,6 +151,9 @@ pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study
     if let Some(svg) = shares(a) {
         out.push(Plot { name: "shares", caption: "Share of each capacitor in the open-circuit time-constant sum (upper cut-off) and in Σ 1/τ of the short-circuit constants (lower cut-off).".into(), svg, file: None, max_width: None });
     }
+    if let Some(svg) = a.noise.as_ref().and_then(noise) {
+        out.push(Plot { name: "noise", caption: "Noise over the sweep: the noise figure from the design's source (at 290 K), and the noise referred to the source EMF in dB relative to 1 nV/√Hz; the operating band is shaded and the spot frequency dashed. Where the gain falls away the referred noise climbs out of the frame.".into(), svg, file: None, max_width: None });
+    }
     if let Some((tornado, histograms)) = extra {
         if let Some(svg) = tornado {
             out.push(Plot { name: "tornado", caption: "Tornado chart: how far each toleranced lever moves the upper cut-off at its tolerance limit (S·t), largest first; dark bars raise f_H, grey bars lower it.".into(), svg, file: None, max_width: None });
@@ -164,6 +168,77 @@ pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study
         }
     }
     out
+}
+
+/// The noise figure panel, dB.
+const NOISE_FIGURE: Axis =
+    Axis { x_label_area: 28, y_desc: "noise figure", y_unit: " dB", x_desc: false };
+
+/// The input-referred density panel, dB relative to 1 nV/√Hz.
+const INPUT_NOISE: Axis =
+    Axis { x_label_area: 44, y_desc: "dB re 1 nV/√Hz", y_unit: "", x_desc: true };
+
+/// Noise figure and input-referred density over the sweep, each panel framed to 30 dB
+/// above its value at the spot frequency so the band stays readable.
+fn noise(n: &crate::analysis::noise::NoiseReport) -> Option<String> {
+    let nf: Vec<(f64, f64)> =
+        n.sweep.iter().filter_map(|p| Some((p.frequency_hz, p.noise_figure_db?))).collect();
+    let input: Vec<(f64, f64)> = n
+        .sweep
+        .iter()
+        .filter_map(|p| Some((p.frequency_hz, 20.0 * (p.input_density_v_per_rthz? / 1e-9).log10())))
+        .collect();
+    if nf.len() < 2 || input.len() < 2 {
+        return None;
+    }
+    let (f0, f1) = (n.sweep.first()?.frequency_hz, n.sweep.last()?.frequency_hz);
+    let spot_nf = n.noise_figure_db?;
+    let spot_in = 20.0 * (n.input_density_v_per_rthz? / 1e-9).log10();
+    let frame = |points: &[(f64, f64)], spot: f64| {
+        let lowest = points.iter().map(|p| p.1).fold(f64::INFINITY, f64::min);
+        let bottom = (lowest.min(spot) / 5.0).floor() * 5.0 - 5.0;
+        (bottom.min(0.0).max(lowest.min(spot) - 10.0), ((spot + 30.0) / 5.0).ceil() * 5.0)
+    };
+    // A noise figure is never below 0 dB.
+    let (nf_frame, in_frame) = ((0.0, frame(&nf, spot_nf).1), frame(&input, spot_in));
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (px(WIDTH), px(480))).into_drawing_area();
+        root.fill(&WHITE).ok()?;
+        let (upper, lower) = root.split_vertically(px(230));
+        for (area, axis, points, (bottom, top)) in
+            [(&upper, NOISE_FIGURE, &nf, nf_frame), (&lower, INPUT_NOISE, &input, in_frame)]
+        {
+            let mut chart = frequency_panel(area, (f0, f1), (bottom, top), axis)?;
+            if let Some(b) = &n.band {
+                let (from, to) = (b.start_hz.max(f0), b.stop_hz.min(f1));
+                if from < to && b.basis == crate::analysis::noise::BandBasis::Stated {
+                    chart
+                        .draw_series(std::iter::once(Rectangle::new(
+                            [(from, bottom), (to, top)],
+                            PALE.mix(0.45).filled(),
+                        )))
+                        .ok()?;
+                }
+            }
+            chart
+                .draw_series(DashedLineSeries::new(
+                    [(n.spot_frequency_hz, bottom), (n.spot_frequency_hz, top)],
+                    px(3),
+                    px(5),
+                    MID.stroke_width(px(1)),
+                ))
+                .ok()?;
+            // Drawn only where inside the frame: negated, the ceiling is a floor.
+            for run in above(points.iter().map(|&(f, v)| (f, -v)), -top) {
+                let run: Vec<(f64, f64)> =
+                    run.into_iter().map(|(f, v)| (f, -v)).filter(|p| p.1 >= bottom).collect();
+                chart.draw_series(LineSeries::new(run, INK.stroke_width(px(2)))).ok()?;
+            }
+        }
+        root.present().ok()?;
+    }
+    Some(finish(svg))
 }
 
 /// The levers that move the upper cut-off most at their tolerance limits, largest first.
