@@ -1,12 +1,20 @@
 #!/usr/bin/env python3
-"""Independent reference for tauweave's linear small-signal analysis.
+"""Independent reference for tauweave's small-signal analysis and its noise analysis.
 
-Usage: mna_reference.py DESIGN.yaml   -> JSON on stdout
+Usage: mna_reference.py DESIGN.yaml [--bias RESULTS.json] [--noise]   -> JSON on stdout
 
-For LINEAR designs only: parts of kind resistor, capacitor, inductor, transconductance and
-voltage_amplifier (supplies may be present; they are AC ground). Shares no code with the
-Rust crate: it reads the YAML with PyYAML, parses the quantities itself and builds its own
-modified-nodal-analysis matrices with numpy; eigenvalues come from scipy (LAPACK QZ).
+Parts of kind resistor, capacitor, inductor, transconductance and voltage_amplifier
+(supplies may be present; they are AC ground). Shares no code with the Rust crate: it reads
+the YAML with PyYAML, parses the quantities itself and builds its own modified-nodal-analysis
+matrices with numpy; eigenvalues come from scipy (LAPACK QZ), integrals from scipy.integrate.
+
+Transistors (bjt, mosfet) need --bias: the reference does NOT solve the nonlinear DC bias.
+It takes each transistor's bias currents and small-signal parameters from tauweave's own
+results.json (`operating_point.devices`, nothing else from that file) and builds the
+small-signal network, and everything after it, itself. So for a design with transistors it
+checks the small-signal analysis and the noise, not the operating point.
+
+--noise adds the noise analysis (`noise`, as results.json has it); see noise_review().
 
 The conventions (tauweave's definitions) are summarised in tests/reference/README.md.
 
@@ -18,7 +26,11 @@ Network building blocks used below:
     an unknown and loops of shorts cannot make the matrix singular;
   * an open capacitor is left out; a dynamic one goes into C;
   * an inductor in the exact response is a branch unknown i: v(a) - v(b) - sL i = 0;
-  * a voltage amplifier is a branch unknown i: v(a) - v(b) - A (v(cp) - v(cn)) = 0.
+  * a voltage amplifier is a branch unknown i: v(a) - v(b) - A (v(cp) - v(cn)) = 0;
+  * a bipolar transistor is the hybrid-π model (r_x to an internal base node b', rπ and Cπ
+    from b' to e, Cμ from b' to c, gm·v(b'e) and r_o from c to e); a MOSFET is gm·v(gs) and
+    r_o from d to s with C_gs, C_gd and C_db (drain to source: the body is tied to the
+    source) — tauweave's models as docs/methods.md, "Small-signal models", states them.
 """
 
 import cmath
@@ -29,6 +41,7 @@ import sys
 from decimal import Decimal
 
 import numpy as np
+import scipy.integrate
 import scipy.linalg
 import scipy.optimize
 import yaml
@@ -230,6 +243,10 @@ def load_design(path):
 # --------------------------------------------------------------------------------------------
 # The circuit and its MNA networks
 
+BOLTZMANN = 1.380649e-23  # J/K, exact in the SI since 2019 (BIPM SI Brochure, 9th ed.)
+ELEMENTARY_CHARGE = 1.602176634e-19  # C, exact likewise
+T0 = 290.0  # K: the source's noise temperature the noise figure is defined at (IEEE Std 161)
+
 WIDE = np.longdouble  # extended precision where the platform has it (x86: 64-bit mantissa)
 TWO_PI_J = 2j * np.clongdouble(np.longdouble("3.14159265358979323846264338327950288"))
 
@@ -238,23 +255,53 @@ def _pair(at):
     return (str(at[0]), str(at[1])) if isinstance(at, list) else (str(at), "gnd")
 
 
+def kelvin(text):
+    """A temperature in K or °C (`27 °C`, `27 degC`, `300 K`) as kelvin; 0 °C = 273.15 K."""
+    m = re.fullmatch(r"\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(K|°C|degC)\s*", str(text))
+    if not m:
+        raise QuantityError(f"not a temperature: {text!r}")
+    value = float(Decimal(m.group(1)))
+    return value if m.group(2) == "K" else value + 273.15
+
+
+# tauweave puts 1 pS across every junction (docs/methods.md, "Operating point"); seen from the
+# base it makes ∂I_B/∂V_CE = -1 pS in the active region (the reverse diffusion term beside it
+# is of order e^(V_BC/V_T), nil there). Kept for exactness: leaving it out moves the examples'
+# figures by up to 4e-8 relative, and the share of a contributor of 2e-8 by 2e-7.
+JUNCTION_GMIN = 1e-12
+
+
 class Circuit:
-    def __init__(self, doc):
+    def __init__(self, doc, bias=None):
+        """doc: the design; bias: {part: device} from results.json's operating_point.devices,
+        needed only when the design has transistors."""
         q = Quantities(doc.get("params"))
         self.ground = {"gnd"} | {str(k) for k in (doc.get("supplies") or {})}
+        temp = (doc.get("environment") or {}).get("temperature")
+        self.kelvin = kelvin(temp) if temp is not None else 300.15  # default 27 °C (design-format.md)
         sig, out = doc["signal"], doc["output"]
         self.sig_p, self.sig_n = _pair(sig["at"])
         self.r_sig = q.value(sig["resistance"])
         band = sig.get("band")
         self.band = (q.value(band["from"]), q.value(band["to"])) if band else None
         self.out_p, self.out_n = _pair(out["at"])
-        self.parts = []  # dicts: name, kind, a, b, value, cp, cn, set
+        # dicts: name, kind, a, b, value, cp, cn, set, and for resistors `noise`: the
+        # (part, mechanism) its thermal noise is reported under, None when noiseless.
+        self.parts = []
+        self.shot = []  # transistor noise currents: (part, mechanism, a, b, A²/Hz)
         for name, p in doc["parts"].items():
             kind = p["kind"]
+            if kind in ("bjt", "mosfet"):
+                if bias is None or str(name) not in bias:
+                    raise SystemExit(f"{name}: a transistor needs its bias from results.json (--bias)")
+                self._transistor(str(name), kind, p, bias[str(name)])
+                continue
             if kind not in ("resistor", "capacitor", "inductor", "transconductance", "voltage_amplifier"):
-                raise SystemExit(f"{name}: kind {kind} is not linear; this reference handles linear designs only")
+                raise SystemExit(f"{name}: kind {kind} is not handled by this reference")
             a, b = (str(x) for x in p["between"])
             e = {"name": str(name), "kind": kind, "a": a, "b": b, "value": q.value(p["value"])}
+            if kind == "resistor":
+                e["noise"] = (str(name), "thermal")
             if "control" in p:
                 e["cp"], e["cn"] = (str(x) for x in p["control"])
             if kind == "capacitor":
@@ -268,7 +315,7 @@ class Circuit:
             self.parts.append(e)
         if out.get("load_resistance") is not None:
             self.parts.append({"name": "load.r", "kind": "resistor", "a": self.out_p, "b": self.out_n,
-                               "value": q.value(out["load_resistance"])})
+                               "value": q.value(out["load_resistance"]), "noise": ("load", "thermal")})
         if out.get("load_capacitance") is not None:
             self.parts.append({"name": "load.c", "kind": "capacitor", "a": self.out_p, "b": self.out_n,
                                "value": q.value(out["load_capacitance"]), "set": "high"})
@@ -277,8 +324,59 @@ class Circuit:
         self.low = [e for e in caps if e["set"] == "low"]
         self.high = [e for e in caps if e["set"] == "high"]
 
-    def network(self, caps, inductors="short", rsig=True, loadr=True):
-        """MNA of one network. caps: name -> 'dyn' | 'short' | 'open' (absent = open)."""
+    def _transistor(self, name, kind, p, dev):
+        """The small-signal model of one transistor at the bias `dev` (results.json's entry:
+        ic_a, ib_a and small_signal), and its noise currents."""
+        ss = dev["small_signal"]
+        kt = BOLTZMANN * self.kelvin
+
+        def res(n, a, b, r, noise=None):
+            self.parts.append({"name": f"{name}.{n}", "kind": "resistor", "a": a, "b": b, "value": r,
+                               "noise": noise})
+
+        def vccs(n, a, b, cp, cn, g):  # g·v(cp, cn) leaves a, enters b
+            self.parts.append({"name": f"{name}.{n}", "kind": "transconductance", "a": a, "b": b,
+                               "cp": cp, "cn": cn, "value": g})
+
+        def cap(n, a, b, c):
+            if c > 0:
+                self.parts.append({"name": f"{name}.{n}", "kind": "capacitor", "a": a, "b": b, "value": c,
+                                   "set": "high"})
+
+        if kind == "bjt":
+            c, b, e = str(p["c"]), str(p["b"]), str(p["e"])
+            rx = ss.get("rx_ohm") or 0.0
+            bi = b
+            if rx > 0:  # a real resistor to an internal base node
+                bi = f"{name}.b'"
+                res("rx", b, bi, rx, noise=(name, "base_resistance"))
+            res("rpi", bi, e, ss["rpi_ohm"])  # noiseless (the shot noise below stands for it)
+            vccs("gm", c, e, bi, e, ss["gm_s"])
+            if ss.get("ro_ohm") is not None:
+                res("ro", c, e, ss["ro_ohm"])
+            vccs("gmu", bi, e, c, e, -JUNCTION_GMIN)
+            cap("cpi", bi, e, ss["cpi_f"])
+            cap("cmu", bi, c, ss["cmu_f"])
+            # Shot noise of the collector and base currents, 2q|I| (Schottky; Gray, Hurst, Lewis &
+            # Meyer, noise chapter, from memory), taken as uncorrelated.
+            self.shot.append((name, "collector_shot", c, e, 2 * ELEMENTARY_CHARGE * abs(dev["ic_a"])))
+            self.shot.append((name, "base_shot", bi, e, 2 * ELEMENTARY_CHARGE * abs(dev["ib_a"])))
+        else:
+            d, g, s_ = str(p["d"]), str(p["g"]), str(p["s"])
+            vccs("gm", d, s_, g, s_, ss["gm_s"])
+            if ss.get("ro_ohm") is not None:
+                res("ro", d, s_, ss["ro_ohm"])
+            cap("cgs", g, s_, ss["cgs_f"])
+            cap("cgd", g, d, ss["cgd_f"])
+            cap("cdb", d, s_, ss["cdb_f"])
+            # Channel thermal noise 4kTγg_m, γ = 2/3 (long channel in saturation; van der Ziel,
+            # and Razavi's noise chapter, from memory).
+            self.shot.append((name, "channel", d, s_, 4 * kt * (2 / 3) * abs(ss["gm_s"])))
+
+    def network(self, caps, inductors="short", rsig=True, loadr=True, r_sig=None):
+        """MNA of one network. caps: name -> 'dyn' | 'short' | 'open' (absent = open);
+        r_sig: the source resistance, if not the design's (rsig=False leaves it out)."""
+        r_sig = self.r_sig if r_sig is None else r_sig
         root = {}
 
         def find(n):
@@ -365,10 +463,10 @@ class Circuit:
                     add(G, k, ix(e["cn"]), e["value"])
                 k += 1
         if rsig:
-            admittance(G, self.sig_p, self.sig_n, 1 / WIDE(self.r_sig))
+            admittance(G, self.sig_p, self.sig_n, 1 / WIDE(r_sig))
             for n, sgn in ((self.sig_p, 1.0), (self.sig_n, -1.0)):
                 if ix(n) is not None:
-                    b[ix(n)] += sgn / WIDE(self.r_sig)
+                    b[ix(n)] += sgn / WIDE(r_sig)
         for n, sgn in ((self.out_p, 1.0), (self.out_n, -1.0)):
             if ix(n) is not None:
                 c[ix(n)] += sgn
@@ -571,8 +669,10 @@ def _f3db(H, f_start, target, upward, per_decade=100):
     return None
 
 
-def analyze(doc):
-    ckt = Circuit(doc)
+def analyze(doc, bias=None, noise=False):
+    """results.json's linear keys for the design `doc`; with noise=True also `noise`.
+    bias: {part: device entry of results.json}, for designs with transistors."""
+    ckt = Circuit(doc, bias)
     low, high = ckt.low, ckt.high
     short_low = {e["name"]: "short" for e in low}
 
@@ -612,12 +712,23 @@ def analyze(doc):
         w2 = 2 / (B + math.sqrt(B * B + 4 * b2 * b2))
         f2 = math.sqrt(w2) / (2 * math.pi)
 
-    # Low: short-circuit time constants (high open, other lows shorted, u = 0).
-    sctc = []
+    # Low: short-circuit time constants (high open, other lows shorted, u = 0). Low
+    # capacitors on the same two nodes (supplies counted as ground) act as one, listed as
+    # `C5 ∥ C6` where the first of them stands; one with both ends at ground (across a
+    # supply) does nothing and is left out (tauweave's convention, docs/analysis.md).
+    groups = {}
     for e in low:
-        net = ckt.network({n: "short" for n in short_low if n != e["name"]})
+        ends = frozenset("gnd" if n in ckt.ground else n for n in (e["a"], e["b"]))
+        if len(ends) == 2:
+            groups.setdefault(ends, []).append(e)
+    sctc = []
+    for members in groups.values():
+        names = {m["name"] for m in members}
+        e = members[0]
+        net = ckt.network({n: "short" for n in short_low if n not in names})
         r = _finite(resistance(net, e["a"], e["b"]), e["name"])
-        sctc.append({"part": e["name"], "r_ohm": r, "tau_s": r * e["value"], "share": None})
+        c = sum(m["value"] for m in members)
+        sctc.append({"part": " ∥ ".join(m["name"] for m in members), "r_ohm": r, "tau_s": r * c, "share": None})
     inv = [1 / row["tau_s"] if row["tau_s"] != 0 else math.inf for row in sctc]
     f_l_est = sum(inv) / (2 * math.pi) if sctc and all(math.isfinite(x) for x in inv) else None
     for row, x in zip(sctc, inv):
@@ -666,7 +777,7 @@ def analyze(doc):
     if ckt.band:
         midband["band"] = _band(H, *ckt.band)
         midband["frequency_hz"] = midband["band"]["centre_hz"]
-    return {
+    out = {
         "midband": midband,
         "high": {"f3db_hz": f_hi, "b1_s": b1, "b2_s2": b2, "dominance_ratio": dominance,
                  "second_order_f_estimate_hz": f2, "rss_f_estimate_hz": rss,
@@ -677,6 +788,18 @@ def analyze(doc):
         "poles": poles_hz,
         "zeros": zeros_hz,
     }
+    if noise:
+        # Spot values at the band centre, else at the mid-band frequency; integrated over the
+        # stated band, else between the exact −3 dB points (tauweave's definitions).
+        if ckt.band:
+            band = (*ckt.band, "stated")
+        elif f_lo is not None and f_hi is not None and f_hi > f_lo:
+            band = (f_lo, f_hi, "cutoffs")
+        else:
+            band = None
+        spot = midband["frequency_hz"]
+        out["noise"] = noise_review(ckt, spot, band) if spot else None
+    return out
 
 
 def _band(H, f1, f2):
@@ -715,11 +838,192 @@ def ckt_gain(net):
     return net["c"].astype(np.float64) @ solve(net["G"], net["b"])
 
 
+# --------------------------------------------------------------------------------------------
+# Noise
+#
+# Every noise source is an uncorrelated white current between two nodes [common practice;
+# Gray, Hurst, Lewis & Meyer, Analysis and Design of Analog Integrated Circuits, noise
+# chapter, from memory]: 4kT/R for each physical resistor (Johnson–Nyquist), 2q|I| for the
+# collector and base currents (Schottky), 4kT·(2/3)·g_m for a MOSFET channel. rπ, r_o and
+# controlled sources are noiseless. Its output density is |Z_k(f)|²·S_k, Z_k the transfer
+# from that current to the output voltage, and the densities add.
+#
+# tauweave finds every Z_k from one adjoint (transposed) solve per frequency. This reference
+# does NOT use the adjoint: it solves the network directly for each source — one right-hand
+# side per source (a unit current out of one node and into the other), all against the one
+# matrix G + j2πf·C of that frequency — and reads each output voltage: the same numbers by
+# another route.
+
+
+def noise_sources(ckt, source=True):
+    """Every noise current: (part, mechanism, a, b, S in A²/Hz, is_source). The signal
+    source's resistance is at T0, every other part at the design temperature."""
+    out = []
+    for e in ckt.parts:
+        if e["kind"] == "resistor" and e.get("noise") and e["value"] > 0:
+            out.append((*e["noise"], e["a"], e["b"], 4 * BOLTZMANN * ckt.kelvin / e["value"], False))
+    out += [(*shot, False) for shot in ckt.shot]
+    if source:
+        out.append(("source", "thermal", ckt.sig_p, ckt.sig_n, 4 * BOLTZMANN * T0 / ckt.r_sig, True))
+    return out
+
+
+def _excitations(net, sources, inject_at=None):
+    """Right-hand sides, one column each: the signal (u = 1), a unit current from a to b for
+    each source, and last a unit current into `inject_at` from ground (zero without one)."""
+    ix = net["ix"]
+    D = np.zeros((len(net["b"]), 2 + len(sources)), dtype=WIDE)
+    D[:, 0] = net["b"]
+    for k, src in enumerate(sources, start=1):
+        for node, sgn in ((src[2], -1.0), (src[3], 1.0)):
+            if ix(node) is not None:
+                D[ix(node), k] += sgn
+    if inject_at is not None and ix(inject_at) is not None:
+        D[ix(inject_at), -1] = 1.0
+    return D
+
+
+def _outputs(net, D, f):
+    """The output voltage (complex) for each column of D at s = j2πf, from one direct solve."""
+    X = solve(net["G"] + TWO_PI_J * WIDE(f) * net["C"], D.astype(np.clongdouble))
+    return np.array([complex(v) for v in net["c"].astype(np.clongdouble) @ X])
+
+
+def _spectrum(net, sources, D, f):
+    """(|H|, each source's output density V²/Hz, |Z| of the extra column) at f."""
+    z = _outputs(net, D, f)
+    dens = np.array([s[4] for s in sources])
+    return abs(z[0]), np.abs(z[1:-1]) ** 2 * dens, abs(z[-1])
+
+
+def _integrate(g, f1, f2):
+    """∫ g(f) df over [f1, f2] of a vector g of non-negative densities, in u = ln f as
+    ∫ g(e^u)·e^u du, by scipy's adaptive Gauss–Kronrod rule for vector integrands
+    (scipy.integrate.quad_vec, 21 points; the QUADPACK scheme of Piessens et al., 1983, from
+    memory) to 1e-12 relative. A first fixed Gauss–Legendre pass (16 points on each of
+    max(16, 4·decades) panels) gives each component's size, and the adaptive pass integrates
+    every component divided by it, so that the tolerance holds for each component and not
+    only for the largest (components below 1e-12 of the largest are held to 1e-24 of it)."""
+    a, b = math.log(f1), math.log(f2)
+    h = lambda u: g(math.exp(u)) * math.exp(u)  # noqa: E731
+    panels = max(16, int(math.ceil(4 * (b - a) / math.log(10))))
+    x, w = np.polynomial.legendre.leggauss(16)
+    edges = np.linspace(a, b, panels + 1)
+    rough = sum(0.5 * (hi - lo) * sum(wk * h(0.5 * (hi - lo) * xk + 0.5 * (hi + lo)) for xk, wk in zip(x, w))
+                for lo, hi in zip(edges[:-1], edges[1:]))
+    scale = np.maximum(np.abs(rough), 1e-12 * np.max(np.abs(rough)))
+    scale[scale == 0] = 1.0
+    res, err = scipy.integrate.quad_vec(lambda u: h(u) / scale, a, b, epsabs=0.0, epsrel=1e-12, norm="max",
+                                        limit=100000, points=edges[1:-1])
+    if not err <= 1e-10 * np.max(np.abs(res)):
+        raise ArithmeticError(f"noise integral over {f1:g}…{f2:g} Hz did not converge (error {err:g})")
+    return res * scale
+
+
+def noise_review(ckt, spot_hz, band):
+    """tauweave's `noise` object (results.json), on the full network (every capacitor and
+    inductor present, u = 0). band: (from, to, basis) or None."""
+    dyn = {e["name"]: "dyn" for e in ckt.low + ckt.high}
+    full = ckt.network(dyn, inductors="dyn")
+    srcs = noise_sources(ckt)
+    D = _excitations(full, srcs)
+    try:
+        gain, each, _ = _spectrum(full, srcs, D, spot_hz)
+    except np.linalg.LinAlgError:
+        return None
+    total = float(np.sum(each))
+    from_source = float(sum(v for v, s in zip(each, srcs) if s[5]))
+    factor = total / from_source if from_source > 0 else None
+
+    # Equivalent input generators [Gray, Hurst, Lewis & Meyer, noise chapter, from memory]:
+    # the stage's own sources (all but the source resistance) with the source shorted
+    # (1 µΩ, as tauweave defines it) referred by that network's gain -> e_n²; with the source
+    # open referred by the transimpedance from a current into the input node -> i_n².
+    own = noise_sources(ckt, source=False)
+    e2 = i2 = None
+    try:
+        short = ckt.network(dyn, inductors="dyn", r_sig=1e-6)
+        g_short, each_short, _ = _spectrum(short, own, _excitations(short, own), spot_hz)
+        opened = ckt.network(dyn, inductors="dyn", rsig=False)
+        _, each_open, z_t = _spectrum(opened, own, _excitations(opened, own, inject_at=ckt.sig_p), spot_hz)
+        if g_short > 0 and z_t > 0:
+            e2, i2 = float(np.sum(each_short)) / g_short**2, float(np.sum(each_open)) / z_t**2
+    except np.linalg.LinAlgError:
+        pass
+    # The optimum source resistance and the noise factor there, e_n and i_n uncorrelated:
+    # R_opt = e_n/i_n, F_min = 1 + 2·e_n·i_n/(4kT0) [same source, from memory].
+    r_opt = nf_min = None
+    if e2 is not None and e2 > 0 and i2 > 0:
+        r_opt = math.sqrt(e2 / i2)
+        nf_min = 10 * math.log10(1 + 2 * math.sqrt(e2 * i2) / (4 * BOLTZMANN * T0))
+
+    band_out, sums = None, None
+    if band:
+        f1, f2, basis = band
+
+        def densities(f):
+            g, ev, _ = _spectrum(full, srcs, D, f)
+            if not g > 0:
+                raise ZeroDivisionError(f"no gain at {f:g} Hz")  # nothing to refer the noise to
+            return np.append(ev, np.sum(ev) / g**2)
+
+        try:
+            sums = _integrate(densities, f1, f2)
+        except (ZeroDivisionError, np.linalg.LinAlgError):
+            sums = None  # as tauweave: no band figures where the band cannot be integrated
+        if sums is not None:
+            band_out = {"start_hz": f1, "stop_hz": f2, "basis": basis,
+                        "output_rms_v": math.sqrt(float(np.sum(sums[:-1]))),
+                        "input_rms_v": math.sqrt(float(sums[-1]))}
+
+    groups = {}  # (part, mechanism) -> [spot density, band integral]
+    for k, src in enumerate(srcs):
+        acc = groups.setdefault((src[0], src[1]), [0.0, 0.0])
+        acc[0] += float(each[k])
+        acc[1] += float(sums[k]) if sums is not None else 0.0
+    band_total = float(np.sum(sums[:-1])) if sums is not None else None
+    contributors = [{"part": part, "mechanism": mech, "density_v2_per_hz": v,
+                     "share": v / total if total > 0 else 0.0,
+                     "band_share": (b / band_total if band_total > 0 else 0.0) if sums is not None else None}
+                    for (part, mech), (v, b) in groups.items()]
+    contributors.sort(key=lambda c: (-c["share"], c["part"]))
+    return {
+        "temperature_k": ckt.kelvin,
+        "source_resistance_ohm": ckt.r_sig,
+        "spot_frequency_hz": spot_hz,
+        "output_density_v_per_rthz": math.sqrt(total),
+        "input_density_v_per_rthz": math.sqrt(total) / gain if gain > 0 else None,
+        "noise_factor": factor,
+        "noise_figure_db": 10 * math.log10(factor) if factor else None,
+        "e_n_v_per_rthz": math.sqrt(e2) if e2 is not None else None,
+        "i_n_a_per_rthz": math.sqrt(i2) if i2 is not None else None,
+        "r_opt_ohm": r_opt,
+        "nf_min_db": nf_min,
+        "band": band_out,
+        "contributors": contributors,
+    }
+
+
 def main(argv):
-    if len(argv) != 2:
+    args, bias_path, with_noise = [], None, False
+    rest = list(argv[1:])
+    while rest:
+        a = rest.pop(0)
+        if a == "--bias" and rest:
+            bias_path = rest.pop(0)
+        elif a == "--noise":
+            with_noise = True
+        else:
+            args.append(a)
+    if len(args) != 1:
         print(__doc__.strip().splitlines()[2], file=sys.stderr)
         return 2
-    result = analyze(load_design(argv[1]))
+    bias = None
+    if bias_path:
+        with open(bias_path, encoding="utf-8") as f:
+            op = json.load(f).get("operating_point") or {}
+        bias = {d["part"]: d for d in op.get("devices") or []}
+    result = analyze(load_design(args[0]), bias=bias, noise=with_noise)
     print(json.dumps(result, indent=2, allow_nan=False))
     return 0
 

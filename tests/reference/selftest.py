@@ -38,10 +38,15 @@ def truth(what, cond, detail=""):
         FAILURES.append(f"{what}: {detail}")
 
 
-def design(parts, at="in", rsig=50.0, out="out", load_r=None, load_c=None, supplies=None, params=None):
+def design(parts, at="in", rsig=50.0, out="out", load_r=None, load_c=None, supplies=None, params=None,
+           temperature=None, band=None):
     doc = {"tauweave": 1,
            "design": {"id": "selftest", "title": "selftest", "revision": "A", "date": "2026-12-01"},
            "signal": {"at": at, "resistance": rsig}, "output": {"at": out}, "parts": parts}
+    if temperature is not None:
+        doc["environment"] = {"temperature": temperature}
+    if band is not None:
+        doc["signal"]["band"] = {"from": band[0], "to": band[1]}
     if load_r is not None:
         doc["output"]["load_resistance"] = load_r
     if load_c is not None:
@@ -378,10 +383,174 @@ def check_random_networks():
     truth("random networks: enough usable draws", done >= 10, done)
 
 
+# --------------------------------------------------------------------------------------------
+# Noise. k and q are exact in the SI [pub: BIPM SI Brochure, 9th ed.]; T0 = 290 K [IEEE Std 161,
+# from memory].
+K, Q, T0 = 1.380649e-23, 1.602176634e-19, 290.0
+
+
+def contributor(noise, part, mechanism="thermal"):
+    return next(c for c in noise["contributors"] if (c["part"], c["mechanism"]) == (part, mechanism))
+
+
+def check_noise_kt_over_c():
+    # The kT/C identity [common practice; Johnson–Nyquist noise into a capacitor]: a resistance R
+    # at temperature T into C gives 4kTR/(1 + (2πfRC)²) at the output, whose integral over
+    # [f1, f2] is (2kT/(πC))·(atan(2πf2RC) − atan(2πf1RC)) → kT/C over all f. With the source's
+    # Rs at T0 and R1 at T in series the density is 4k(T0·Rs + T·R1)/(1 + (ωRC)²): T is the
+    # resistance-weighted mean [derived].
+    rs, r1, c, t = 1e3, 9e3, 1e-9, 350.0
+    r = rs + r1
+    fc = 1 / (2 * math.pi * r * c)
+    f1, f2 = fc * 1e-7, fc * 1e7
+    res = ref.analyze(design({"R1": R("in", "out", r1), "C1": Cap("out", "gnd", c, "parasitic")}, rsig=rs,
+                             temperature="350 K", band=(f1, f2)), noise=True)
+    nz = res["noise"]
+    t_mean = (T0 * rs + t * r1) / r
+    want = 2 * K * t_mean / (math.pi * c) * (math.atan(f2 / fc) - math.atan(f1 / fc))
+    close("kT/C: ∫ output noise over 14 decades", nz["band"]["output_rms_v"] ** 2, want, 1e-10)
+    close("kT/C: within 1e-6 of kT_mean/C", nz["band"]["output_rms_v"] ** 2, K * t_mean / c, 1e-6)
+    close("kT/C: R1's band share = T·R1/(T0·Rs + T·R1)", contributor(nz, "R1")["band_share"],
+          t * r1 / (T0 * rs + t * r1), 1e-10)
+    # Referred to the EMF the density is white, 4k(T0·Rs + T·R1): its integral is that times
+    # the bandwidth [derived].
+    close("kT/C: input-referred rms² = 4k(T0 Rs + T R1)(f2 − f1)", nz["band"]["input_rms_v"] ** 2,
+          4 * K * (T0 * rs + t * r1) * (f2 - f1), 1e-10)
+    close("kT/C: F = 1 + T·R1/(T0·Rs)", nz["noise_factor"], 1 + t * r1 / (T0 * rs), 1e-12)
+
+
+def check_noise_divider():
+    # 4kTR through a divider [Johnson–Nyquist, common practice; derived]: Rs at T0, R1 from in
+    # to out and R2 from out to ground at T. Output: R2's current noise sees R2 ∥ (Rs + R1);
+    # Rs's and R1's voltages are divided by R2/(Rs + R1 + R2).
+    rs, r1, r2, t = 1e3, 2.2e3, 4.7e3, 350.0
+    ckt = ref.Circuit(design({"R1": R("in", "out", r1), "R2": R("out", "gnd", r2)}, rsig=rs, temperature="76.85 °C"))
+    close("divider: 76.85 °C = 350 K", ckt.kelvin, t, 1e-15)
+    nz = ref.noise_review(ckt, 1e3, None)
+    div = r2 / (rs + r1 + r2)
+    want = 4 * K * (t * r2 * (rs + r1) ** 2 / (rs + r1 + r2) ** 2 + (T0 * rs + t * r1) * div * div)
+    close("divider: output density", nz["output_density_v_per_rthz"] ** 2, want, 1e-12)
+    close("divider: F", nz["noise_factor"], want / (4 * K * T0 * rs * div * div), 1e-12)
+    close("divider: input density² = output/|H|²", nz["input_density_v_per_rthz"] ** 2, want / div ** 2, 1e-12)
+    # Source shorted: out sees R1 ∥ R2, gain R2/(R1 + R2) -> e_n² = 4kT·R1(R1 + R2)/R2. Source
+    # open: R1's noise circulates in R1 alone; R2's gives 4kT·R2 at out; a current into `in`
+    # gives R2 volts -> i_n² = 4kT/R2. R_opt = √(R1(R1 + R2)) [derived]. The 1 µΩ "short" is
+    # 1e-6/R1 relative off.
+    e2, i2 = 4 * K * t * r1 * (r1 + r2) / r2, 4 * K * t / r2
+    close("divider: e_n²", nz["e_n_v_per_rthz"] ** 2, e2, 1e-8)
+    close("divider: i_n²", nz["i_n_a_per_rthz"] ** 2, i2, 1e-12)
+    close("divider: R_opt", nz["r_opt_ohm"], math.sqrt(r1 * (r1 + r2)), 1e-8)
+    close("divider: NF_min", nz["nf_min_db"], 10 * math.log10(1 + 2 * math.sqrt(e2 * i2) / (4 * K * T0)), 1e-8)
+
+
+def check_noise_transistors():
+    # Common emitter, emitter grounded, no capacitance and no r_o, collector resistor RC to
+    # the supply, output at the collector; the bias is written here as results.json would give
+    # it. Input-referred, derived by hand from the hybrid-π model (r_x to b', rπ, gm):
+    #   shorted source: e_n² = 4kT·r_x + 2qI_B·r_x² + (2qI_C + 4kT/RC)·((1 + r_x/rπ)/g_m)²
+    #   open source:    i_n² = 2qI_B + (2qI_C + 4kT/RC)/β²,  β = g_m·rπ
+    #   from Rs at T0:  F = 1 + [4kT·r_x + 2qI_B(Rs + r_x)² + (2qI_C + 4kT/RC)((Rs + r_x + rπ)/β)²]/(4kT0·Rs)
+    t, ic, beta, rx, rc, rs = 300.0, 1e-3, 100.0, 10.0, 100e3, 1e3
+    gm = ic * Q / (K * t)
+    rpi, ib = beta / gm, ic / beta
+    bias = {"Q1": {"part": "Q1", "ic_a": ic, "ib_a": ib,
+                   "small_signal": {"gm_s": gm, "rpi_ohm": rpi, "rx_ohm": rx, "ro_ohm": None, "cpi_f": 0.0,
+                                    "cmu_f": 0.0}}}
+    parts = {"RC": R("vcc", "c", rc), "Q1": {"kind": "bjt", "model": "N", "c": "c", "b": "in", "e": "gnd"}}
+    saved, ref.JUNCTION_GMIN = ref.JUNCTION_GMIN, 0.0  # the pure hybrid-π of the derivation
+    try:
+        ckt = ref.Circuit(design(parts, rsig=rs, out="c", supplies={"vcc": 12}, temperature="300 K"), bias)
+    finally:
+        ref.JUNCTION_GMIN = saved
+    nz = ref.noise_review(ckt, 1e3, None)
+    tail = 2 * Q * ic + 4 * K * t / rc
+    e2 = 4 * K * t * rx + 2 * Q * ib * rx ** 2 + tail * ((1 + rx / rpi) / gm) ** 2
+    i2 = 2 * Q * ib + tail / beta ** 2
+    added = 4 * K * t * rx + 2 * Q * ib * (rs + rx) ** 2 + tail * ((rs + rx + rpi) / beta) ** 2
+    close("CE noise: e_n² (hybrid-π, by hand)", nz["e_n_v_per_rthz"] ** 2, e2, 1e-7)
+    close("CE noise: i_n² (hybrid-π, by hand)", nz["i_n_a_per_rthz"] ** 2, i2, 1e-12)
+    close("CE noise: F from 1 kΩ (hybrid-π, by hand)", nz["noise_factor"], 1 + added / (4 * K * T0 * rs), 1e-12)
+    close("CE noise: base shot density at the output", contributor(nz, "Q1", "base_shot")["density_v2_per_hz"],
+          2 * Q * ib * (rs + rx) ** 2 * (gm * rc * rpi / (rs + rx + rpi)) ** 2, 1e-12)
+    # [memory: Gray, Hurst, Lewis & Meyer, noise chapter] e_n² ≈ 4kT(r_x + 1/(2g_m)) and
+    # i_n² ≈ 2qI_B, each neglecting terms of order r_x/rπ and 1/β.
+    close("CE noise: e_n² ≈ 4kT(r_x + 1/(2g_m))", nz["e_n_v_per_rthz"] ** 2, 4 * K * t * (rx + 0.5 / gm), 0.01)
+    close("CE noise: i_n² ≈ 2qI_B", nz["i_n_a_per_rthz"] ** 2, 2 * Q * ib, 0.02)
+
+    # Common source, source grounded, drain resistor RD; e_n² = 4kTγ/g_m + 4kT/(RD·g_m²), γ = 2/3,
+    # exactly for this circuit [derived; the first term: memory, Razavi, noise chapter]; the
+    # gate draws nothing, so i_n² = 0 and R_opt, NF_min are absent.
+    gm, rd = 5e-3, 2e3
+    bias = {"M1": {"part": "M1", "small_signal": {"gm_s": gm, "ro_ohm": None, "cgs_f": 0.0, "cgd_f": 0.0,
+                                                  "cdb_f": 0.0}}}
+    parts = {"RG": R("in", "gnd", 1e6), "RD": R("vdd", "d", rd),
+             "M1": {"kind": "mosfet", "model": "N", "d": "d", "g": "in", "s": "gnd"}}
+    ckt = ref.Circuit(design(parts, rsig=1e3, out="d", supplies={"vdd": 5}, temperature="300 K"), bias)
+    nz = ref.noise_review(ckt, 1e3, None)
+    close("CS noise: e_n² = 4kT(γ/g_m + 1/(RD g_m²))", nz["e_n_v_per_rthz"] ** 2,
+          4 * K * 300 * (2 / 3 / gm + 1 / (rd * gm * gm)), 1e-8)
+    close("CS noise: channel density at the output = 4kTγg_m·RD²",
+          contributor(nz, "M1", "channel")["density_v2_per_hz"], 4 * K * 300 * 2 / 3 * gm * rd * rd, 1e-12)
+
+
+def check_noise_nyquist():
+    # Nyquist's theorem for a passive reciprocal network at one temperature T: the noise at a
+    # port is 4kT·Re Z(jω), Z the port's impedance [memory: Nyquist, Phys. Rev. 32, 1928, and
+    # its extension to any passive reciprocal network]. The reference sums |Z_k|²·4kT/R_k over every resistor
+    # instead; on seeded random RC networks at T = T0 (so the source is at the same
+    # temperature) the two agree. Z comes from one more solve, a unit current into the output.
+    import random
+    done = 0
+    for seed in range(20):
+        rnd = random.Random(1000 + seed)
+        nodes = [f"n{i}" for i in range(1, 6)]
+        parts = {f"RG{i}": R(n, "gnd", 10 ** rnd.uniform(2, 5)) for i, n in enumerate(nodes)}
+        for k in range(5):
+            a, b = rnd.sample(nodes, 2)
+            parts[f"R{k}"] = R(a, b, 10 ** rnd.uniform(1, 5))
+        for k in range(3):
+            a, b = rnd.sample(nodes + ["gnd"], 2)
+            parts[f"CH{k}"] = Cap(a, b, 10 ** rnd.uniform(-12, -10), "parasitic")
+        a, b = rnd.sample(nodes + ["gnd"], 2)
+        parts["CL0"] = Cap(a, b, 10 ** rnd.uniform(-7, -6), "coupling")
+        ckt = ref.Circuit(design(parts, at="n1", rsig=50 + 1e3 * rnd.random(), out="n5", load_r=1e4,
+                                 temperature="290 K"))
+        full = ckt.network({e["name"]: "dyn" for e in ckt.low + ckt.high}, inductors="dyn")
+        for f in (10 ** rnd.uniform(2, 8), 10 ** rnd.uniform(2, 8)):
+            nz = ref.noise_review(ckt, f, None)
+            d = np.zeros(len(full["b"]))
+            d[full["ix"]("n5")] = 1.0
+            v = ref.solve(full["G"] + 2j * math.pi * f * full["C"], d.astype(complex))
+            z = complex(full["c"].astype(complex) @ v)
+            close(f"Nyquist, random RC {seed} at {f:.4g} Hz: Σ|Z_k|²·4kT/R_k = 4kT·Re Z_out",
+                  nz["output_density_v_per_rthz"] ** 2, 4 * K * T0 * z.real, 1e-11)
+            done += 1
+    truth("Nyquist: every draw checked", done == 40, done)
+
+
+def check_noise_identities():
+    # On every reference design (noise on): the shares sum to 1 at the spot frequency and over
+    # the band, the densities sum to the output density, the input-referred density is the
+    # output's over |H|, and NF = 10·log10 F [derived from the definitions, docs/methods.md, Noise].
+    for path in sorted(glob.glob(os.path.join(HERE, "designs", "*.yaml"))):
+        name = os.path.basename(path)
+        nz = ref.analyze(ref.load_design(path), noise=True)["noise"]
+        total = nz["output_density_v_per_rthz"] ** 2
+        close(f"{name}: Σ contributor densities = output density²",
+              sum(c["density_v2_per_hz"] for c in nz["contributors"]), total, 1e-12)
+        close(f"{name}: Σ shares = 1", sum(c["share"] for c in nz["contributors"]), 1.0, 1e-12)
+        if nz["band"]:
+            close(f"{name}: Σ band shares = 1", sum(c["band_share"] for c in nz["contributors"]), 1.0, 1e-12)
+        close(f"{name}: NF = 10 log10 F", nz["noise_figure_db"], 10 * math.log10(nz["noise_factor"]), 1e-12)
+        close(f"{name}: F = total / source's", nz["noise_factor"],
+              total / contributor(nz, "source")["density_v2_per_hz"], 1e-12)
+
+
 def main():
     for check in (check_quantities, check_single_pole, check_ce_gray_meyer, check_ce_degenerated,
                   check_cs_razavi, check_cs_published, check_follower, check_isolated_sections,
-                  check_classification, check_identities, check_random_networks):
+                  check_classification, check_identities, check_random_networks, check_noise_kt_over_c,
+                  check_noise_divider, check_noise_transistors, check_noise_nyquist, check_noise_identities):
         try:
             check()
         except Exception as exc:  # a crash is a failure too
