@@ -293,18 +293,7 @@ pub fn device_elements(
             let cmu = devices::depletion_capacitance(p.cjc, vbc_n);
             let tf = devices::transit_time(p, cje, cmu, vt);
             let cpi = tf * gm + cje;
-            for (suffix, a, bb, c) in [("cpi", bi, *e, cpi), ("cmu", bi, *c, cmu)] {
-                if c > 0.0 {
-                    elements.push(Linear::Capacitor {
-                        name: format!("{name}.{suffix}"),
-                        a,
-                        b: bb,
-                        c,
-                        set: CapSet::High,
-                        reason: CapReason::Device,
-                    });
-                }
-            }
+            device_capacitors(&mut elements, name, [("cpi", bi, *e, cpi), ("cmu", bi, *c, cmu)]);
             let small = SmallSignal {
                 part: name.clone(),
                 gm_s: gm,
@@ -348,20 +337,8 @@ pub fn device_elements(
             };
             let cgs = p.cgs_direct.unwrap_or(cgs_channel + p.overlap_f);
             let cgd = p.cgd_direct.unwrap_or(cgd_channel + p.overlap_f);
-            for (suffix, a, bb, c) in
-                [("cgs", *g, *s, cgs), ("cgd", *g, *d, cgd), ("cdb", *d, *s, p.cdb)]
-            {
-                if c > 0.0 {
-                    elements.push(Linear::Capacitor {
-                        name: format!("{name}.{suffix}"),
-                        a,
-                        b: bb,
-                        c,
-                        set: CapSet::High,
-                        reason: CapReason::Device,
-                    });
-                }
-            }
+            let caps = [("cgs", *g, *s, cgs), ("cgd", *g, *d, cgd), ("cdb", *d, *s, p.cdb)];
+            device_capacitors(&mut elements, name, caps);
             let small = SmallSignal {
                 part: name.clone(),
                 gm_s: eval.gm,
@@ -380,5 +357,26 @@ pub fn device_elements(
             Some((elements, small))
         }
         _ => None,
+    }
+}
+
+/// Appends a transistor's capacitances that are not zero, each named `{device}.{suffix}`,
+/// to the high-frequency set.
+fn device_capacitors<const N: usize>(
+    elements: &mut Vec<Linear>,
+    device: &str,
+    caps: [(&str, usize, usize, f64); N],
+) {
+    for (suffix, a, b, c) in caps {
+        if c > 0.0 {
+            elements.push(Linear::Capacitor {
+                name: format!("{device}.{suffix}"),
+                a,
+                b,
+                c,
+                set: CapSet::High,
+                reason: CapReason::Device,
+            });
+        }
     }
 }

@@ -15,7 +15,7 @@ use std::path::Path;
 
 use serde_json::Value;
 
-use crate::support::{files, python, root, run_in, scratch};
+use crate::support::{files, python, reference_with, root, run_in, scratch};
 
 /// Relative agreement required of every number.
 const TOLERANCE: f64 = 1e-6;
@@ -137,20 +137,7 @@ fn key_contributors(results: &mut Value) {
 /// The reference's results for `design`, with the transistors' bias read from `results`
 /// and the noise analysis on.
 fn reference_with_noise(design: &Path, results: &Path) -> Value {
-    let out = python(&[
-        "tests/reference/mna_reference.py",
-        design.to_str().unwrap(),
-        "--bias",
-        results.to_str().unwrap(),
-        "--noise",
-    ]);
-    assert!(
-        out.status.success(),
-        "{}: the reference failed (run scripts/test for numpy, scipy and PyYAML):\n{}",
-        design.display(),
-        String::from_utf8_lossy(&out.stderr)
-    );
-    serde_json::from_slice(&out.stdout).expect("the reference prints JSON")
+    reference_with(design, &["--bias", results.to_str().unwrap(), "--noise"])
 }
 
 /// Renders `design`, runs the reference on it and compares: the mismatches, the largest gap

@@ -42,7 +42,14 @@ pub fn python(args: &[&str]) -> Output {
 /// What the independent reference, tests/reference/mna_reference.py, computes for the
 /// linear design at `design`: the results.json keys it knows, from its own nodal analysis.
 pub fn reference_results(design: &Path) -> serde_json::Value {
-    let out = python(&["tests/reference/mna_reference.py", design.to_str().unwrap()]);
+    reference_with(design, &[])
+}
+
+/// [`reference_results`] with further arguments to the reference (`--bias FILE`, `--noise`).
+pub fn reference_with(design: &Path, extra: &[&str]) -> serde_json::Value {
+    let mut args = vec!["tests/reference/mna_reference.py", design.to_str().unwrap()];
+    args.extend_from_slice(extra);
+    let out = python(&args);
     assert!(
         out.status.success(),
         "{}: the reference failed (run scripts/test for numpy, scipy and PyYAML):\n{}",
