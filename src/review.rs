@@ -63,7 +63,7 @@ impl Review {
 pub fn review(design: &Design, options: &ReviewOptions) -> Result<Review, AnalysisError> {
     (options.progress)(Progress { stage: Stage::Analysis, done: 0, total: 0 });
     let analysis = analysis::analyze(design)?;
-    let nominal = analysis.metrics();
+    let nominal = analysis.metrics(&design.requirements);
     let names = analysis.device_names();
     let study = tolerance::study(design, &nominal, &names, options.runs, options.progress);
     let mut checks = requirements::check(&design.requirements, &analysis);
@@ -123,7 +123,7 @@ mod tests {
                 .unwrap_or_else(|| panic!("{} reads", path.display()));
             let full = analysis::analyze(&design).unwrap();
             let lean = analysis::metrics(&design).unwrap();
-            assert_eq!(full.metrics(), lean, "{}", path.display());
+            assert_eq!(full.metrics(&design.requirements), lean, "{}", path.display());
             assert!(lean.f_high.is_some() && lean.gain > 0.0, "{}", path.display());
         }
     }

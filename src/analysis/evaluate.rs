@@ -56,6 +56,10 @@ struct Core {
     f_low: Option<f64>,
     /// |H| across the design's operating band, when it states one.
     band: Option<(Band, BandResponse)>,
+    /// The noise figures a requirement may limit, computed where one does.
+    noise: noise::Figures,
+    /// Whether the noise figure, the input density and the output noise are limited.
+    noise_limits: [bool; 3],
 }
 
 /// The lean evaluation tolerance work repeats: operating point, mid-band, the time-constant
@@ -195,6 +199,24 @@ fn core(design: &Design, near: Option<&OperatingPoint>) -> Result<Core, Analysis
         exact_cutoffs(&transfer, gain, frequency_hz, settings, sides, (f_low_est, f_high_est));
     let band =
         design.signal.band.and_then(|b| response::band_response(&transfer, b).map(|r| (b, r)));
+    let req = &design.requirements;
+    let wanted = noise::Wanted {
+        spot: req.noise_figure.is_some() || req.input_noise_density.is_some(),
+        band: req.output_noise.is_some(),
+    };
+    let (spot_hz, noise_band) = noise_where(band.map(|(b, _)| b), frequency_hz, f_low, f_high);
+    let noise = noise::figures(
+        &noise::Request {
+            lin: &lin,
+            op: op.as_ref(),
+            mna: &full,
+            kelvin: net.temperature_k,
+            spot_hz,
+            band: noise_band,
+            frequencies: &[],
+        },
+        wanted,
+    );
     Ok(Core {
         net,
         op,
@@ -217,7 +239,30 @@ fn core(design: &Design, near: Option<&OperatingPoint>) -> Result<Core, Analysis
         f_high,
         f_low,
         band,
+        noise,
+        noise_limits: [
+            req.noise_figure.is_some(),
+            req.input_noise_density.is_some(),
+            req.output_noise.is_some(),
+        ],
     })
+}
+
+/// Where noise is reviewed: the spot frequency (the stated band's centre, else mid-band)
+/// and the band it is integrated over (the stated band, else between the exact cut-offs).
+fn noise_where(
+    band: Option<Band>,
+    midband_hz: f64,
+    f_low: Option<f64>,
+    f_high: Option<f64>,
+) -> (f64, Option<(f64, f64, noise::BandBasis)>) {
+    let spot = band.map_or(midband_hz, |b| b.centre_hz());
+    let integrated = match (band, f_low, f_high) {
+        (Some(b), _, _) => Some((b.from_hz, b.to_hz, noise::BandBasis::Stated)),
+        (None, Some(lo), Some(hi)) if hi > lo => Some((lo, hi, noise::BandBasis::Cutoffs)),
+        _ => None,
+    };
+    (spot, integrated)
 }
 
 impl Core {
@@ -235,6 +280,9 @@ impl Core {
             r_in: self.input_resistance,
             r_out: self.output_resistance,
             bias,
+            noise_figure_db: self.noise.noise_figure_db.filter(|_| self.noise_limits[0]),
+            input_noise: self.noise.input_density.filter(|_| self.noise_limits[1]),
+            output_noise: self.noise.output_rms.filter(|_| self.noise_limits[2]),
         }
     }
 
@@ -267,12 +315,8 @@ impl Core {
         let capacitors = capacitor_classes(&self.lin);
         let operating_point = self.operating_point_report();
         // With a stated band, mid-band is its centre; otherwise between the estimates.
-        let frequency_hz = self.band.map_or(self.frequency_hz, |(b, _)| b.centre_hz());
-        let noise_band = match (self.band, f_low, f_high) {
-            (Some((b, _)), _, _) => Some((b.from_hz, b.to_hz, noise::BandBasis::Stated)),
-            (None, Some(lo), Some(hi)) if hi > lo => Some((lo, hi, noise::BandBasis::Cutoffs)),
-            _ => None,
-        };
+        let (frequency_hz, noise_band) =
+            noise_where(self.band.map(|(b, _)| b), self.frequency_hz, f_low, f_high);
         let noise = noise::review(&noise::Request {
             lin: &self.lin,
             op: self.op.as_ref(),
@@ -740,7 +784,7 @@ mod tests {
     #[test]
     fn the_lean_figures_are_the_full_analysis_figures() {
         let d = band_pass();
-        assert_eq!(metrics(&d).unwrap(), analyze(&d).unwrap().metrics());
+        assert_eq!(metrics(&d).unwrap(), analyze(&d).unwrap().metrics(&d.requirements));
     }
 
     #[test]

@@ -347,13 +347,22 @@ pub struct Metrics {
     pub r_out: Option<f64>,
     /// |I_C| or |I_D| of each transistor, A.
     pub bias: Vec<f64>,
+    /// Spot noise figure, dB — only when a requirement limits it: noise figures are
+    /// followed through the tolerance study when the design asks about them.
+    pub noise_figure_db: Option<f64>,
+    /// Spot input-referred noise density, V/√Hz, when a requirement limits it.
+    pub input_noise: Option<f64>,
+    /// rms output noise over the band, V, when a requirement limits it.
+    pub output_noise: Option<f64>,
 }
 
 impl Analysis {
     /// The figures tolerance work follows, read off this analysis: the same values
-    /// [`metrics`] computes for the same design (a unit test holds the two together).
-    pub fn metrics(&self) -> Metrics {
+    /// [`metrics`] computes for the same design (a unit test holds the two together), the
+    /// noise figures only where `req` limits them.
+    pub fn metrics(&self, req: &crate::design::Requirements) -> Metrics {
         let band = self.midband.band.as_ref();
+        let noise = self.noise.as_ref();
         Metrics {
             gain: band.map_or(self.midband.gain.abs(), |b| b.centre_gain),
             flatness_db: band.map(|b| b.flatness_db),
@@ -368,6 +377,16 @@ impl Analysis {
                     op.devices.iter().map(|d| evaluate::bias_current(&d.bias.state)).collect()
                 })
                 .unwrap_or_default(),
+            noise_figure_db: noise
+                .and_then(|n| n.noise_figure_db)
+                .filter(|_| req.noise_figure.is_some()),
+            input_noise: noise
+                .and_then(|n| n.input_density_v_per_rthz)
+                .filter(|_| req.input_noise_density.is_some()),
+            output_noise: noise
+                .and_then(|n| n.band.as_ref())
+                .map(|b| b.output_rms_v)
+                .filter(|_| req.output_noise.is_some()),
         }
     }
 

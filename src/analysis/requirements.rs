@@ -14,9 +14,10 @@ use crate::design::Requirements;
 #[derive(Clone, Debug, Serialize)]
 pub struct RequirementCheck {
     /// `midband_gain`, `gain_flatness`, `upper_cutoff`, `lower_cutoff`, `input_resistance`,
-    /// `output_resistance`.
+    /// `output_resistance`, `noise_figure`, `input_noise_density`, `output_noise`.
     pub name: &'static str,
-    /// SI unit of the value ("" for a gain in V/V, "dB" for the flatness).
+    /// SI unit of the value ("" for a gain in V/V, "dB" for the flatness and the noise
+    /// figure).
     pub unit: &'static str,
     /// Lowest allowed.
     pub min: Option<f64>,
@@ -103,6 +104,9 @@ pub fn unit_of(name: &str) -> &'static str {
         "midband_gain" => "",
         "gain_flatness" => "dB",
         "upper_cutoff" | "lower_cutoff" => "Hz",
+        "noise_figure" => "dB",
+        "input_noise_density" => "V/√Hz",
+        "output_noise" => "V",
         _ => "Ω",
     }
 }
@@ -118,6 +122,14 @@ fn quantity(name: &str, a: &Analysis) -> (Option<f64>, Scale) {
         "upper_cutoff" => (a.high.f3db_hz, Scale::Relative),
         "lower_cutoff" => (a.low.f3db_hz, Scale::Relative),
         "input_resistance" => (m.input_resistance_ohm, Scale::Relative),
+        "noise_figure" => (a.noise.as_ref().and_then(|n| n.noise_figure_db), Scale::Db),
+        "input_noise_density" => {
+            (a.noise.as_ref().and_then(|n| n.input_density_v_per_rthz), Scale::Relative)
+        }
+        "output_noise" => (
+            a.noise.as_ref().and_then(|n| n.band.as_ref()).map(|b| b.output_rms_v),
+            Scale::Relative,
+        ),
         _ => (m.output_resistance_ohm, Scale::Relative),
     }
 }

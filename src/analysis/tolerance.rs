@@ -39,6 +39,12 @@ pub enum Figure {
     ROut,
     /// A device's bias current (index into the devices).
     Bias(usize),
+    /// Spot noise figure, dB.
+    NoiseFigure,
+    /// Spot input-referred noise density.
+    InputNoise,
+    /// rms output noise over the band.
+    OutputNoise,
 }
 
 impl Figure {
@@ -52,6 +58,9 @@ impl Figure {
             Figure::RIn => m.r_in,
             Figure::ROut => m.r_out,
             Figure::Bias(i) => m.bias.get(i).copied(),
+            Figure::NoiseFigure => m.noise_figure_db,
+            Figure::InputNoise => m.input_noise,
+            Figure::OutputNoise => m.output_noise,
         }
     }
 
@@ -67,6 +76,9 @@ impl Figure {
             Figure::Bias(i) => {
                 format!("{}.bias_current", device_names.get(i).map_or("?", String::as_str))
             }
+            Figure::NoiseFigure => "noise_figure".into(),
+            Figure::InputNoise => "input_noise_density".into(),
+            Figure::OutputNoise => "output_noise".into(),
         }
     }
 }
@@ -80,6 +92,9 @@ impl Figure {
             "upper_cutoff" => Figure::FHigh,
             "lower_cutoff" => Figure::FLow,
             "input_resistance" => Figure::RIn,
+            "noise_figure" => Figure::NoiseFigure,
+            "input_noise_density" => Figure::InputNoise,
+            "output_noise" => Figure::OutputNoise,
             _ => Figure::ROut,
         }
     }
@@ -93,6 +108,11 @@ pub fn figures(nominal: &Metrics) -> Vec<Figure> {
             .filter(|f| f.of(nominal).is_some_and(|v| v > 0.0))
             .collect();
     out.extend((0..nominal.bias.len()).map(Figure::Bias));
+    out.extend(
+        [Figure::NoiseFigure, Figure::InputNoise, Figure::OutputNoise]
+            .into_iter()
+            .filter(|f| f.of(nominal).is_some_and(|v| v > 0.0)),
+    );
     out
 }
 
@@ -149,7 +169,10 @@ fn sensitivities_reporting(
             Figure::FLow => grads.f_low.as_ref(),
             Figure::RIn => grads.r_in.as_ref(),
             Figure::ROut => grads.r_out.as_ref(),
-            Figure::Bias(_) => None,
+            // Noise has no adjoint gradient here: by differences of whole evaluations.
+            Figure::Bias(_) | Figure::NoiseFigure | Figure::InputNoise | Figure::OutputNoise => {
+                None
+            }
         }
     };
     let dc = transistors.then(|| DcChain::new(design, &nominal)).flatten();

@@ -8,7 +8,9 @@
 use std::collections::BTreeMap;
 use std::fmt;
 
-/// Exponents of the SI base units kg, m, s, A, K.
+/// Exponents of the SI base units kg, m, s, A, K, each stored doubled so that half powers
+/// (the √Hz of a noise density, V/√Hz) are exact: volt is kg m² s⁻³ A⁻¹, stored
+/// `[2, 4, -6, -2, 0]`.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
 pub struct Dim(pub [i8; 5]);
 
@@ -16,27 +18,29 @@ impl Dim {
     /// A pure number.
     pub const NONE: Dim = Dim([0, 0, 0, 0, 0]);
     /// Metre.
-    pub const METRE: Dim = Dim([0, 1, 0, 0, 0]);
+    pub const METRE: Dim = Dim([0, 2, 0, 0, 0]);
     /// Second.
-    pub const SECOND: Dim = Dim([0, 0, 1, 0, 0]);
+    pub const SECOND: Dim = Dim([0, 0, 2, 0, 0]);
     /// Ampere.
-    pub const AMPERE: Dim = Dim([0, 0, 0, 1, 0]);
+    pub const AMPERE: Dim = Dim([0, 0, 0, 2, 0]);
     /// Kelvin.
-    pub const KELVIN: Dim = Dim([0, 0, 0, 0, 1]);
+    pub const KELVIN: Dim = Dim([0, 0, 0, 0, 2]);
     /// Hertz (1/s).
-    pub const HERTZ: Dim = Dim([0, 0, -1, 0, 0]);
+    pub const HERTZ: Dim = Dim([0, 0, -2, 0, 0]);
     /// Volt (kg m² s⁻³ A⁻¹).
-    pub const VOLT: Dim = Dim([1, 2, -3, -1, 0]);
+    pub const VOLT: Dim = Dim([2, 4, -6, -2, 0]);
     /// Ohm (kg m² s⁻³ A⁻²).
-    pub const OHM: Dim = Dim([1, 2, -3, -2, 0]);
+    pub const OHM: Dim = Dim([2, 4, -6, -4, 0]);
     /// Siemens (1/Ω).
-    pub const SIEMENS: Dim = Dim([-1, -2, 3, 2, 0]);
+    pub const SIEMENS: Dim = Dim([-2, -4, 6, 4, 0]);
     /// Farad (kg⁻¹ m⁻² s⁴ A²).
-    pub const FARAD: Dim = Dim([-1, -2, 4, 2, 0]);
+    pub const FARAD: Dim = Dim([-2, -4, 8, 4, 0]);
     /// Henry (kg m² s⁻² A⁻²).
-    pub const HENRY: Dim = Dim([1, 2, -2, -2, 0]);
+    pub const HENRY: Dim = Dim([2, 4, -4, -4, 0]);
     /// Watt (kg m² s⁻³).
-    pub const WATT: Dim = Dim([1, 2, -3, 0, 0]);
+    pub const WATT: Dim = Dim([2, 4, -6, 0, 0]);
+    /// Volt per root hertz, a noise density (kg m² s^−5/2 A⁻¹).
+    pub const VOLT_PER_ROOT_HERTZ: Dim = Dim([2, 4, -5, -2, 0]);
 
     /// The product dimension.
     pub fn times(self, other: Dim) -> Dim {
@@ -57,6 +61,12 @@ impl Dim {
         Dim(self.0.map(|e| e * n))
     }
 
+    /// The square root of the dimension (Hz → √Hz); None where a quarter power would
+    /// result.
+    pub fn sqrt(self) -> Option<Dim> {
+        self.0.iter().all(|e| e % 2 == 0).then(|| Dim(self.0.map(|e| e / 2)))
+    }
+
     /// The conventional symbol of this dimension, for messages ("F", "A/V²", "F/m").
     pub fn symbol(self) -> String {
         for (dim, name) in NAMED_DIMS {
@@ -71,7 +81,11 @@ impl Dim {
             .iter()
             .zip(names)
             .filter(|(e, _)| **e != 0)
-            .map(|(e, n)| if *e == 1 { n.to_string() } else { format!("{n}^{e}") })
+            .map(|(e, n)| match (e % 2 == 0, e / 2) {
+                (true, 1) => n.to_string(),
+                (true, whole) => format!("{n}^{whole}"),
+                (false, _) => format!("{n}^({e}/2)"),
+            })
             .collect();
         if parts.is_empty() { "1".to_string() } else { parts.join("·") }
     }
@@ -91,10 +105,12 @@ const NAMED_DIMS: &[(Dim, &str)] = &[
     (Dim::SIEMENS, "S"),
     (Dim::KELVIN, "K"),
     (Dim::METRE, "m"),
-    (Dim([-1, -3, 4, 2, 0]), "F/m"),
-    (Dim([-1, -4, 4, 2, 0]), "F/m²"),
-    (Dim([-2, -4, 6, 3, 0]), "A/V²"),
-    (Dim([-1, -2, 3, 1, 0]), "1/V"),
+    (Dim([-2, -6, 8, 4, 0]), "F/m"),
+    (Dim([-2, -8, 8, 4, 0]), "F/m²"),
+    (Dim([-4, -8, 12, 6, 0]), "A/V²"),
+    (Dim([-2, -4, 6, 2, 0]), "1/V"),
+    (Dim::VOLT_PER_ROOT_HERTZ, "V/√Hz"),
+    (Dim([0, 0, -1, 0, 0]), "√Hz"),
 ];
 
 /// How a value was marked beyond its dimension.
@@ -177,6 +193,9 @@ const UNITS: &[(&str, Dim)] = &[
     ("S", Dim::SIEMENS),
     ("K", Dim::KELVIN),
     ("m", Dim::METRE),
+    // The root of a hertz, for noise densities (`nV/√Hz`; `rtHz` where `√` is hard to type).
+    ("√Hz", Dim([0, 0, -1, 0, 0])),
+    ("rtHz", Dim([0, 0, -1, 0, 0])),
 ];
 
 fn prefix_power(c: char) -> Option<i32> {
@@ -720,7 +739,7 @@ impl Parser<'_> {
 }
 
 fn is_symbol_char(c: char) -> bool {
-    c.is_alphabetic() || c == 'Ω' || c == 'µ' || c == 'μ'
+    c.is_alphabetic() || c == 'Ω' || c == 'µ' || c == 'μ' || c == '√'
 }
 
 fn code_scale(letter: char) -> Option<f64> {
@@ -747,7 +766,8 @@ fn unknown_unit(word: &str, at: usize) -> QuantityError {
     } else if word.chars().count() >= 2 && word.chars().all(|c| prefix_power(c).is_some()) {
         "use one prefix only: `4.7k`, `4.7 kΩ`".to_string()
     } else {
-        "units: Ω ohm F H V A Hz s W S K °C m % dB, after a prefix f p n u µ m k M G T".to_string()
+        "units: Ω ohm F H V A Hz √Hz s W S K °C m % dB, after a prefix f p n u µ m k M G T"
+            .to_string()
     };
     QuantityError {
         offset: at,
@@ -880,6 +900,21 @@ mod tests {
             assert!(close(q(text).si, si), "{text}: {}", q(text).si);
         }
         assert_eq!(q("4k7 Ω").dim, Some(Dim::OHM));
+    }
+
+    /// A noise density is volts per root hertz (common practice on data sheets): the half
+    /// power must be exact, and read the same in both spellings.
+    #[test]
+    fn noise_densities_have_a_root_hertz() {
+        let density = Dim::VOLT.per(Dim::HERTZ.sqrt().unwrap());
+        for text in ["2 nV/√Hz", "2nV/√Hz", "2 nV/rtHz"] {
+            assert!(close(q(text).si, 2e-9), "{text}");
+            assert_eq!(q(text).dim, Some(density), "{text}");
+        }
+        assert_eq!(density.symbol(), "V/√Hz");
+        assert_eq!(q("3 pA/√Hz").dim.unwrap().powi(2), Dim::AMPERE.powi(2).per(Dim::HERTZ));
+        assert_eq!(Dim::SECOND.sqrt().unwrap().powi(2), Dim::SECOND);
+        assert_eq!(Dim::HERTZ.sqrt().unwrap().sqrt(), None);
     }
 
     #[test]

@@ -458,11 +458,18 @@ pub struct Requirements {
     pub output_resistance: Option<Limits>,
     /// Gain flatness over the operating band, max − min, dB (limits in dB, not V/V).
     pub gain_flatness: Option<Limits>,
+    /// Spot noise figure, dB (limits in dB), with the source at T0 = 290 K.
+    pub noise_figure: Option<Limits>,
+    /// Spot input-referred noise density at the source EMF, V/√Hz.
+    pub input_noise_density: Option<Limits>,
+    /// rms output noise over the band (the stated operating band, else between the
+    /// cut-offs), V.
+    pub output_noise: Option<Limits>,
 }
 
 impl Requirements {
     /// Every requirement by its name in the design file, set or not, in report order.
-    pub fn items(&self) -> [(&'static str, Option<Limits>); 6] {
+    pub fn items(&self) -> [(&'static str, Option<Limits>); 9] {
         [
             ("midband_gain", self.midband_gain),
             ("gain_flatness", self.gain_flatness),
@@ -470,6 +477,9 @@ impl Requirements {
             ("lower_cutoff", self.lower_cutoff),
             ("input_resistance", self.input_resistance),
             ("output_resistance", self.output_resistance),
+            ("noise_figure", self.noise_figure),
+            ("input_noise_density", self.input_noise_density),
+            ("output_noise", self.output_noise),
         ]
     }
 

@@ -260,6 +260,9 @@ fn requirement_of(key: &str) -> Option<&str> {
         "/low/f3db_hz" => Some("lower_cutoff"),
         "/midband/input_resistance_ohm" => Some("input_resistance"),
         "/midband/output_resistance_ohm" => Some("output_resistance"),
+        "/noise/noise_figure_db" => Some("noise_figure"),
+        "/noise/input_density_v_per_rthz" => Some("input_noise_density"),
+        "/noise/band/output_rms_v" => Some("output_noise"),
         _ => None,
     };
     own.or_else(|| {
@@ -735,6 +738,40 @@ fn figures(doc: &ResultsDocument) -> Vec<Figure> {
     ] {
         push(key.into(), label.into(), unit, value);
     }
+    if let Some(n) = &doc.noise {
+        let band = n.band.as_ref();
+        for (key, label, unit, value) in [
+            ("/noise/noise_figure_db", "noise figure", "dB", n.noise_figure_db),
+            (
+                "/noise/input_density_v_per_rthz",
+                "input noise density",
+                "V/√Hz",
+                n.input_density_v_per_rthz,
+            ),
+            (
+                "/noise/output_density_v_per_rthz",
+                "output noise density",
+                "V/√Hz",
+                Some(n.output_density_v_per_rthz),
+            ),
+            ("/noise/e_n_v_per_rthz", "e_n", "V/√Hz", n.e_n_v_per_rthz),
+            ("/noise/i_n_a_per_rthz", "i_n", "A/√Hz", n.i_n_a_per_rthz),
+            (
+                "/noise/band/output_rms_v",
+                "output noise over the band",
+                "V",
+                band.map(|b| b.output_rms_v),
+            ),
+            (
+                "/noise/band/input_rms_v",
+                "input-referred noise over the band",
+                "V",
+                band.map(|b| b.input_rms_v),
+            ),
+        ] {
+            push(key.into(), label.into(), unit, value);
+        }
+    }
     if let Some(op) = &doc.operating_point {
         for (k, x) in op.nodes.iter().filter(|(k, _)| !k.contains('.') && *k != "source") {
             push(format!("node {k}"), format!("V({k})"), "V", Some(*x));
@@ -776,6 +813,8 @@ fn figures(doc: &ResultsDocument) -> Vec<Figure> {
             "Hz" => "Hz",
             "Ω" => "Ω",
             "dB" => "dB",
+            "V" => "V",
+            "V/√Hz" => "V/√Hz",
             _ => "",
         };
         push(format!("corner {name}"), format!("worst corner, {spaced}"), unit, r.corner);

@@ -580,6 +580,9 @@ pub fn figure_label(key: &str) -> String {
         "lower_cutoff" => "f_L".into(),
         "input_resistance" => "R_in".into(),
         "output_resistance" => "R_out".into(),
+        "noise_figure" => "NF".into(),
+        "input_noise_density" => "input noise".into(),
+        "output_noise" => "output noise".into(),
         other => other.replace(".bias_current", " bias"),
     }
 }
@@ -590,6 +593,9 @@ fn figure_value(key: &str, v: f64) -> String {
         "gain_flatness" => format!("{} dB", plain(v, 3)),
         "upper_cutoff" | "lower_cutoff" => si(v, "Hz", 4),
         "input_resistance" | "output_resistance" => si(v, "Ω", 4),
+        "noise_figure" => format!("{} dB", plain(v, 3)),
+        "input_noise_density" => si(v, "V/√Hz", 4),
+        "output_noise" => si(v, "V", 4),
         _ => si(v, "A", 4),
     }
 }

@@ -111,6 +111,9 @@ pub const REQUIREMENT_KEYS: &[&str] = &[
     "lower_cutoff",
     "input_resistance",
     "output_resistance",
+    "noise_figure",
+    "input_noise_density",
+    "output_noise",
 ];
 /// Keys of one requirement.
 pub const LIMIT_KEYS: &[&str] = &["min", "max"];

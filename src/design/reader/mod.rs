@@ -89,6 +89,24 @@ const GAIN_LIMIT: Place =
 const FLATNESS: Place =
     Place { what: "a gain flatness", dim: Dim::NONE, positive: false, decibels: Decibels::Figure };
 
+/// A noise figure, written in dB and kept as the dB figure.
+const NOISE_FIGURE: Place =
+    Place { what: "a noise figure", dim: Dim::NONE, positive: false, decibels: Decibels::Figure };
+/// A spot noise density, V/√Hz.
+const NOISE_DENSITY: Place = Place {
+    what: "a noise density",
+    dim: Dim::VOLT_PER_ROOT_HERTZ,
+    positive: true,
+    decibels: Decibels::Refused,
+};
+/// An rms noise voltage.
+const NOISE_VOLTAGE: Place = Place {
+    what: "an rms noise voltage",
+    dim: Dim::VOLT,
+    positive: true,
+    decibels: Decibels::Refused,
+};
+
 /// A temperature exponent: any sign, no unit.
 const EXPONENT: Place =
     Place { what: "an exponent", dim: Dim::NONE, positive: false, decibels: Decibels::Refused };
@@ -523,6 +541,9 @@ fn example(place: Place) -> &'static str {
         "a transconductance" => "20 mS",
         "a voltage gain" => "20 dB",
         "a gain flatness" => "1 dB",
+        "a noise figure" => "3 dB",
+        "a noise density" => "2 nV/√Hz",
+        "an rms noise voltage" => "5 µV",
         _ => "100",
     }
 }

@@ -1,4 +1,4 @@
-//! Requirements (limits on gain, cut-offs and port resistances) and the analysis settings
+//! Requirements (limits on gain, cut-offs, port resistances and noise) and the analysis settings
 //! (sweep, Monte Carlo runs and seed).
 
 use super::*;
@@ -31,6 +31,9 @@ impl Reader<'_> {
                 "midband_gain" => GAIN_LIMIT,
                 "gain_flatness" => FLATNESS,
                 "upper_cutoff" | "lower_cutoff" => FREQUENCY,
+                "noise_figure" => NOISE_FIGURE,
+                "input_noise_density" => NOISE_DENSITY,
+                "output_noise" => NOISE_VOLTAGE,
                 _ => RESISTANCE,
             };
             let limits = self.limits(name, k, n, place);
@@ -51,6 +54,9 @@ impl Reader<'_> {
                 "upper_cutoff" => out.upper_cutoff = limits,
                 "lower_cutoff" => out.lower_cutoff = limits,
                 "input_resistance" => out.input_resistance = limits,
+                "noise_figure" => out.noise_figure = limits,
+                "input_noise_density" => out.input_noise_density = limits,
+                "output_noise" => out.output_noise = limits,
                 _ => out.output_resistance = limits,
             }
         }
