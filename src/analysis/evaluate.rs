@@ -60,6 +60,31 @@ struct Core {
     noise: noise::Figures,
     /// Whether the noise figure, the input density and the output noise are limited.
     noise_limits: [bool; 3],
+    /// Each transistor's flicker corner, Hz (0: none), in the operating point's order.
+    corners: Vec<f64>,
+}
+
+/// Each transistor's flicker-noise corner frequency from its model, Hz (0 where the model
+/// states none), in the order of the operating point's devices.
+fn flicker_corners(design: &Design, op: Option<&OperatingPoint>) -> Vec<f64> {
+    use crate::design::{DeviceModel, PartKind};
+    let Some(op) = op else { return Vec::new() };
+    op.devices
+        .iter()
+        .map(|d| {
+            let model = design.parts.iter().find(|p| p.name == d.part).and_then(|p| match p.kind {
+                PartKind::Bjt { model, .. } | PartKind::Mosfet { model, .. } => {
+                    design.models.get(model)
+                }
+                _ => None,
+            });
+            let corner = model.and_then(|m| match &m.device {
+                DeviceModel::Bipolar(b) => b.flicker_corner_hz,
+                DeviceModel::Mos(m) => m.flicker_corner_hz,
+            });
+            corner.unwrap_or(0.0)
+        })
+        .collect()
 }
 
 /// The lean evaluation tolerance work repeats: operating point, mid-band, the time-constant
@@ -205,12 +230,14 @@ fn core(design: &Design, near: Option<&OperatingPoint>) -> Result<Core, Analysis
         band: req.output_noise.is_some(),
     };
     let (spot_hz, noise_band) = noise_where(band.map(|(b, _)| b), frequency_hz, f_low, f_high);
+    let corners = flicker_corners(design, op.as_ref());
     let noise = noise::figures(
         &noise::Request {
             lin: &lin,
             op: op.as_ref(),
             mna: &full,
             kelvin: net.temperature_k,
+            corners: &corners,
             spot_hz,
             band: noise_band,
             frequencies: &[],
@@ -245,6 +272,7 @@ fn core(design: &Design, near: Option<&OperatingPoint>) -> Result<Core, Analysis
             req.input_noise_density.is_some(),
             req.output_noise.is_some(),
         ],
+        corners,
     })
 }
 
@@ -322,6 +350,7 @@ impl Core {
             op: self.op.as_ref(),
             mna: &self.full,
             kelvin: self.net.temperature_k,
+            corners: &self.corners,
             spot_hz: frequency_hz,
             band: noise_band,
             frequencies: &frequencies,

@@ -18,6 +18,12 @@
 //!   model's usual noise model does;
 //! - a MOSFET: channel thermal noise 4kTγg_m from drain to source, γ = 2/3 (long channel in
 //!   saturation, from memory);
+//! - flicker (1/f) noise where a model states its corner frequency f_c: beside the base
+//!   current's shot noise of a bipolar transistor, 2qI_B·f_c/f, and beside a MOSFET's channel
+//!   noise, 4kTγg_m·f_c/f — equal to the white noise it accompanies at f_c (the corner as a
+//!   data sheet gives it, common practice). For a base current whose 1/f noise grows as I_B
+//!   (the usual exponent of one) the corner holds at any bias; for a MOSFET it is taken at the
+//!   operating point;
 //! - the small-signal resistances rπ and r_o, and ideal controlled sources: none.
 //!
 //! One transposed solve per frequency gives every source's transfer at once: with
@@ -55,6 +61,8 @@ pub enum Mechanism {
     BaseShot,
     /// MOSFET channel thermal noise, 4kTγg_m.
     Channel,
+    /// 1/f noise, from the model's corner frequency.
+    Flicker,
 }
 
 impl Mechanism {
@@ -66,11 +74,13 @@ impl Mechanism {
             Mechanism::CollectorShot => "collector shot noise",
             Mechanism::BaseShot => "base shot noise",
             Mechanism::Channel => "channel thermal noise",
+            Mechanism::Flicker => "flicker (1/f) noise",
         }
     }
 }
 
-/// One noise source: a white current of density `density` (A²/Hz) from node `a` to `b`.
+/// One noise source: a current of density `density` (A²/Hz; for a 1/f source, at 1 Hz)
+/// from node `a` to `b`.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Source {
     /// The part it belongs to (`R1`, `Q1`, `source`, `load`).
@@ -85,10 +95,25 @@ pub struct Source {
     pub density: f64,
     /// True for the signal source's own resistance.
     pub is_source: bool,
+    /// True for a 1/f source: its density at f is `density / f`.
+    pub flicker: bool,
 }
 
-/// Every noise source of a network.
-pub fn sources(lin: &LinearNetwork, op: Option<&OperatingPoint>, kelvin: f64) -> Vec<Source> {
+impl Source {
+    /// A²/Hz at `f`.
+    pub fn density_at(&self, f: f64) -> f64 {
+        if self.flicker { self.density / f } else { self.density }
+    }
+}
+
+/// Every noise source of a network; `corners` holds each transistor's flicker corner
+/// frequency, Hz (0: none), in the order of the operating point's devices.
+pub fn sources(
+    lin: &LinearNetwork,
+    op: Option<&OperatingPoint>,
+    kelvin: f64,
+    corners: &[f64],
+) -> Vec<Source> {
     let in_device: Vec<bool> =
         (0..lin.elements.len()).map(|k| lin.devices.iter().any(|r| r.contains(&k))).collect();
     let mut out = Vec::new();
@@ -111,10 +136,12 @@ pub fn sources(lin: &LinearNetwork, op: Option<&OperatingPoint>, kelvin: f64) ->
             b: *b,
             density: 4.0 * BOLTZMANN * t * g,
             is_source,
+            flicker: false,
         });
     }
     let Some(op) = op else { return out };
-    for (range, bias) in lin.devices.iter().zip(&op.devices) {
+    for (j, (range, bias)) in lin.devices.iter().zip(&op.devices).enumerate() {
+        let corner = corners.get(j).copied().unwrap_or(0.0);
         let element = |suffix: &str| {
             range.clone().map(|k| &lin.elements[k]).find(|e| match e {
                 Linear::Conductance { name, .. } | Linear::Vccs { name, .. } => {
@@ -134,6 +161,7 @@ pub fn sources(lin: &LinearNetwork, op: Option<&OperatingPoint>, kelvin: f64) ->
                         b: *b,
                         density: 2.0 * ELEMENTARY_CHARGE * ic_a.abs(),
                         is_source: false,
+                        flicker: false,
                     });
                 }
                 if let Some(Linear::Conductance { a, b, .. }) = element("rpi") {
@@ -144,19 +172,44 @@ pub fn sources(lin: &LinearNetwork, op: Option<&OperatingPoint>, kelvin: f64) ->
                         b: *b,
                         density: 2.0 * ELEMENTARY_CHARGE * ib_a.abs(),
                         is_source: false,
+                        flicker: false,
                     });
+                    if corner > 0.0 {
+                        out.push(Source {
+                            part: bias.part.clone(),
+                            mechanism: Mechanism::Flicker,
+                            a: *a,
+                            b: *b,
+                            density: 2.0 * ELEMENTARY_CHARGE * ib_a.abs() * corner,
+                            is_source: false,
+                            flicker: true,
+                        });
+                    }
                 }
             }
             DeviceState::Mosfet { .. } => {
                 if let Some(Linear::Vccs { a, b, gm, .. }) = element("gm") {
+                    let white = 4.0 * BOLTZMANN * kelvin * GAMMA * gm.abs();
                     out.push(Source {
-                        part,
+                        part: part.clone(),
                         mechanism: Mechanism::Channel,
                         a: *a,
                         b: *b,
-                        density: 4.0 * BOLTZMANN * kelvin * GAMMA * gm.abs(),
+                        density: white,
                         is_source: false,
+                        flicker: false,
                     });
+                    if corner > 0.0 {
+                        out.push(Source {
+                            part,
+                            mechanism: Mechanism::Flicker,
+                            a: *a,
+                            b: *b,
+                            density: white * corner,
+                            is_source: false,
+                            flicker: true,
+                        });
+                    }
                 }
             }
         }
@@ -253,7 +306,8 @@ impl<'a> Solver<'a> {
         let (x, lambda) = self.pair(f)?;
         let gain = self.mna.out.iter().zip(&x).map(|(c, v)| v * *c).sum::<c64>().norm();
         let at = |node: usize| Mna::row(node).map_or(c64::new(0.0, 0.0), |r| lambda[r]);
-        let each = sources.iter().map(|s| (at(s.b) - at(s.a)).norm_sqr() * s.density).collect();
+        let each =
+            sources.iter().map(|s| (at(s.b) - at(s.a)).norm_sqr() * s.density_at(f)).collect();
         Some(Spectrum { frequency_hz: f, gain, each })
     }
 
@@ -274,6 +328,7 @@ pub fn input_generators(
     lin: &LinearNetwork,
     op: Option<&OperatingPoint>,
     kelvin: f64,
+    corners: &[f64],
     f: f64,
     keep: impl Fn(&Source) -> bool,
 ) -> Option<(f64, f64)> {
@@ -289,8 +344,10 @@ pub fn input_generators(
         changed
     };
     let added = |lin: &LinearNetwork| -> Option<(Spectrum, Mna)> {
-        let srcs: Vec<Source> =
-            sources(lin, op, kelvin).into_iter().filter(|s| !s.is_source && keep(s)).collect();
+        let srcs: Vec<Source> = sources(lin, op, kelvin, corners)
+            .into_iter()
+            .filter(|s| !s.is_source && keep(s))
+            .collect();
         let mna = crate::analysis::mna::assemble(
             lin,
             |_| crate::analysis::mna::CapState::Present,
@@ -510,6 +567,8 @@ pub struct Request<'a> {
     pub mna: &'a Mna,
     /// Design temperature, K.
     pub kelvin: f64,
+    /// Each transistor's flicker corner, Hz (0: none), in the operating point's order.
+    pub corners: &'a [f64],
     /// The spot frequency, Hz.
     pub spot_hz: f64,
     /// The band to integrate over, if any.
@@ -562,7 +621,7 @@ pub fn figures(r: &Request, wanted: Wanted) -> Figures {
     if !wanted.spot && !wanted.band {
         return out;
     }
-    let srcs = sources(r.lin, r.op, r.kelvin);
+    let srcs = sources(r.lin, r.op, r.kelvin, r.corners);
     let solver = Solver::new(r.mna);
     if wanted.spot
         && let Some(spot) = solver.spectrum(&srcs, r.spot_hz)
@@ -581,12 +640,12 @@ pub fn figures(r: &Request, wanted: Wanted) -> Figures {
 
 /// The noise review; None when the network cannot be solved at the spot frequency.
 pub fn review(r: &Request) -> Option<NoiseReport> {
-    let srcs = sources(r.lin, r.op, r.kelvin);
+    let srcs = sources(r.lin, r.op, r.kelvin, r.corners);
     let solver = Solver::new(r.mna);
     let spot = solver.spectrum(&srcs, r.spot_hz)?;
     let total = spot.output();
     let figure = |s: &Spectrum| s.factor(&srcs).map(|f| 10.0 * f.log10());
-    let generators = input_generators(r.lin, r.op, r.kelvin, r.spot_hz, |_| true);
+    let generators = input_generators(r.lin, r.op, r.kelvin, r.corners, r.spot_hz, |_| true);
     let optimum = generators.and_then(|(e2, i2)| optimum(e2, i2));
     let band = r.band.and_then(|(from, to, basis)| {
         Some((from, to, basis, band_sums(&solver, &srcs, from, to)?))
@@ -693,7 +752,7 @@ mod tests {
              \x20 R1: {kind: resistor, value: 9k, between: [in, out]}\n\
              \x20 C1: {kind: capacitor, value: 1n, between: [out, gnd]}\n",
         );
-        let srcs = sources(&c.lin, None, c.kelvin);
+        let srcs = sources(&c.lin, None, c.kelvin, &[]);
         assert_eq!(srcs.len(), 2, "{srcs:?}");
         let solver = Solver::new(&c.mna);
         let fc = 1.0 / (2.0 * std::f64::consts::PI * 10e3 * 1e-9);
@@ -747,7 +806,8 @@ mod tests {
         let (gm, rpi, ic, ib) = hybrid_pi(&c);
         let (kt, q, rx) = (K * c.kelvin, ELEMENTARY_CHARGE, 10.0);
         let (e2, i2) =
-            input_generators(&c.lin, c.op.as_ref(), c.kelvin, 1e6, |s| s.part == "Q1").unwrap();
+            input_generators(&c.lin, c.op.as_ref(), c.kelvin, &[], 1e6, |s| s.part == "Q1")
+                .unwrap();
         // Derived by hand from the hybrid-π model with the input shorted and opened:
         // r_x's 4kT·r_x, base shot through r_x, collector shot referred through the gain.
         let e2_exact = 4.0 * kt * rx
@@ -773,13 +833,14 @@ mod tests {
         let (gm, rpi, ic, ib) = hybrid_pi(&c);
         let beta = gm * rpi;
         let (e2, i2) =
-            input_generators(&c.lin, c.op.as_ref(), c.kelvin, 1e6, |s| s.part == "Q1").unwrap();
+            input_generators(&c.lin, c.op.as_ref(), c.kelvin, &[], 1e6, |s| s.part == "Q1")
+                .unwrap();
         let (r_opt, f_min) = optimum(e2, i2).unwrap();
         close(r_opt, beta.sqrt() / gm, 0.01, "R_opt");
         close(f_min, 1.0 + 1.0 / beta.sqrt(), 0.01, "F_min");
         // The noise factor of the transistor from the 1 kΩ source, exactly: the hybrid-π
         // derivation (by hand) against the adjoint sum over Q1's sources and the source's.
-        let srcs: Vec<Source> = sources(&c.lin, c.op.as_ref(), c.kelvin)
+        let srcs: Vec<Source> = sources(&c.lin, c.op.as_ref(), c.kelvin, &[])
             .into_iter()
             .filter(|s| s.is_source || s.part == "Q1")
             .collect();
@@ -819,8 +880,52 @@ mod tests {
             })
             .unwrap();
         let (e2, _) =
-            input_generators(&c.lin, c.op.as_ref(), c.kelvin, 1e6, |s| s.part == "M1").unwrap();
+            input_generators(&c.lin, c.op.as_ref(), c.kelvin, &[], 1e6, |s| s.part == "M1")
+                .unwrap();
         close(e2, 4.0 * K * c.kelvin * GAMMA / gm, 1e-7, "e_n²");
+    }
+
+    /// A flicker corner f_c adds S·f_c/f beside the white S it accompanies (the definition of
+    /// the corner, common practice): at f_c the two are equal, a decade below it 10:1, and
+    /// the whole over a band integrates to S·((f2 − f1) + f_c·ln(f2/f1)) through a flat path.
+    #[test]
+    fn a_flicker_corner_adds_one_over_f_noise_equal_to_the_white_at_the_corner() {
+        let c = case(
+            "tauweave: 1\ndesign: {id: t, title: t, revision: A, date: 2026-12-04}\n\
+             supplies: {vdd: 5 V, vg: 2 V}\nsignal: {at: in, resistance: 1k}\noutput: {at: d}\n\
+             parts:\n\
+             \x20 C1: {kind: capacitor, value: 1 µF, between: [in, g], role: coupling}\n\
+             \x20 RG: {kind: resistor, value: 1M, between: [vg, g]}\n\
+             \x20 RD: {kind: resistor, value: 2k, between: [vdd, d]}\n\
+             \x20 M1: {kind: mosfet, model: N, d: d, g: g, s: gnd}\n\
+             models:\n  N: {type: nmos, threshold: 1 V, process_transconductance: 200 µA/V², \
+             width: 20 µm, length: 1 µm, flicker_corner: 20 kHz}\n",
+        );
+        let corner = 20e3;
+        let srcs = sources(&c.lin, c.op.as_ref(), c.kelvin, &[corner]);
+        let find = |m: Mechanism| srcs.iter().position(|s| s.mechanism == m).unwrap();
+        let (white, flicker) = (find(Mechanism::Channel), find(Mechanism::Flicker));
+        let solver = Solver::new(&c.mna);
+        for (f, ratio) in [(corner, 1.0), (corner / 10.0, 10.0), (corner * 100.0, 0.01)] {
+            let s = solver.spectrum(&srcs, f).unwrap();
+            close(s.each[flicker] / s.each[white], ratio, 1e-12, "flicker to white");
+        }
+        // The drain current's path to the output is R_D ∥ r_o whatever the frequency (the
+        // gate side carries none of it), so the band integral has the closed form.
+        let (f1, f2) = (100.0, 1e5);
+        let sums = integrate(
+            |f| {
+                let s = solver.spectrum(&srcs, f)?;
+                Some(vec![s.each[white] + s.each[flicker]])
+            },
+            f1,
+            f2,
+        )
+        .unwrap();
+        let s_white = solver.spectrum(&srcs, 1e3).unwrap().each[white];
+        close(sums[0], s_white * ((f2 - f1) + corner * (f2 / f1).ln()), 1e-7, "band integral");
+        // Without a corner there is no flicker source.
+        assert!(sources(&c.lin, c.op.as_ref(), c.kelvin, &[0.0]).iter().all(|s| !s.flicker));
     }
 
     #[test]
@@ -834,7 +939,7 @@ mod tests {
              \x20 R1: {kind: resistor, value: 1k, between: [in, out]}\n\
              \x20 R2: {kind: resistor, value: 1k, between: [out, gnd]}\n",
         );
-        let srcs = sources(&c.lin, None, c.kelvin);
+        let srcs = sources(&c.lin, None, c.kelvin, &[]);
         let s = Solver::new(&c.mna).spectrum(&srcs, 1e3).unwrap();
         let z = 1e3 * 2e3 / 3e3;
         let want = 4.0 * K * (350.0 / 1e3 * z * z + (350.0 * 1e3 + T0 * 1e3) / 9.0);

@@ -193,7 +193,8 @@ mod tests {
     #[test]
     fn every_model_key_is_toleranced_or_a_plain_setting() {
         // The keys read as plain numbers (no tolerance travels to a lever): the type, the
-        // reverse gain, the geometry and the dissipation rating.
+        // reverse gain, the geometry, the dissipation rating, the temperature laws and the
+        // flicker corner.
         let plain = [
             "type",
             "beta_reverse",
@@ -206,6 +207,7 @@ mod tests {
             "beta_exponent",
             "threshold_drift",
             "mobility_exponent",
+            "flicker_corner",
         ];
         for key in BIPOLAR_KEYS.iter().chain(MOS_KEYS) {
             let toleranced =

@@ -396,6 +396,8 @@ pub struct BipolarModel {
     pub band_gap_v: f64,
     /// Exponent of β ∝ T^x (default 1.5).
     pub beta_exponent: f64,
+    /// Corner frequency of the base current's flicker (1/f) noise, Hz (None: no flicker).
+    pub flicker_corner_hz: Option<f64>,
 }
 
 /// MOSFET parameters (square law with channel-length modulation).
@@ -432,6 +434,8 @@ pub struct MosModel {
     pub threshold_drift_v_per_k: f64,
     /// Exponent of k′ ∝ T^x, the mobility's temperature law (default −1.5).
     pub mobility_exponent: f64,
+    /// Corner frequency of the channel's flicker (1/f) noise, Hz (None: no flicker).
+    pub flicker_corner_hz: Option<f64>,
 }
 
 /// A min and/or max.

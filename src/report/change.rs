@@ -1018,7 +1018,7 @@ pub fn render(
         known_tables: TABLES.iter().map(|(n, _)| *n).collect(),
         plots: plot.iter().map(|p| p.name).collect(),
         known_plots: vec![OVERLAY],
-        explanation: (Vec::new(), Vec::new()),
+        explanation: crate::report::explain::Explanation::default(),
         cautions: Vec::new(),
     };
     let markdown = tidy_blank_lines(&template::render(template, change, blocks)?);

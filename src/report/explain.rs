@@ -1,7 +1,9 @@
 //! The computed explanation: which capacitor sets each cut-off and why, which estimate to
 //! trust and by how much, where a right-half-plane zero sits when it is near enough to
 //! matter, and what would move the cut-off — said once, and never by changing a part the
-//! design marks fixed. Every sentence is chosen by the numbers and carries them.
+//! design marks fixed; and likewise which source sets the noise floor, through which
+//! mechanism, what the noise figure would be without it and what would reduce it. Every
+//! sentence is chosen by the numbers and carries them.
 //!
 //! In: the [`Analysis`]. Out: paragraphs of Markdown. Formatting of numbers goes through
 //! [`crate::notation`].
@@ -20,13 +22,15 @@ pub const DOMINANT_RATIO: f64 = 4.0;
 /// Relative error within which an estimate is called trustworthy in the explanation.
 pub const TRUSTED_ERROR: f64 = 0.05;
 
-/// The explanation of both cut-offs.
-#[derive(Clone, Debug, Serialize)]
+/// The explanation of both cut-offs and of the noise.
+#[derive(Clone, Debug, Default, Serialize)]
 pub struct Explanation {
     /// Paragraphs about the upper cut-off.
     pub high: Vec<String>,
     /// Paragraphs about the lower cut-off.
     pub low: Vec<String>,
+    /// Paragraphs about the noise.
+    pub noise: Vec<String>,
 }
 
 fn pct(x: f64) -> String {
@@ -46,7 +50,140 @@ pub fn explain(a: &Analysis, study: Option<&Study>, fixed: &[String]) -> Explana
         high.extend(levers(s, "upper_cutoff", "f_H", fixed));
         low.extend(levers(s, "lower_cutoff", "f_L", fixed));
     }
-    Explanation { high, low }
+    let mut noise = noise(a, study);
+    if let Some(s) = study
+        && !noise.is_empty()
+    {
+        noise.extend(levers(s, "noise_figure", "the noise figure", fixed));
+    }
+    Explanation { high, low, noise }
+}
+
+/// Which source sets the noise, what the noise figure would be without it, what would
+/// reduce it, and where the source resistance stands against the optimum.
+fn noise(a: &Analysis, study: Option<&Study>) -> Vec<String> {
+    use crate::analysis::noise::Mechanism;
+    let Some(n) = &a.noise else { return Vec::new() };
+    let (Some(factor), Some(nf)) = (n.noise_factor, n.noise_figure_db) else {
+        return Vec::new();
+    };
+    let total: f64 = n.contributors.iter().map(|c| c.density_v2_per_hz).sum();
+    let from_source: f64 =
+        n.contributors.iter().filter(|c| c.part == "source").map(|c| c.density_v2_per_hz).sum();
+    // The stage's own largest source (the load's resistor is the next stage's business).
+    let Some(top) = n.contributors.iter().find(|c| c.part != "source" && c.part != "load") else {
+        return Vec::new();
+    };
+    let added = total - from_source;
+    let without = (total - top.density_v2_per_hz) / from_source;
+    let what = format!("{}'s {}", cell(&top.part), top.mechanism.describe());
+    let mut first = format!(
+        "At {} the stage adds {} of the source's own noise (noise factor F = {}). Its largest part is \
+         {what}: {} of the output noise, {} of what the stage adds; without it the noise figure \
+         would be {} dB.",
+        si(n.spot_frequency_hz, "Hz", 4),
+        pct(factor - 1.0),
+        plain(factor, 3),
+        pct(top.share),
+        pct(if added > 0.0 { top.density_v2_per_hz / added } else { 0.0 }),
+        plain(10.0 * without.log10(), 3),
+    );
+    let device = a
+        .operating_point
+        .as_ref()
+        .and_then(|op| op.devices.iter().find(|d| d.bias.part == top.part));
+    let advice = match top.mechanism {
+        Mechanism::BaseResistance => {
+            let rx =
+                device.and_then(|d| d.small_signal.rx_ohm).map_or_else(absent, |r| si(r, "Ω", 3));
+            format!(
+                " A device with a lower base resistance (r_x is {rx}), or a lower source \
+                 impedance at the base, would reduce it."
+            )
+        }
+        Mechanism::CollectorShot => {
+            let ic = device.map(|d| crate::analysis::evaluate::bias_current(&d.bias.state));
+            format!(
+                " Referred to the input it is 2qI_C/g_m², which falls as 1/I_C: more collector \
+                 current (now {}) would reduce it, until the base current's shot noise takes over.",
+                ic.map_or_else(absent, |i| si(i, "A", 3))
+            )
+        }
+        Mechanism::BaseShot => format!(
+            " It is 2qI_B = 2qI_C/β flowing in the impedance at the base: a device with a higher \
+             β{}, less collector current, or a lower source impedance would reduce it.",
+            device
+                .and_then(|d| d.small_signal.beta_ac)
+                .map_or(String::new(), |b| format!(" (β is {} here)", plain(b, 3)))
+        ),
+        Mechanism::Channel => format!(
+            " Referred to the gate it is 4kTγ/g_m: more g_m (a wider device or more drain \
+             current; g_m is {} now) would reduce it.",
+            device.map_or_else(absent, |d| si(d.small_signal.gm_s, "S", 3))
+        ),
+        Mechanism::Flicker => " It is 1/f noise below the model's corner frequency: a device \
+             with a lower corner, or a band that starts higher, would reduce it."
+            .to_string(),
+        Mechanism::Thermal => {
+            let lever = study.and_then(|s| {
+                let i = s.levers.iter().position(|l| l.lever.name == top.part)?;
+                s.s(i, "noise_figure")
+            });
+            match lever {
+                // ∂NF/∂ln R = NF·S: a 10 % rise moves NF by about NF·S·ln 1.1 dB.
+                Some(v) if v.abs() >= 1e-4 => format!(
+                    " Raising {} by 10 % would move the noise figure by about {} dB; {} it \
+                     reduces the noise.",
+                    cell(&top.part),
+                    plain(nf * v * 1.1f64.ln(), 2),
+                    if v > 0.0 { "lowering" } else { "raising" }
+                ),
+                _ => " A resistor's noise current is 4kT/R: in series with the signal (a \
+                     degeneration or a series resistor) a lower value makes less noise at the \
+                     output, across it (a bias or a shunt resistor) a higher value does."
+                    .to_string(),
+            }
+        }
+    };
+    first.push_str(&advice);
+    let mut out = vec![first];
+    if let (Some(r_opt), Some(nf_min)) = (n.r_opt_ohm, n.nf_min_db) {
+        let rs = n.source_resistance_ohm;
+        let ratio = rs / r_opt;
+        let sentence = if ratio < 1.0 / 1.5 {
+            format!(
+                "The {} source is {}× below the optimum source resistance e_n/i_n = {} (where \
+                 the noise figure would be {} dB, e_n and i_n taken as uncorrelated): the stage's \
+                 voltage noise e_n dominates, so lowering it (more g_m in the input device, less \
+                 resistance in series with the input) helps more than lowering its current noise.",
+                si(rs, "Ω", 3),
+                plain(1.0 / ratio, 2),
+                si(r_opt, "Ω", 4),
+                plain(nf_min, 3)
+            )
+        } else if ratio > 1.5 {
+            format!(
+                "The {} source is {}× above the optimum source resistance e_n/i_n = {} (where \
+                 the noise figure would be {} dB, e_n and i_n taken as uncorrelated): the stage's \
+                 current noise i_n dominates, so lowering it (less base current in a bipolar input, \
+                 more resistance across the input) helps more than lowering its voltage noise.",
+                si(rs, "Ω", 3),
+                plain(ratio, 2),
+                si(r_opt, "Ω", 4),
+                plain(nf_min, 3)
+            )
+        } else {
+            format!(
+                "The {} source is within 1.5× of the optimum source resistance e_n/i_n = {}: \
+                 matching it exactly would gain at most {} dB.",
+                si(rs, "Ω", 3),
+                si(r_opt, "Ω", 4),
+                plain((nf - nf_min).max(0.0), 2)
+            )
+        };
+        out.push(sentence);
+    }
+    out
 }
 
 /// The levers on `figure` from the study, strongest first: (name, sensitivity).

@@ -148,7 +148,7 @@ fn page(
         known_tables: tables::TABLES.iter().map(|(n, _)| *n).collect(),
         plots: plots.iter().map(|p| p.name).collect(),
         known_plots: plots::PLOTS.to_vec(),
-        explanation: (review.explanation.high.clone(), review.explanation.low.clone()),
+        explanation: review.explanation.clone(),
         cautions: review.cautions.iter().map(|c| view::escape(&c.text)).collect(),
     };
     let view = view::View::new(design, results, &review.explanation);

@@ -580,7 +580,7 @@ pub struct NoiseBandResults {
 pub struct ContributorResults {
     /// `R1`, `Q1`, `source` (the signal source's resistance), `load`.
     pub part: String,
-    /// `thermal`, `base_resistance`, `collector_shot`, `base_shot` or `channel`.
+    /// `thermal`, `base_resistance`, `collector_shot`, `base_shot`, `channel` or `flicker`.
     pub mechanism: String,
     /// Output density at the spot frequency, V²/Hz.
     pub density_v2_per_hz: f64,

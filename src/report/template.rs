@@ -38,7 +38,7 @@ pub struct Blocks {
     /// Every plot name this kind of template may ask for (absent ones insert nothing).
     pub known_plots: Vec<&'static str>,
     /// Explanation paragraphs: (high, low).
-    pub explanation: (Vec<String>, Vec<String>),
+    pub explanation: crate::report::explain::Explanation,
     /// Caution texts, Markdown.
     pub cautions: Vec<String>,
 }
@@ -268,11 +268,12 @@ pub fn render(
     tera.register_function("explanation", move |kwargs: Kwargs, _: &State| -> TeraResult<Value> {
         let side: String = kwargs.get("side")?.unwrap_or_else(|| "high".to_string());
         let paragraphs = match side.as_str() {
-            "high" => &explanation.0,
-            "low" => &explanation.1,
+            "high" => &explanation.high,
+            "low" => &explanation.low,
+            "noise" => &explanation.noise,
             other => {
                 return Err(tera::Error::message(format!(
-                    "explanation side `{other}`: write `high` or `low`"
+                    "explanation side `{other}`: write `high`, `low` or `noise`"
                 )));
             }
         };
@@ -345,7 +346,7 @@ mod tests {
             known_tables: vec![],
             plots: vec!["bode"],
             known_plots: vec!["bode", "shares"],
-            explanation: (vec![], vec![]),
+            explanation: crate::report::explain::Explanation::default(),
             cautions: vec![],
         }
     }

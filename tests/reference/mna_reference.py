@@ -288,13 +288,17 @@ class Circuit:
         # dicts: name, kind, a, b, value, cp, cn, set, and for resistors `noise`: the
         # (part, mechanism) its thermal noise is reported under, None when noiseless.
         self.parts = []
-        self.shot = []  # transistor noise currents: (part, mechanism, a, b, A²/Hz)
+        # Transistor noise currents: (part, mechanism, a, b, A²/Hz, 1/f?) — a 1/f current's
+        # density is given at 1 Hz.
+        self.shot = []
         for name, p in doc["parts"].items():
             kind = p["kind"]
             if kind in ("bjt", "mosfet"):
                 if bias is None or str(name) not in bias:
                     raise SystemExit(f"{name}: a transistor needs its bias from results.json (--bias)")
-                self._transistor(str(name), kind, p, bias[str(name)])
+                model = (doc.get("models") or {}).get(str(p["model"])) or {}
+                corner = q.value(model["flicker_corner"]) if "flicker_corner" in model else 0.0
+                self._transistor(str(name), kind, p, bias[str(name)], corner)
                 continue
             if kind not in ("resistor", "capacitor", "inductor", "transconductance", "voltage_amplifier"):
                 raise SystemExit(f"{name}: kind {kind} is not handled by this reference")
@@ -324,9 +328,11 @@ class Circuit:
         self.low = [e for e in caps if e["set"] == "low"]
         self.high = [e for e in caps if e["set"] == "high"]
 
-    def _transistor(self, name, kind, p, dev):
+    def _transistor(self, name, kind, p, dev, corner):
         """The small-signal model of one transistor at the bias `dev` (results.json's entry:
-        ic_a, ib_a and small_signal), and its noise currents."""
+        ic_a, ib_a and small_signal), and its noise currents; `corner` is the model's flicker
+        corner frequency (0: none), where the 1/f noise equals the white noise it accompanies
+        (the base current's shot noise, the channel noise; as a data sheet states a corner)."""
         ss = dev["small_signal"]
         kt = BOLTZMANN * self.kelvin
 
@@ -359,8 +365,11 @@ class Circuit:
             cap("cmu", bi, c, ss["cmu_f"])
             # Shot noise of the collector and base currents, 2q|I| (Schottky; Gray, Hurst, Lewis &
             # Meyer, noise chapter, from memory), taken as uncorrelated.
-            self.shot.append((name, "collector_shot", c, e, 2 * ELEMENTARY_CHARGE * abs(dev["ic_a"])))
-            self.shot.append((name, "base_shot", bi, e, 2 * ELEMENTARY_CHARGE * abs(dev["ib_a"])))
+            self.shot.append((name, "collector_shot", c, e, 2 * ELEMENTARY_CHARGE * abs(dev["ic_a"]), False))
+            base = 2 * ELEMENTARY_CHARGE * abs(dev["ib_a"])
+            self.shot.append((name, "base_shot", bi, e, base, False))
+            if corner > 0:
+                self.shot.append((name, "flicker", bi, e, base * corner, True))
         else:
             d, g, s_ = str(p["d"]), str(p["g"]), str(p["s"])
             vccs("gm", d, s_, g, s_, ss["gm_s"])
@@ -371,7 +380,10 @@ class Circuit:
             cap("cdb", d, s_, ss["cdb_f"])
             # Channel thermal noise 4kTγg_m, γ = 2/3 (long channel in saturation; van der Ziel,
             # and Razavi's noise chapter, from memory).
-            self.shot.append((name, "channel", d, s_, 4 * kt * (2 / 3) * abs(ss["gm_s"])))
+            channel = 4 * kt * (2 / 3) * abs(ss["gm_s"])
+            self.shot.append((name, "channel", d, s_, channel, False))
+            if corner > 0:
+                self.shot.append((name, "flicker", d, s_, channel * corner, True))
 
     def network(self, caps, inductors="short", rsig=True, loadr=True, r_sig=None):
         """MNA of one network. caps: name -> 'dyn' | 'short' | 'open' (absent = open);
@@ -856,15 +868,16 @@ def ckt_gain(net):
 
 
 def noise_sources(ckt, source=True):
-    """Every noise current: (part, mechanism, a, b, S in A²/Hz, is_source). The signal
-    source's resistance is at T0, every other part at the design temperature."""
+    """Every noise current: (part, mechanism, a, b, S in A²/Hz, is_source, 1/f?), a 1/f
+    current's S at 1 Hz. The signal source's resistance is at T0, every other part at the
+    design temperature."""
     out = []
     for e in ckt.parts:
         if e["kind"] == "resistor" and e.get("noise") and e["value"] > 0:
-            out.append((*e["noise"], e["a"], e["b"], 4 * BOLTZMANN * ckt.kelvin / e["value"], False))
-    out += [(*shot, False) for shot in ckt.shot]
+            out.append((*e["noise"], e["a"], e["b"], 4 * BOLTZMANN * ckt.kelvin / e["value"], False, False))
+    out += [(*shot[:5], False, shot[5]) for shot in ckt.shot]
     if source:
-        out.append(("source", "thermal", ckt.sig_p, ckt.sig_n, 4 * BOLTZMANN * T0 / ckt.r_sig, True))
+        out.append(("source", "thermal", ckt.sig_p, ckt.sig_n, 4 * BOLTZMANN * T0 / ckt.r_sig, True, False))
     return out
 
 
@@ -892,7 +905,7 @@ def _outputs(net, D, f):
 def _spectrum(net, sources, D, f):
     """(|H|, each source's output density V²/Hz, |Z| of the extra column) at f."""
     z = _outputs(net, D, f)
-    dens = np.array([s[4] for s in sources])
+    dens = np.array([s[4] / f if s[6] else s[4] for s in sources])
     return abs(z[0]), np.abs(z[1:-1]) ** 2 * dens, abs(z[-1])
 
 

@@ -86,3 +86,25 @@ fn noise_figures_join_the_tolerance_study_when_a_requirement_limits_them() {
     // 1.012 dB at the corner: over the 1 dB limit.
     assert_eq!(check.corner_pass, Some(false));
 }
+
+#[test]
+fn the_explanation_names_the_dominant_source_and_what_removing_it_would_give() {
+    let d = divider("  noise_figure: {max: 1 dB}\n");
+    let r = review(&d, &ReviewOptions::quiet(&d, Some(0))).unwrap();
+    let text = r.explanation.noise.join("\n");
+    // R_p's share of the output noise is (R_s/R_p)/(1 + R_s/R_p) = 20 %, all of what the
+    // stage adds; without it only the source is left, F = 1.
+    assert!(
+        text.contains("RP's thermal noise: 20 % of the output noise, 100 % of what the stage adds"),
+        "{text}"
+    );
+    assert!(text.contains("without it the noise figure would be 0 dB"), "{text}");
+    // ∂NF/∂ln R_p = −(10/ln 10)·x/(1 + x) with x = R_s/R_p; a 10 % rise moves it by that
+    // times ln 1.1: −0.083 dB, so raising R_p reduces the noise.
+    let x = RS / RP;
+    let moved = -(10.0 / std::f64::consts::LN_10) * x / (1.0 + x) * 1.1f64.ln();
+    assert!((moved + 0.0828).abs() < 5e-4, "{moved}");
+    assert!(text.contains("about −0.083 dB; raising it reduces the noise"), "{text}");
+    // A shunt resistor's noise is a current at the input: the optimum source is below R_s.
+    assert!(text.contains("current noise i_n dominates"), "{text}");
+}

@@ -80,6 +80,7 @@ pub const BIPOLAR_KEYS: &[&str] = &[
     "saturation_current_exponent",
     "band_gap_voltage",
     "beta_exponent",
+    "flicker_corner",
 ];
 /// Keys of a MOSFET model.
 pub const MOS_KEYS: &[&str] = &[
@@ -98,6 +99,7 @@ pub const MOS_KEYS: &[&str] = &[
     "reference_temperature",
     "threshold_drift",
     "mobility_exponent",
+    "flicker_corner",
 ];
 /// Keys of a junction.
 pub const JUNCTION_KEYS: &[&str] = &["capacitance", "potential", "grading"];

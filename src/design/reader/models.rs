@@ -185,6 +185,8 @@ impl Reader<'_> {
         let band_gap_v =
             plain(self, f, "band_gap_voltage", Place { positive: true, ..VOLTAGE }, 1.11);
         let beta_exponent = plain(self, f, "beta_exponent", EXPONENT, 1.5);
+        let flicker_corner_hz =
+            self.param_at(f, name, "flicker_corner", FREQUENCY).map(|t| t.nominal);
         Some(BipolarModel {
             polarity: if npn { BipolarType::Npn } else { BipolarType::Pnp },
             beta: beta?,
@@ -200,6 +202,7 @@ impl Reader<'_> {
             saturation_current_exponent,
             band_gap_v,
             beta_exponent,
+            flicker_corner_hz,
         })
     }
 
@@ -424,6 +427,8 @@ impl Reader<'_> {
             self.param_at(f, name, "threshold_drift", drift).map_or(-2e-3, |t| t.nominal);
         let mobility_exponent =
             self.param_at(f, name, "mobility_exponent", EXPONENT).map_or(-1.5, |t| t.nominal);
+        let flicker_corner_hz =
+            self.param_at(f, name, "flicker_corner", FREQUENCY).map(|t| t.nominal);
         Some(MosModel {
             polarity: if nmos { MosType::Nmos } else { MosType::Pmos },
             process_transconductance: kp?,
@@ -440,6 +445,7 @@ impl Reader<'_> {
             reference_temperature_k,
             threshold_drift_v_per_k,
             mobility_exponent,
+            flicker_corner_hz,
         })
     }
 
