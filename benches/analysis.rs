@@ -1,5 +1,5 @@
 //! Benchmarks of the analysis (run with `cargo bench --bench analysis`): the whole analysis
-//! of each example design, and an RC ladder of 100, 1,000 and 3,000 nodes (time constants
+//! of each example design, its noise review alone, and an RC ladder of 100, 1,000 and 3,000 nodes (time constants
 //! from one factorisation, and poles by QZ where that is affordable). Prints medians; it
 //! asserts nothing, it measures.
 
@@ -144,6 +144,47 @@ fn main() {
             "  {:<28} {:>10.3} ms  ({runs} runs)",
             path.file_name().unwrap().to_string_lossy(),
             t.as_secs_f64() * 1e3
+        );
+    }
+    println!(
+        "\nnoise review of each example design (sources, spot spectrum, input generators, band integral, the sweep's noise; bias and network built beforehand)"
+    );
+    let mut names: Vec<_> =
+        std::fs::read_dir(format!("{root}/designs")).unwrap().map(|e| e.unwrap().path()).collect();
+    names.sort();
+    for path in names {
+        use tauweave::circuit::{netlist::Netlist, operating_point, small_signal};
+        let text = std::fs::read_to_string(&path).unwrap();
+        let d = design::load(&text).design.expect("valid design");
+        let a = analysis::analyze(&d).unwrap();
+        let net = Netlist::from_design(&d);
+        let op = net.has_devices().then(|| operating_point::solve(&net).unwrap());
+        let (lin, _) = small_signal::linearize(&net, op.as_ref());
+        let full = mna::assemble(&lin, |_| CapState::Present, Assembly::default());
+        let n = a.noise.as_ref().expect("noise");
+        let band = n.band.as_ref().map(|b| (b.start_hz, b.stop_hz, b.basis));
+        let frequencies: Vec<f64> = a.sweep.iter().map(|p| p.frequency_hz).collect();
+        let corners = vec![0.0; op.as_ref().map_or(0, |o| o.devices.len())];
+        let request = analysis::noise::Request {
+            lin: &lin,
+            op: op.as_ref(),
+            mna: &full,
+            kelvin: net.temperature_k,
+            corners: &corners,
+            spot_hz: n.spot_frequency_hz,
+            band,
+            frequencies: &frequencies,
+        };
+        let (t, runs) = median(
+            || drop(black_box(analysis::noise::review(&request))),
+            Duration::from_secs(2),
+            2000,
+        );
+        println!(
+            "  {:<28} {:>10.3} ms  ({runs} runs, {} sweep points)",
+            path.file_name().unwrap().to_string_lossy(),
+            t.as_secs_f64() * 1e3,
+            frequencies.len()
         );
     }
     println!(

@@ -130,7 +130,7 @@ fn style(size: u32) -> TextStyle<'static> {
 
 /// The names of every plot a review can hold (`plot(name=…)` accepts these).
 pub const PLOTS: &[&str] =
-    &["schematic", "bode", "pole_zero", "shares", "noise", "tornado", "histograms"];
+    &["schematic", "bode", "pole_zero", "shares", "noise", "noise_shares", "tornado", "histograms"];
 
 /// Every plot of the review.
 pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study>) -> Vec<Plot> {
@@ -153,6 +153,9 @@ pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study
     }
     if let Some(svg) = a.noise.as_ref().and_then(noise) {
         out.push(Plot { name: "noise", caption: "Noise over the sweep: the noise figure from the design's source (at 290 K), and the noise referred to the source EMF in dB relative to 1 nV/√Hz; the operating band is shaded and the spot frequency dashed. Where the gain falls away the referred noise climbs out of the frame.".into(), svg, file: None, max_width: None });
+    }
+    if let Some(svg) = a.noise.as_ref().and_then(noise_shares) {
+        out.push(Plot { name: "noise_shares", caption: "Who makes the noise: each part's share of the output noise by mechanism, at the spot frequency (dark) and integrated over the band (grey), largest first; the smallest are summed as others.".into(), svg, file: None, max_width: None });
     }
     if let Some((tornado, histograms)) = extra {
         if let Some(svg) = tornado {
@@ -1168,6 +1171,67 @@ fn pole_zero(a: &Analysis) -> Option<String> {
 }
 
 /// Each capacitor's share of the estimate that sets each cut-off, in two groups.
+/// Rows of the noise share chart before the rest are summed as "others".
+const NOISE_ROWS: usize = 6;
+
+/// Each contributor's share of the output noise at the spot frequency and over the band.
+fn noise_shares(n: &crate::analysis::noise::NoiseReport) -> Option<String> {
+    use crate::analysis::noise::Mechanism;
+    if n.contributors.is_empty() {
+        return None;
+    }
+    let short = |m: Mechanism| match m {
+        Mechanism::Thermal => "thermal",
+        Mechanism::BaseResistance => "base resistance",
+        Mechanism::CollectorShot => "I_C shot",
+        Mechanism::BaseShot => "I_B shot",
+        Mechanism::Channel => "channel",
+        Mechanism::Flicker => "1/f",
+    };
+    let bars = |share: &dyn Fn(&crate::analysis::noise::Contributor) -> Option<f64>,
+                dark: bool|
+     -> Option<Vec<Bar>> {
+        let mut rows: Vec<(String, f64)> = n
+            .contributors
+            .iter()
+            .map(|c| Some((format!("{} {}", c.part, short(c.mechanism)), share(c)?)))
+            .collect::<Option<_>>()?;
+        rows.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+        if rows.len() > NOISE_ROWS + 1 {
+            let rest: f64 = rows[NOISE_ROWS..].iter().map(|r| r.1).sum();
+            let count = rows.len() - NOISE_ROWS;
+            rows.truncate(NOISE_ROWS);
+            rows.push((format!("{count} others"), rest));
+        }
+        Some(
+            rows.into_iter()
+                .map(|(label, v)| Bar {
+                    label,
+                    value: v * 100.0,
+                    shown: format!("{} %", crate::notation::plain(v * 100.0, 3)),
+                    dark,
+                })
+                .collect(),
+        )
+    };
+    let spot_head = format!(
+        "at {}: share of the output density",
+        crate::notation::si(n.spot_frequency_hz, "Hz", 4)
+    );
+    let mut groups = vec![(Some(spot_head.as_str()), bars(&|c| Some(c.share), true)?)];
+    let band_head = n.band.as_ref().map(|b| {
+        format!(
+            "over {} … {}: share of the rms²",
+            crate::notation::si(b.start_hz, "Hz", 4),
+            crate::notation::si(b.stop_hz, "Hz", 4)
+        )
+    });
+    if let (Some(head), Some(rows)) = (band_head.as_deref(), bars(&|c| c.band_share, false)) {
+        groups.push((Some(head), rows));
+    }
+    bar_chart(&groups, Some((0.0, 100.0)), "share of the output noise")
+}
+
 fn shares(a: &Analysis) -> Option<String> {
     let group = |caps: Vec<(String, f64)>, dark: bool| -> Vec<Bar> {
         caps.into_iter()
