@@ -171,6 +171,7 @@ fn main() {
             mna: &full,
             kelvin: net.temperature_k,
             corners: &corners,
+            amplitude_v: d.signal.amplitude_v,
             spot_hz: n.spot_frequency_hz,
             band,
             frequencies: &frequencies,

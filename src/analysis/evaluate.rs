@@ -58,8 +58,11 @@ struct Core {
     band: Option<(Band, BandResponse)>,
     /// The noise figures a requirement may limit, computed where one does.
     noise: noise::Figures,
-    /// Whether the noise figure, the input density and the output noise are limited.
-    noise_limits: [bool; 3],
+    /// Whether the noise figure, the input density, the output noise and the
+    /// signal-to-noise ratio are limited.
+    noise_limits: [bool; 4],
+    /// The signal's peak amplitude at the source EMF, V, when the design states one.
+    amplitude_v: Option<f64>,
     /// Each transistor's flicker corner, Hz (0: none), in the operating point's order.
     corners: Vec<f64>,
 }
@@ -228,6 +231,7 @@ fn core(design: &Design, near: Option<&OperatingPoint>) -> Result<Core, Analysis
     let wanted = noise::Wanted {
         spot: req.noise_figure.is_some() || req.input_noise_density.is_some(),
         band: req.output_noise.is_some(),
+        snr: req.snr.is_some(),
     };
     let (spot_hz, noise_band) = noise_where(band.map(|(b, _)| b), frequency_hz, f_low, f_high);
     let corners = flicker_corners(design, op.as_ref());
@@ -238,6 +242,7 @@ fn core(design: &Design, near: Option<&OperatingPoint>) -> Result<Core, Analysis
             mna: &full,
             kelvin: net.temperature_k,
             corners: &corners,
+            amplitude_v: design.signal.amplitude_v,
             spot_hz,
             band: noise_band,
             frequencies: &[],
@@ -271,8 +276,10 @@ fn core(design: &Design, near: Option<&OperatingPoint>) -> Result<Core, Analysis
             req.noise_figure.is_some(),
             req.input_noise_density.is_some(),
             req.output_noise.is_some(),
+            req.snr.is_some(),
         ],
         corners,
+        amplitude_v: design.signal.amplitude_v,
     })
 }
 
@@ -311,6 +318,7 @@ impl Core {
             noise_figure_db: self.noise.noise_figure_db.filter(|_| self.noise_limits[0]),
             input_noise: self.noise.input_density.filter(|_| self.noise_limits[1]),
             output_noise: self.noise.output_rms.filter(|_| self.noise_limits[2]),
+            snr_db: self.noise.snr_db.filter(|_| self.noise_limits[3]),
         }
     }
 
@@ -351,6 +359,7 @@ impl Core {
             mna: &self.full,
             kelvin: self.net.temperature_k,
             corners: &self.corners,
+            amplitude_v: self.amplitude_v,
             spot_hz: frequency_hz,
             band: noise_band,
             frequencies: &frequencies,

@@ -354,6 +354,8 @@ pub struct Metrics {
     pub input_noise: Option<f64>,
     /// rms output noise over the band, V, when a requirement limits it.
     pub output_noise: Option<f64>,
+    /// Signal-to-noise ratio over the band, dB, when a requirement limits it.
+    pub snr_db: Option<f64>,
 }
 
 impl Analysis {
@@ -387,6 +389,7 @@ impl Analysis {
                 .and_then(|n| n.band.as_ref())
                 .map(|b| b.output_rms_v)
                 .filter(|_| req.output_noise.is_some()),
+            snr_db: noise.and_then(|n| n.snr_db).filter(|_| req.snr.is_some()),
         }
     }
 

@@ -551,6 +551,10 @@ pub struct NoiseReport {
     pub nf_min_db: Option<f64>,
     /// Integrated over the band.
     pub band: Option<NoiseBand>,
+    /// The stated signal's rms at the source EMF, V.
+    pub signal_rms_v: Option<f64>,
+    /// Signal-to-noise ratio at the output over the band, dB.
+    pub snr_db: Option<f64>,
     /// Each part and mechanism, largest first.
     pub contributors: Vec<Contributor>,
     /// Over the sweep.
@@ -569,6 +573,8 @@ pub struct Request<'a> {
     pub kelvin: f64,
     /// Each transistor's flicker corner, Hz (0: none), in the operating point's order.
     pub corners: &'a [f64],
+    /// The signal's peak amplitude at the source EMF, V, when the design states one.
+    pub amplitude_v: Option<f64>,
     /// The spot frequency, Hz.
     pub spot_hz: f64,
     /// The band to integrate over, if any.
@@ -602,6 +608,8 @@ pub struct Figures {
     pub input_density: Option<f64>,
     /// rms output noise over the band, V.
     pub output_rms: Option<f64>,
+    /// Signal-to-noise ratio at the output over the band, dB.
+    pub snr_db: Option<f64>,
 }
 
 /// Which of [`Figures`] to compute: the band integral costs a few hundred solves, the spot
@@ -612,30 +620,40 @@ pub struct Wanted {
     pub spot: bool,
     /// The rms output noise over the band.
     pub band: bool,
+    /// The signal-to-noise ratio (the spot gain and the band integral).
+    pub snr: bool,
 }
 
 /// The figures `wanted` asks for, computed as [`review`] computes them (the same numbers to
 /// the bit), without the contributors, generators and sweep.
 pub fn figures(r: &Request, wanted: Wanted) -> Figures {
     let mut out = Figures::default();
-    if !wanted.spot && !wanted.band {
+    if !wanted.spot && !wanted.band && !wanted.snr {
         return out;
     }
     let srcs = sources(r.lin, r.op, r.kelvin, r.corners);
     let solver = Solver::new(r.mna);
-    if wanted.spot
-        && let Some(spot) = solver.spectrum(&srcs, r.spot_hz)
-    {
+    let spot = (wanted.spot || wanted.snr).then(|| solver.spectrum(&srcs, r.spot_hz)).flatten();
+    if let Some(spot) = &spot {
         out.noise_figure_db = spot.factor(&srcs).map(|f| 10.0 * f.log10());
         out.input_density = spot.input().map(f64::sqrt);
     }
-    if wanted.band
+    if (wanted.band || wanted.snr)
         && let Some((from, to, _)) = r.band
     {
         out.output_rms =
             band_sums(&solver, &srcs, from, to).map(|s| s[..srcs.len()].iter().sum::<f64>().sqrt());
     }
+    out.snr_db = snr_db(r.amplitude_v, spot.as_ref().map(|s| s.gain), out.output_rms);
     out
+}
+
+/// 20·log10 of the signal's rms at the output (a sine of peak `amplitude` at the source EMF,
+/// through the gain at the spot frequency) over the rms output noise.
+fn snr_db(amplitude: Option<f64>, gain: Option<f64>, noise_rms: Option<f64>) -> Option<f64> {
+    let signal = amplitude? / std::f64::consts::SQRT_2 * gain?;
+    let noise = noise_rms?;
+    (signal > 0.0 && noise > 0.0).then(|| 20.0 * (signal / noise).log10())
 }
 
 /// The noise review; None when the network cannot be solved at the spot frequency.
@@ -686,6 +704,13 @@ pub fn review(r: &Request) -> Option<NoiseReport> {
             })
         })
         .collect();
+    let noise_band = band.map(|(start_hz, stop_hz, basis, sums)| NoiseBand {
+        start_hz,
+        stop_hz,
+        basis,
+        output_rms_v: sums[..srcs.len()].iter().sum::<f64>().sqrt(),
+        input_rms_v: sums[srcs.len()].sqrt(),
+    });
     Some(NoiseReport {
         temperature_k: r.kelvin,
         source_resistance_ohm: r.lin.source_terminal.1,
@@ -698,13 +723,9 @@ pub fn review(r: &Request) -> Option<NoiseReport> {
         i_n_a_per_rthz: generators.map(|(_, i2)| i2.sqrt()),
         r_opt_ohm: optimum.map(|(r, _)| r),
         nf_min_db: optimum.map(|(_, f)| 10.0 * f.log10()),
-        band: band.map(|(start_hz, stop_hz, basis, sums)| NoiseBand {
-            start_hz,
-            stop_hz,
-            basis,
-            output_rms_v: sums[..srcs.len()].iter().sum::<f64>().sqrt(),
-            input_rms_v: sums[srcs.len()].sqrt(),
-        }),
+        band: noise_band.clone(),
+        signal_rms_v: r.amplitude_v.map(|a| a / std::f64::consts::SQRT_2),
+        snr_db: snr_db(r.amplitude_v, Some(spot.gain), noise_band.map(|b| b.output_rms_v)),
         contributors,
         sweep,
     })

@@ -107,6 +107,7 @@ pub fn unit_of(name: &str) -> &'static str {
         "noise_figure" => "dB",
         "input_noise_density" => "V/√Hz",
         "output_noise" => "V",
+        "snr" => "dB",
         _ => "Ω",
     }
 }
@@ -126,6 +127,7 @@ fn quantity(name: &str, a: &Analysis) -> (Option<f64>, Scale) {
         "input_noise_density" => {
             (a.noise.as_ref().and_then(|n| n.input_density_v_per_rthz), Scale::Relative)
         }
+        "snr" => (a.noise.as_ref().and_then(|n| n.snr_db), Scale::Db),
         "output_noise" => (
             a.noise.as_ref().and_then(|n| n.band.as_ref()).map(|b| b.output_rms_v),
             Scale::Relative,

@@ -45,6 +45,8 @@ pub enum Figure {
     InputNoise,
     /// rms output noise over the band.
     OutputNoise,
+    /// Signal-to-noise ratio, dB.
+    Snr,
 }
 
 impl Figure {
@@ -61,6 +63,7 @@ impl Figure {
             Figure::NoiseFigure => m.noise_figure_db,
             Figure::InputNoise => m.input_noise,
             Figure::OutputNoise => m.output_noise,
+            Figure::Snr => m.snr_db,
         }
     }
 
@@ -79,6 +82,7 @@ impl Figure {
             Figure::NoiseFigure => "noise_figure".into(),
             Figure::InputNoise => "input_noise_density".into(),
             Figure::OutputNoise => "output_noise".into(),
+            Figure::Snr => "snr".into(),
         }
     }
 }
@@ -95,6 +99,7 @@ impl Figure {
             "noise_figure" => Figure::NoiseFigure,
             "input_noise_density" => Figure::InputNoise,
             "output_noise" => Figure::OutputNoise,
+            "snr" => Figure::Snr,
             _ => Figure::ROut,
         }
     }
@@ -109,7 +114,7 @@ pub fn figures(nominal: &Metrics) -> Vec<Figure> {
             .collect();
     out.extend((0..nominal.bias.len()).map(Figure::Bias));
     out.extend(
-        [Figure::NoiseFigure, Figure::InputNoise, Figure::OutputNoise]
+        [Figure::NoiseFigure, Figure::InputNoise, Figure::OutputNoise, Figure::Snr]
             .into_iter()
             .filter(|f| f.of(nominal).is_some_and(|v| v > 0.0)),
     );
@@ -170,9 +175,11 @@ fn sensitivities_reporting(
             Figure::RIn => grads.r_in.as_ref(),
             Figure::ROut => grads.r_out.as_ref(),
             // Noise has no adjoint gradient here: by differences of whole evaluations.
-            Figure::Bias(_) | Figure::NoiseFigure | Figure::InputNoise | Figure::OutputNoise => {
-                None
-            }
+            Figure::Bias(_)
+            | Figure::NoiseFigure
+            | Figure::InputNoise
+            | Figure::OutputNoise
+            | Figure::Snr => None,
         }
     };
     let dc = transistors.then(|| DcChain::new(design, &nominal)).flatten();

@@ -353,6 +353,14 @@ fn noise_block(n: &crate::analysis::noise::NoiseReport) -> String {
             si(b.input_rms_v, "V", 4)
         );
     }
+    if let (Some(signal), Some(snr)) = (n.signal_rms_v, n.snr_db) {
+        let _ = writeln!(
+            out,
+            "  SNR           {} dB over the band, the signal {} rms at the source EMF",
+            plain(snr, 4),
+            si(signal, "V", 4)
+        );
+    }
     let percent = |v: f64| format!("{} %", plain(100.0 * v, 3));
     let mut rows: Vec<Vec<String>> = n
         .contributors

@@ -144,6 +144,8 @@ pub struct Signal {
     pub resistance: Toleranced,
     /// The band the stage must serve, when the design states one.
     pub band: Option<Band>,
+    /// The signal's peak amplitude at the source EMF, V, when the design states one.
+    pub amplitude_v: Option<f64>,
 }
 
 /// The operating band: the frequencies the stage must serve.
@@ -469,11 +471,15 @@ pub struct Requirements {
     /// rms output noise over the band (the stated operating band, else between the
     /// cut-offs), V.
     pub output_noise: Option<Limits>,
+    /// Signal-to-noise ratio at the output over the band, dB (limits in dB): the stated
+    /// signal amplitude's rms through the gain at the spot frequency, over the rms output
+    /// noise.
+    pub snr: Option<Limits>,
 }
 
 impl Requirements {
     /// Every requirement by its name in the design file, set or not, in report order.
-    pub fn items(&self) -> [(&'static str, Option<Limits>); 9] {
+    pub fn items(&self) -> [(&'static str, Option<Limits>); 10] {
         [
             ("midband_gain", self.midband_gain),
             ("gain_flatness", self.gain_flatness),
@@ -484,6 +490,7 @@ impl Requirements {
             ("noise_figure", self.noise_figure),
             ("input_noise_density", self.input_noise_density),
             ("output_noise", self.output_noise),
+            ("snr", self.snr),
         ]
     }
 

@@ -263,6 +263,7 @@ fn requirement_of(key: &str) -> Option<&str> {
         "/noise/noise_figure_db" => Some("noise_figure"),
         "/noise/input_density_v_per_rthz" => Some("input_noise_density"),
         "/noise/band/output_rms_v" => Some("output_noise"),
+        "/noise/snr_db" => Some("snr"),
         _ => None,
     };
     own.or_else(|| {
@@ -399,7 +400,7 @@ fn limit_changes(old: &ResultsDocument, new: &ResultsDocument) -> Vec<PartChange
         if before.as_deref() != Some(after.as_str()) {
             out.push(PartChange {
                 change: if before.is_some() { "changed" } else { "added" },
-                item: format!("requirement {}", r.name.replace('_', " ")),
+                item: format!("requirement {}", crate::report::tables::requirement_words(&r.name)),
                 old: before,
                 new: Some(after),
             });
@@ -408,7 +409,7 @@ fn limit_changes(old: &ResultsDocument, new: &ResultsDocument) -> Vec<PartChange
     for r in ro.iter().filter(|r| find_requirement(rn, &r.name).is_none()) {
         out.push(PartChange {
             change: "removed",
-            item: format!("requirement {}", r.name.replace('_', " ")),
+            item: format!("requirement {}", crate::report::tables::requirement_words(&r.name)),
             old: Some(requirement_limit(r)),
             new: None,
         });
@@ -768,6 +769,7 @@ fn figures(doc: &ResultsDocument) -> Vec<Figure> {
                 "V",
                 band.map(|b| b.input_rms_v),
             ),
+            ("/noise/snr_db", "signal-to-noise ratio", "dB", n.snr_db),
         ] {
             push(key.into(), label.into(), unit, value);
         }
@@ -803,7 +805,7 @@ fn figures(doc: &ResultsDocument) -> Vec<Figure> {
     }
     for r in &doc.requirements {
         let name = &r.name;
-        let spaced = name.replace('_', " ");
+        let spaced = crate::report::tables::requirement_words(name);
         // The margin in the requirement's own terms (dB for a gain), and the worst corner.
         match r.margin_db {
             Some(db) => push(format!("margin {name}"), format!("margin, {spaced}"), "dB", Some(db)),
@@ -943,7 +945,7 @@ pub fn status_rows(c: &Change) -> Vec<Vec<String>> {
             } else {
                 format!("{} → {}", s.old_limit, s.new_limit)
             };
-            let requirement = s.requirement.replace('_', " ");
+            let requirement = crate::report::tables::requirement_words(&s.requirement);
             vec![
                 if s.aspect == "nominal" {
                     requirement

@@ -556,6 +556,15 @@ pub struct NoiseResults {
     pub nf_min_db: Option<f64>,
     /// Integrated over the stated band, else between the exact cut-offs; null without either.
     pub band: Option<NoiseBandResults>,
+    /// The stated signal's rms at the source EMF, V (null when the design states no
+    /// amplitude).
+    #[serde(default)]
+    pub signal_rms_v: Option<f64>,
+    /// Signal-to-noise ratio at the output over the band, dB: the signal's rms through the
+    /// gain at the spot frequency over `band.output_rms_v` (null without an amplitude or a
+    /// band).
+    #[serde(default)]
+    pub snr_db: Option<f64>,
     /// Each part and mechanism, largest share at the spot frequency first.
     pub contributors: Vec<ContributorResults>,
 }
@@ -652,6 +661,8 @@ fn noise(n: &crate::analysis::noise::NoiseReport) -> NoiseResults {
             output_rms_v: b.output_rms_v,
             input_rms_v: b.input_rms_v,
         }),
+        signal_rms_v: n.signal_rms_v,
+        snr_db: n.snr_db,
         contributors: n
             .contributors
             .iter()

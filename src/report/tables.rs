@@ -508,7 +508,7 @@ pub fn requirement_row(r: &RequirementCheck) -> Vec<String> {
         _ => absent(),
     };
     vec![
-        r.name.replace('_', " "),
+        requirement_words(r.name),
         limit,
         r.value.map_or("not found".into(), show),
         if r.pass { "pass".into() } else { "FAIL".into() },
@@ -571,6 +571,14 @@ fn corner_verdict(r: &RequirementCheck) -> String {
     }
 }
 
+/// A requirement's name in words: `upper cutoff`, `signal-to-noise ratio`.
+pub fn requirement_words(name: &str) -> String {
+    match name {
+        "snr" => "signal-to-noise ratio".into(),
+        other => other.replace('_', " "),
+    }
+}
+
 /// The short label of a figure or requirement: `gain`, `flatness`, `f_H`, `R_in`, `Q1 bias`.
 pub fn figure_label(key: &str) -> String {
     match key {
@@ -583,6 +591,7 @@ pub fn figure_label(key: &str) -> String {
         "noise_figure" => "NF".into(),
         "input_noise_density" => "input noise".into(),
         "output_noise" => "output noise".into(),
+        "snr" => "SNR".into(),
         other => other.replace(".bias_current", " bias"),
     }
 }
@@ -596,6 +605,7 @@ fn figure_value(key: &str, v: f64) -> String {
         "noise_figure" => format!("{} dB", plain(v, 3)),
         "input_noise_density" => si(v, "V/√Hz", 4),
         "output_noise" => si(v, "V", 4),
+        "snr" => format!("{} dB", plain(v, 3)),
         _ => si(v, "A", 4),
     }
 }

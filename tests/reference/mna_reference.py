@@ -284,6 +284,13 @@ class Circuit:
         self.r_sig = q.value(sig["resistance"])
         band = sig.get("band")
         self.band = (q.value(band["from"]), q.value(band["to"])) if band else None
+        # The signal's rms at the source EMF: `amplitude` is a sine's peak, √2 × its rms.
+        if sig.get("amplitude") is not None:
+            self.signal_rms = q.value(sig["amplitude"]) / math.sqrt(2)
+        elif sig.get("amplitude_rms") is not None:
+            self.signal_rms = q.value(sig["amplitude_rms"])
+        else:
+            self.signal_rms = None
         self.out_p, self.out_n = _pair(out["at"])
         # dicts: name, kind, a, b, value, cp, cn, set, and for resistors `noise`: the
         # (part, mechanism) its thermal noise is reported under, None when noiseless.
@@ -1013,6 +1020,11 @@ def noise_review(ckt, spot_hz, band):
         "r_opt_ohm": r_opt,
         "nf_min_db": nf_min,
         "band": band_out,
+        # SNR over the band: the signal's rms through |H| at the spot frequency, over the rms
+        # output noise (the usual definition at the output, common practice).
+        "signal_rms_v": ckt.signal_rms,
+        "snr_db": (20 * math.log10(ckt.signal_rms * gain / band_out["output_rms_v"])
+                   if ckt.signal_rms and band_out and gain > 0 else None),
         "contributors": contributors,
     }
 

@@ -17,10 +17,15 @@ const RP: f64 = 4e3;
 const BAND: (f64, f64) = (1e3, 101e3);
 
 fn divider(requirements: &str) -> design::Design {
+    divider_with(requirements, "")
+}
+
+/// The divider with more `signal` keys (`extra`, written with a leading comma).
+fn divider_with(requirements: &str, extra: &str) -> design::Design {
     let text = format!(
         "tauweave: 1\ndesign: {{id: nz, title: noise divider, revision: A, date: 2026-12-04}}\n\
          environment: {{temperature: 290 K}}\n\
-         signal: {{at: in, resistance: 1k, band: {{from: 1 kHz, to: 101 kHz}}}}\n\
+         signal: {{at: in, resistance: 1k, band: {{from: 1 kHz, to: 101 kHz}}{extra}}}\n\
          output: {{at: in}}\n\
          parts:\n\
          \x20 RP: {{kind: resistor, value: 4k, between: [in, gnd], tolerance: 5 %}}\n\
@@ -107,4 +112,32 @@ fn the_explanation_names_the_dominant_source_and_what_removing_it_would_give() {
     assert!(text.contains("about −0.083 dB; raising it reduces the noise"), "{text}");
     // A shunt resistor's noise is a current at the input: the optimum source is below R_s.
     assert!(text.contains("current noise i_n dominates"), "{text}");
+}
+
+#[test]
+fn the_signal_to_noise_ratio_is_the_signal_through_the_gain_over_the_output_noise() {
+    // A sine of 10 µV rms (14.14 µV peak) through the divider's gain R_p/(R_s + R_p), over
+    // the output rms √(4kT0(R_s∥R_p)Δf): 20·log10 of the ratio (common practice).
+    for extra in [", amplitude: 14.142136 µV", ", amplitude_rms: 10 µV"] {
+        let d = divider_with("  snr: {min: 20 dB}\n", extra);
+        let r = review(&d, &ReviewOptions::quiet(&d, Some(0))).unwrap();
+        let check = r.requirements.iter().find(|c| c.name == "snr").unwrap();
+        let gain = RP / (RS + RP);
+        let noise = (4.0 * K * T0 * RS * RP / (RS + RP) * (BAND.1 - BAND.0)).sqrt();
+        let want = 20.0 * (10e-6 * gain / noise).log10();
+        close(check.value.unwrap(), want, 1e-6, extra);
+        // 16.95 dB: short of 20 dB.
+        assert!(!check.pass, "{extra}");
+        assert_eq!(check.unit, "dB");
+    }
+}
+
+#[test]
+fn an_snr_requirement_without_a_signal_amplitude_is_refused() {
+    let text = "tauweave: 1\ndesign: {id: nz, title: t, revision: A, date: 2026-12-04}\n\
+                signal: {at: in, resistance: 1k}\noutput: {at: in}\n\
+                parts:\n  RP: {kind: resistor, value: 4k, between: [in, gnd]}\n\
+                requirements:\n  snr: {min: 20 dB}\n";
+    let d = design::load(text).diagnostics;
+    assert!(d.iter().any(|x| x.message.contains("states no signal amplitude")), "{d:?}");
 }

@@ -152,9 +152,31 @@ impl Reader<'_> {
             Some((k, n)) => self.band(k, n),
             None => Some(None),
         };
+        let peak_place = Place { what: "a signal amplitude", positive: true, ..VOLTAGE };
+        let peak = f.get("amplitude").and_then(|n| self.quantity(n, peak_place));
+        let rms_entry = f.get_entry("amplitude_rms");
+        let rms = rms_entry.and_then(|(_, n)| self.quantity(n, peak_place));
+        if let (Some(_), Some((k, _))) = (peak, rms_entry) {
+            self.push(
+                Diagnostic::error(
+                    "out_of_range",
+                    "`signal` gives both `amplitude` (peak) and `amplitude_rms`",
+                )
+                .at(k.span, "one or the other")
+                .help("keep one: the peak is √2 times the rms of a sine"),
+            );
+        }
+        // A sine's peak is √2 times its rms.
+        let amplitude_v = peak.or(rms.map(|v| v * std::f64::consts::SQRT_2));
         f.finish(&mut self.diagnostics);
         let (positive, negative) = at?;
-        Some(Signal { positive, negative, resistance: Toleranced::exact(r?), band: band? })
+        Some(Signal {
+            positive,
+            negative,
+            resistance: Toleranced::exact(r?),
+            band: band?,
+            amplitude_v,
+        })
     }
 
     /// `signal.band: {from: 150 kHz, to: 500 kHz}`. The outer None is a refused band.

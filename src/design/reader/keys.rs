@@ -22,7 +22,7 @@ pub const META_KEYS: &[&str] =
 /// Keys of `environment`.
 pub const ENVIRONMENT_KEYS: &[&str] = &["temperature", "mains_powered"];
 /// Keys of `signal`.
-pub const SIGNAL_KEYS: &[&str] = &["at", "resistance", "band"];
+pub const SIGNAL_KEYS: &[&str] = &["at", "resistance", "band", "amplitude", "amplitude_rms"];
 /// Keys of `signal.band`.
 pub const BAND_KEYS: &[&str] = &["from", "to"];
 /// Keys of `output`.
@@ -116,6 +116,7 @@ pub const REQUIREMENT_KEYS: &[&str] = &[
     "noise_figure",
     "input_noise_density",
     "output_noise",
+    "snr",
 ];
 /// Keys of one requirement.
 pub const LIMIT_KEYS: &[&str] = &["min", "max"];

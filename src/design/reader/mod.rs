@@ -107,6 +107,14 @@ const NOISE_VOLTAGE: Place = Place {
     decibels: Decibels::Refused,
 };
 
+/// A signal-to-noise ratio, written in dB and kept as the dB figure.
+const SNR: Place = Place {
+    what: "a signal-to-noise ratio",
+    dim: Dim::NONE,
+    positive: false,
+    decibels: Decibels::Figure,
+};
+
 /// A temperature exponent: any sign, no unit.
 const EXPONENT: Place =
     Place { what: "an exponent", dim: Dim::NONE, positive: false, decibels: Decibels::Refused };
@@ -236,7 +244,9 @@ impl Reader<'_> {
         parts.extend(loads);
         let circuit_ok = self.error_count() == before_circuit;
         let has_band = signal.as_ref().map(|s| s.band.is_some());
-        let requirements = self.requirements(top.get_entry("requirements"), has_band);
+        let has_amplitude = signal.as_ref().map(|s| s.amplitude_v.is_some());
+        let requirements =
+            self.requirements(top.get_entry("requirements"), has_band, has_amplitude);
         let analysis = self.analysis(top.get_entry("analysis"));
         top.finish(&mut self.diagnostics);
         self.unused_models(root, &models, &parts);
@@ -544,6 +554,8 @@ fn example(place: Place) -> &'static str {
         "a noise figure" => "3 dB",
         "a noise density" => "2 nV/√Hz",
         "an rms noise voltage" => "5 µV",
+        "a signal-to-noise ratio" => "40 dB",
+        "a signal amplitude" => "10 mV",
         _ => "100",
     }
 }

@@ -7,12 +7,13 @@ use super::*;
 pub const MAX_SWEEP_POINTS: u32 = 20_000;
 
 impl Reader<'_> {
-    /// `has_band`: whether the signal states an operating band (None when the signal
-    /// section itself failed to read).
+    /// `has_band`, `has_amplitude`: whether the signal states an operating band and an
+    /// amplitude (None when the signal section itself failed to read).
     pub(super) fn requirements(
         &mut self,
         entry: Option<(&Key, &Node)>,
         has_band: Option<bool>,
+        has_amplitude: Option<bool>,
     ) -> Requirements {
         let mut out = Requirements::default();
         let Some((key, node)) = entry else { return out };
@@ -34,6 +35,7 @@ impl Reader<'_> {
                 "noise_figure" => NOISE_FIGURE,
                 "input_noise_density" => NOISE_DENSITY,
                 "output_noise" => NOISE_VOLTAGE,
+                "snr" => SNR,
                 _ => RESISTANCE,
             };
             let limits = self.limits(name, k, n, place);
@@ -48,6 +50,17 @@ impl Reader<'_> {
                     .help("add `band: {from: 150 kHz, to: 500 kHz}` under `signal:`"),
                 );
             }
+            if name == "snr" && has_amplitude == Some(false) {
+                self.push(
+                    Diagnostic::error(
+                        "missing_key",
+                        "`snr` compares the signal with the noise, and the design states no \
+                         signal amplitude",
+                    )
+                    .at(k.span, "the ratio of which signal?")
+                    .help("add `amplitude: 10 mV` (peak, at the source EMF) under `signal:`"),
+                );
+            }
             match name {
                 "midband_gain" => out.midband_gain = limits,
                 "gain_flatness" => out.gain_flatness = limits,
@@ -57,6 +70,7 @@ impl Reader<'_> {
                 "noise_figure" => out.noise_figure = limits,
                 "input_noise_density" => out.input_noise_density = limits,
                 "output_noise" => out.output_noise = limits,
+                "snr" => out.snr = limits,
                 _ => out.output_resistance = limits,
             }
         }
