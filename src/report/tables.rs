@@ -193,6 +193,12 @@ fn noise_table(n: &crate::analysis::noise::NoiseReport) -> String {
             format!("{} rms", si(b.input_rms_v, "V", 4)),
         ]);
     }
+    if let (Some(signal), Some(snr)) = (n.signal_rms_v, n.snr_db) {
+        rows.push(vec![
+            format!("signal-to-noise ratio ({} rms signal)", si(signal, "V", 4)),
+            format!("{} dB", plain(snr, 4)),
+        ]);
+    }
     markdown_table(&[&format!("at {}", si(n.spot_frequency_hz, "Hz", 4)), "value"], "lr", rows)
 }
 
