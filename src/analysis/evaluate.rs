@@ -339,8 +339,6 @@ impl Core {
             settings.sweep_stop_hz,
             settings.points_per_decade,
         );
-        let sweep = response::sweep(&self.transfer, &frequencies);
-        let peaking = peaking(&sweep, self.gain.abs());
         let has_high = !self.high_caps.is_empty();
         let octc = time_constants::open_circuit(&self.mid, &self.g, &self.high_caps);
         let b1 = octc.b1;
@@ -364,6 +362,16 @@ impl Core {
             band: noise_band,
             frequencies: &frequencies,
         });
+        // A large network's response comes from the noise sweep's own solves (one
+        // factorisation per frequency gives H and every source's transfer); a small one's
+        // from its reduced form, which is cheaper than the noise solve.
+        let sweep = match &noise {
+            Some(n) if self.transfer.is_sparse() && n.responses.len() == frequencies.len() => {
+                response::points(n.responses.iter().copied())
+            }
+            _ => response::sweep(&self.transfer, &frequencies),
+        };
+        let peaking = peaking(&sweep, self.gain.abs());
         Ok(Analysis {
             operating_point,
             capacitors,

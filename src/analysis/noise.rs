@@ -224,6 +224,8 @@ pub struct Spectrum {
     pub frequency_hz: f64,
     /// |H|, the signal's gain from the source EMF to the output.
     pub gain: f64,
+    /// H itself.
+    pub h: c64,
     /// Each source's output density, V²/Hz, in the order of the sources.
     pub each: Vec<f64>,
 }
@@ -304,11 +306,12 @@ impl<'a> Solver<'a> {
     /// Each source's output density and the signal gain at `f`.
     pub fn spectrum(&self, sources: &[Source], f: f64) -> Option<Spectrum> {
         let (x, lambda) = self.pair(f)?;
-        let gain = self.mna.out.iter().zip(&x).map(|(c, v)| v * *c).sum::<c64>().norm();
+        let h = self.mna.out.iter().zip(&x).map(|(c, v)| v * *c).sum::<c64>();
+        let gain = h.norm();
         let at = |node: usize| Mna::row(node).map_or(c64::new(0.0, 0.0), |r| lambda[r]);
         let each =
             sources.iter().map(|s| (at(s.b) - at(s.a)).norm_sqr() * s.density_at(f)).collect();
-        Some(Spectrum { frequency_hz: f, gain, each })
+        Some(Spectrum { frequency_hz: f, gain, h, each })
     }
 
     /// |Z|: the output voltage per ampere injected into node `node` from ground, at `f`.
@@ -559,6 +562,10 @@ pub struct NoiseReport {
     pub contributors: Vec<Contributor>,
     /// Over the sweep.
     pub sweep: Vec<NoisePoint>,
+    /// H at each frequency of the sweep, from the same solves: a large network's response
+    /// sweep is read from here rather than factorised a second time.
+    #[serde(skip)]
+    pub responses: Vec<(f64, c64)>,
 }
 
 /// What the noise review is asked.
@@ -691,11 +698,13 @@ pub fn review(r: &Request) -> Option<NoiseReport> {
         c.band_share = c.band_share.zip(band_total).map(|(v, t)| if t > 0.0 { v / t } else { 0.0 });
     }
     contributors.sort_by(|a, b| b.share.total_cmp(&a.share).then_with(|| a.part.cmp(&b.part)));
+    let mut responses = Vec::with_capacity(r.frequencies.len());
     let sweep = r
         .frequencies
         .iter()
         .filter_map(|&f| {
             let s = solver.spectrum(&srcs, f)?;
+            responses.push((f, s.h));
             Some(NoisePoint {
                 frequency_hz: f,
                 output_density_v_per_rthz: s.output().sqrt(),
@@ -728,6 +737,7 @@ pub fn review(r: &Request) -> Option<NoiseReport> {
         snr_db: snr_db(r.amplitude_v, Some(spot.gain), noise_band.map(|b| b.output_rms_v)),
         contributors,
         sweep,
+        responses,
     })
 }
 

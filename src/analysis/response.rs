@@ -87,10 +87,22 @@ pub fn grid(start: f64, stop: f64, per_decade: u32) -> Vec<f64> {
 
 /// The sweep over `frequencies`, phase unwrapped.
 pub fn sweep(m: &Transfer, frequencies: &[f64]) -> Vec<SweepPoint> {
-    let mut out: Vec<SweepPoint> = Vec::with_capacity(frequencies.len());
+    points(frequencies.iter().filter_map(|&f| Some((f, m.at(f)?))))
+}
+
+impl Transfer {
+    /// True when the response is solved in sparse form (a large network), where a solve
+    /// that gives H as well (the noise sweep's) is worth sharing.
+    pub fn is_sparse(&self) -> bool {
+        matches!(self.0, Form::Sparse { .. })
+    }
+}
+
+/// Sweep points from values of H, in frequency order, phase unwrapped.
+pub fn points(values: impl Iterator<Item = (f64, c64)>) -> Vec<SweepPoint> {
+    let mut out: Vec<SweepPoint> = Vec::new();
     let mut last_phase: Option<f64> = None;
-    for &f in frequencies {
-        let Some(h) = m.at(f) else { continue };
+    for (f, h) in values {
         let mut phase = h.im.atan2(h.re).to_degrees();
         if let Some(prev) = last_phase {
             while phase - prev > 180.0 {
