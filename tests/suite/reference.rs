@@ -238,3 +238,50 @@ fn results_json_agrees_with_the_independent_reference() {
     println!("{:9.2e}  every other quantity", rest.fold(0.0, f64::max));
     assert!(mismatches.is_empty(), "{}", mismatches.join("\n"));
 }
+
+/// The noise of random RC and transconductance networks (the generator of identities.rs)
+/// against the reference, like the designs above: six networks whose noise tauweave can
+/// refer to the input (the source reaches the output, so the noise factor and the input
+/// generators exist) and that have capacitors on either side, the first six such seeds.
+#[test]
+fn noise_of_random_networks_agrees_with_the_independent_reference() {
+    let dir = scratch("reference-random");
+    let mut checked = Vec::new();
+    let mut mismatches = Vec::new();
+    for seed in 1..=60u64 {
+        if checked.len() == 6 {
+            break;
+        }
+        let design = dir.join(format!("random-{seed}.yaml"));
+        std::fs::write(&design, crate::identities::random_network(seed)).unwrap();
+        let probe = dir.join(format!("probe-{seed}"));
+        let render = run_in(
+            &dir,
+            &["render", design.to_str().unwrap(), "--format", "json", "--out"]
+                .into_iter()
+                .chain([probe.to_str().unwrap(), "--runs", "0"])
+                .collect::<Vec<_>>(),
+        );
+        if !render.status.success() {
+            continue;
+        }
+        let ours: Value =
+            serde_json::from_str(&std::fs::read_to_string(probe.join("results.json")).unwrap())
+                .unwrap();
+        let n = &ours["noise"];
+        let usable = n["noise_factor"].is_number()
+            && n["e_n_v_per_rthz"].is_number()
+            && n["contributors"].as_array().is_some_and(|c| c.len() >= 3)
+            && (ours["high"]["b1_s"].is_number()
+                || ours["low"]["sctc"]["f_estimate_hz"].is_number());
+        if !usable {
+            continue;
+        }
+        let (diffs, _, compared) = cross_check(&design, "random");
+        assert!(compared >= 10, "random network {seed}: too few noise quantities compared");
+        mismatches.extend(diffs);
+        checked.push(seed);
+    }
+    assert_eq!(checked.len(), 6, "only {checked:?} of the first 60 seeds could be compared");
+    assert!(mismatches.is_empty(), "{}", mismatches.join("\n"));
+}
