@@ -20,7 +20,7 @@ use crate::analysis::response::{self, BandResponse, SweepPoint, Transfer};
 use crate::analysis::time_constants::{self, CapRef, ShortCircuitCap};
 use crate::analysis::{
     Analysis, AnalysisError, BandReport, CapacitorClass, DeviceReport, EstimateErrors, High, Low,
-    Metrics, Midband, Octc, OperatingPointReport, Peaking, RootHz, RootWindow, Sctc,
+    Metrics, Midband, Octc, OperatingPointReport, Peaking, RootHz, RootWindow, Sctc, SupplyReport,
 };
 use crate::circuit::netlist::{CapSet, Netlist};
 use crate::circuit::operating_point::{self, DeviceState, OperatingPoint};
@@ -456,6 +456,16 @@ impl Core {
                 .cloned()
                 .zip(self.small.iter().cloned())
                 .map(|(bias, small_signal)| DeviceReport { bias, small_signal })
+                .collect(),
+            supplies: operating_point::supply_currents(&self.net, op)
+                .into_iter()
+                .zip(&self.net.supplies)
+                .map(|(current_a, &(node, voltage_v))| SupplyReport {
+                    node: self.net.nodes[node].clone(),
+                    voltage_v,
+                    current_a,
+                    power_w: voltage_v * current_a,
+                })
                 .collect(),
         })
     }

@@ -125,6 +125,21 @@ pub struct OperatingPointReport {
     pub nodes: BTreeMap<String, f64>,
     /// Transistors.
     pub devices: Vec<DeviceReport>,
+    /// What each supply delivers.
+    pub supplies: Vec<SupplyReport>,
+}
+
+/// One supply at the operating point.
+#[derive(Clone, Debug, Serialize)]
+pub struct SupplyReport {
+    /// Its rail's node.
+    pub node: String,
+    /// V.
+    pub voltage_v: f64,
+    /// The current it delivers into the circuit, A (negative where it sinks current).
+    pub current_a: f64,
+    /// V·I, W (negative where it absorbs power).
+    pub power_w: f64,
 }
 
 /// A transistor's bias and small-signal model.

@@ -633,6 +633,50 @@ fn finish(steps: &Steps, mut attempt: Attempt, method: Method) -> OperatingPoint
     }
 }
 
+/// The current each supply delivers into the circuit at the solution `op` of `net`, A, in
+/// the order of `net.supplies`: the sum over every element touching its rail of the current
+/// leaving the rail into that element (Kirchhoff's current law at the rail, whose own row
+/// the solve leaves out).
+pub fn supply_currents(net: &Netlist, op: &OperatingPoint) -> Vec<f64> {
+    let layout = Layout::new(net);
+    let x = &op.solution;
+    let v = |node: usize| voltage(x, node);
+    let vt = op.thermal_voltage_v;
+    net.supplies
+        .iter()
+        .map(|&(rail, _)| {
+            // The current leaving `rail` through a branch from `p` to `q` carrying `i` (p → q).
+            let out_of = |p: usize, q: usize, i: f64| {
+                (if p == rail { i } else { 0.0 }) - (if q == rail { i } else { 0.0 })
+            };
+            let (sp, sn, rs) = net.signal;
+            let mut total = out_of(sp, sn, (v(sp) - v(sn)) / rs);
+            for (k, el) in net.elements.iter().enumerate() {
+                total += match *el {
+                    Element::Resistor { a, b, r, .. } => out_of(a, b, (v(a) - v(b)) / r),
+                    Element::Transconductance { a, b, p, n, gm, .. } => {
+                        out_of(a, b, gm * (v(p) - v(n)))
+                    }
+                    Element::VoltageAmplifier { a, b, .. } | Element::Inductor { a, b, .. } => {
+                        layout.branch[k].map_or(0.0, |br| out_of(a, b, x[br]))
+                    }
+                    Element::Bjt { .. } | Element::Mosfet { .. } => controls(el, x)
+                        .map(|c| {
+                            device_currents(el, c, vt)
+                                .into_iter()
+                                .filter(|(node, _)| *node == rail)
+                                .map(|(_, i)| i)
+                                .sum()
+                        })
+                        .unwrap_or(0.0),
+                    Element::Capacitor { .. } => 0.0,
+                };
+            }
+            total
+        })
+        .collect()
+}
+
 /// The currents device `el` draws into each of its terminals (node, A, positive into the
 /// device) at normalised controls `v`: what its KCL rows hold.
 pub(crate) fn device_currents(el: &Element, v: [f64; 2], vt: f64) -> Vec<(usize, f64)> {
@@ -758,6 +802,30 @@ mod tests {
 
     fn close(got: f64, want: f64, abs: f64, what: &str) {
         assert!((got - want).abs() <= abs, "{what}: {got} vs hand solution {want}");
+    }
+
+    /// What the supply delivers returns to ground (Kirchhoff's current law, common practice):
+    /// the supply current summed at the rail equals the current summed at ground, which the
+    /// code never adds up; and two supplies feeding one divider share it by Ohm's law.
+    #[test]
+    fn supply_currents_return_through_ground() {
+        let (net, op) = bias(
+            "vcc: 12 V, vee: 5 V",
+            "  R1: {kind: resistor, value: 47k, between: [vcc, out]}\n\
+             \x20 R2: {kind: resistor, value: 10k, between: [out, gnd]}\n\
+             \x20 RC: {kind: resistor, value: 3k3, between: [vcc, coll]}\n\
+             \x20 RE: {kind: resistor, value: 1k, between: [emit, gnd]}\n\
+             \x20 RX: {kind: resistor, value: 2k, between: [vee, coll]}\n\
+             \x20 Q1: {kind: bjt, model: N, c: coll, b: out, e: emit}\n",
+            "  N: {type: npn, beta: 150, saturation_current: 10 fA}\n",
+        );
+        let i = supply_currents(&net, &op);
+        let v = |n: &str| node(&net, &op, n);
+        let to_ground = v("out") / 10e3 + v("emit") / 1e3;
+        close(i[0] + i[1], to_ground, 1e-15, "supplies in, ground out");
+        // vee only feeds RX, so its current is Ohm's law across RX (negative: it sinks).
+        close(i[1], (5.0 - v("coll")) / 2e3, 1e-18, "vee through RX");
+        assert!(i[1] < 0.0 && i[0] > 0.0);
     }
 
     #[test]

@@ -135,6 +135,22 @@ pub fn analysis_text(a: &Analysis) -> String {
             .map(|(n, v)| vec![n.clone(), si(*v, "V", 4)])
             .collect();
         out.push_str(&render(2, &[("node", Align::Left), ("voltage", Align::Right)], &nodes));
+        if !op.supplies.is_empty() {
+            let supplies: Vec<String> = op
+                .supplies
+                .iter()
+                .map(|s| {
+                    format!(
+                        "{} {} delivers {} ({})",
+                        s.node,
+                        si(s.voltage_v, "V", 4),
+                        si(s.current_a, "A", 4),
+                        si(s.power_w, "W", 3)
+                    )
+                })
+                .collect();
+            let _ = writeln!(out, "\n  supplies  {}", supplies.join(" · "));
+        }
         let mut rows = Vec::new();
         for d in &op.devices {
             let ss = &d.small_signal;

@@ -797,6 +797,21 @@ fn figures(doc: &ResultsDocument) -> Vec<Figure> {
                 Some(d.power_w),
             );
         }
+        for s in &op.supplies {
+            let node = &s.node;
+            push(
+                format!("supply {node} current"),
+                format!("{node} supply current"),
+                "A",
+                Some(s.current_a),
+            );
+            push(
+                format!("supply {node} power"),
+                format!("{node} supply power"),
+                "W",
+                Some(s.power_w),
+            );
+        }
     }
     let high_taus = h.octc.caps.iter().map(|c| ("high", &c.part, c.tau_s));
     let low_taus = l.sctc.caps.iter().map(|c| ("low", &c.part, c.tau_s));

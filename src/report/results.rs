@@ -83,6 +83,22 @@ pub struct OperatingPointResults {
     pub nodes: BTreeMap<String, f64>,
     /// Each transistor.
     pub devices: Vec<DeviceResults>,
+    /// What each supply delivers (absent from results.json files written before it).
+    #[serde(default)]
+    pub supplies: Vec<SupplyResults>,
+}
+
+/// One supply at the operating point.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct SupplyResults {
+    /// Its rail's node.
+    pub node: String,
+    /// V.
+    pub voltage_v: f64,
+    /// The current it delivers into the circuit, A (negative where it sinks current).
+    pub current_a: f64,
+    /// V·I, W.
+    pub power_w: f64,
 }
 
 /// One transistor at its operating point.
@@ -783,6 +799,16 @@ fn operating_point(op: &OperatingPointReport) -> OperatingPointResults {
         thermal_voltage_v: op.thermal_voltage_v,
         nodes: op.nodes.clone(),
         devices: op.devices.iter().map(device).collect(),
+        supplies: op
+            .supplies
+            .iter()
+            .map(|s| SupplyResults {
+                node: s.node.clone(),
+                voltage_v: s.voltage_v,
+                current_a: s.current_a,
+                power_w: s.power_w,
+            })
+            .collect(),
     }
 }
 
