@@ -65,6 +65,8 @@ struct Core {
     amplitude_v: Option<f64>,
     /// Each transistor's flicker corner, Hz (0: none), in the operating point's order.
     corners: Vec<f64>,
+    /// The largest supply current, when a requirement limits it.
+    supply_current: Option<f64>,
 }
 
 /// Each transistor's flicker-noise corner frequency from its model, Hz (0 where the model
@@ -235,6 +237,14 @@ fn core(design: &Design, near: Option<&OperatingPoint>) -> Result<Core, Analysis
     };
     let (spot_hz, noise_band) = noise_where(band.map(|(b, _)| b), frequency_hz, f_low, f_high);
     let corners = flicker_corners(design, op.as_ref());
+    // Supply currents come from the operating point alone; a design without transistors has
+    // its node voltages from the mid-band solve's DC twin only through the bias, so it reports
+    // none (its supplies feed resistors at fixed voltages).
+    let supply_current = req
+        .supply_current
+        .and(op.as_ref())
+        .map(|op| operating_point::supply_currents(&net, op))
+        .and_then(|c| crate::analysis::largest_supply_current(c.into_iter()));
     let noise = noise::figures(
         &noise::Request {
             lin: &lin,
@@ -280,6 +290,7 @@ fn core(design: &Design, near: Option<&OperatingPoint>) -> Result<Core, Analysis
         ],
         corners,
         amplitude_v: design.signal.amplitude_v,
+        supply_current,
     })
 }
 
@@ -319,6 +330,7 @@ impl Core {
             input_noise: self.noise.input_density.filter(|_| self.noise_limits[1]),
             output_noise: self.noise.output_rms.filter(|_| self.noise_limits[2]),
             snr_db: self.noise.snr_db.filter(|_| self.noise_limits[3]),
+            supply_current: self.supply_current,
         }
     }
 

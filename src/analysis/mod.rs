@@ -371,6 +371,13 @@ pub struct Metrics {
     pub output_noise: Option<f64>,
     /// Signal-to-noise ratio over the band, dB, when a requirement limits it.
     pub snr_db: Option<f64>,
+    /// The largest |current| any supply delivers, A, when a requirement limits it.
+    pub supply_current: Option<f64>,
+}
+
+/// The largest magnitude among supply currents, None without supplies.
+pub fn largest_supply_current(currents: impl Iterator<Item = f64>) -> Option<f64> {
+    currents.map(f64::abs).reduce(f64::max)
 }
 
 impl Analysis {
@@ -405,6 +412,11 @@ impl Analysis {
                 .map(|b| b.output_rms_v)
                 .filter(|_| req.output_noise.is_some()),
             snr_db: noise.and_then(|n| n.snr_db).filter(|_| req.snr.is_some()),
+            supply_current: self
+                .operating_point
+                .as_ref()
+                .and_then(|op| largest_supply_current(op.supplies.iter().map(|s| s.current_a)))
+                .filter(|_| req.supply_current.is_some()),
         }
     }
 

@@ -108,6 +108,7 @@ pub fn unit_of(name: &str) -> &'static str {
         "input_noise_density" => "V/√Hz",
         "output_noise" => "V",
         "snr" => "dB",
+        "supply_current" => "A",
         _ => "Ω",
     }
 }
@@ -128,6 +129,12 @@ fn quantity(name: &str, a: &Analysis) -> (Option<f64>, Scale) {
             (a.noise.as_ref().and_then(|n| n.input_density_v_per_rthz), Scale::Relative)
         }
         "snr" => (a.noise.as_ref().and_then(|n| n.snr_db), Scale::Db),
+        "supply_current" => (
+            a.operating_point.as_ref().and_then(|op| {
+                crate::analysis::largest_supply_current(op.supplies.iter().map(|s| s.current_a))
+            }),
+            Scale::Relative,
+        ),
         "output_noise" => (
             a.noise.as_ref().and_then(|n| n.band.as_ref()).map(|b| b.output_rms_v),
             Scale::Relative,

@@ -47,6 +47,8 @@ pub enum Figure {
     OutputNoise,
     /// Signal-to-noise ratio, dB.
     Snr,
+    /// The largest supply current.
+    SupplyCurrent,
 }
 
 impl Figure {
@@ -64,6 +66,7 @@ impl Figure {
             Figure::InputNoise => m.input_noise,
             Figure::OutputNoise => m.output_noise,
             Figure::Snr => m.snr_db,
+            Figure::SupplyCurrent => m.supply_current,
         }
     }
 
@@ -83,6 +86,7 @@ impl Figure {
             Figure::InputNoise => "input_noise_density".into(),
             Figure::OutputNoise => "output_noise".into(),
             Figure::Snr => "snr".into(),
+            Figure::SupplyCurrent => "supply_current".into(),
         }
     }
 }
@@ -100,6 +104,7 @@ impl Figure {
             "input_noise_density" => Figure::InputNoise,
             "output_noise" => Figure::OutputNoise,
             "snr" => Figure::Snr,
+            "supply_current" => Figure::SupplyCurrent,
             _ => Figure::ROut,
         }
     }
@@ -114,9 +119,15 @@ pub fn figures(nominal: &Metrics) -> Vec<Figure> {
             .collect();
     out.extend((0..nominal.bias.len()).map(Figure::Bias));
     out.extend(
-        [Figure::NoiseFigure, Figure::InputNoise, Figure::OutputNoise, Figure::Snr]
-            .into_iter()
-            .filter(|f| f.of(nominal).is_some_and(|v| v > 0.0)),
+        [
+            Figure::NoiseFigure,
+            Figure::InputNoise,
+            Figure::OutputNoise,
+            Figure::Snr,
+            Figure::SupplyCurrent,
+        ]
+        .into_iter()
+        .filter(|f| f.of(nominal).is_some_and(|v| v > 0.0)),
     );
     out
 }
@@ -179,7 +190,8 @@ fn sensitivities_reporting(
             | Figure::NoiseFigure
             | Figure::InputNoise
             | Figure::OutputNoise
-            | Figure::Snr => None,
+            | Figure::Snr
+            | Figure::SupplyCurrent => None,
         }
     };
     let dc = transistors.then(|| DcChain::new(design, &nominal)).flatten();

@@ -475,11 +475,13 @@ pub struct Requirements {
     /// signal amplitude's rms through the gain at the spot frequency, over the rms output
     /// noise.
     pub snr: Option<Limits>,
+    /// The largest current any supply delivers (or sinks), A.
+    pub supply_current: Option<Limits>,
 }
 
 impl Requirements {
     /// Every requirement by its name in the design file, set or not, in report order.
-    pub fn items(&self) -> [(&'static str, Option<Limits>); 10] {
+    pub fn items(&self) -> [(&'static str, Option<Limits>); 11] {
         [
             ("midband_gain", self.midband_gain),
             ("gain_flatness", self.gain_flatness),
@@ -491,6 +493,7 @@ impl Requirements {
             ("input_noise_density", self.input_noise_density),
             ("output_noise", self.output_noise),
             ("snr", self.snr),
+            ("supply_current", self.supply_current),
         ]
     }
 

@@ -598,6 +598,7 @@ pub fn figure_label(key: &str) -> String {
         "input_noise_density" => "input noise".into(),
         "output_noise" => "output noise".into(),
         "snr" => "SNR".into(),
+        "supply_current" => "I_supply".into(),
         other => other.replace(".bias_current", " bias"),
     }
 }

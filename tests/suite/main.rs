@@ -17,6 +17,7 @@ mod reference;
 mod report;
 mod schema;
 mod schematic;
+mod supplies;
 mod support;
 mod tolerance;
 mod watch;

@@ -117,6 +117,7 @@ pub const REQUIREMENT_KEYS: &[&str] = &[
     "input_noise_density",
     "output_noise",
     "snr",
+    "supply_current",
 ];
 /// Keys of one requirement.
 pub const LIMIT_KEYS: &[&str] = &["min", "max"];

@@ -36,6 +36,7 @@ impl Reader<'_> {
                 "input_noise_density" => NOISE_DENSITY,
                 "output_noise" => NOISE_VOLTAGE,
                 "snr" => SNR,
+                "supply_current" => CURRENT,
                 _ => RESISTANCE,
             };
             let limits = self.limits(name, k, n, place);
@@ -71,6 +72,7 @@ impl Reader<'_> {
                 "input_noise_density" => out.input_noise_density = limits,
                 "output_noise" => out.output_noise = limits,
                 "snr" => out.snr = limits,
+                "supply_current" => out.supply_current = limits,
                 _ => out.output_resistance = limits,
             }
         }
