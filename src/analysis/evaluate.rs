@@ -67,6 +67,8 @@ struct Core {
     corners: Vec<f64>,
     /// The largest supply current, when a requirement limits it.
     supply_current: Option<f64>,
+    /// Each rated part against its rating.
+    stress: Vec<crate::analysis::stress::StressReport>,
 }
 
 /// Each transistor's flicker-noise corner frequency from its model, Hz (0 where the model
@@ -237,6 +239,14 @@ fn core(design: &Design, near: Option<&OperatingPoint>) -> Result<Core, Analysis
     };
     let (spot_hz, noise_band) = noise_where(band.map(|(b, _)| b), frequency_hz, f_low, f_high);
     let corners = flicker_corners(design, op.as_ref());
+    let stress = op
+        .as_ref()
+        .map(|op| {
+            crate::analysis::stress::of(design, |name| {
+                net.nodes.iter().position(|n| n == name).map(|i| op.node_voltages[i])
+            })
+        })
+        .unwrap_or_default();
     // Supply currents come from the operating point alone; a design without transistors has
     // its node voltages from the mid-band solve's DC twin only through the bias, so it reports
     // none (its supplies feed resistors at fixed voltages).
@@ -291,6 +301,7 @@ fn core(design: &Design, near: Option<&OperatingPoint>) -> Result<Core, Analysis
         corners,
         amplitude_v: design.signal.amplitude_v,
         supply_current,
+        stress,
     })
 }
 
@@ -479,6 +490,7 @@ impl Core {
                     power_w: voltage_v * current_a,
                 })
                 .collect(),
+            stress: self.stress.clone(),
         })
     }
 }

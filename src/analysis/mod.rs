@@ -17,6 +17,7 @@ pub mod poles;
 pub mod requirements;
 pub mod response;
 pub mod schur;
+pub mod stress;
 pub mod time_constants;
 pub mod tolerance;
 
@@ -127,6 +128,8 @@ pub struct OperatingPointReport {
     pub devices: Vec<DeviceReport>,
     /// What each supply delivers.
     pub supplies: Vec<SupplyReport>,
+    /// Each rated resistor's dissipation and rated capacitor's DC voltage.
+    pub stress: Vec<stress::StressReport>,
 }
 
 /// One supply at the operating point.

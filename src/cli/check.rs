@@ -151,6 +151,34 @@ pub fn analysis_text(a: &Analysis) -> String {
                 .collect();
             let _ = writeln!(out, "\n  supplies  {}", supplies.join(" · "));
         }
+        if !op.stress.is_empty() {
+            let rows: Vec<Vec<String>> = op
+                .stress
+                .iter()
+                .map(|s| {
+                    let unit = if s.quantity == "power" { "W" } else { "V" };
+                    vec![
+                        s.part.clone(),
+                        si(s.value, unit, 3),
+                        si(s.rating, unit, 3),
+                        format!("{} %", plain(s.fraction * 100.0, 3)),
+                        if s.over() { "over the derating".into() } else { "ok".into() },
+                    ]
+                })
+                .collect();
+            out.push('\n');
+            out.push_str(&render(
+                2,
+                &[
+                    ("rated part", Align::Left),
+                    ("at bias", Align::Right),
+                    ("rating", Align::Right),
+                    ("of rating", Align::Right),
+                    ("", Align::Left),
+                ],
+                &rows,
+            ));
+        }
         let mut rows = Vec::new();
         for d in &op.devices {
             let ss = &d.small_signal;

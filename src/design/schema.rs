@@ -61,7 +61,8 @@ fn toleranced(description: &str) -> Value {
 
 fn part(kind: &str) -> Value {
     let (keys, required): (&[&str], Vec<&str>) = match kind {
-        "resistor" | "inductor" => (TWO_TERMINAL_KEYS, vec!["kind", "value", "between"]),
+        "resistor" => (RESISTOR_KEYS, vec!["kind", "value", "between"]),
+        "inductor" => (TWO_TERMINAL_KEYS, vec!["kind", "value", "between"]),
         "capacitor" => (CAPACITOR_KEYS, vec!["kind", "value", "between"]),
         "transconductance" | "voltage_amplifier" => {
             (CONTROLLED_KEYS, vec!["kind", "value", "between", "control"])
@@ -79,6 +80,11 @@ fn part(kind: &str) -> Value {
         "distribution" => enumeration("uniform, or gaussian with σ = tolerance/3", DISTRIBUTIONS),
         "model" => text("name of an entry in `models`"),
         "note" => text("free text for the part list"),
+        "rating" => quantity(if kind == "resistor" {
+            "power rating (W), checked against the dissipation at the operating point"
+        } else {
+            "voltage rating (V), checked against the DC voltage at the operating point"
+        }),
         "fixed" => {
             json!({"type": "boolean", "description": "true for a part the design cannot change (a cable, the next stage's input): the review never advises changing it"})
         }

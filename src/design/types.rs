@@ -200,6 +200,8 @@ pub struct Part {
     /// review never advises changing it. The load parts of `output` are always fixed, and
     /// so is a capacitor with the `load` role.
     pub fixed: bool,
+    /// A resistor's power rating (W) or a capacitor's voltage rating (V), when given.
+    pub rating: Option<f64>,
 }
 
 /// A part's kind, value and connections.

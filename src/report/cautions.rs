@@ -173,6 +173,23 @@ fn bias_cautions(op: &OperatingPointReport, temperature_k: f64, out: &mut Vec<Ca
             }
         }
     }
+    for s in op.stress.iter().filter(|s| s.over()) {
+        let (unit, what, practice) = match s.quantity {
+            "power" => ("W", "dissipates", "half its power rating"),
+            _ => ("V", "holds", "80 % of its voltage rating"),
+        };
+        out.push(computed(
+            "part_stress",
+            format!(
+                "{} {what} {} at the operating point, {} % of its {} rating: above the usual \
+                 derating to {practice} (common practice); choose a higher rating.",
+                s.part,
+                si(s.value, unit, 3),
+                plain(s.fraction * 100.0, 3),
+                si(s.rating, unit, 3)
+            ),
+        ));
+    }
     if !op.devices.is_empty() {
         out.push(computed(
             "bias_dependent_capacitance",

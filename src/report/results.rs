@@ -86,6 +86,28 @@ pub struct OperatingPointResults {
     /// What each supply delivers (absent from results.json files written before it).
     #[serde(default)]
     pub supplies: Vec<SupplyResults>,
+    /// Each rated resistor's dissipation and rated capacitor's DC voltage against its
+    /// rating (absent from results.json files written before it).
+    #[serde(default)]
+    pub stress: Vec<StressResults>,
+}
+
+/// One rated part at the operating point.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct StressResults {
+    /// Designator.
+    pub part: String,
+    /// `power` (a resistor, W) or `voltage` (a capacitor, V).
+    pub quantity: String,
+    /// The dissipation (W) or the DC voltage's magnitude (V).
+    pub value: f64,
+    /// The part's rating, same unit.
+    pub rating: f64,
+    /// The rating times the derating (0.5 for a resistor's power, 0.8 for a capacitor's
+    /// voltage; common practice).
+    pub derated_limit: f64,
+    /// value ÷ rating.
+    pub fraction: f64,
 }
 
 /// One supply at the operating point.
@@ -807,6 +829,18 @@ fn operating_point(op: &OperatingPointReport) -> OperatingPointResults {
                 voltage_v: s.voltage_v,
                 current_a: s.current_a,
                 power_w: s.power_w,
+            })
+            .collect(),
+        stress: op
+            .stress
+            .iter()
+            .map(|s| StressResults {
+                part: s.part.clone(),
+                quantity: s.quantity.into(),
+                value: s.value,
+                rating: s.rating,
+                derated_limit: s.derated_limit,
+                fraction: s.fraction,
             })
             .collect(),
     }

@@ -18,6 +18,10 @@ pub const TABLES: &[(&str, &str)] = &[
     ("parts", "every part with its value, tolerance and connections"),
     ("nodes", "node voltages at the operating point"),
     ("devices", "each transistor's region, bias, dissipation and small-signal model"),
+    (
+        "stress",
+        "each rated resistor's dissipation and rated capacitor's DC voltage against its rating",
+    ),
     ("capacitors", "every capacitor and the time-constant set it joined"),
     ("high_estimates", "upper cut-off: exact value and the estimates with their errors"),
     ("octc", "open-circuit time constants: R seen, τ, share, Miller factor"),
@@ -243,6 +247,31 @@ fn operating_point_tables(t: &mut BTreeMap<&'static str, String>, op: &Operating
         .map(|(n, v)| vec![cell(n), si(*v, "V", 4)])
         .collect();
     t.insert("nodes", markdown_table(&["node", "voltage"], "lr", nodes));
+    if !op.stress.is_empty() {
+        let rows = op
+            .stress
+            .iter()
+            .map(|s| {
+                let unit = if s.quantity == "power" { "W" } else { "V" };
+                vec![
+                    cell(&s.part),
+                    if s.quantity == "power" { "dissipation" } else { "DC voltage" }.to_string(),
+                    si(s.value, unit, 3),
+                    si(s.rating, unit, 3),
+                    format!("{} %", plain(s.fraction * 100.0, 3)),
+                    if s.over() { "**over the derating**".into() } else { "within".into() },
+                ]
+            })
+            .collect();
+        t.insert(
+            "stress",
+            markdown_table(
+                &["part", "at the operating point", "value", "rating", "of rating", "derated"],
+                "llrrrl",
+                rows,
+            ),
+        );
+    }
     let devices = op
         .devices
         .iter()

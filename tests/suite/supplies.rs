@@ -7,14 +7,19 @@ use tauweave::design;
 use tauweave::review::{ReviewOptions, review};
 
 fn stage(requirements: &str) -> design::Design {
+    stage_rated(requirements, "", "")
+}
+
+/// The stage with `rd` and `cl` added to RD's and CL's keys (a `rating`).
+fn stage_rated(requirements: &str, rd: &str, cl: &str) -> design::Design {
     let text = format!(
         "tauweave: 1\ndesign: {{id: sup, title: supply current, revision: A, date: 2026-12-04}}\n\
          supplies: {{vdd: 10 V, vg: 2 V}}\n\
          signal: {{at: in, resistance: 1k}}\noutput: {{at: d}}\n\
          parts:\n\
          \x20 C1: {{kind: capacitor, value: 1 µF, between: [in, vg], role: coupling}}\n\
-         \x20 RD: {{kind: resistor, value: 2k, between: [vdd, d], tolerance: 5 %}}\n\
-         \x20 CL: {{kind: capacitor, value: 10 pF, between: [d, gnd], role: load}}\n\
+         \x20 RD: {{kind: resistor, value: 2k, between: [vdd, d], tolerance: 5 %{rd}}}\n\
+         \x20 CL: {{kind: capacitor, value: 10 pF, between: [d, gnd], role: load{cl}}}\n\
          \x20 M1: {{kind: mosfet, model: N, d: d, g: vg, s: gnd}}\n\
          models:\n  N: {{type: nmos, threshold: {{value: 1 V, tolerance: 0.1 V}}, \
          process_transconductance: 200 µA/V², width: 20 µm, length: 1 µm}}\n\
@@ -52,4 +57,26 @@ fn the_drain_supply_delivers_the_square_law_current_and_the_requirement_follows_
     let w = s.worst_case.iter().find(|w| w.figure == "supply_current").unwrap();
     close(w.high_corner.unwrap(), 0.5 * 200e-6 * 20.0 * 1.1f64.powi(2), 1e-6, "high corner");
     assert_eq!(check.corner_pass, Some(false));
+}
+
+#[test]
+fn rated_parts_are_held_against_their_derated_ratings() {
+    // R_D carries I_D = 2 mA: (2 mA)²·2 kΩ = 8 mW, 80 % of a 10 mW rating, over the usual
+    // half (common practice). CL sits at V_D = 10 V − 2 mA·2 kΩ = 6 V: 95 % of 6.3 V, over
+    // 80 %; at 50 V it is 12 %.
+    for (cl, over) in [(", rating: 6.3 V", true), (", rating: 50 V", false)] {
+        let d = stage_rated("  supply_current: {max: 1 A}\n", ", rating: 10 mW", cl);
+        let r = review(&d, &ReviewOptions::quiet(&d, Some(0))).unwrap();
+        let op = r.analysis.operating_point.as_ref().unwrap();
+        let rd = op.stress.iter().find(|s| s.part == "RD").unwrap();
+        close(rd.value, 8e-3, 1e-8, "R_D dissipation");
+        assert_eq!((rd.quantity, rd.over()), ("power", true));
+        let c = op.stress.iter().find(|s| s.part == "CL").unwrap();
+        close(c.value, 6.0, 1e-8, "C_L voltage");
+        assert_eq!(c.over(), over, "{cl}");
+        let cautions: Vec<&str> =
+            r.cautions.iter().filter(|c| c.key == "part_stress").map(|c| c.text.as_str()).collect();
+        assert_eq!(cautions.len(), 1 + usize::from(over), "{cautions:?}");
+        assert!(cautions[0].starts_with("RD dissipates 8 mW"), "{cautions:?}");
+    }
 }

@@ -242,6 +242,7 @@ impl Reader<'_> {
                 },
                 note: Some("load resistance".into()),
                 fixed: true,
+                rating: None,
             });
         }
         if let Some(c) = cl {
@@ -254,6 +255,7 @@ impl Reader<'_> {
                 },
                 note: Some("load capacitance".into()),
                 fixed: true,
+                rating: None,
             });
         }
         (Some(Output { positive, negative }), loads)
@@ -333,7 +335,8 @@ impl Reader<'_> {
         let kind_node = map_get(node, "kind");
         let kind = kind_node.and_then(Node::scalar).unwrap_or("");
         let keys = match kind {
-            "resistor" | "inductor" => TWO_TERMINAL_KEYS,
+            "resistor" => RESISTOR_KEYS,
+            "inductor" => TWO_TERMINAL_KEYS,
             "capacitor" => CAPACITOR_KEYS,
             "transconductance" | "voltage_amplifier" => CONTROLLED_KEYS,
             "bjt" => BJT_KEYS,
@@ -373,12 +376,16 @@ impl Reader<'_> {
         f.get("kind");
         let note = f.get("note").and_then(|n| self.text_value(n, "note"));
         let fixed = f.get("fixed").and_then(|n| self.flag(n, "fixed")).unwrap_or(false);
+        let rating = f.get("rating").and_then(|n| match kind {
+            "resistor" => self.quantity(n, Place { what: "a power rating", ..POWER }),
+            _ => self.quantity(n, Place { what: "a voltage rating", positive: true, ..VOLTAGE }),
+        });
         let part_kind = match kind {
             "bjt" | "mosfet" => self.device_part(&mut f, &name, kind, models),
             _ => self.valued_part(&mut f, &name, kind, defaults),
         };
         f.finish(&mut self.diagnostics);
-        Some(Part { name, kind: part_kind?, note, fixed })
+        Some(Part { name, kind: part_kind?, note, fixed, rating })
     }
 
     /// `true` or `false`.

@@ -46,12 +46,15 @@ pub const PART_KINDS: &[&str] = &[
     "bjt",
     "mosfet",
 ];
-/// Keys of a resistor or inductor.
+/// Keys of an inductor.
 pub const TWO_TERMINAL_KEYS: &[&str] =
     &["kind", "value", "between", "tolerance", "distribution", "note", "fixed"];
-/// Keys of a capacitor.
+/// Keys of a resistor (`rating`: its power rating).
+pub const RESISTOR_KEYS: &[&str] =
+    &["kind", "value", "between", "tolerance", "distribution", "note", "fixed", "rating"];
+/// Keys of a capacitor (`rating`: its voltage rating).
 pub const CAPACITOR_KEYS: &[&str] =
-    &["kind", "value", "between", "role", "tolerance", "distribution", "note", "fixed"];
+    &["kind", "value", "between", "role", "tolerance", "distribution", "note", "fixed", "rating"];
 /// Keys of a controlled source.
 pub const CONTROLLED_KEYS: &[&str] =
     &["kind", "value", "between", "control", "tolerance", "distribution", "note", "fixed"];

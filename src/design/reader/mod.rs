@@ -556,6 +556,8 @@ fn example(place: Place) -> &'static str {
         "an rms noise voltage" => "5 µV",
         "a signal-to-noise ratio" => "40 dB",
         "a signal amplitude" => "10 mV",
+        "a power rating" => "250 mW",
+        "a voltage rating" => "50 V",
         _ => "100",
     }
 }
