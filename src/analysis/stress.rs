@@ -40,13 +40,15 @@ impl StressReport {
     }
 }
 
-/// The stress of every rated resistor and capacitor; `voltage` gives a node's DC voltage
-/// by name (None for a node the bias does not know).
+/// The stress of every rated resistor and capacitor, derated as the design's analysis
+/// settings say (by default [`RESISTOR_POWER_DERATING`] and [`CAPACITOR_VOLTAGE_DERATING`]);
+/// `voltage` gives a node's DC voltage by name (None for a node the bias does not know).
 pub fn of(
     design: &crate::design::Design,
     voltage: impl Fn(&str) -> Option<f64>,
 ) -> Vec<StressReport> {
     use crate::design::PartKind;
+    let settings = &design.analysis;
     design
         .parts
         .iter()
@@ -56,10 +58,10 @@ pub fn of(
             let (quantity, value, derating) = match &p.kind {
                 PartKind::Resistor { between, value } => {
                     let v = across(between)?;
-                    ("power", v * v / value.nominal, RESISTOR_POWER_DERATING)
+                    ("power", v * v / value.nominal, settings.resistor_power_derating)
                 }
                 PartKind::Capacitor { between, .. } => {
-                    ("voltage", across(between)?.abs(), CAPACITOR_VOLTAGE_DERATING)
+                    ("voltage", across(between)?.abs(), settings.capacitor_voltage_derating)
                 }
                 _ => return None,
             };

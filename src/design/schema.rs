@@ -215,6 +215,9 @@ pub fn design_schema() -> Value {
                     }
                     _ => quantity(k),
                 }),
+                "derating" => object(DERATING_KEYS, &[], |_| {
+                    quantity("the fraction of the rating to stay under, e.g. 50 %")
+                }),
                 _ => object(MONTE_CARLO_KEYS, &[], |_| json!({"type": "integer", "minimum": 0})),
             }),
             _ => json!({}),

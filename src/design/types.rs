@@ -518,6 +518,10 @@ pub struct AnalysisSettings {
     pub monte_carlo_runs: u32,
     /// Monte Carlo seed.
     pub seed: u64,
+    /// The fraction of a resistor's power rating it should stay under.
+    pub resistor_power_derating: f64,
+    /// The fraction of a capacitor's voltage rating it should stay under.
+    pub capacitor_voltage_derating: f64,
 }
 
 impl AnalysisSettings {
@@ -529,6 +533,8 @@ impl AnalysisSettings {
             points_per_decade: 40,
             monte_carlo_runs: 1000,
             seed: 1,
+            resistor_power_derating: crate::analysis::stress::RESISTOR_POWER_DERATING,
+            capacitor_voltage_derating: crate::analysis::stress::CAPACITOR_VOLTAGE_DERATING,
         }
     }
 }

@@ -174,19 +174,21 @@ fn bias_cautions(op: &OperatingPointReport, temperature_k: f64, out: &mut Vec<Ca
         }
     }
     for s in op.stress.iter().filter(|s| s.over()) {
-        let (unit, what, practice) = match s.quantity {
-            "power" => ("W", "dissipates", "half its power rating"),
-            _ => ("V", "holds", "80 % of its voltage rating"),
+        let (unit, what) = match s.quantity {
+            "power" => ("W", "dissipates"),
+            _ => ("V", "holds"),
         };
         out.push(computed(
             "part_stress",
             format!(
-                "{} {what} {} at the operating point, {} % of its {} rating: above the usual \
-                 derating to {practice} (common practice); choose a higher rating.",
+                "{} {what} {} at the operating point, {} % of its {} rating: above the \
+                 derating to {} % (half the power and 80 % of the voltage are common practice; \
+                 `analysis.derating` sets them); choose a higher rating.",
                 s.part,
                 si(s.value, unit, 3),
                 plain(s.fraction * 100.0, 3),
-                si(s.rating, unit, 3)
+                si(s.rating, unit, 3),
+                plain(s.derated_limit / s.rating * 100.0, 3)
             ),
         ));
     }

@@ -80,3 +80,28 @@ fn rated_parts_are_held_against_their_derated_ratings() {
         assert!(cautions[0].starts_with("RD dissipates 8 mW"), "{cautions:?}");
     }
 }
+
+#[test]
+fn the_design_can_set_its_own_derating() {
+    // At 90 % for resistors R_D's 80 % is within; the capacitor's 95 % is not.
+    let mut d = stage_rated("  supply_current: {max: 1 A}\n", ", rating: 10 mW", ", rating: 6.3 V");
+    let text = "tauweave: 1\ndesign: {id: x, title: t, revision: A, date: 2026-12-04}\n\
+                signal: {at: in, resistance: 1k}\noutput: {at: in}\n\
+                parts:\n  R1: {kind: resistor, value: 1k, between: [in, gnd]}\n\
+                analysis: {derating: {resistor_power: 90 %, capacitor_voltage: 0.95}}\n";
+    let read = design::load(text).design.unwrap().analysis;
+    assert_eq!((read.resistor_power_derating, read.capacitor_voltage_derating), (0.9, 0.95));
+    d.analysis.resistor_power_derating = read.resistor_power_derating;
+    let r = review(&d, &ReviewOptions::quiet(&d, Some(0))).unwrap();
+    let op = r.analysis.operating_point.as_ref().unwrap();
+    let rd = op.stress.iter().find(|s| s.part == "RD").unwrap();
+    close(rd.derated_limit, 9e-3, 1e-12, "R_D's derated limit");
+    assert!(!rd.over());
+    assert!(op.stress.iter().find(|s| s.part == "CL").unwrap().over());
+    let bad = text.replace("90 %", "150 %");
+    let diagnostics = design::load(&bad).diagnostics;
+    assert!(
+        diagnostics.iter().any(|x| x.message.contains("must be a fraction")),
+        "{diagnostics:?}"
+    );
+}

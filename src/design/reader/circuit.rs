@@ -376,10 +376,15 @@ impl Reader<'_> {
         f.get("kind");
         let note = f.get("note").and_then(|n| self.text_value(n, "note"));
         let fixed = f.get("fixed").and_then(|n| self.flag(n, "fixed")).unwrap_or(false);
-        let rating = f.get("rating").and_then(|n| match kind {
-            "resistor" => self.quantity(n, Place { what: "a power rating", ..POWER }),
-            _ => self.quantity(n, Place { what: "a voltage rating", positive: true, ..VOLTAGE }),
-        });
+        let rating = match kind {
+            "resistor" => f
+                .get("rating")
+                .and_then(|n| self.quantity(n, Place { what: "a power rating", ..POWER })),
+            "capacitor" => f.get("rating").and_then(|n| {
+                self.quantity(n, Place { what: "a voltage rating", positive: true, ..VOLTAGE })
+            }),
+            _ => None,
+        };
         let part_kind = match kind {
             "bjt" | "mosfet" => self.device_part(&mut f, &name, kind, models),
             _ => self.valued_part(&mut f, &name, kind, defaults),

@@ -125,7 +125,9 @@ pub const REQUIREMENT_KEYS: &[&str] = &[
 /// Keys of one requirement.
 pub const LIMIT_KEYS: &[&str] = &["min", "max"];
 /// Keys of `analysis`.
-pub const ANALYSIS_KEYS: &[&str] = &["sweep", "monte_carlo"];
+pub const ANALYSIS_KEYS: &[&str] = &["sweep", "monte_carlo", "derating"];
+/// Keys of `analysis.derating`.
+pub const DERATING_KEYS: &[&str] = &["resistor_power", "capacitor_voltage"];
 /// Keys of `analysis.sweep`.
 pub const SWEEP_KEYS: &[&str] = &["start", "stop", "points_per_decade"];
 /// Keys of `analysis.monte_carlo`.

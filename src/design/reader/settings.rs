@@ -224,8 +224,49 @@ impl Reader<'_> {
                 m.finish(&mut self.diagnostics);
             }
         }
+        if let Some((k, n)) = f.get_entry("derating") {
+            if let Some(mut d) =
+                Fields::open(n, "`analysis.derating`", DERATING_KEYS, k.span, &mut self.diagnostics)
+            {
+                if let Some(n) = d.get("resistor_power") {
+                    match self.fraction(n, "`resistor_power`") {
+                        Some(v) => out.resistor_power_derating = v,
+                        None => ok = false,
+                    }
+                }
+                if let Some(n) = d.get("capacitor_voltage") {
+                    match self.fraction(n, "`capacitor_voltage`") {
+                        Some(v) => out.capacitor_voltage_derating = v,
+                        None => ok = false,
+                    }
+                }
+                d.finish(&mut self.diagnostics);
+            }
+        }
         f.finish(&mut self.diagnostics);
         ok.then_some(out)
+    }
+
+    /// A fraction in (0, 1], written as a percentage (`50 %`) or a plain number (`0.5`).
+    fn fraction(&mut self, node: &Node, what: &str) -> Option<f64> {
+        let text = node.scalar().unwrap_or("").to_string();
+        let value = match quantity::evaluate(&text, &self.params) {
+            Ok(v) if v.dim.is_none_or(|d| d == Dim::NONE) => v.si,
+            Ok(_) => f64::NAN,
+            Err(e) => {
+                self.quantity_error(node, &text, e);
+                return None;
+            }
+        };
+        if value > 0.0 && value <= 1.0 {
+            return Some(value);
+        }
+        self.push(
+            Diagnostic::error("out_of_range", format!("{what} must be a fraction of the rating"))
+                .at(node.span, "not between 0 and 100 %")
+                .help("give the part of the rating to stay under, e.g. `50 %`"),
+        );
+        None
     }
 
     pub(super) fn integer(&mut self, node: &Node, lo: u64, hi: u64, what: &str) -> Option<u64> {
