@@ -203,20 +203,9 @@ fn eliminate(
         a[i * w + n] = c64::new(b[i], 0.0);
     }
     let floor_sq = PIVOT_TOLERANCE * PIVOT_TOLERANCE * scale_sq;
-    let size_sq = |z: c64| z.re * z.re + z.im * z.im;
     // Gaussian elimination with partial pivoting on [A | b].
     for k in 0..n {
-        let (mut p, mut best) = (k, size_sq(a[k * w + k]));
-        for i in k + 1..n {
-            let m = size_sq(a[i * w + k]);
-            if m > best {
-                p = i;
-                best = m;
-            }
-        }
-        if best.partial_cmp(&floor_sq) != Some(std::cmp::Ordering::Greater) {
-            return None;
-        }
+        let p = pivot(a, w, n, k, floor_sq)?;
         if p != k {
             for j in 0..w {
                 a.swap(k * w + j, p * w + j);
@@ -245,6 +234,22 @@ fn eliminate(
     y.is_finite().then_some(y)
 }
 
+/// The row at or below `k` with the largest entry in column `k` of the n-row matrix `a`
+/// (row major, `w` entries a row), magnitudes compared squared; None when even that is at or
+/// under `floor_sq` (singular to the pivot tolerance).
+fn pivot(a: &[c64], w: usize, n: usize, k: usize, floor_sq: f64) -> Option<usize> {
+    let size_sq = |z: c64| z.re * z.re + z.im * z.im;
+    let (mut p, mut best) = (k, size_sq(a[k * w + k]));
+    for i in k + 1..n {
+        let m = size_sq(a[i * w + k]);
+        if m > best {
+            p = i;
+            best = m;
+        }
+    }
+    (best.partial_cmp(&floor_sq) == Some(std::cmp::Ordering::Greater)).then_some(p)
+}
+
 /// x = A⁻¹b and λ = A⁻ᵀc for A = G + sC, from one LU factorisation with partial pivoting
 /// (PA = LU, so Aᵀ = UᵀLᵀP: λ = Pᵀ L⁻ᵀ U⁻ᵀ c), in place, without a library call: what the
 /// noise analysis needs at each frequency of a small network. Pivots are chosen and refused
@@ -268,21 +273,10 @@ pub fn pair_small(
         }
     }
     let floor_sq = PIVOT_TOLERANCE * PIVOT_TOLERANCE * scale_sq;
-    let size_sq = |z: c64| z.re * z.re + z.im * z.im;
     // perm[k]: the original row now in row k.
     let mut perm: Vec<usize> = (0..n).collect();
     for k in 0..n {
-        let (mut p, mut best) = (k, size_sq(a[k * n + k]));
-        for i in k + 1..n {
-            let m = size_sq(a[i * n + k]);
-            if m > best {
-                p = i;
-                best = m;
-            }
-        }
-        if best.partial_cmp(&floor_sq) != Some(std::cmp::Ordering::Greater) {
-            return None;
-        }
+        let p = pivot(&a, n, n, k, floor_sq)?;
         if p != k {
             for j in 0..n {
                 a.swap(k * n + j, p * n + j);
