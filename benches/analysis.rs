@@ -152,9 +152,9 @@ fn main() {
     let mut names: Vec<_> =
         std::fs::read_dir(format!("{root}/designs")).unwrap().map(|e| e.unwrap().path()).collect();
     names.sort();
-    for path in names {
+    for path in &names {
         use tauweave::circuit::{netlist::Netlist, operating_point, small_signal};
-        let text = std::fs::read_to_string(&path).unwrap();
+        let text = std::fs::read_to_string(path).unwrap();
         let d = design::load(&text).design.expect("valid design");
         let a = analysis::analyze(&d).unwrap();
         let net = Netlist::from_design(&d);
@@ -186,6 +186,36 @@ fn main() {
             path.file_name().unwrap().to_string_lossy(),
             t.as_secs_f64() * 1e3,
             frequencies.len()
+        );
+    }
+    println!(
+        "\nsignal-handling review of each example design (swing limits, distortion at the stated amplitude, power series, compression, transfer curve; bias solved beforehand)"
+    );
+    for path in &names {
+        use tauweave::circuit::{netlist::Netlist, operating_point};
+        let text = std::fs::read_to_string(path).unwrap();
+        let d = design::load(&text).design.expect("valid design");
+        let a = analysis::analyze(&d).unwrap();
+        let net = Netlist::from_design(&d);
+        let op = operating_point::solve(&net).unwrap();
+        let request = analysis::large_signal::Request {
+            net: &net,
+            op: &op,
+            gain: a.midband.gain,
+            amplitude_v: d.signal.amplitude_v,
+            frequency_hz: a.midband.frequency_hz,
+            cutoffs: (a.low.f3db_hz, a.high.f3db_hz),
+            input_noise_rms_v: None,
+        };
+        let (t, runs) = median(
+            || drop(black_box(analysis::large_signal::review(&request))),
+            Duration::from_secs(2),
+            2000,
+        );
+        println!(
+            "  {:<28} {:>10.3} ms  ({runs} runs)",
+            path.file_name().unwrap().to_string_lossy(),
+            t.as_secs_f64() * 1e3
         );
     }
     println!(

@@ -12,6 +12,7 @@
 use std::f64::consts::PI;
 
 use crate::analysis::adjoint::{self, Gradients};
+use crate::analysis::large_signal;
 use crate::analysis::linear::Factor;
 use crate::analysis::mna::{self, Assembly, CapState, Mna};
 use crate::analysis::noise;
@@ -395,6 +396,20 @@ impl Core {
             _ => response::sweep(&self.transfer, &frequencies),
         };
         let peaking = peaking(&sweep, self.gain.abs());
+        let large_signal = self.op.as_ref().and_then(|op| {
+            large_signal::review(&large_signal::Request {
+                net: &self.net,
+                op,
+                gain: self.gain,
+                amplitude_v: self.amplitude_v,
+                frequency_hz,
+                cutoffs: (f_low, f_high),
+                input_noise_rms_v: noise
+                    .as_ref()
+                    .and_then(|n| n.band.as_ref())
+                    .map(|b| b.input_rms_v),
+            })
+        });
         Ok(Analysis {
             operating_point,
             capacitors,
@@ -453,6 +468,7 @@ impl Core {
             sweep,
             has_inductors: self.has_inductors,
             noise,
+            large_signal,
         })
     }
 

@@ -8,6 +8,7 @@
 
 pub mod adjoint;
 pub mod evaluate;
+pub mod large_signal;
 pub mod levers;
 pub mod linear;
 pub mod matrix;
@@ -332,6 +333,9 @@ pub struct Analysis {
     /// Noise: densities, noise figure, equivalent input generators, contributors; None when
     /// the network cannot be solved at the spot frequency.
     pub noise: Option<noise::NoiseReport>,
+    /// Signal handling from the quasi-static transfer: swing, distortion, compression;
+    /// None without transistors.
+    pub large_signal: Option<large_signal::LargeSignalReport>,
 }
 
 /// Where the roots of a large network were looked for, and why.

@@ -9,4 +9,5 @@ pub mod bias_response;
 pub mod devices;
 pub mod netlist;
 pub mod operating_point;
+pub mod quasi_static;
 pub mod small_signal;

@@ -181,13 +181,13 @@ impl Layout {
 #[derive(Clone)]
 pub(super) struct System {
     pub(super) stamps: Vec<(usize, usize, f64)>,
-    rhs: Vec<f64>,
+    pub(super) rhs: Vec<f64>,
     /// The voltage of each rail unknown at this system's supply ramp.
     fixed: Vec<Option<f64>>,
 }
 
 impl System {
-    fn add(&mut self, r: Option<usize>, c: Option<usize>, v: f64) {
+    pub(super) fn add(&mut self, r: Option<usize>, c: Option<usize>, v: f64) {
         let (Some(r), Some(c)) = (r, c) else { return };
         if self.fixed[r].is_some() {
             return;
@@ -198,7 +198,7 @@ impl System {
         }
     }
 
-    fn add_rhs(&mut self, r: Option<usize>, v: f64) {
+    pub(super) fn add_rhs(&mut self, r: Option<usize>, v: f64) {
         if let Some(r) = r
             && self.fixed[r].is_none()
         {
@@ -211,6 +211,18 @@ impl System {
         self.add(at(y), at(y), g);
         self.add(at(x), at(y), -g);
         self.add(at(y), at(x), -g);
+    }
+
+    /// An empty system over the same unknowns and fixed rails, for stamps to be added to a
+    /// base kept elsewhere.
+    pub(super) fn empty_like(&self) -> System {
+        System { stamps: Vec::new(), rhs: vec![0.0; self.rhs.len()], fixed: self.fixed.clone() }
+    }
+
+    /// Drops every stamp and zeroes the right-hand side, keeping the storage.
+    pub(super) fn clear(&mut self) {
+        self.stamps.clear();
+        self.rhs.iter_mut().for_each(|v| *v = 0.0);
     }
 
     /// Σ_c A[r][c]·x[c] − rhs[r] for every row.
@@ -338,7 +350,7 @@ pub(super) fn stamp_device(a: &mut System, el: &Element, v: [f64; 2], vt: f64) {
 }
 
 /// Limits the step of device controls from `old` to `new`.
-fn limit(el: &Element, new: [f64; 2], old: [f64; 2], vt: f64) -> ([f64; 2], bool) {
+pub(super) fn limit(el: &Element, new: [f64; 2], old: [f64; 2], vt: f64) -> ([f64; 2], bool) {
     match el {
         Element::Bjt { params, .. } => {
             let vcrit = devices::critical_voltage(params.is, vt);

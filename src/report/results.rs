@@ -637,6 +637,113 @@ pub struct ContributorResults {
     pub band_share: Option<f64>,
 }
 
+/// `large_signal`: the quasi-static transfer at mid-band and what it says about signal
+/// handling.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct LargeSignalResults {
+    /// How it was computed: `quasi_static` (the nonlinear circuit at each instantaneous EMF,
+    /// coupling capacitors holding their bias voltages, device capacitances open).
+    pub basis: String,
+    /// The frequency it stands for, Hz.
+    pub frequency_hz: f64,
+    /// True when that frequency is a decade inside both cut-offs.
+    pub well_inside_band: bool,
+    /// The stated peak EMF, V.
+    pub input_amplitude_v: Option<f64>,
+    /// How far the output moves each way before a transistor reaches an edge of its bias
+    /// region, and which.
+    pub output_swing: SwingResults,
+    /// The smaller EMF at which either side reaches its limit, peak V.
+    pub clipping_input_v: Option<f64>,
+    /// Second harmonic at the stated amplitude over the fundamental, dB.
+    pub hd2_db: Option<f64>,
+    /// Third harmonic, dB.
+    pub hd3_db: Option<f64>,
+    /// Total harmonic distortion at the stated amplitude, %.
+    pub thd_percent: Option<f64>,
+    /// The fundamental at the output at the stated amplitude, peak V.
+    pub fundamental_v: Option<f64>,
+    /// HD2 from the power series at the bias (the small-signal estimate), dB.
+    pub hd2_series_db: Option<f64>,
+    /// HD3 from the power series, dB.
+    pub hd3_series_db: Option<f64>,
+    /// The EMF at which the fundamental's gain is 1 dB down, peak V.
+    pub compression_1db_input_v: Option<f64>,
+    /// The input third-order intercept extrapolated from the power series, peak V per tone.
+    pub iip3_v: Option<f64>,
+    /// Input-referred band noise (rms) to the compression point (rms), dB.
+    pub dynamic_range_db: Option<f64>,
+    /// Power-series coefficients of the output change in the EMF at the bias: a1 (V/V),
+    /// a2 (1/V), a3 (1/V²).
+    pub series: Option<[f64; 3]>,
+}
+
+/// `large_signal.output_swing`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct SwingResults {
+    /// Rise from the bias value, V.
+    pub positive_v: Option<f64>,
+    /// Fall from the bias value, V (a magnitude).
+    pub negative_v: Option<f64>,
+    /// What ends the rise.
+    pub positive_limit: Option<SwingLimitResults>,
+    /// What ends the fall.
+    pub negative_limit: Option<SwingLimitResults>,
+}
+
+/// One side's limit.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct SwingLimitResults {
+    /// The transistor.
+    pub part: String,
+    /// `cut_off` or `saturation` (a MOSFET's triode edge).
+    pub edge: String,
+    /// Its collector or drain node.
+    pub node: String,
+    /// The EMF there, V (signed).
+    pub input_v: f64,
+    /// The output change there, V (signed).
+    pub output_v: f64,
+}
+
+fn large_signal(l: &crate::analysis::large_signal::LargeSignalReport) -> LargeSignalResults {
+    let limit = |l: &Option<crate::analysis::large_signal::SwingLimit>| {
+        l.as_ref().map(|l| SwingLimitResults {
+            part: l.part.clone(),
+            edge: name_of(&l.edge),
+            node: l.node.clone(),
+            input_v: l.input_v,
+            output_v: l.output_v,
+        })
+    };
+    let d = l.distortion.as_ref();
+    let db = |r: f64| (r > 1e-12).then(|| 20.0 * r.log10());
+    let amplitude = l.input_amplitude_v;
+    LargeSignalResults {
+        basis: "quasi_static".into(),
+        frequency_hz: l.frequency_hz,
+        well_inside_band: l.well_inside_band,
+        input_amplitude_v: amplitude,
+        output_swing: SwingResults {
+            positive_v: l.output_swing.positive_v,
+            negative_v: l.output_swing.negative_v,
+            positive_limit: limit(&l.output_swing.positive_limit),
+            negative_limit: limit(&l.output_swing.negative_limit),
+        },
+        clipping_input_v: l.clipping_input_v,
+        hd2_db: d.and_then(|d| d.hd2_db),
+        hd3_db: d.and_then(|d| d.hd3_db),
+        thd_percent: d.map(|d| d.thd_percent),
+        fundamental_v: d.map(|d| d.fundamental_v),
+        hd2_series_db: l.series.zip(amplitude).and_then(|(s, a)| db(s.hd2(a))),
+        hd3_series_db: l.series.zip(amplitude).and_then(|(s, a)| db(s.hd3(a))),
+        compression_1db_input_v: l.compression_1db_input_v,
+        iip3_v: l.iip3_v,
+        dynamic_range_db: l.dynamic_range_db,
+        series: l.series.map(|s| [s.a1, s.a2, s.a3]),
+    }
+}
+
 /// The whole results document: results.json.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct ResultsDocument {
@@ -669,6 +776,9 @@ pub struct ResultsDocument {
     /// Noise (null when the network cannot be solved at the spot frequency).
     #[serde(default)]
     pub noise: Option<NoiseResults>,
+    /// Signal handling (null without transistors).
+    #[serde(default)]
+    pub large_signal: Option<LargeSignalResults>,
     /// Each requirement at nominal values, at its tolerance corner and its yield.
     pub requirements: Vec<RequirementResults>,
     /// Normalised sensitivities of every figure to every lever.
@@ -797,6 +907,7 @@ pub fn document(
         }),
         has_inductors: a.has_inductors,
         noise: a.noise.as_ref().map(noise),
+        large_signal: a.large_signal.as_ref().map(large_signal),
         requirements: review.requirements.iter().map(requirement).collect(),
         sensitivity: Some(sensitivity(&review.study)),
         tolerance: Some(tolerance_summary(&review.study)),
