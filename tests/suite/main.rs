@@ -10,6 +10,7 @@ mod fuzz;
 mod hardening;
 mod identities;
 mod large;
+mod large_signal;
 mod noise;
 mod pdf;
 mod properties;
