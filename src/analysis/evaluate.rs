@@ -70,6 +70,8 @@ struct Core {
     supply_current: Option<f64>,
     /// Each rated part against its rating.
     stress: Vec<crate::analysis::stress::StressReport>,
+    /// The signal-handling figures a requirement limits, computed where one does.
+    large: large_signal::Figures,
 }
 
 /// Each transistor's flicker-noise corner frequency from its model, Hz (0 where the model
@@ -256,6 +258,25 @@ fn core(design: &Design, near: Option<&OperatingPoint>) -> Result<Core, Analysis
         .and(op.as_ref())
         .map(|op| operating_point::supply_currents(&net, op))
         .and_then(|c| crate::analysis::largest_supply_current(c.into_iter()));
+    let large = match op.as_ref() {
+        Some(op) => large_signal::figures(
+            &large_signal::Request {
+                net: &net,
+                op,
+                gain,
+                amplitude_v: design.signal.amplitude_v,
+                frequency_hz,
+                cutoffs: (f_low, f_high),
+                input_noise_rms_v: None,
+            },
+            large_signal::Wanted {
+                swing: req.output_swing.is_some(),
+                distortion: req.thd.is_some(),
+                compression: req.input_compression.is_some(),
+            },
+        ),
+        None => large_signal::Figures::default(),
+    };
     let noise = noise::figures(
         &noise::Request {
             lin: &lin,
@@ -303,6 +324,7 @@ fn core(design: &Design, near: Option<&OperatingPoint>) -> Result<Core, Analysis
         amplitude_v: design.signal.amplitude_v,
         supply_current,
         stress,
+        large,
     })
 }
 
@@ -343,6 +365,9 @@ impl Core {
             output_noise: self.noise.output_rms.filter(|_| self.noise_limits[2]),
             snr_db: self.noise.snr_db.filter(|_| self.noise_limits[3]),
             supply_current: self.supply_current,
+            output_swing: self.large.output_swing_v,
+            thd_percent: self.large.thd_percent,
+            input_compression: self.large.compression_v,
         }
     }
 

@@ -380,6 +380,12 @@ pub struct Metrics {
     pub snr_db: Option<f64>,
     /// The largest |current| any supply delivers, A, when a requirement limits it.
     pub supply_current: Option<f64>,
+    /// The symmetric output swing, peak V, when a requirement limits it.
+    pub output_swing: Option<f64>,
+    /// THD at the stated amplitude, %, when a requirement limits it.
+    pub thd_percent: Option<f64>,
+    /// The 1 dB compression EMF, peak V, when a requirement limits it.
+    pub input_compression: Option<f64>,
 }
 
 /// The largest magnitude among supply currents, None without supplies.
@@ -394,6 +400,7 @@ impl Analysis {
     pub fn metrics(&self, req: &crate::design::Requirements) -> Metrics {
         let band = self.midband.band.as_ref();
         let noise = self.noise.as_ref();
+        let large = self.large_signal.as_ref();
         Metrics {
             gain: band.map_or(self.midband.gain.abs(), |b| b.centre_gain),
             flatness_db: band.map(|b| b.flatness_db),
@@ -424,6 +431,16 @@ impl Analysis {
                 .as_ref()
                 .and_then(|op| largest_supply_current(op.supplies.iter().map(|s| s.current_a)))
                 .filter(|_| req.supply_current.is_some()),
+            output_swing: large
+                .and_then(|l| l.output_swing.symmetric_peak_v())
+                .filter(|_| req.output_swing.is_some()),
+            thd_percent: large
+                .and_then(|l| l.distortion.as_ref())
+                .map(|d| d.thd_percent)
+                .filter(|_| req.thd.is_some()),
+            input_compression: large
+                .and_then(|l| l.compression_1db_input_v)
+                .filter(|_| req.input_compression.is_some()),
         }
     }
 

@@ -109,6 +109,8 @@ pub fn unit_of(name: &str) -> &'static str {
         "output_noise" => "V",
         "snr" => "dB",
         "supply_current" => "A",
+        "output_swing" | "input_compression" => "V",
+        "thd" => "%",
         _ => "Ω",
     }
 }
@@ -129,6 +131,17 @@ fn quantity(name: &str, a: &Analysis) -> (Option<f64>, Scale) {
             (a.noise.as_ref().and_then(|n| n.input_density_v_per_rthz), Scale::Relative)
         }
         "snr" => (a.noise.as_ref().and_then(|n| n.snr_db), Scale::Db),
+        "output_swing" => (
+            a.large_signal.as_ref().and_then(|l| l.output_swing.symmetric_peak_v()),
+            Scale::Relative,
+        ),
+        "thd" => (
+            a.large_signal.as_ref().and_then(|l| l.distortion.as_ref()).map(|d| d.thd_percent),
+            Scale::Relative,
+        ),
+        "input_compression" => {
+            (a.large_signal.as_ref().and_then(|l| l.compression_1db_input_v), Scale::Relative)
+        }
         "supply_current" => (
             a.operating_point.as_ref().and_then(|op| {
                 crate::analysis::largest_supply_current(op.supplies.iter().map(|s| s.current_a))

@@ -49,6 +49,12 @@ pub enum Figure {
     Snr,
     /// The largest supply current.
     SupplyCurrent,
+    /// The symmetric output swing.
+    OutputSwing,
+    /// THD at the stated amplitude.
+    Thd,
+    /// The 1 dB compression EMF.
+    InputCompression,
 }
 
 impl Figure {
@@ -67,6 +73,9 @@ impl Figure {
             Figure::OutputNoise => m.output_noise,
             Figure::Snr => m.snr_db,
             Figure::SupplyCurrent => m.supply_current,
+            Figure::OutputSwing => m.output_swing,
+            Figure::Thd => m.thd_percent,
+            Figure::InputCompression => m.input_compression,
         }
     }
 
@@ -87,6 +96,9 @@ impl Figure {
             Figure::OutputNoise => "output_noise".into(),
             Figure::Snr => "snr".into(),
             Figure::SupplyCurrent => "supply_current".into(),
+            Figure::OutputSwing => "output_swing".into(),
+            Figure::Thd => "thd".into(),
+            Figure::InputCompression => "input_compression".into(),
         }
     }
 }
@@ -105,6 +117,9 @@ impl Figure {
             "output_noise" => Figure::OutputNoise,
             "snr" => Figure::Snr,
             "supply_current" => Figure::SupplyCurrent,
+            "output_swing" => Figure::OutputSwing,
+            "thd" => Figure::Thd,
+            "input_compression" => Figure::InputCompression,
             _ => Figure::ROut,
         }
     }
@@ -125,6 +140,9 @@ pub fn figures(nominal: &Metrics) -> Vec<Figure> {
             Figure::OutputNoise,
             Figure::Snr,
             Figure::SupplyCurrent,
+            Figure::OutputSwing,
+            Figure::Thd,
+            Figure::InputCompression,
         ]
         .into_iter()
         .filter(|f| f.of(nominal).is_some_and(|v| v > 0.0)),
@@ -191,7 +209,10 @@ fn sensitivities_reporting(
             | Figure::InputNoise
             | Figure::OutputNoise
             | Figure::Snr
-            | Figure::SupplyCurrent => None,
+            | Figure::SupplyCurrent
+            | Figure::OutputSwing
+            | Figure::Thd
+            | Figure::InputCompression => None,
         }
     };
     let dc = transistors.then(|| DcChain::new(design, &nominal)).flatten();

@@ -479,11 +479,18 @@ pub struct Requirements {
     pub snr: Option<Limits>,
     /// The largest current any supply delivers (or sinks), A.
     pub supply_current: Option<Limits>,
+    /// The largest symmetric output peak before a transistor reaches an edge of its bias
+    /// region, V.
+    pub output_swing: Option<Limits>,
+    /// Total harmonic distortion at the stated amplitude, %.
+    pub thd: Option<Limits>,
+    /// The source EMF at which the fundamental's gain is 1 dB down, peak V.
+    pub input_compression: Option<Limits>,
 }
 
 impl Requirements {
     /// Every requirement by its name in the design file, set or not, in report order.
-    pub fn items(&self) -> [(&'static str, Option<Limits>); 11] {
+    pub fn items(&self) -> [(&'static str, Option<Limits>); 14] {
         [
             ("midband_gain", self.midband_gain),
             ("gain_flatness", self.gain_flatness),
@@ -496,6 +503,9 @@ impl Requirements {
             ("output_noise", self.output_noise),
             ("snr", self.snr),
             ("supply_current", self.supply_current),
+            ("output_swing", self.output_swing),
+            ("thd", self.thd),
+            ("input_compression", self.input_compression),
         ]
     }
 

@@ -516,6 +516,8 @@ pub fn requirement_value(name: &str, unit: &str, v: f64) -> String {
         format!("{} dB", plain(20.0 * v.log10(), 3))
     } else if unit == "dB" {
         format!("{} dB", plain(v, 3))
+    } else if unit == "%" {
+        format!("{} %", plain(v, 3))
     } else {
         si(v, unit, 4)
     }
@@ -610,6 +612,8 @@ fn corner_verdict(r: &RequirementCheck) -> String {
 pub fn requirement_words(name: &str) -> String {
     match name {
         "snr" => "signal-to-noise ratio".into(),
+        "thd" => "total harmonic distortion".into(),
+        "input_compression" => "input 1 dB compression".into(),
         other => other.replace('_', " "),
     }
 }
@@ -628,6 +632,9 @@ pub fn figure_label(key: &str) -> String {
         "output_noise" => "output noise".into(),
         "snr" => "SNR".into(),
         "supply_current" => "I_supply".into(),
+        "output_swing" => "swing".into(),
+        "thd" => "THD".into(),
+        "input_compression" => "1 dB in".into(),
         other => other.replace(".bias_current", " bias"),
     }
 }
@@ -642,6 +649,8 @@ fn figure_value(key: &str, v: f64) -> String {
         "input_noise_density" => si(v, "V/√Hz", 4),
         "output_noise" => si(v, "V", 4),
         "snr" => format!("{} dB", plain(v, 3)),
+        "output_swing" | "input_compression" => si(v, "V", 4),
+        "thd" => format!("{} %", plain(v, 3)),
         _ => si(v, "A", 4),
     }
 }

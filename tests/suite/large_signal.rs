@@ -263,3 +263,44 @@ fn the_quasi_static_slope_at_zero_is_the_small_signal_gain_on_every_example() {
         close(f / tiny, r.analysis.midband.gain.abs(), 1e-6, &format!("{name}: tiny fundamental"));
     }
 }
+
+#[test]
+fn signal_handling_requirements_pass_fail_and_follow_the_square_law_through_the_study() {
+    // The square-law stage with V_th toleranced: the swing is the rising side's R_D·I_D =
+    // 4 V (the falling side has 6 − u ≈ 4.54 V), so ∂ln swing/∂ln R_D = 1 and ∂ln/∂ln V_th =
+    // −2·V_th/V_ov = −2; THD = HD2 = v̂/(4·V_ov) = 2.5 % at 0.1 V, so ∂ln THD/∂ln V_th =
+    // V_th/V_ov = 1 and R_D moves nothing (common practice: the square law in saturation).
+    let text = "tauweave: 1\ndesign: {id: sq, title: square law, revision: A, date: 2026-12-04}\n\
+         supplies: {vdd: 10 V, vg: 2 V}\n\
+         signal: {at: [g, vg], resistance: 1 mΩ, amplitude: 0.1 V}\noutput: {at: d}\n\
+         parts:\n\
+         \x20 RD: {kind: resistor, value: 2k, between: [vdd, d], tolerance: 5 %}\n\
+         \x20 RG: {kind: resistor, value: 1M, between: [vg, g]}\n\
+         \x20 M1: {kind: mosfet, model: N, d: d, g: g, s: gnd}\n\
+         models:\n  N: {type: nmos, threshold: {value: 1 V, tolerance: 0.05 V}, \
+         process_transconductance: 200 µA/V², width: 20 µm, length: 1 µm}\n\
+         requirements:\n  output_swing: {min: 3 V}\n  thd: {max: -40 dB}\n\
+         \x20 input_compression: {min: 0.5 V}\n\
+         analysis: {monte_carlo: {runs: 0}}\n";
+    let d = load(text);
+    let r = review(&d, &ReviewOptions::quiet(&d, Some(0))).unwrap();
+    let check = |n: &str| r.requirements.iter().find(|c| c.name == n).unwrap().clone();
+    let swing = check("output_swing");
+    close(swing.value.unwrap(), 4.0, 1e-6, "swing requirement value");
+    assert!(swing.pass);
+    let thd = check("thd");
+    assert_eq!(thd.unit, "%");
+    close(thd.max.unwrap(), 1.0, 1e-12, "−40 dB read as 1 %");
+    close(thd.value.unwrap(), 2.5, 1e-6, "THD value");
+    assert!(!thd.pass, "2.5 % is over 1 %");
+    assert!(check("input_compression").pass, "the 1 dB point is near 0.66 V");
+    let s = &r.study;
+    let lever = |n: &str| s.levers.iter().position(|l| l.lever.name == n).unwrap();
+    close(s.s(lever("RD"), "output_swing").unwrap(), 1.0, 1e-5, "S(swing, R_D)");
+    close(s.s(lever("N.threshold"), "output_swing").unwrap(), -2.0, 1e-5, "S(swing, V_th)");
+    close(s.s(lever("N.threshold"), "thd").unwrap(), 1.0, 1e-5, "S(THD, V_th)");
+    assert!(s.s(lever("RD"), "thd").unwrap().abs() < 1e-6);
+    // The worst corner of the THD: V_th at 1.05 V, V_ov = 0.95 V, 0.1/(4·0.95).
+    let w = s.worst_case.iter().find(|w| w.figure == "thd").unwrap();
+    close(w.high_corner.unwrap(), 100.0 * 0.1 / (4.0 * 0.95), 1e-6, "THD high corner");
+}

@@ -121,6 +121,9 @@ pub const REQUIREMENT_KEYS: &[&str] = &[
     "output_noise",
     "snr",
     "supply_current",
+    "output_swing",
+    "thd",
+    "input_compression",
 ];
 /// Keys of one requirement.
 pub const LIMIT_KEYS: &[&str] = &["min", "max"];

@@ -115,6 +115,14 @@ const SNR: Place = Place {
     decibels: Decibels::Figure,
 };
 
+/// A peak signal voltage (an output swing, a compression point).
+const PEAK_VOLTAGE: Place =
+    Place { what: "a peak voltage", dim: Dim::VOLT, positive: true, decibels: Decibels::Refused };
+
+/// A distortion ratio: `1 %`, `-40 dB` or the plain ratio `0.01`, kept as the ratio.
+const DISTORTION: Place =
+    Place { what: "a distortion ratio", dim: Dim::NONE, positive: true, decibels: Decibels::Ratio };
+
 /// A temperature exponent: any sign, no unit.
 const EXPONENT: Place =
     Place { what: "an exponent", dim: Dim::NONE, positive: false, decibels: Decibels::Refused };
@@ -556,6 +564,8 @@ fn example(place: Place) -> &'static str {
         "an rms noise voltage" => "5 µV",
         "a signal-to-noise ratio" => "40 dB",
         "a signal amplitude" => "10 mV",
+        "a peak voltage" => "2 V",
+        "a distortion ratio" => "1 %",
         "a power rating" => "250 mW",
         "a voltage rating" => "50 V",
         _ => "100",

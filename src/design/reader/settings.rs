@@ -37,9 +37,18 @@ impl Reader<'_> {
                 "output_noise" => NOISE_VOLTAGE,
                 "snr" => SNR,
                 "supply_current" => CURRENT,
+                "output_swing" | "input_compression" => PEAK_VOLTAGE,
+                "thd" => DISTORTION,
                 _ => RESISTANCE,
             };
-            let limits = self.limits(name, k, n, place);
+            let mut limits = self.limits(name, k, n, place);
+            if name == "thd" {
+                // Read as a ratio (1 % or −40 dB is 0.01), kept in percent as reported.
+                limits = limits.map(|l| Limits {
+                    min: l.min.map(|v| 100.0 * v),
+                    max: l.max.map(|v| 100.0 * v),
+                });
+            }
             if name == "gain_flatness" && has_band == Some(false) {
                 self.push(
                     Diagnostic::error(
@@ -49,6 +58,17 @@ impl Reader<'_> {
                     )
                     .at(k.span, "flatness over which band?")
                     .help("add `band: {from: 150 kHz, to: 500 kHz}` under `signal:`"),
+                );
+            }
+            if name == "thd" && has_amplitude == Some(false) {
+                self.push(
+                    Diagnostic::error(
+                        "missing_key",
+                        "`thd` is the distortion at the stated signal amplitude, and the design \
+                         states none",
+                    )
+                    .at(k.span, "distortion at which amplitude?")
+                    .help("add `amplitude: 10 mV` (peak, at the source EMF) under `signal:`"),
                 );
             }
             if name == "snr" && has_amplitude == Some(false) {
@@ -73,6 +93,9 @@ impl Reader<'_> {
                 "output_noise" => out.output_noise = limits,
                 "snr" => out.snr = limits,
                 "supply_current" => out.supply_current = limits,
+                "output_swing" => out.output_swing = limits,
+                "thd" => out.thd = limits,
+                "input_compression" => out.input_compression = limits,
                 _ => out.output_resistance = limits,
             }
         }
