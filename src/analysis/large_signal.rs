@@ -297,7 +297,7 @@ fn tightest(held: &Held, x: &[f64]) -> (f64, usize, Edge) {
     held.margins(x)
         .into_iter()
         .flat_map(|m| {
-            [(m.margins[0], m.element, Edge::CutOff), (m.margins[1], m.element, Edge::Saturation)]
+            [(m.margins[0], m.element, Edge::CutOff), (m.margins[1], m.element, m.second)]
         })
         .fold((f64::INFINITY, 0, Edge::CutOff), |best, c| if c.0 < best.0 { c } else { best })
 }

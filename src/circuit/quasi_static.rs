@@ -30,8 +30,30 @@ const MAX_SPLITS: u32 = 14;
 pub enum Edge {
     /// The bipolar emitter junction, or the MOSFET's gate overdrive, reaches its threshold.
     CutOff,
-    /// The bipolar collector junction turns on, or the MOSFET's V_DS falls to its overdrive.
+    /// The bipolar collector junction turns on.
     Saturation,
+    /// The MOSFET's V_DS falls to its overdrive: it leaves saturation for the triode region.
+    Triode,
+}
+
+impl Edge {
+    /// What the transistor does there: `cuts off`, `saturates`, `enters triode`.
+    pub fn verb(self) -> &'static str {
+        match self {
+            Edge::CutOff => "cuts off",
+            Edge::Saturation => "saturates",
+            Edge::Triode => "enters triode",
+        }
+    }
+
+    /// The edge's name on a plot: `cut-off`, `saturation`, `triode`.
+    pub fn noun(self) -> &'static str {
+        match self {
+            Edge::CutOff => "cut-off",
+            Edge::Saturation => "saturation",
+            Edge::Triode => "triode",
+        }
+    }
 }
 
 /// Where one transistor stands at a solution: each edge's margin, positive on the bias side.
@@ -39,8 +61,10 @@ pub enum Edge {
 pub struct Margins {
     /// Element index of the transistor.
     pub element: usize,
-    /// [cut-off, saturation] margins, V.
+    /// [cut-off, saturation or triode] margins, V.
     pub margins: [f64; 2],
+    /// The second margin's edge: bipolar saturation or the MOSFET's triode edge.
+    pub second: Edge,
 }
 
 /// The circuit at mid-band with its coupling capacitors held, ready to solve at any EMF.
@@ -184,8 +208,14 @@ impl<'a> Held<'a> {
             .iter()
             .zip(&self.orientation)
             .map(|(&i, o)| {
-                let raw = raw_margins(&self.net.elements[i], x);
-                Margins { element: i, margins: [raw[0] * o[0], raw[1] * o[1]] }
+                let el = &self.net.elements[i];
+                let raw = raw_margins(el, x);
+                let second = if matches!(el, Element::Mosfet { .. }) {
+                    Edge::Triode
+                } else {
+                    Edge::Saturation
+                };
+                Margins { element: i, margins: [raw[0] * o[0], raw[1] * o[1]], second }
             })
             .collect()
     }

@@ -31,6 +31,8 @@ pub struct Explanation {
     pub low: Vec<String>,
     /// Paragraphs about the noise.
     pub noise: Vec<String>,
+    /// Paragraphs about signal handling: swing, distortion, compression.
+    pub signal: Vec<String>,
 }
 
 fn pct(x: f64) -> String {
@@ -56,7 +58,8 @@ pub fn explain(a: &Analysis, study: Option<&Study>, fixed: &[String]) -> Explana
     {
         noise.extend(levers(s, "noise_figure", "the noise figure", fixed));
     }
-    Explanation { high, low, noise }
+    let signal = a.large_signal.as_ref().map(crate::report::headroom::explain).unwrap_or_default();
+    Explanation { high, low, noise, signal }
 }
 
 /// Which source sets the noise, what the noise figure would be without it, what would

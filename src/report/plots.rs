@@ -18,9 +18,9 @@ use crate::notation::si;
 /// The font family of plot text.
 pub const FONT: &str = "DejaVu Sans Mono";
 
-const INK: RGBColor = RGBColor(20, 20, 20);
-const MID: RGBColor = RGBColor(110, 110, 110);
-const PALE: RGBColor = RGBColor(200, 200, 200);
+pub(super) const INK: RGBColor = RGBColor(20, 20, 20);
+pub(super) const MID: RGBColor = RGBColor(110, 110, 110);
+pub(super) const PALE: RGBColor = RGBColor(200, 200, 200);
 
 /// A named plot.
 pub struct Plot {
@@ -56,7 +56,7 @@ pub struct Supplied {
 
 /// Display width of every plot, px: at the PDF's text width its 12–13 px text prints at about
 /// the size of the captions and footnotes (8.5 pt).
-const WIDTH: u32 = 640;
+pub(super) const WIDTH: u32 = 640;
 
 /// Plots are drawn on a grid [`SCALE`] times finer than the size they are shown at, so a
 /// trace's coordinates fall between whole display pixels and curves come out smooth at
@@ -64,11 +64,11 @@ const WIDTH: u32 = 640;
 const SCALE: u32 = 4;
 
 /// A length in display pixels, on the drawing grid.
-fn px(n: u32) -> u32 {
+pub(super) fn px(n: u32) -> u32 {
     n * SCALE
 }
 
-fn finish(svg: String) -> String {
+pub(super) fn finish(svg: String) -> String {
     // Name a fallback so a browser without the font still draws monospace text.
     let svg = svg
         .replace(&format!("font-family=\"{FONT}\""), &format!("font-family=\"{FONT}, monospace\""));
@@ -124,13 +124,23 @@ fn subscripted(svg: &str) -> String {
 
 /// Text of `size` display px. (plotters writes a font's size divided by 1.24 into the SVG,
 /// so the size asked of it is raised by that much.)
-fn style(size: u32) -> TextStyle<'static> {
+pub(super) fn style(size: u32) -> TextStyle<'static> {
     (FONT, px(size) as f64 * 1.24).into_font().color(&INK)
 }
 
 /// The names of every plot a review can hold (`plot(name=…)` accepts these).
-pub const PLOTS: &[&str] =
-    &["schematic", "bode", "pole_zero", "shares", "noise", "noise_shares", "tornado", "histograms"];
+pub const PLOTS: &[&str] = &[
+    "schematic",
+    "bode",
+    "pole_zero",
+    "shares",
+    "noise",
+    "noise_shares",
+    "transfer",
+    "waveform",
+    "tornado",
+    "histograms",
+];
 
 /// Every plot of the review.
 pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study>) -> Vec<Plot> {
@@ -156,6 +166,14 @@ pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study
     }
     if let Some(svg) = a.noise.as_ref().and_then(noise_shares) {
         out.push(Plot { name: "noise_shares", caption: "Who makes the noise: each part's share of the output noise by mechanism, at the spot frequency (dark) and integrated over the band (grey), largest first; the smallest are summed as others.".into(), svg, file: None, max_width: None });
+    }
+    if let Some(l) = &a.large_signal {
+        if let Some(svg) = crate::report::signal_plots::transfer(l) {
+            out.push(Plot { name: "transfer", caption: "Quasi-static transfer at mid-band: the output's change from its bias against the source EMF (solid), the small-signal gain's straight line (dashed), the stated amplitude's span shaded, and the point on each side where a transistor reaches the edge of its bias region.".into(), svg, file: None, max_width: None });
+        }
+        if let Some(svg) = crate::report::signal_plots::waveform(l) {
+            out.push(Plot { name: "waveform", caption: "The output over one period at the stated amplitude (solid) beside the sine the small-signal gain alone would give (dashed); the difference is the distortion, any shift the rectified DC.".into(), svg, file: None, max_width: None });
+        }
     }
     if let Some((tornado, histograms)) = extra {
         if let Some(svg) = tornado {

@@ -696,7 +696,7 @@ pub struct SwingResults {
 pub struct SwingLimitResults {
     /// The transistor.
     pub part: String,
-    /// `cut_off` or `saturation` (a MOSFET's triode edge).
+    /// `cut_off`, `saturation` (bipolar) or `triode` (a MOSFET leaving saturation).
     pub edge: String,
     /// Its collector or drain node.
     pub node: String,

@@ -34,6 +34,10 @@ pub const TABLES: &[(&str, &str)] = &[
         "each part's noise by mechanism: share at the spot frequency and in band",
     ),
     (
+        "large_signal",
+        "signal handling: swing limits, distortion beside its power-series estimate, compression",
+    ),
+    (
         "requirements",
         "each requirement: nominal value, pass or fail, margin, worst-case corner, yield",
     ),
@@ -160,6 +164,9 @@ pub fn all(
         t.insert("noise", noise_table(n));
         t.insert("noise_contributors", noise_contributors_table(n));
     }
+    if let Some(l) = &a.large_signal {
+        t.insert("large_signal", large_signal_table(l));
+    }
     t.insert("requirements", requirements_table(reqs));
     if let Some(s) = study {
         study_tables(&mut t, s);
@@ -204,6 +211,97 @@ fn noise_table(n: &crate::analysis::noise::NoiseReport) -> String {
         ]);
     }
     markdown_table(&[&format!("at {}", si(n.spot_frequency_hz, "Hz", 4)), "value"], "lr", rows)
+}
+
+/// `large_signal`: each signal-handling figure, its estimate from the power series at the
+/// bias where there is one, and what sets it.
+fn large_signal_table(l: &crate::analysis::large_signal::LargeSignalReport) -> String {
+    let volts = |v: Option<f64>| v.map_or_else(absent, |v| si(v, "V", 4));
+    let db = |v: Option<f64>| v.map_or_else(absent, |v| format!("{} dB", plain(v, 4)));
+    let limit = |l: &Option<crate::analysis::large_signal::SwingLimit>| {
+        l.as_ref().map_or_else(absent, |l| {
+            let edge = l.edge.verb();
+            format!("{} {edge} at `{}`, EMF {}", l.part, l.node, si(l.input_v, "V", 3))
+        })
+    };
+    let s = &l.output_swing;
+    let mut rows = vec![
+        vec![
+            "output swing, rising".into(),
+            volts(s.positive_v),
+            absent(),
+            limit(&s.positive_limit),
+        ],
+        vec![
+            "output swing, falling".into(),
+            volts(s.negative_v),
+            absent(),
+            limit(&s.negative_limit),
+        ],
+        vec![
+            "clipping input (peak EMF)".into(),
+            volts(l.clipping_input_v),
+            absent(),
+            "the nearer limit".into(),
+        ],
+    ];
+    if let Some(d) = &l.distortion {
+        let a = d.amplitude_v;
+        let est = |v: Option<f64>| v.filter(|v| *v > 0.0).map(|v| 20.0 * v.log10());
+        let series = l.series.as_ref();
+        let error = |exact: Option<f64>, est: Option<f64>| match (exact, est) {
+            (Some(x), Some(e)) if (e - x).abs() < 0.01 => "estimate within 0.01 dB".into(),
+            (Some(x), Some(e)) => format!("estimate {:+.2} dB off", e - x).replace('-', "−"),
+            _ => absent(),
+        };
+        let (hd2_est, hd3_est) = (est(series.map(|s| s.hd2(a))), est(series.map(|s| s.hd3(a))));
+        let at = si(a, "V", 3);
+        rows.push(vec![
+            format!("fundamental at {at} peak"),
+            si(d.fundamental_v, "V", 4),
+            series.map_or_else(absent, |s| si((s.a1 * a).abs(), "V", 4)),
+            "estimate: the small-signal gain".into(),
+        ]);
+        rows.push(vec![
+            format!("HD2 at {at}"),
+            db(d.hd2_db),
+            db(hd2_est),
+            error(d.hd2_db, hd2_est),
+        ]);
+        rows.push(vec![
+            format!("HD3 at {at}"),
+            db(d.hd3_db),
+            db(hd3_est),
+            error(d.hd3_db, hd3_est),
+        ]);
+        rows.push(vec![
+            format!("THD at {at}"),
+            format!("{} %", plain(d.thd_percent, 4)),
+            absent(),
+            format!("harmonics 2 to {}", d.harmonics.len()),
+        ]);
+    }
+    rows.push(vec![
+        "input 1 dB compression (peak EMF)".into(),
+        volts(l.compression_1db_input_v),
+        absent(),
+        absent(),
+    ]);
+    rows.push(vec![
+        "input third-order intercept (peak EMF per tone)".into(),
+        absent(),
+        volts(l.iip3_v),
+        "extrapolated from the power series".into(),
+    ]);
+    if let Some(dr) = l.dynamic_range_db {
+        rows.push(vec![
+            "dynamic range (band noise to compression)".into(),
+            format!("{} dB", plain(dr, 4)),
+            absent(),
+            absent(),
+        ]);
+    }
+    markdown_table(&["quantity", "exact", "power series", "set by"], "lrrl", rows)
 }
 
 /// `noise_contributors`: each part's noise by mechanism, largest first.

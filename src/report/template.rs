@@ -271,9 +271,10 @@ pub fn render(
             "high" => &explanation.high,
             "low" => &explanation.low,
             "noise" => &explanation.noise,
+            "signal" => &explanation.signal,
             other => {
                 return Err(tera::Error::message(format!(
-                    "explanation side `{other}`: write `high`, `low` or `noise`"
+                    "explanation side `{other}`: write `high`, `low`, `noise` or `signal`"
                 )));
             }
         };

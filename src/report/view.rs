@@ -12,9 +12,9 @@ use crate::design::Design;
 use crate::notation::si;
 use crate::report::explain::Explanation;
 use crate::report::results::{
-    CapacitorResults, CautionResults, HighResults, LowResults, MidbandResults, NoiseResults,
-    OperatingPointResults, Provenance, RequirementResults, ResultsDocument, RootResults,
-    RootWindowResults, SensitivityResults, ToleranceSummary, Tool,
+    CapacitorResults, CautionResults, HighResults, LargeSignalResults, LowResults, MidbandResults,
+    NoiseResults, OperatingPointResults, Provenance, RequirementResults, ResultsDocument,
+    RootResults, RootWindowResults, SensitivityResults, ToleranceSummary, Tool,
 };
 use crate::report::template::MARKER;
 
@@ -152,6 +152,8 @@ pub struct View<'a> {
     pub has_inductors: bool,
     /// Noise: spot densities, noise figure, input generators, band rms, contributors.
     pub noise: &'a Option<NoiseResults>,
+    /// Signal handling: swing and its limits, distortion, compression, intercept.
+    pub large_signal: &'a Option<LargeSignalResults>,
     /// Requirements at nominal values, corners and yields.
     pub requirements: &'a [RequirementResults],
     /// Sensitivities.
@@ -185,6 +187,7 @@ impl<'a> View<'a> {
             root_window: &doc.root_window,
             has_inductors: doc.has_inductors,
             noise: &doc.noise,
+            large_signal: &doc.large_signal,
             requirements: &doc.requirements,
             sensitivity: &doc.sensitivity,
             tolerance: &doc.tolerance,

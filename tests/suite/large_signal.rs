@@ -200,7 +200,7 @@ fn swing_limits_of_the_resistor_loaded_stage_match_the_hand_calculation() {
     // for u = 1 + v.
     let u = (-1.0 + (1.0f64 + 160.0).sqrt()) / 8.0;
     let down = s.negative_limit.as_ref().unwrap();
-    assert_eq!(format!("{:?}", down.edge), "Saturation");
+    assert_eq!(format!("{:?}", down.edge), "Triode");
     close(down.input_v, u - 1.0, 1e-6, "triode-edge EMF");
     close(s.negative_v.unwrap(), 6.0 - u, 1e-6, "falling swing");
     close(l.clipping_input_v.unwrap(), u - 1.0, 1e-6, "clipping input: the nearer edge");
