@@ -344,8 +344,60 @@ pub fn analysis_text(a: &Analysis) -> String {
     if let Some(n) = &a.noise {
         out.push_str(&noise_block(n));
     }
+    if let Some(l) = &a.large_signal {
+        out.push_str(&signal_block(l));
+    }
     let _ = writeln!(out, "\npoles  {}", roots(&a.poles));
     let _ = writeln!(out, "zeros  {}", roots(&a.zeros));
+    out
+}
+
+/// The signal-handling block: each side's swing and what ends it, the distortion at the
+/// stated amplitude, compression, intercept and dynamic range.
+fn signal_block(l: &crate::analysis::large_signal::LargeSignalReport) -> String {
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "\nsignal handling  (quasi-static at {}{})",
+        si(l.frequency_hz, "Hz", 3),
+        if l.well_inside_band { "" } else { ", within a decade of a cut-off" }
+    );
+    let s = &l.output_swing;
+    for (label, swing, limit) in
+        [("rising ", s.positive_v, &s.positive_limit), ("falling", s.negative_v, &s.negative_limit)]
+    {
+        let (Some(v), Some(limit)) = (swing, limit) else { continue };
+        let _ = writeln!(
+            out,
+            "  swing {label}  {}  until {} {} at `{}` (source EMF {})",
+            si(v, "V", 4),
+            limit.part,
+            limit.edge.verb(),
+            limit.node,
+            si(limit.input_v, "V", 4)
+        );
+    }
+    if let Some(d) = &l.distortion {
+        let db = |v: Option<f64>| v.map_or_else(absent, |v| format!("{} dB", plain(v, 4)));
+        let _ = writeln!(
+            out,
+            "  at {} peak  THD {} %, HD2 {}, HD3 {}",
+            si(d.amplitude_v, "V", 4),
+            plain(d.thd_percent, 4),
+            db(d.hd2_db),
+            db(d.hd3_db)
+        );
+    }
+    let volts = |v: Option<f64>| v.map_or_else(absent, |v| si(v, "V", 4));
+    let _ = writeln!(
+        out,
+        "  1 dB compression {} peak at the source; IIP3 {} (extrapolated)",
+        volts(l.compression_1db_input_v),
+        volts(l.iip3_v)
+    );
+    if let Some(dr) = l.dynamic_range_db {
+        let _ = writeln!(out, "  dynamic range    {} dB (band noise to compression)", plain(dr, 4));
+    }
     out
 }
 

@@ -264,6 +264,11 @@ fn requirement_of(key: &str) -> Option<&str> {
         "/noise/input_density_v_per_rthz" => Some("input_noise_density"),
         "/noise/band/output_rms_v" => Some("output_noise"),
         "/noise/snr_db" => Some("snr"),
+        "/large_signal/thd_percent" => Some("thd"),
+        "/large_signal/compression_1db_input_v" => Some("input_compression"),
+        "/large_signal/output_swing/positive_v" | "/large_signal/output_swing/negative_v" => {
+            Some("output_swing")
+        }
         _ => None,
     };
     own.or_else(|| {
@@ -774,6 +779,42 @@ fn figures(doc: &ResultsDocument) -> Vec<Figure> {
             push(key.into(), label.into(), unit, value);
         }
     }
+    if let Some(ls) = &doc.large_signal {
+        let swing = &ls.output_swing;
+        for (key, label, unit, value) in [
+            (
+                "/large_signal/output_swing/positive_v",
+                "output swing, rising",
+                "V",
+                swing.positive_v,
+            ),
+            (
+                "/large_signal/output_swing/negative_v",
+                "output swing, falling",
+                "V",
+                swing.negative_v,
+            ),
+            ("/large_signal/clipping_input_v", "clipping input", "V", ls.clipping_input_v),
+            (
+                "/large_signal/thd_percent",
+                "THD at the stated amplitude",
+                "%",
+                ls.thd_percent.map(|p| p / 100.0),
+            ),
+            ("/large_signal/hd2_db", "HD2 at the stated amplitude", "dB", ls.hd2_db),
+            ("/large_signal/hd3_db", "HD3 at the stated amplitude", "dB", ls.hd3_db),
+            (
+                "/large_signal/compression_1db_input_v",
+                "input 1 dB compression",
+                "V",
+                ls.compression_1db_input_v,
+            ),
+            ("/large_signal/iip3_v", "input third-order intercept", "V", ls.iip3_v),
+            ("/large_signal/dynamic_range_db", "dynamic range", "dB", ls.dynamic_range_db),
+        ] {
+            push(key.into(), label.into(), unit, value);
+        }
+    }
     if let Some(op) = &doc.operating_point {
         for (k, x) in op.nodes.iter().filter(|(k, _)| !k.contains('.') && *k != "source") {
             push(format!("node {k}"), format!("V({k})"), "V", Some(*x));
@@ -832,9 +873,13 @@ fn figures(doc: &ResultsDocument) -> Vec<Figure> {
             "dB" => "dB",
             "V" => "V",
             "V/√Hz" => "V/√Hz",
+            "A" => "A",
+            "%" => "%",
             _ => "",
         };
-        push(format!("corner {name}"), format!("worst corner, {spaced}"), unit, r.corner);
+        // A figure in per cent (the THD) is carried as the fraction `show` expects.
+        let corner = if unit == "%" { r.corner.map(|c| c / 100.0) } else { r.corner };
+        push(format!("corner {name}"), format!("worst corner, {spaced}"), unit, corner);
         push(format!("yield {name}"), format!("yield, {spaced}"), "%", r.yield_fraction);
     }
     let all = doc.tolerance.as_ref().and_then(|t| t.monte_carlo.as_ref()).and_then(|m| m.yield_all);
