@@ -26,7 +26,7 @@ const COMPRESSION_NODES: usize = 24;
 /// Chebyshev nodes of the power-series fit at the bias.
 const SERIES_NODES: usize = 16;
 /// Points on each side of the transfer curve drawn in the review.
-const CURVE_POINTS: usize = 40;
+const CURVE_POINTS: usize = 30;
 /// Points of the output waveform drawn over one period.
 const WAVEFORM_POINTS: usize = 97;
 /// Growth of the amplitude per step of the compression bracket.
@@ -427,7 +427,7 @@ fn gain_change_db(held: &mut Held, a: f64, gain: f64) -> Option<f64> {
 
 /// The EMF where the fundamental's gain has fallen [`COMPRESSION_DB`]: amplitudes grow by
 /// half from half of `reach` (the clipping input) until the gain is that far down, then
-/// Brent's method in log amplitude to 1e-4 (relative).
+/// Brent's method in log amplitude to 5e-4 (relative).
 fn compression(held: &mut Held, gain: f64, reach: f64, scale: f64) -> Option<f64> {
     if gain == 0.0 {
         return None;
@@ -449,7 +449,7 @@ fn compression(held: &mut Held, gain: f64, reach: f64, scale: f64) -> Option<f64
                 |la| gain_change_db(held, la.exp(), gain).map_or(-1.0, |g| g + COMPRESSION_DB),
                 from,
                 hi.ln(),
-                1e-4,
+                5e-4,
             );
             return Some(root.exp());
         }

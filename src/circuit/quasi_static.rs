@@ -20,7 +20,7 @@ use crate::union_find::UnionFind;
 /// Newton iterations allowed at one EMF.
 const MAX_ITERATIONS: usize = 100;
 /// Settling step, V (plus the same relative), as for the operating point.
-const VOLTAGE_TOLERANCE: f64 = 1e-10;
+const VOLTAGE_TOLERANCE: f64 = 1e-9;
 /// Halvings of an EMF step that will not settle before the sweep gives up.
 const MAX_SPLITS: u32 = 14;
 
