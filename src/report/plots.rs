@@ -169,7 +169,15 @@ pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study
     }
     if let Some(l) = &a.large_signal {
         if let Some(svg) = crate::report::signal_plots::transfer(l) {
-            out.push(Plot { name: "transfer", caption: "Quasi-static transfer at mid-band: the output's change from its bias against the source EMF (solid), the small-signal gain's straight line (dashed), the stated amplitude's span shaded, and the point on each side where a transistor reaches the edge of its bias region.".into(), svg, file: None, max_width: None });
+            let span = if l.input_amplitude_v.is_some() {
+                ", the stated amplitude's span shaded"
+            } else {
+                ""
+            };
+            let caption = format!(
+                "Quasi-static transfer at mid-band: the output's change from its bias against the source EMF (solid), the small-signal gain's straight line (dashed){span}, and the point on each side where a transistor reaches the edge of its bias region."
+            );
+            out.push(Plot { name: "transfer", caption, svg, file: None, max_width: None });
         }
         if let Some(svg) = crate::report::signal_plots::waveform(l) {
             out.push(Plot { name: "waveform", caption: "The output over one period at the stated amplitude (solid) beside the sine the small-signal gain alone would give (dashed); the difference is the distortion, any shift the rectified DC.".into(), svg, file: None, max_width: None });
