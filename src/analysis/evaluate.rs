@@ -72,6 +72,8 @@ struct Core {
     stress: Vec<crate::analysis::stress::StressReport>,
     /// The signal-handling figures a requirement limits, computed where one does.
     large: large_signal::Figures,
+    /// The design's frequency of interest, Hz.
+    signal_frequency: Option<f64>,
 }
 
 /// Each transistor's flicker-noise corner frequency from its model, Hz (0 where the model
@@ -325,6 +327,7 @@ fn core(design: &Design, near: Option<&OperatingPoint>) -> Result<Core, Analysis
         supply_current,
         stress,
         large,
+        signal_frequency: design.signal.frequency_hz,
     })
 }
 
@@ -427,7 +430,7 @@ impl Core {
                 op,
                 gain: self.gain,
                 amplitude_v: self.amplitude_v,
-                frequency_hz,
+                frequency_hz: self.signal_frequency.unwrap_or(frequency_hz),
                 cutoffs: (f_low, f_high),
                 input_noise_rms_v: noise
                     .as_ref()

@@ -146,6 +146,9 @@ pub struct Signal {
     pub band: Option<Band>,
     /// The signal's peak amplitude at the source EMF, V, when the design states one.
     pub amplitude_v: Option<f64>,
+    /// The frequency of interest, Hz, when the design states one: where the signal-handling
+    /// review says it stands.
+    pub frequency_hz: Option<f64>,
 }
 
 /// The operating band: the frequencies the stage must serve.

@@ -139,7 +139,11 @@ fn emitter_degeneration_divides_hd2_by_the_loop_gain() {
 /// V_th = 1 V (V_ov = 1 V, I_D0 = 2 mA), λ = 0, R_D = 2 kΩ from 10 V (V_D0 = 6 V); 1 MΩ
 /// across the 1 mΩ source.
 fn square_law_stage(amplitude: f64) -> design::Design {
-    load(&format!(
+    load(&square_law_text(amplitude))
+}
+
+fn square_law_text(amplitude: f64) -> String {
+    format!(
         "tauweave: 1\ndesign: {{id: sq, title: square law, revision: A, date: 2026-12-04}}\n\
          supplies: {{vdd: 10 V, vg: 2 V}}\n\
          signal: {{at: [g, vg], resistance: 1 mΩ, amplitude: {amplitude} V}}\noutput: {{at: d}}\n\
@@ -151,7 +155,7 @@ fn square_law_stage(amplitude: f64) -> design::Design {
          models:\n  N: {{type: nmos, threshold: 1 V, process_transconductance: 200 µA/V², \
          width: 20 µm, length: 1 µm}}\n\
          analysis: {{monte_carlo: {{runs: 0}}}}\n"
-    ))
+    )
 }
 
 #[test]
@@ -303,4 +307,20 @@ fn signal_handling_requirements_pass_fail_and_follow_the_square_law_through_the_
     // The worst corner of the THD: V_th at 1.05 V, V_ov = 0.95 V, 0.1/(4·0.95).
     let w = s.worst_case.iter().find(|w| w.figure == "thd").unwrap();
     close(w.high_corner.unwrap(), 100.0 * 0.1 / (4.0 * 0.95), 1e-6, "THD high corner");
+}
+
+#[test]
+fn a_stated_frequency_is_judged_against_the_cut_offs() {
+    // The square-law stage's only pole is R_D·C_L: f_H = 1/(2π·2 kΩ·10 pF) ≈ 7.96 MHz (common
+    // practice: a single RC); the quasi-static view holds a decade below it.
+    let with = |f: &str| {
+        let text = square_law_text(0.1)
+            .replace("amplitude: 0.1 V}", &format!("amplitude: 0.1 V, frequency: {f}}}"));
+        large_signal(&load(&text))
+    };
+    let inside = with("100 kHz");
+    assert_eq!(inside.frequency_hz, 100e3);
+    assert!(inside.well_inside_band);
+    let near = with("2 MHz");
+    assert!(!near.well_inside_band, "2 MHz is within a decade of 7.96 MHz");
 }

@@ -168,6 +168,7 @@ impl Reader<'_> {
         }
         // A sine's peak is √2 times its rms.
         let amplitude_v = peak.or(rms.map(|v| v * std::f64::consts::SQRT_2));
+        let frequency_hz = f.get("frequency").and_then(|n| self.quantity(n, FREQUENCY));
         f.finish(&mut self.diagnostics);
         let (positive, negative) = at?;
         Some(Signal {
@@ -176,6 +177,7 @@ impl Reader<'_> {
             resistance: Toleranced::exact(r?),
             band: band?,
             amplitude_v,
+            frequency_hz,
         })
     }
 

@@ -22,7 +22,8 @@ pub const META_KEYS: &[&str] =
 /// Keys of `environment`.
 pub const ENVIRONMENT_KEYS: &[&str] = &["temperature", "mains_powered"];
 /// Keys of `signal`.
-pub const SIGNAL_KEYS: &[&str] = &["at", "resistance", "band", "amplitude", "amplitude_rms"];
+pub const SIGNAL_KEYS: &[&str] =
+    &["at", "resistance", "band", "amplitude", "amplitude_rms", "frequency"];
 /// Keys of `signal.band`.
 pub const BAND_KEYS: &[&str] = &["from", "to"];
 /// Keys of `output`.
