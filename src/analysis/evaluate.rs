@@ -438,6 +438,12 @@ impl Core {
                     .map(|b| b.input_rms_v),
             })
         });
+        let ports = crate::analysis::ports::review(
+            &self.lin,
+            settings.reference_impedance_ohm,
+            &frequencies,
+            frequency_hz,
+        );
         Ok(Analysis {
             operating_point,
             capacitors,
@@ -497,6 +503,7 @@ impl Core {
             has_inductors: self.has_inductors,
             noise,
             large_signal,
+            ports,
         })
     }
 

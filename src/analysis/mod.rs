@@ -15,6 +15,7 @@ pub mod matrix;
 pub mod mna;
 pub mod noise;
 pub mod poles;
+pub mod ports;
 pub mod requirements;
 pub mod response;
 pub mod schur;
@@ -336,6 +337,10 @@ pub struct Analysis {
     /// Signal handling from the quasi-static transfer: swing, distortion, compression;
     /// None without transistors.
     pub large_signal: Option<large_signal::LargeSignalReport>,
+    /// The stage at its ports: S-parameters in the reference impedance, stability, the
+    /// impedances with the design's terminations.
+    #[serde(skip)]
+    pub ports: Option<ports::PortsReport>,
 }
 
 /// Where the roots of a large network were looked for, and why.

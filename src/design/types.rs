@@ -535,6 +535,8 @@ pub struct AnalysisSettings {
     pub resistor_power_derating: f64,
     /// The fraction of a capacitor's voltage rating it should stay under.
     pub capacitor_voltage_derating: f64,
+    /// The reference impedance of the scattering parameters, Ω, when the design states one.
+    pub reference_impedance_ohm: Option<f64>,
 }
 
 impl AnalysisSettings {
@@ -548,6 +550,7 @@ impl AnalysisSettings {
             seed: 1,
             resistor_power_derating: crate::analysis::stress::RESISTOR_POWER_DERATING,
             capacitor_voltage_derating: crate::analysis::stress::CAPACITOR_VOLTAGE_DERATING,
+            reference_impedance_ohm: None,
         }
     }
 }

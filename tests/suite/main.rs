@@ -13,6 +13,7 @@ mod large;
 mod large_signal;
 mod noise;
 mod pdf;
+mod ports;
 mod properties;
 mod reference;
 mod report;

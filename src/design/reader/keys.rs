@@ -129,7 +129,7 @@ pub const REQUIREMENT_KEYS: &[&str] = &[
 /// Keys of one requirement.
 pub const LIMIT_KEYS: &[&str] = &["min", "max"];
 /// Keys of `analysis`.
-pub const ANALYSIS_KEYS: &[&str] = &["sweep", "monte_carlo", "derating"];
+pub const ANALYSIS_KEYS: &[&str] = &["sweep", "monte_carlo", "derating", "reference_impedance"];
 /// Keys of `analysis.derating`.
 pub const DERATING_KEYS: &[&str] = &["resistor_power", "capacitor_voltage"];
 /// Keys of `analysis.sweep`.

@@ -266,6 +266,12 @@ impl Reader<'_> {
                 d.finish(&mut self.diagnostics);
             }
         }
+        if let Some(n) = f.get("reference_impedance") {
+            match self.quantity(n, RESISTANCE) {
+                Some(v) => out.reference_impedance_ohm = Some(v),
+                None => ok = false,
+            }
+        }
         f.finish(&mut self.diagnostics);
         ok.then_some(out)
     }
