@@ -347,6 +347,9 @@ pub fn analysis_text(a: &Analysis) -> String {
     if let Some(l) = &a.large_signal {
         out.push_str(&signal_block(l));
     }
+    if let Some(p) = &a.ports {
+        out.push_str(&ports_block(p));
+    }
     let _ = writeln!(out, "\npoles  {}", roots(&a.poles));
     let _ = writeln!(out, "zeros  {}", roots(&a.zeros));
     out
@@ -398,6 +401,46 @@ fn signal_block(l: &crate::analysis::large_signal::LargeSignalReport) -> String 
     if let Some(dr) = l.dynamic_range_db {
         let _ = writeln!(out, "  dynamic range    {} dB (band noise to compression)", plain(dr, 4));
     }
+    out
+}
+
+/// The ports block: the impedances with the design's terminations, the scattering
+/// parameters' headline figures at the spot frequency, and stability over the sweep.
+fn ports_block(p: &crate::analysis::ports::PortsReport) -> String {
+    let mut out = String::new();
+    let reference = if p.reference_stated { "" } else { ", by default: the design states none" };
+    let _ = writeln!(out, "\nports  (Z₀ = {}{reference})", si(p.reference_ohm, "Ω", 4));
+    let z = |z: faer::c64| {
+        let sign = if z.im < 0.0 { "−" } else { "+" };
+        format!("{} {sign} j{}", si(z.re, "Ω", 4), si(z.im.abs(), "Ω", 4))
+    };
+    let db = |v: Option<f64>| v.map_or_else(absent, |v| format!("{} dB", plain(v, 4)));
+    if let Some(q) = &p.spot {
+        let _ = writeln!(out, "  at {}", si(q.frequency_hz, "Hz", 4));
+        let _ = writeln!(out, "  Z_in          {}  (with the design's load)", z(q.z_in));
+        let _ = writeln!(out, "  Z_out         {}  (with the design's source)", z(q.z_out));
+        let s21 = q.s[1].norm();
+        let _ = writeln!(
+            out,
+            "  |S21|         {}; return loss in {}, out {}; isolation {}",
+            db((s21 > 0.0).then(|| 20.0 * s21.log10())),
+            db(q.input_return_loss_db()),
+            db(q.output_return_loss_db()),
+            db((q.s[2].norm() > 0.0).then(|| -20.0 * q.s[2].norm().log10()))
+        );
+    }
+    let num = |v: Option<f64>| v.map_or_else(absent, |v| plain(v, 4));
+    let ranges = p.conditionally_stable();
+    let verdict = if ranges.is_empty() {
+        "unconditionally stable over the sweep (μ > 1)".to_string()
+    } else {
+        let list: Vec<String> = ranges
+            .iter()
+            .map(|(a, b)| format!("{} … {}", si(*a, "Hz", 3), si(*b, "Hz", 3)))
+            .collect();
+        format!("only conditionally stable (μ < 1) at {}", list.join(", "))
+    };
+    let _ = writeln!(out, "  K min {}, μ min {}: {verdict}", num(p.k_min()), num(p.mu_min()));
     out
 }
 

@@ -81,17 +81,20 @@ impl Exporter for Csv {
     fn export(&self, doc: &Document) -> Vec<OutputFile> {
         let mut out = String::from(
             "frequency_hz,magnitude_db,phase_deg,output_noise_v_per_rthz,\
-             input_noise_v_per_rthz,noise_figure_db\n",
+             input_noise_v_per_rthz,noise_figure_db,s11_re,s11_im,s21_re,s21_im,s12_re,s12_im,\
+             s22_re,s22_im,z_in_re_ohm,z_in_im_ohm,z_out_re_ohm,z_out_im_ohm,k,mu\n",
         );
         let a = &doc.review.analysis;
         let noise: std::collections::HashMap<u64, &crate::analysis::noise::NoisePoint> =
             a.noise.iter().flat_map(|n| &n.sweep).map(|p| (p.frequency_hz.to_bits(), p)).collect();
+        let ports: std::collections::HashMap<u64, &crate::analysis::ports::PortPoint> =
+            a.ports.iter().flat_map(|p| &p.points).map(|p| (p.frequency_hz.to_bits(), p)).collect();
         // An empty cell where a value does not exist (never NaN).
         let cell = |v: Option<f64>| v.map_or(String::new(), |v| format!("{v:.9e}"));
         for p in &a.sweep {
             let n = noise.get(&p.frequency_hz.to_bits());
             out.push_str(&format!(
-                "{:.9e},{:.9e},{:.9e},{},{},{}\n",
+                "{:.9e},{:.9e},{:.9e},{},{},{}",
                 p.frequency_hz,
                 p.magnitude_db,
                 p.phase_deg,
@@ -99,6 +102,19 @@ impl Exporter for Csv {
                 cell(n.and_then(|n| n.input_density_v_per_rthz)),
                 cell(n.and_then(|n| n.noise_figure_db)),
             ));
+            let port = ports.get(&p.frequency_hz.to_bits());
+            let complex = |z: Option<faer::c64>| [cell(z.map(|z| z.re)), cell(z.map(|z| z.im))];
+            let mut cells: Vec<String> = Vec::new();
+            for k in 0..4 {
+                cells.extend(complex(port.map(|q| q.s[k])));
+            }
+            cells.extend(complex(port.map(|q| q.z_in)));
+            cells.extend(complex(port.map(|q| q.z_out)));
+            cells.push(cell(port.and_then(|q| q.k())));
+            cells.push(cell(port.and_then(|q| q.mu())));
+            out.push(',');
+            out.push_str(&cells.join(","));
+            out.push('\n');
         }
         vec![file("sweep.csv", out)]
     }

@@ -637,6 +637,143 @@ pub struct ContributorResults {
     pub band_share: Option<f64>,
 }
 
+/// `ports`: the stage as a two-port in the reference impedance.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct PortsResults {
+    /// Z₀, Ω.
+    pub reference_ohm: f64,
+    /// False when the design states none and 50 Ω is used.
+    pub reference_stated: bool,
+    /// At the spot frequency (the band's centre, else mid-band).
+    pub spot: Option<PortSpotResults>,
+    /// The input impedance with the design's load, at ten sweep points a decade (sweep.csv
+    /// has every point).
+    pub input_impedance: Vec<ImpedanceResults>,
+    /// The output impedance with the design's source resistance.
+    pub output_impedance: Vec<ImpedanceResults>,
+    /// S₁₁, S₂₁, S₁₂, S₂₂ (real, imaginary) at the same frequencies.
+    pub s_parameters: Vec<SParameterResults>,
+    /// Rollett's K and Edwards–Sinsky μ over the whole sweep.
+    pub stability: StabilityResults,
+}
+
+/// The ports at one frequency, in the terms a reviewer reads.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct PortSpotResults {
+    /// Hz.
+    pub frequency_hz: f64,
+    /// Input impedance with the design's load, Ω.
+    pub input_impedance: ImpedanceResults,
+    /// Output impedance with the design's source resistance, Ω.
+    pub output_impedance: ImpedanceResults,
+    /// |S₂₁|, dB.
+    pub s21_db: Option<f64>,
+    /// Return loss at port 1, dB (null for a perfect match).
+    pub input_return_loss_db: Option<f64>,
+    /// Return loss at port 2, dB.
+    pub output_return_loss_db: Option<f64>,
+    /// VSWR at port 1 (null at total reflection).
+    pub input_vswr: Option<f64>,
+    /// VSWR at port 2.
+    pub output_vswr: Option<f64>,
+    /// −20·log10|S₁₂|, dB (null for a unilateral stage).
+    pub reverse_isolation_db: Option<f64>,
+    /// Rollett's K (null for a unilateral stage).
+    pub k: Option<f64>,
+    /// |Δ|.
+    pub delta: f64,
+    /// μ.
+    pub mu: Option<f64>,
+}
+
+/// An impedance.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct ImpedanceResults {
+    /// Hz.
+    pub frequency_hz: f64,
+    /// Resistance, Ω.
+    pub re_ohm: f64,
+    /// Reactance, Ω.
+    pub im_ohm: f64,
+}
+
+/// The four scattering parameters at one frequency, each `[re, im]`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct SParameterResults {
+    /// Hz.
+    pub frequency_hz: f64,
+    /// S₁₁.
+    pub s11: [f64; 2],
+    /// S₂₁.
+    pub s21: [f64; 2],
+    /// S₁₂.
+    pub s12: [f64; 2],
+    /// S₂₂.
+    pub s22: [f64; 2],
+}
+
+/// `ports.stability`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct StabilityResults {
+    /// The smallest K over the sweep (null for a unilateral stage).
+    pub k_min: Option<f64>,
+    /// The smallest μ over the sweep; above 1 everywhere means unconditionally stable.
+    pub mu_min: Option<f64>,
+    /// `[from, to]` frequency ranges (sweep points) where μ < 1.
+    pub conditionally_stable_hz: Vec<[f64; 2]>,
+}
+
+fn ports(p: &crate::analysis::ports::PortsReport, per_decade: u32) -> PortsResults {
+    use crate::analysis::ports::vswr;
+    let step = (per_decade / 10).max(1) as usize;
+    let shown: Vec<_> = p.points.iter().step_by(step).collect();
+    let impedance =
+        |f: f64, z: faer::c64| ImpedanceResults { frequency_hz: f, re_ohm: z.re, im_ohm: z.im };
+    let db = |v: f64| (v > 0.0).then(|| 20.0 * v.log10());
+    PortsResults {
+        reference_ohm: p.reference_ohm,
+        reference_stated: p.reference_stated,
+        spot: p.spot.map(|q| PortSpotResults {
+            frequency_hz: q.frequency_hz,
+            input_impedance: impedance(q.frequency_hz, q.z_in),
+            output_impedance: impedance(q.frequency_hz, q.z_out),
+            s21_db: db(q.s[1].norm()),
+            input_return_loss_db: q.input_return_loss_db(),
+            output_return_loss_db: q.output_return_loss_db(),
+            input_vswr: vswr(q.s[0]),
+            output_vswr: vswr(q.s[3]),
+            reverse_isolation_db: db(q.s[2].norm()).map(|v| -v),
+            k: q.k(),
+            delta: q.delta().norm(),
+            mu: q.mu(),
+        }),
+        input_impedance: shown.iter().map(|q| impedance(q.frequency_hz, q.z_in)).collect(),
+        output_impedance: shown.iter().map(|q| impedance(q.frequency_hz, q.z_out)).collect(),
+        s_parameters: shown
+            .iter()
+            .map(|q| {
+                let pair = |z: faer::c64| [z.re, z.im];
+                SParameterResults {
+                    frequency_hz: q.frequency_hz,
+                    s11: pair(q.s[0]),
+                    s21: pair(q.s[1]),
+                    s12: pair(q.s[2]),
+                    s22: pair(q.s[3]),
+                }
+            })
+            .collect(),
+        stability: StabilityResults {
+            k_min: p.k_min(),
+            mu_min: p.mu_min(),
+            conditionally_stable_hz: p
+                .conditionally_stable()
+                .into_iter()
+                .map(|(a, b)| [a, b])
+                .collect(),
+        },
+    }
+}
+
 /// `large_signal`: the quasi-static transfer at mid-band and what it says about signal
 /// handling.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -779,6 +916,9 @@ pub struct ResultsDocument {
     /// Signal handling (null without transistors).
     #[serde(default)]
     pub large_signal: Option<LargeSignalResults>,
+    /// The stage at its ports (null when the terminated stage cannot be solved).
+    #[serde(default)]
+    pub ports: Option<PortsResults>,
     /// Each requirement at nominal values, at its tolerance corner and its yield.
     pub requirements: Vec<RequirementResults>,
     /// Normalised sensitivities of every figure to every lever.
@@ -908,6 +1048,7 @@ pub fn document(
         has_inductors: a.has_inductors,
         noise: a.noise.as_ref().map(noise),
         large_signal: a.large_signal.as_ref().map(large_signal),
+        ports: a.ports.as_ref().map(|p| ports(p, design.analysis.points_per_decade)),
         requirements: review.requirements.iter().map(requirement).collect(),
         sensitivity: Some(sensitivity(&review.study)),
         tolerance: Some(tolerance_summary(&review.study)),

@@ -57,15 +57,19 @@ fn render_writes_every_output_for_every_example() {
         assert!(
             csv.starts_with(
                 "frequency_hz,magnitude_db,phase_deg,output_noise_v_per_rthz,\
-                 input_noise_v_per_rthz,noise_figure_db\n"
+                 input_noise_v_per_rthz,noise_figure_db,s11_re,s11_im,s21_re,s21_im,\
+                 s12_re,s12_im,s22_re,s22_im,z_in_re_ohm,z_in_im_ohm,z_out_re_ohm,\
+                 z_out_im_ohm,k,mu\n"
             ) && csv.lines().count() > 100
         );
-        // Every row has its noise: six numbers, none empty on an example design.
+        // Every row has its noise and its two-port: 18 numbers, K and μ where they exist
+        // (a unilateral stage has no K), no cell NaN.
         assert!(
-            csv.lines()
-                .skip(1)
-                .all(|l| l.split(',').filter(|c| c.parse::<f64>().is_ok()).count() == 6),
-            "{name}: a sweep row without its noise"
+            csv.lines().skip(1).all(|l| {
+                let numbers = l.split(',').filter(|c| c.parse::<f64>().is_ok()).count();
+                (18..=20).contains(&numbers) && !l.contains("NaN")
+            }),
+            "{name}: a sweep row without its noise or its ports"
         );
     }
 }
