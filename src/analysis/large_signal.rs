@@ -19,8 +19,13 @@ use crate::circuit::netlist::Netlist;
 use crate::circuit::operating_point::OperatingPoint;
 use crate::circuit::quasi_static::{Edge, Held, Path, limit_node};
 
-/// Chebyshev nodes for the distortion at the stated amplitude (harmonics to the 63rd).
+/// Chebyshev nodes for the distortion at the stated amplitude; the THD sums harmonics 2 to
+/// 31 (half the nodes, well clear of the aliasing from 128 ∓ n).
 const HARMONIC_NODES: usize = 64;
+/// The smallest |mid-band gain| the distortion and compression figures are taken against,
+/// V/V: below it the stage passes almost nothing linearly and ratios to its fundamental mean
+/// nothing.
+const MIN_GAIN: f64 = 1e-6;
 /// Chebyshev nodes per amplitude in the compression search.
 const COMPRESSION_NODES: usize = 24;
 /// Chebyshev nodes of the power-series fit at the bias.
@@ -63,12 +68,10 @@ pub struct Swing {
 }
 
 impl Swing {
-    /// The largest peak of a symmetric output that stays inside both limits, V.
+    /// The largest peak of a symmetric output that stays inside both limits, V; None unless
+    /// both sides have one.
     pub fn symmetric_peak_v(&self) -> Option<f64> {
-        match (self.positive_v, self.negative_v) {
-            (Some(p), Some(n)) => Some(p.min(n)),
-            (p, n) => p.or(n),
-        }
+        Some(self.positive_v?.min(self.negative_v?))
     }
 }
 
@@ -88,12 +91,12 @@ pub struct Series {
 impl Series {
     /// HD2 ≈ |a₂|A/(2|a₁|) at peak amplitude `a` (Gray & Meyer, distortion section).
     pub fn hd2(&self, a: f64) -> f64 {
-        (self.a2 * a / (2.0 * self.a1)).abs()
+        if self.a1 == 0.0 { 0.0 } else { (self.a2 * a / (2.0 * self.a1)).abs() }
     }
 
     /// HD3 ≈ |a₃|A²/(4|a₁|).
     pub fn hd3(&self, a: f64) -> f64 {
-        (self.a3 * a * a / (4.0 * self.a1)).abs()
+        if self.a1 == 0.0 { 0.0 } else { (self.a3 * a * a / (4.0 * self.a1)).abs() }
     }
 
     /// The input third-order intercept, peak EMF per tone: √(4/3·|a₁/a₃|) (Razavi, RF
@@ -154,6 +157,8 @@ pub struct LargeSignalReport {
     /// The transfer: (EMF, output change), V, across both limits.
     #[serde(skip)]
     pub curve: Vec<[f64; 2]>,
+    /// Transistors outside their normal region at the bias (not watched for limits).
+    pub unwatched: Vec<String>,
 }
 
 /// What the caller knows already.
@@ -203,10 +208,14 @@ pub fn review(req: &Request) -> Option<LargeSignalReport> {
     let output_swing = swing(&mut held, req.net, scale);
     let clipping_input_v = clipping_input(&output_swing);
     let reach = clipping_input_v.unwrap_or(scale);
-    let series = series(&mut held, 0.25 * reach);
-    let distortion =
-        req.amplitude_v.and_then(|a| distortion(&mut held, a, HARMONIC_NODES, req.gain));
-    let compression_1db_input_v = compression(&mut held, req.gain, reach, scale);
+    let amplifies = req.gain.abs() >= MIN_GAIN;
+    let series = series(&mut held, 0.25 * reach).filter(|_| amplifies);
+    let distortion = req
+        .amplitude_v
+        .filter(|_| amplifies)
+        .and_then(|a| distortion(&mut held, a, HARMONIC_NODES, req.gain));
+    let compression_1db_input_v =
+        if amplifies { compression(&mut held, req.gain, reach, scale) } else { None };
     let dynamic_range_db = compression_1db_input_v
         .zip(req.input_noise_rms_v)
         .filter(|(_, n)| *n > 0.0)
@@ -231,6 +240,7 @@ pub fn review(req: &Request) -> Option<LargeSignalReport> {
         compression_1db_input_v,
         dynamic_range_db,
         curve,
+        unwatched: held.unwatched(),
     })
 }
 
@@ -244,15 +254,15 @@ pub fn figures(req: &Request, wanted: Wanted) -> Figures {
     let needs_swing = wanted.swing || wanted.compression;
     let s = if needs_swing { swing(&mut held, req.net, scale) } else { Swing::default() };
     let reach = clipping_input(&s).unwrap_or(scale);
+    let amplifies = req.gain.abs() >= MIN_GAIN;
     Figures {
         output_swing_v: s.symmetric_peak_v().filter(|_| wanted.swing),
         thd_percent: req
             .amplitude_v
-            .filter(|_| wanted.distortion)
+            .filter(|_| wanted.distortion && amplifies)
             .and_then(|a| distortion(&mut held, a, HARMONIC_NODES, req.gain))
             .map(|d| d.thd_percent),
-        compression_v: wanted
-            .compression
+        compression_v: (wanted.compression && amplifies)
             .then(|| compression(&mut held, req.gain, reach, scale))
             .flatten(),
     }
@@ -429,20 +439,30 @@ fn gain_change_db(held: &mut Held, a: f64, gain: f64) -> Option<f64> {
 /// half from half of `reach` (the clipping input) until the gain is that far down, then
 /// Brent's method in log amplitude to 5e-4 (relative).
 fn compression(held: &mut Held, gain: f64, reach: f64, scale: f64) -> Option<f64> {
-    if gain == 0.0 {
+    if gain == 0.0 || !(reach > 0.0 && reach.is_finite()) {
         return None;
     }
+    // The bracket's lower end must be less than 1 dB down (a finite, uncompressed gain).
     let mut lo = 0.5 * reach;
+    let mut uncompressed = false;
     for _ in 0..4 {
-        if gain_change_db(held, lo, gain)? > -COMPRESSION_DB {
+        let g = gain_change_db(held, lo, gain)?;
+        if g.is_finite() && g > -COMPRESSION_DB {
+            uncompressed = true;
             break;
         }
         lo *= 0.1;
+    }
+    if !uncompressed {
+        return None;
     }
     let mut hi = lo;
     while hi < 64.0 * scale.max(reach) {
         hi *= GROWTH;
         let g = gain_change_db(held, hi, gain)?;
+        if !g.is_finite() {
+            return None;
+        }
         if g <= -COMPRESSION_DB {
             let from = (hi / GROWTH).ln();
             let root = brent(

@@ -75,8 +75,9 @@ pub struct Held<'a> {
     vt: f64,
     /// The transistors' element indices.
     devices: Vec<usize>,
-    /// Each transistor's margin signs at the bias (so that the bias side is positive).
-    orientation: Vec<[f64; 2]>,
+    /// Whether each transistor is in its normal region at the bias (a bipolar transistor
+    /// forward-active, a MOSFET in saturation): only those are watched for limits.
+    watched: Vec<bool>,
     sparse: Option<Restamped>,
     /// The base system summed into a dense row-major matrix (small networks).
     base_dense: Vec<f64>,
@@ -141,12 +142,9 @@ impl<'a> Held<'a> {
         }
         let mut start = op.solution.clone();
         start.resize(layout.size, 0.0);
-        let orientation = devices
+        let watched = devices
             .iter()
-            .map(|&i| {
-                let raw = raw_margins(&net.elements[i], &start);
-                raw.map(|m| if m < 0.0 { -1.0 } else { 1.0 })
-            })
+            .map(|&i| raw_margins(&net.elements[i], &start).iter().all(|m| *m > 0.0))
             .collect();
         let n = layout.size;
         let mut unit = base.empty_like();
@@ -162,7 +160,7 @@ impl<'a> Held<'a> {
             base,
             vt,
             devices,
-            orientation,
+            watched,
             sparse: None,
             base_dense: Vec::new(),
             injection,
@@ -202,12 +200,25 @@ impl<'a> Held<'a> {
         v(p) - v(n)
     }
 
-    /// Each transistor's margins at solution `x`, positive on its bias side.
+    /// The transistors outside their normal region at the bias (a bipolar transistor not
+    /// forward-active, a MOSFET not in saturation), by designator: they are not watched.
+    pub fn unwatched(&self) -> Vec<String> {
+        self.devices
+            .iter()
+            .zip(&self.watched)
+            .filter(|(_, w)| !**w)
+            .map(|(&i, _)| self.net.elements[i].name().to_string())
+            .collect()
+    }
+
+    /// The margins at solution `x` of each transistor in its normal region at the bias,
+    /// positive inside it.
     pub fn margins(&self, x: &[f64]) -> Vec<Margins> {
         self.devices
             .iter()
-            .zip(&self.orientation)
-            .map(|(&i, o)| {
+            .zip(&self.watched)
+            .filter(|(_, w)| **w)
+            .map(|(&i, _)| {
                 let el = &self.net.elements[i];
                 let raw = raw_margins(el, x);
                 let second = if matches!(el, Element::Mosfet { .. }) {
@@ -215,7 +226,7 @@ impl<'a> Held<'a> {
                 } else {
                     Edge::Saturation
                 };
-                Margins { element: i, margins: [raw[0] * o[0], raw[1] * o[1]], second }
+                Margins { element: i, margins: raw, second }
             })
             .collect()
     }

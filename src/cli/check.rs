@@ -391,6 +391,13 @@ fn signal_block(l: &crate::analysis::large_signal::LargeSignalReport) -> String 
             db(d.hd3_db)
         );
     }
+    if !l.unwatched.is_empty() {
+        let _ = writeln!(
+            out,
+            "  not watched    {} (outside the normal region at the bias)",
+            l.unwatched.join(", ")
+        );
+    }
     let volts = |v: Option<f64>| v.map_or_else(absent, |v| si(v, "V", 4));
     let _ = writeln!(
         out,

@@ -61,8 +61,13 @@ pub fn explain(l: &LargeSignalReport) -> Vec<String> {
             ));
             if shift > 0.05 * small {
                 let way = if up < down { "lower" } else { "higher" };
+                // The node whose bias sets the room: the limiting transistor's collector or
+                // drain (the output follows it through any coupling capacitor).
+                let limit = if up <= down { &s.positive_limit } else { &s.negative_limit };
+                let node =
+                    limit.as_ref().map_or("the output".to_string(), |l| format!("`{}`", l.node));
                 p.push_str(&format!(
-                    "; moving the output's quiescent voltage about {} {way} would balance the sides near {} peak (to first order: the bias move changes the gain and the limits too).",
+                    "; moving the quiescent voltage at {node} about {} {way} would balance the sides near {} peak (to first order: the bias move changes the gain and the limits too).",
                     si(shift, "V", 3),
                     si(0.5 * (up + down), "V", 3)
                 ));
@@ -71,6 +76,15 @@ pub fn explain(l: &LargeSignalReport) -> Vec<String> {
             }
         }
         out.push(p);
+    }
+    if !l.unwatched.is_empty() {
+        out.push(format!(
+            "{} {} outside its normal region at the bias (a bipolar transistor not forward-active, a MOSFET not in saturation), so the swing limits here do not watch {}: where {} turns on or moves, the figures below may change abruptly.",
+            l.unwatched.join(", "),
+            if l.unwatched.len() == 1 { "is" } else { "are" },
+            if l.unwatched.len() == 1 { "it" } else { "them" },
+            if l.unwatched.len() == 1 { "it" } else { "one" },
+        ));
     }
     if let Some(d) = &l.distortion {
         let mut p = format!(

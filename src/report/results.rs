@@ -813,6 +813,10 @@ pub struct LargeSignalResults {
     /// Power-series coefficients of the output change in the EMF at the bias: a1 (V/V),
     /// a2 (1/V), a3 (1/V²).
     pub series: Option<[f64; 3]>,
+    /// Transistors outside their normal region at the bias (a bipolar transistor not
+    /// forward-active, a MOSFET not in saturation): not watched for the swing limits.
+    #[serde(default)]
+    pub unwatched: Vec<String>,
 }
 
 /// `large_signal.output_swing`.
@@ -878,6 +882,7 @@ fn large_signal(l: &crate::analysis::large_signal::LargeSignalReport) -> LargeSi
         iip3_v: l.iip3_v,
         dynamic_range_db: l.dynamic_range_db,
         series: l.series.map(|s| [s.a1, s.a2, s.a3]),
+        unwatched: l.unwatched.clone(),
     }
 }
 

@@ -208,7 +208,10 @@ fn swing_limits_of_the_resistor_loaded_stage_match_the_hand_calculation() {
     close(down.input_v, u - 1.0, 1e-6, "triode-edge EMF");
     close(s.negative_v.unwrap(), 6.0 - u, 1e-6, "falling swing");
     close(l.clipping_input_v.unwrap(), u - 1.0, 1e-6, "clipping input: the nearer edge");
-    // The curve drawn follows the hand-written transfer everywhere, both edges included.
+    // The curve drawn follows the hand-written transfer everywhere, both edges included:
+    // 30 points a side and the bias, out to 1.5 × the farther limit (−1 V).
+    assert_eq!(l.curve.len(), 61);
+    assert!((l.curve[0][0] + 1.5).abs() < 1e-6 && (l.curve[60][0] - 1.5).abs() < 1e-6);
     for p in &l.curve {
         let want = square_law_by_hand(p[0]);
         assert!(
@@ -323,4 +326,53 @@ fn a_stated_frequency_is_judged_against_the_cut_offs() {
     assert!(inside.well_inside_band);
     let near = with("2 MHz");
     assert!(!near.well_inside_band, "2 MHz is within a decade of 7.96 MHz");
+}
+
+#[test]
+fn transistors_outside_their_normal_region_at_the_bias_are_named_not_watched() {
+    // A bipolar transistor whose base takes 10 kΩ from the 10 V rail and whose collector has
+    // 10 kΩ: I_B ≈ 0.93 mA would want I_C = 93 mA, far more than the 1 mA the collector
+    // resistor passes, so it sits saturated (common practice: β·I_B > I_C,max). A MOSFET with
+    // V_th = 0 and its gate on its source sits exactly on its cut-off edge. Neither is
+    // watched; the saturated stage has no swing limits (so no symmetric swing), the second
+    // keeps Q1's, and neither review hangs on the zero margin.
+    let saturated = load(
+        "tauweave: 1\ndesign: {id: sat, title: saturated, revision: A, date: 2026-12-04}\n\
+         supplies: {vcc: 10 V}\nsignal: {at: in, resistance: 50, amplitude: 10 mV}\n\
+         output: {at: c}\nparts:\n\
+         \x20 C1: {kind: capacitor, value: 1u, between: [in, b], role: coupling}\n\
+         \x20 RB: {kind: resistor, value: 10k, between: [vcc, b]}\n\
+         \x20 RC: {kind: resistor, value: 10k, between: [vcc, c]}\n\
+         \x20 Q1: {kind: bjt, model: N, c: c, b: b, e: gnd}\n\
+         models:\n  N: {type: npn, beta: 100, saturation_current: 1 fA}\n\
+         requirements:\n  output_swing: {min: 1 V}\nanalysis: {monte_carlo: {runs: 0}}\n",
+    );
+    let r = review(&saturated, &ReviewOptions::quiet(&saturated, Some(0))).unwrap();
+    let l = r.analysis.large_signal.as_ref().unwrap();
+    assert_eq!(l.unwatched, vec!["Q1".to_string()]);
+    assert!(l.output_swing.positive_limit.is_none() && l.output_swing.negative_limit.is_none());
+    let swing = r.requirements.iter().find(|c| c.name == "output_swing").unwrap();
+    assert!(swing.value.is_none() && !swing.pass, "no swing is computed, and that fails");
+
+    let edge = load(
+        "tauweave: 1\ndesign: {id: edge, title: zero margin, revision: A, date: 2026-12-04}\n\
+         environment: {temperature: 300 K}\nsupplies: {vcc: 12 V}\n\
+         signal: {at: in, resistance: 50, amplitude: 10 mV}\noutput: {at: c}\nparts:\n\
+         \x20 C1: {kind: capacitor, value: 1u, between: [in, b], role: coupling}\n\
+         \x20 RB1: {kind: resistor, value: 18k, between: [vcc, b]}\n\
+         \x20 RB2: {kind: resistor, value: 4k7, between: [b, gnd]}\n\
+         \x20 RE: {kind: resistor, value: 470, between: [e, gnd]}\n\
+         \x20 RC: {kind: resistor, value: 2k2, between: [vcc, c]}\n\
+         \x20 Q1: {kind: bjt, model: N, c: c, b: b, e: e}\n\
+         \x20 M2: {kind: mosfet, model: Z, d: vcc, g: gnd, s: gnd}\n\
+         models:\n  N: {type: npn, beta: 100, saturation_current: 1 fA}\n\
+         \x20 Z: {type: nmos, threshold: 0 V, threshold_drift: 0 V/K, reference_temperature: \
+         300 K, process_transconductance: 50 µA/V², width: 10 µm, length: 1 µm}\n\
+         analysis: {monte_carlo: {runs: 0}}\n",
+    );
+    let l = large_signal(&edge);
+    assert_eq!(l.unwatched, vec!["M2".to_string()]);
+    let limits = [&l.output_swing.positive_limit, &l.output_swing.negative_limit];
+    assert!(limits.iter().all(|x| x.as_ref().is_some_and(|x| x.part == "Q1")));
+    assert!(l.compression_1db_input_v.is_some_and(|c| c.is_finite() && c > 0.0));
 }
