@@ -438,6 +438,35 @@ impl Core {
                     .map(|b| b.input_rms_v),
             })
         });
+        // The step: from the whole network when nothing couples the signal through a
+        // capacitor (a low-pass stage: H(0) is the mid-band gain), else from the
+        // high-frequency network (coupling capacitors shorted), whose rise is the stage's
+        // and whose final value is the mid-band gain; only with every root found.
+        let every_root = root_window.is_none();
+        let (step_poles, step_zeros) = if self.sctc_caps.is_empty() {
+            (&roots.poles, &roots.zeros)
+        } else {
+            (&roots.high_poles, &roots.high_zeros)
+        };
+        let step = (every_root && self.gain != 0.0)
+            .then(|| {
+                crate::analysis::step::step(
+                    step_poles,
+                    step_zeros,
+                    crate::analysis::step::DEFAULT_SETTLING_BAND,
+                    f_high,
+                )
+            })
+            .flatten();
+        // The stated band, else between the cut-offs (from the sweep's start for a stage
+        // coupled down to DC).
+        let delay_band = self
+            .band
+            .map(|(b, _)| (b.from_hz, b.to_hz))
+            .or(f_high.map(|hi| (f_low.unwrap_or(settings.sweep_start_hz), hi)));
+        let group_delay = delay_band.filter(|_| every_root).and_then(|(lo, hi)| {
+            crate::analysis::step::group_delay_over(&roots.poles, &roots.zeros, lo, hi)
+        });
         let ports = crate::analysis::ports::review(
             &self.lin,
             settings.reference_impedance_ohm,
@@ -504,6 +533,8 @@ impl Core {
             noise,
             large_signal,
             ports,
+            step,
+            group_delay,
         })
     }
 

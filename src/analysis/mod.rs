@@ -19,6 +19,7 @@ pub mod ports;
 pub mod requirements;
 pub mod response;
 pub mod schur;
+pub mod step;
 pub mod stress;
 pub mod time_constants;
 pub mod tolerance;
@@ -341,6 +342,12 @@ pub struct Analysis {
     /// impedances with the design's terminations.
     #[serde(skip)]
     pub ports: Option<ports::PortsReport>,
+    /// The step response (None without every root, or for a repeated or unstable pole).
+    #[serde(skip)]
+    pub step: Option<step::StepReport>,
+    /// The group delay across the band (the stated one, else between the cut-offs).
+    #[serde(skip)]
+    pub group_delay: Option<step::GroupDelayReport>,
 }
 
 /// Where the roots of a large network were looked for, and why.

@@ -350,6 +350,34 @@ pub fn analysis_text(a: &Analysis) -> String {
     if let Some(p) = &a.ports {
         out.push_str(&ports_block(p));
     }
+    if let Some(s) = &a.step {
+        let rule = s.rule_of_thumb_s.map_or(String::new(), |r| {
+            format!(
+                " (0.35/f_H = {}, {} off)",
+                si(r, "s", 4),
+                signed_share(r / s.rise_time_s - 1.0)
+            )
+        });
+        let settle = s.settling_time_s.map_or_else(absent, |t| si(t, "s", 4));
+        let _ = writeln!(
+            out,
+            "\nstep   rise {}{rule}; overshoot {} %; settles to {} % in {}",
+            si(s.rise_time_s, "s", 4),
+            plain(100.0 * s.overshoot, 3),
+            plain(100.0 * s.settling_band, 2),
+            settle
+        );
+    }
+    if let Some(g) = &a.group_delay {
+        let _ = writeln!(
+            out,
+            "delay  {} at the centre of {} … {}, varying {} across it",
+            si(g.centre_s, "s", 4),
+            si(g.from_hz, "Hz", 3),
+            si(g.to_hz, "Hz", 3),
+            si(g.variation_s(), "s", 3)
+        );
+    }
     let _ = writeln!(out, "\npoles  {}", roots(&a.poles));
     let _ = writeln!(out, "zeros  {}", roots(&a.zeros));
     out
@@ -449,6 +477,11 @@ fn ports_block(p: &crate::analysis::ports::PortsReport) -> String {
     };
     let _ = writeln!(out, "  K min {}, μ min {}: {verdict}", num(p.k_min()), num(p.mu_min()));
     out
+}
+
+/// A signed percentage: `+3.1 %`, `−0.42 %`.
+fn signed_share(fraction: f64) -> String {
+    crate::notation::signed_percent(fraction, 2)
 }
 
 /// How many contributors the noise block lists before summing the rest.

@@ -637,6 +637,39 @@ pub struct ContributorResults {
     pub band_share: Option<f64>,
 }
 
+/// `step`: the step response from the exact poles and zeros.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct StepResults {
+    /// 10–90 % rise time, s.
+    pub rise_time_s: f64,
+    /// Peak over the final value, a fraction.
+    pub overshoot: f64,
+    /// When the response last leaves the settling band, s (null if it never settles in
+    /// view).
+    pub settling_time_s: Option<f64>,
+    /// The settling band, a fraction of the final value.
+    pub settling_band: f64,
+    /// 0.35/f_H, s: the one-pole rule of thumb beside the rise time.
+    pub rule_of_thumb_s: Option<f64>,
+}
+
+/// `group_delay`: across the stated band, else between the cut-offs.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct GroupDelayResults {
+    /// Hz.
+    pub from_hz: f64,
+    /// Hz.
+    pub to_hz: f64,
+    /// At the band's geometric centre, s.
+    pub centre_s: f64,
+    /// Smallest, s.
+    pub min_s: f64,
+    /// Largest, s.
+    pub max_s: f64,
+    /// max − min, s.
+    pub variation_s: f64,
+}
+
 /// `ports`: the stage as a two-port in the reference impedance.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct PortsResults {
@@ -924,6 +957,12 @@ pub struct ResultsDocument {
     /// The stage at its ports (null when the terminated stage cannot be solved).
     #[serde(default)]
     pub ports: Option<PortsResults>,
+    /// The step response (null without every root, or for a repeated or unstable pole).
+    #[serde(default)]
+    pub step: Option<StepResults>,
+    /// The group delay across the band.
+    #[serde(default)]
+    pub group_delay: Option<GroupDelayResults>,
     /// Each requirement at nominal values, at its tolerance corner and its yield.
     pub requirements: Vec<RequirementResults>,
     /// Normalised sensitivities of every figure to every lever.
@@ -1054,6 +1093,21 @@ pub fn document(
         noise: a.noise.as_ref().map(noise),
         large_signal: a.large_signal.as_ref().map(large_signal),
         ports: a.ports.as_ref().map(|p| ports(p, design.analysis.points_per_decade)),
+        step: a.step.as_ref().map(|s| StepResults {
+            rise_time_s: s.rise_time_s,
+            overshoot: s.overshoot,
+            settling_time_s: s.settling_time_s,
+            settling_band: s.settling_band,
+            rule_of_thumb_s: s.rule_of_thumb_s,
+        }),
+        group_delay: a.group_delay.as_ref().map(|g| GroupDelayResults {
+            from_hz: g.from_hz,
+            to_hz: g.to_hz,
+            centre_s: g.centre_s,
+            min_s: g.min_s,
+            max_s: g.max_s,
+            variation_s: g.variation_s(),
+        }),
         requirements: review.requirements.iter().map(requirement).collect(),
         sensitivity: Some(sensitivity(&review.study)),
         tolerance: Some(tolerance_summary(&review.study)),

@@ -122,3 +122,50 @@ fn s21_is_twice_the_transfer_when_source_and_load_are_the_reference() {
     }
     assert!(compared > 100, "compared {compared} frequencies");
 }
+
+fn analysed(parts: &str, resistance: &str) -> tauweave::analysis::Analysis {
+    let text = format!(
+        "tauweave: 1\ndesign: {{id: td, title: time domain, revision: A, date: 2026-12-04}}\n\
+         signal: {{at: in, resistance: {resistance}}}\noutput: {{at: out}}\n\
+         parts:\n{parts}analysis: {{monte_carlo: {{runs: 0}}}}\n"
+    );
+    let d = load(&text);
+    review(&d, &ReviewOptions::quiet(&d, Some(0))).unwrap().analysis
+}
+
+#[test]
+fn an_rc_stage_rises_in_tau_ln_9_and_its_delay_is_the_first_order_form() {
+    // One pole at 1/τ: t_r = τ·ln 9, no overshoot, 1 %
+    // settling at τ·ln 100; τ_g = τ/(1 + (ωτ)²) (common practice: the single RC).
+    let a = analysed(
+        "  C1: {kind: capacitor, value: 100 pF, between: [out, gnd], role: load}\n\
+         \x20 R1: {kind: resistor, value: 1 MΩ, between: [in, out]}\n",
+        "1 kΩ",
+    );
+    // R_s and R1 in series charge C1: τ = (1 kΩ + 1 MΩ)·100 pF.
+    let tau = (1e6 + 1e3) * 100e-12;
+    let s = a.step.as_ref().unwrap();
+    assert!((s.rise_time_s - tau * 9f64.ln()).abs() <= 1e-9 * tau, "{}", s.rise_time_s);
+    assert_eq!(s.overshoot, 0.0);
+    assert!((s.settling_time_s.unwrap() - tau * 100f64.ln()).abs() <= 1e-9 * tau);
+    let g = a.group_delay.as_ref().unwrap();
+    let w = 2.0 * std::f64::consts::PI * (g.from_hz * g.to_hz).sqrt();
+    let want = tau / (1.0 + (w * tau).powi(2));
+    assert!((g.centre_s - want).abs() <= 1e-9 * tau, "{} vs {want}", g.centre_s);
+}
+
+#[test]
+fn a_series_rlc_overshoots_by_the_damping_formula() {
+    // R_s = 18.97 Ω, L = 1 µH, C = 1 nF: ω₀ = 1/√(LC), ζ = (R/2)·√(C/L) = 0.3; overshoot
+    // e^(−πζ/√(1 − ζ²)) (Ogata, second-order systems, from memory).
+    let (r, l, c) = (0.6 * (1e-6f64 / 1e-9).sqrt(), 1e-6f64, 1e-9f64);
+    let zeta = r / 2.0 * (c / l).sqrt();
+    let a = analysed(
+        "  L1: {kind: inductor, value: 1 µH, between: [in, out]}\n\
+         \x20 C1: {kind: capacitor, value: 1 nF, between: [out, gnd], role: load}\n",
+        &format!("{r} Ω"),
+    );
+    let s = a.step.as_ref().unwrap();
+    let want = (-std::f64::consts::PI * zeta / (1.0 - zeta * zeta).sqrt()).exp();
+    assert!((s.overshoot - want).abs() <= 1e-9, "{} vs {want}", s.overshoot);
+}
