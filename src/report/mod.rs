@@ -17,6 +17,7 @@ pub mod headroom;
 pub mod html;
 pub mod manifest;
 pub mod plots;
+pub mod port_plots;
 pub mod results;
 pub mod schematic;
 pub mod signal_plots;

@@ -138,6 +138,8 @@ pub const PLOTS: &[&str] = &[
     "noise_shares",
     "transfer",
     "waveform",
+    "ports",
+    "step",
     "tornado",
     "histograms",
 ];
@@ -183,6 +185,12 @@ pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study
             out.push(Plot { name: "waveform", caption: "The output over one period at the stated amplitude (solid) beside the sine the small-signal gain alone would give (dashed); the difference is the distortion, any shift the rectified DC.".into(), svg, file: None, max_width: None });
         }
     }
+    if let Some(svg) = a.ports.as_ref().and_then(crate::report::port_plots::ports) {
+        out.push(Plot { name: "ports", caption: "The stage in the reference impedance: return loss at the input (solid) and output (dashed), and the stability factor μ (unconditionally stable above the dotted line at 1; shaded where it is not).".into(), svg, file: None, max_width: None });
+    }
+    if let Some(svg) = a.step.as_ref().and_then(crate::report::port_plots::step) {
+        out.push(Plot { name: "step", caption: "Step response from the exact poles and zeros, as a fraction of its final value: the 10 % and 90 % levels dashed, the settling band shaded.".into(), svg, file: None, max_width: None });
+    }
     if let Some((tornado, histograms)) = extra {
         if let Some(svg) = tornado {
             out.push(Plot { name: "tornado", caption: "Tornado chart: how far each toleranced lever moves the upper cut-off at its tolerance limit (S·t), largest first; dark bars raise f_H, grey bars lower it.".into(), svg, file: None, max_width: None });
@@ -201,11 +209,11 @@ pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study
 
 /// The noise figure panel, dB.
 const NOISE_FIGURE: Axis =
-    Axis { x_label_area: 28, y_desc: "noise figure", y_unit: " dB", x_desc: false };
+    Axis { x_label_area: 28, y_desc: "noise figure", y_unit: " dB", x_desc: false, decimals: 0 };
 
 /// The input-referred density panel, dB relative to 1 nV/√Hz.
 const INPUT_NOISE: Axis =
-    Axis { x_label_area: 44, y_desc: "dB re 1 nV/√Hz", y_unit: "", x_desc: true };
+    Axis { x_label_area: 44, y_desc: "dB re 1 nV/√Hz", y_unit: "", x_desc: true, decimals: 0 };
 
 /// Noise figure and input-referred density over the sweep, each panel framed to 30 dB
 /// above its value at the spot frequency so the band stays readable.
@@ -607,32 +615,36 @@ fn phase_range<'p>(points: impl Iterator<Item = &'p SweepPoint> + Clone) -> (f64
 }
 
 /// How a frequency panel labels its axes.
-struct Axis {
+pub(super) struct Axis {
     /// Height of the frequency labels, display pixels.
-    x_label_area: u32,
+    pub(super) x_label_area: u32,
     /// The vertical axis' name.
-    y_desc: &'static str,
+    pub(super) y_desc: &'static str,
     /// What follows a vertical tick's number (` dB`, `°`).
-    y_unit: &'static str,
+    pub(super) y_unit: &'static str,
     /// True to name the frequency axis (the lowest panel).
-    x_desc: bool,
+    pub(super) x_desc: bool,
+    /// Decimals of the vertical ticks.
+    pub(super) decimals: usize,
 }
 
 /// The magnitude panel of every Bode plot: |H| in dB, the frequency labelled below the phase.
-const MAGNITUDE: Axis = Axis { x_label_area: 28, y_desc: "|H|", y_unit: " dB", x_desc: false };
+const MAGNITUDE: Axis =
+    Axis { x_label_area: 28, y_desc: "|H|", y_unit: " dB", x_desc: false, decimals: 0 };
 
 /// The phase panel of every Bode plot, with the frequency axis named.
-const PHASE: Axis = Axis { x_label_area: 44, y_desc: "phase", y_unit: "°", x_desc: true };
+const PHASE: Axis =
+    Axis { x_label_area: 44, y_desc: "phase", y_unit: "°", x_desc: true, decimals: 0 };
 
 /// A chart on a log-frequency axis.
-type FrequencyChart<'a, 'b> = ChartContext<
+pub(super) type FrequencyChart<'a, 'b> = ChartContext<
     'a,
     SVGBackend<'b>,
     Cartesian2d<LogCoord<f64>, plotters::coord::types::RangedCoordf64>,
 >;
 
 /// A Bode panel on `area`: frequency `f` on a log axis, `y` linear, the house mesh and labels.
-fn frequency_panel<'a, 'b>(
+pub(super) fn frequency_panel<'a, 'b>(
     area: &'a DrawingArea<SVGBackend<'b>, plotters::coord::Shift>,
     f: (f64, f64),
     y: (f64, f64),
@@ -645,7 +657,7 @@ fn frequency_panel<'a, 'b>(
         .y_label_area_size(px(76))
         .build_cartesian_2d((f.0..f.1).log_scale(), y.0..y.1)
         .ok()?;
-    let y_label = |v: &f64| format!("{v:.0}{}", axis.y_unit).replace('-', "−");
+    let y_label = |v: &f64| format!("{v:.*}{}", axis.decimals, axis.y_unit).replace('-', "−");
     // Every decade while the labels fit (about 62 px each), else every second one.
     let every = if (f.1 / f.0).log10() * 62.0 > (WIDTH - 76 - 48) as f64 { 2 } else { 1 };
     let x_label = |v: &f64| {

@@ -38,6 +38,10 @@ pub const TABLES: &[(&str, &str)] = &[
         "signal handling: swing limits, distortion beside its power-series estimate, compression",
     ),
     (
+        "ports",
+        "the stage at its ports and in time: impedances, S-parameters, stability, step, delay",
+    ),
+    (
         "requirements",
         "each requirement: nominal value, pass or fail, margin, worst-case corner, yield",
     ),
@@ -166,6 +170,9 @@ pub fn all(
     }
     if let Some(l) = &a.large_signal {
         t.insert("large_signal", large_signal_table(l));
+    }
+    if a.ports.is_some() || a.step.is_some() {
+        t.insert("ports", ports_table(a));
     }
     t.insert("requirements", requirements_table(reqs));
     if let Some(s) = study {
@@ -302,6 +309,100 @@ fn large_signal_table(l: &crate::analysis::large_signal::LargeSignalReport) -> S
         ]);
     }
     markdown_table(&["quantity", "exact", "power series", "set by"], "lrrl", rows)
+}
+
+/// `ports`: the impedances and the two-port at the spot frequency, stability over the
+/// sweep, the step response and the group delay.
+fn ports_table(a: &Analysis) -> String {
+    let db = |v: Option<f64>| v.map_or_else(absent, |v| format!("{} dB", plain(v, 4)));
+    let num = |v: Option<f64>| v.map_or_else(absent, |v| plain(v, 4));
+    let z = |z: faer::c64| {
+        let sign = if z.im < 0.0 { "−" } else { "+" };
+        format!("{} {sign} j{}", si(z.re, "Ω", 4), si(z.im.abs(), "Ω", 4))
+    };
+    let mut rows: Vec<Vec<String>> = Vec::new();
+    if let Some(p) = &a.ports {
+        let reference = si(p.reference_ohm, "Ω", 4);
+        let basis = if p.reference_stated { reference } else { format!("{reference} (default)") };
+        rows.push(vec!["reference impedance Z₀".into(), basis]);
+        if let Some(q) = &p.spot {
+            let at = si(q.frequency_hz, "Hz", 4);
+            rows.push(vec![format!("input impedance at {at} (the design's load)"), z(q.z_in)]);
+            rows.push(vec![format!("output impedance at {at} (the design's source)"), z(q.z_out)]);
+            let s21 = q.s[1].norm();
+            rows.push(vec![
+                cell(&format!("|S₂₁| at {at}")),
+                db((s21 > 0.0).then(|| 20.0 * s21.log10())),
+            ]);
+            rows.push(vec![
+                "return loss in / out".into(),
+                format!("{} / {}", db(q.input_return_loss_db()), db(q.output_return_loss_db())),
+            ]);
+            rows.push(vec![
+                "VSWR in / out".into(),
+                format!(
+                    "{} / {}",
+                    num(crate::analysis::ports::vswr(q.s[0])),
+                    num(crate::analysis::ports::vswr(q.s[3]))
+                ),
+            ]);
+            let iso = q.s[2].norm();
+            rows.push(vec![
+                "reverse isolation".into(),
+                db((iso > 0.0).then(|| -20.0 * iso.log10())),
+            ]);
+            rows.push(vec![
+                cell("K, |Δ|, μ"),
+                format!("{}, {}, {}", num(q.k()), plain(q.delta().norm(), 4), num(q.mu())),
+            ]);
+        }
+        rows.push(vec![
+            "K and μ, least over the sweep".into(),
+            format!("{}, {}", num(p.k_min()), num(p.mu_min())),
+        ]);
+        let ranges = p.conditionally_stable();
+        rows.push(vec![
+            "only conditionally stable (μ < 1)".into(),
+            if ranges.is_empty() {
+                "nowhere in the sweep".into()
+            } else {
+                ranges
+                    .iter()
+                    .map(|(a, b)| format!("{} … {}", si(*a, "Hz", 3), si(*b, "Hz", 3)))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            },
+        ]);
+    }
+    if let Some(s) = &a.step {
+        let rule = s.rule_of_thumb_s.map_or(String::new(), |r| {
+            format!(
+                " (0.35/f_H: {}, {})",
+                si(r, "s", 4),
+                crate::notation::signed_percent(r / s.rise_time_s - 1.0, 2)
+            )
+        });
+        rows.push(vec![
+            "step: 10–90 % rise time".into(),
+            format!("{}{rule}", si(s.rise_time_s, "s", 4)),
+        ]);
+        rows.push(vec!["step: overshoot".into(), format!("{} %", plain(100.0 * s.overshoot, 3))]);
+        rows.push(vec![
+            format!("step: settling to ±{} %", plain(100.0 * s.settling_band, 2)),
+            s.settling_time_s.map_or_else(absent, |t| si(t, "s", 4)),
+        ]);
+    }
+    if let Some(g) = &a.group_delay {
+        rows.push(vec![
+            format!("group delay, {} … {}", si(g.from_hz, "Hz", 3), si(g.to_hz, "Hz", 3)),
+            format!(
+                "{} at the centre, varying {}",
+                si(g.centre_s, "s", 4),
+                si(g.variation_s(), "s", 3)
+            ),
+        ]);
+    }
+    markdown_table(&["at the ports and in time", "value"], "lr", rows)
 }
 
 /// `noise_contributors`: each part's noise by mechanism, largest first.

@@ -12,9 +12,10 @@ use crate::design::Design;
 use crate::notation::si;
 use crate::report::explain::Explanation;
 use crate::report::results::{
-    CapacitorResults, CautionResults, HighResults, LargeSignalResults, LowResults, MidbandResults,
-    NoiseResults, OperatingPointResults, Provenance, RequirementResults, ResultsDocument,
-    RootResults, RootWindowResults, SensitivityResults, ToleranceSummary, Tool,
+    CapacitorResults, CautionResults, GroupDelayResults, HighResults, LargeSignalResults,
+    LowResults, MidbandResults, NoiseResults, OperatingPointResults, PortsResults, Provenance,
+    RequirementResults, ResultsDocument, RootResults, RootWindowResults, SensitivityResults,
+    StepResults, ToleranceSummary, Tool,
 };
 use crate::report::template::MARKER;
 
@@ -154,6 +155,12 @@ pub struct View<'a> {
     pub noise: &'a Option<NoiseResults>,
     /// Signal handling: swing and its limits, distortion, compression, intercept.
     pub large_signal: &'a Option<LargeSignalResults>,
+    /// The stage at its ports.
+    pub ports: &'a Option<PortsResults>,
+    /// The step response.
+    pub step: &'a Option<StepResults>,
+    /// The group delay across the band.
+    pub group_delay: &'a Option<GroupDelayResults>,
     /// Requirements at nominal values, corners and yields.
     pub requirements: &'a [RequirementResults],
     /// Sensitivities.
@@ -188,6 +195,9 @@ impl<'a> View<'a> {
             has_inductors: doc.has_inductors,
             noise: &doc.noise,
             large_signal: &doc.large_signal,
+            ports: &doc.ports,
+            step: &doc.step,
+            group_delay: &doc.group_delay,
             requirements: &doc.requirements,
             sensitivity: &doc.sensitivity,
             tolerance: &doc.tolerance,
