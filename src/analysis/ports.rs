@@ -158,6 +158,7 @@ impl Solver {
         let complex = |v: &[f64]| v.iter().map(|x| c64::new(*x, 0.0)).collect::<Vec<_>>();
         match self {
             Solver::Sparse(sys) => Some([sys.solve(s, &complex(a))?, sys.solve(s, &complex(b))?]),
+            Solver::Dense(g, c) if g.nrows() <= SMALL => solve_small(g, c, s, a, b),
             Solver::Dense(g, c) => {
                 let n = g.nrows();
                 let m = Mat::<c64>::from_fn(n, n, |i, j| c64::new(g[(i, j)], 0.0) + s * c[(i, j)]);
@@ -179,6 +180,61 @@ impl Solver {
             }
         }
     }
+}
+
+/// (G + sC)⁻¹ applied to `a` and `b` by Gaussian elimination with partial pivoting in place
+/// (magnitudes compared squared), for the small systems of a stage: no library call and one
+/// buffer per solve. None when a pivot is at or under 1e-13 of the largest entry.
+fn solve_small(g: &Mat<f64>, c: &Mat<f64>, s: c64, a: &[f64], b: &[f64]) -> Option<[Vec<c64>; 2]> {
+    let n = g.nrows();
+    let w = n + 2;
+    let zero = c64::new(0.0, 0.0);
+    let mut m = vec![zero; n * w];
+    let mut largest = 0.0f64;
+    for i in 0..n {
+        for j in 0..n {
+            let v = c64::new(g[(i, j)], 0.0) + s * c[(i, j)];
+            largest = largest.max(v.norm_sqr());
+            m[i * w + j] = v;
+        }
+        m[i * w + n] = c64::new(a[i], 0.0);
+        m[i * w + n + 1] = c64::new(b[i], 0.0);
+    }
+    let floor = 1e-26 * largest;
+    for k in 0..n {
+        let p =
+            (k..n).max_by(|&x, &y| m[x * w + k].norm_sqr().total_cmp(&m[y * w + k].norm_sqr()))?;
+        if m[p * w + k].norm_sqr() <= floor {
+            return None;
+        }
+        if p != k {
+            for j in 0..w {
+                m.swap(k * w + j, p * w + j);
+            }
+        }
+        let inv = c64::new(1.0, 0.0) / m[k * w + k];
+        for i in k + 1..n {
+            let f = m[i * w + k] * inv;
+            if f == zero {
+                continue;
+            }
+            for j in k..w {
+                let t = m[k * w + j];
+                m[i * w + j] -= f * t;
+            }
+        }
+    }
+    let mut out = [vec![zero; n], vec![zero; n]];
+    for (col, x) in out.iter_mut().enumerate() {
+        for i in (0..n).rev() {
+            let mut acc = m[i * w + n + col];
+            for j in i + 1..n {
+                acc -= m[i * w + j] * x[j];
+            }
+            x[i] = acc / m[i * w + i];
+        }
+    }
+    out.iter().flatten().all(|v| v.is_finite()).then_some(out)
 }
 
 fn dot(a: &[c64], f: &[f64]) -> c64 {
