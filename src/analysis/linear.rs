@@ -237,7 +237,7 @@ fn eliminate(
 /// The row at or below `k` with the largest entry in column `k` of the n-row matrix `a`
 /// (row major, `w` entries a row), magnitudes compared squared; None when even that is at or
 /// under `floor_sq` (singular to the pivot tolerance).
-fn pivot(a: &[c64], w: usize, n: usize, k: usize, floor_sq: f64) -> Option<usize> {
+pub(crate) fn pivot(a: &[c64], w: usize, n: usize, k: usize, floor_sq: f64) -> Option<usize> {
     let size_sq = |z: c64| z.re * z.re + z.im * z.im;
     let (mut p, mut best) = (k, size_sq(a[k * w + k]));
     for i in k + 1..n {

@@ -202,11 +202,7 @@ fn solve_small(g: &Mat<f64>, c: &Mat<f64>, s: c64, a: &[f64], b: &[f64]) -> Opti
     }
     let floor = 1e-26 * largest;
     for k in 0..n {
-        let p =
-            (k..n).max_by(|&x, &y| m[x * w + k].norm_sqr().total_cmp(&m[y * w + k].norm_sqr()))?;
-        if m[p * w + k].norm_sqr() <= floor {
-            return None;
-        }
+        let p = crate::analysis::linear::pivot(&m, w, n, k, floor)?;
         if p != k {
             for j in 0..w {
                 m.swap(k * w + j, p * w + j);

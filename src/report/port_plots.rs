@@ -9,7 +9,8 @@ use plotters::prelude::*;
 
 use crate::analysis::ports::PortsReport;
 use crate::analysis::step::StepReport;
-use crate::report::plots::{Axis, INK, MID, PALE, WIDTH, finish, frequency_panel, px, style};
+use crate::report::plots::{Axis, INK, MID, PALE, WIDTH, finish, frequency_panel, px};
+use crate::report::signal_plots::{Linear, linear_chart};
 
 /// Return loss at each port (solid: input, dashed: output) and μ (unconditionally stable
 /// above the dotted line at 1), over the sweep.
@@ -106,31 +107,19 @@ pub fn step(s: &StepReport) -> Option<String> {
     {
         let root = SVGBackend::with_string(&mut svg, (px(WIDTH), px(280))).into_drawing_area();
         root.fill(&WHITE).ok()?;
-        let mut chart = ChartBuilder::on(&root)
-            .margin(px(14))
-            .margin_right(px(34))
-            .x_label_area_size(px(44))
-            .y_label_area_size(px(64))
-            .build_cartesian_2d(0.0..end * scale, 0.0..top)
-            .ok()?;
-        chart
-            .configure_mesh()
-            .light_line_style(PALE.mix(0.5).stroke_width(px(1)))
-            .bold_line_style(PALE.stroke_width(px(1)))
-            .axis_style(MID.stroke_width(px(1)))
-            .set_all_tick_mark_size(px(5))
-            .x_labels(8)
-            .y_labels(6)
-            .x_label_formatter(&|v| {
-                format!("{v:.3}").trim_end_matches('0').trim_end_matches('.').to_string()
-            })
-            .y_label_formatter(&|v| format!("{v:.1}"))
-            .label_style(style(12))
-            .x_desc(format!("time, {unit}"))
-            .y_desc("output / final value")
-            .axis_desc_style(style(13))
-            .draw()
-            .ok()?;
+        let time =
+            |v: &f64| format!("{v:.3}").trim_end_matches('0').trim_end_matches('.').to_string();
+        let level = |v: &f64| format!("{v:.1}");
+        let mut chart = linear_chart(
+            &root,
+            Linear {
+                x: (0.0, end * scale),
+                y: (0.0, top),
+                ticks: (8, 6),
+                labels: (&time, &level),
+                names: (format!("time, {unit}"), "output / final value".into()),
+            },
+        )?;
         let band = s.settling_band;
         chart
             .draw_series(std::iter::once(Rectangle::new(

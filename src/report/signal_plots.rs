@@ -4,6 +4,7 @@
 //! In: the [`LargeSignalReport`]. Out: SVG strings in the style of the other plots
 //! ([`crate::report::plots`]). No I/O.
 
+use plotters::coord::types::RangedCoordf64;
 use plotters::prelude::*;
 
 use crate::analysis::large_signal::LargeSignalReport;
@@ -29,6 +30,54 @@ fn tick(v: f64) -> String {
     t.replace('-', "−")
 }
 
+/// A tick label.
+pub(super) type Label<'f> = &'f dyn Fn(&f64) -> String;
+
+/// A chart's linear axes: ranges, tick counts, tick labels and names.
+pub(super) struct Linear<'f> {
+    /// Horizontal range.
+    pub x: (f64, f64),
+    /// Vertical range.
+    pub y: (f64, f64),
+    /// How many ticks on each axis.
+    pub ticks: (usize, usize),
+    /// Tick labels.
+    pub labels: (Label<'f>, Label<'f>),
+    /// Axis names.
+    pub names: (String, String),
+}
+
+/// A chart on `root` with linear axes, the house mesh and labels drawn.
+pub(super) fn linear_chart<'a, 'b>(
+    root: &'a DrawingArea<SVGBackend<'b>, plotters::coord::Shift>,
+    axes: Linear,
+) -> Option<ChartContext<'a, SVGBackend<'b>, Cartesian2d<RangedCoordf64, RangedCoordf64>>> {
+    let mut chart = ChartBuilder::on(root)
+        .margin(px(14))
+        .margin_right(px(34))
+        .x_label_area_size(px(44))
+        .y_label_area_size(px(64))
+        .build_cartesian_2d(axes.x.0..axes.x.1, axes.y.0..axes.y.1)
+        .ok()?;
+    chart
+        .configure_mesh()
+        .light_line_style(PALE.mix(0.5).stroke_width(px(1)))
+        .bold_line_style(PALE.stroke_width(px(1)))
+        .axis_style(MID.stroke_width(px(1)))
+        .set_all_tick_mark_size(px(5))
+        .x_labels(axes.ticks.0)
+        .y_labels(axes.ticks.1)
+        .x_label_formatter(axes.labels.0)
+        .y_label_formatter(axes.labels.1)
+        .label_style(style(12))
+        .x_desc(axes.names.0)
+        .y_desc(axes.names.1)
+        .axis_desc_style(style(13))
+        .draw()
+        .ok()?;
+    Some(chart)
+}
+
 /// The transfer: output change against source EMF, the small-signal line dashed, each side's
 /// limit marked and named, the stated amplitude's span shaded.
 pub fn transfer(l: &LargeSignalReport) -> Option<String> {
@@ -50,29 +99,17 @@ pub fn transfer(l: &LargeSignalReport) -> Option<String> {
     {
         let root = SVGBackend::with_string(&mut svg, (px(WIDTH), px(360))).into_drawing_area();
         root.fill(&WHITE).ok()?;
-        let mut chart = ChartBuilder::on(&root)
-            .margin(px(14))
-            .margin_right(px(34))
-            .x_label_area_size(px(44))
-            .y_label_area_size(px(64))
-            .build_cartesian_2d(x0..x1, y0..y1)
-            .ok()?;
-        chart
-            .configure_mesh()
-            .light_line_style(PALE.mix(0.5).stroke_width(px(1)))
-            .bold_line_style(PALE.stroke_width(px(1)))
-            .axis_style(MID.stroke_width(px(1)))
-            .set_all_tick_mark_size(px(5))
-            .x_labels(7)
-            .y_labels(7)
-            .x_label_formatter(&|v| tick(*v))
-            .y_label_formatter(&|v| tick(*v))
-            .label_style(style(12))
-            .x_desc(format!("source EMF, {ux}"))
-            .y_desc(format!("output change, {uy}"))
-            .axis_desc_style(style(13))
-            .draw()
-            .ok()?;
+        let tick = |v: &f64| tick(*v);
+        let mut chart = linear_chart(
+            &root,
+            Linear {
+                x: (x0, x1),
+                y: (y0, y1),
+                ticks: (7, 7),
+                labels: (&tick, &tick),
+                names: (format!("source EMF, {ux}"), format!("output change, {uy}")),
+            },
+        )?;
         if let Some(a) = l.input_amplitude_v {
             let (from, to) = ((-a * fx).max(x0), (a * fx).min(x1));
             if from < to {
@@ -150,29 +187,21 @@ pub fn waveform(l: &LargeSignalReport) -> Option<String> {
     {
         let root = SVGBackend::with_string(&mut svg, (px(WIDTH), px(260))).into_drawing_area();
         root.fill(&WHITE).ok()?;
-        let mut chart = ChartBuilder::on(&root)
-            .margin(px(14))
-            .margin_right(px(34))
-            .x_label_area_size(px(44))
-            .y_label_area_size(px(64))
-            .build_cartesian_2d(0.0..360.0, y0..y1)
-            .ok()?;
-        chart
-            .configure_mesh()
-            .light_line_style(PALE.mix(0.5).stroke_width(px(1)))
-            .bold_line_style(PALE.stroke_width(px(1)))
-            .axis_style(MID.stroke_width(px(1)))
-            .set_all_tick_mark_size(px(5))
-            .x_labels(9)
-            .y_labels(5)
-            .x_label_formatter(&|v| format!("{v:.0}°"))
-            .y_label_formatter(&|v| tick(*v))
-            .label_style(style(12))
-            .x_desc("phase of the source EMF over one period")
-            .y_desc(format!("output change, {unit}"))
-            .axis_desc_style(style(13))
-            .draw()
-            .ok()?;
+        let degrees = |v: &f64| format!("{v:.0}°");
+        let tick = |v: &f64| tick(*v);
+        let mut chart = linear_chart(
+            &root,
+            Linear {
+                x: (0.0, 360.0),
+                y: (y0, y1),
+                ticks: (9, 5),
+                labels: (&degrees, &tick),
+                names: (
+                    "phase of the source EMF over one period".into(),
+                    format!("output change, {unit}"),
+                ),
+            },
+        )?;
         chart
             .draw_series(DashedLineSeries::new(
                 d.waveform.iter().map(|p| (p[0], p[2] * f)),

@@ -62,6 +62,7 @@ fn a_shunt_capacitor_has_the_textbook_s_parameters() {
         "n",
         "50 Ω",
     );
+    assert!(p.points.len() > 20, "the sweep has {} points", p.points.len());
     for pt in &p.points {
         // The 1 MΩ in parallel is part of the shunt admittance.
         let y = c64::new(1e-6, 2.0 * std::f64::consts::PI * pt.frequency_hz * c);
@@ -85,6 +86,7 @@ fn a_matched_t_attenuator_reflects_nothing_and_passes_one_over_k() {
          \x20 R3: {{kind: resistor, value: {series}, between: [mid, out]}}\n"
     );
     let p = ports(&parts, "in", "out", "75 Ω");
+    assert!(p.points.len() > 20, "the sweep has {} points", p.points.len());
     for pt in &p.points {
         near(pt.s[0], c64::new(0.0, 0.0), "S11");
         near(pt.s[3], c64::new(0.0, 0.0), "S22");
