@@ -74,6 +74,58 @@ struct Core {
     large: large_signal::Figures,
     /// The design's frequency of interest, Hz.
     signal_frequency: Option<f64>,
+    /// The band the ports' match and the group delay are judged over.
+    review_band: Option<(f64, f64)>,
+    /// The return losses and μ a requirement limits, computed where one does.
+    ports: crate::analysis::ports::Figures,
+    /// The step response and group delay, computed here only where a requirement limits
+    /// them (the full analysis computes them from its own roots).
+    time: TimeDomain,
+}
+
+/// The stage in time, from exact roots.
+#[derive(Default)]
+struct TimeDomain {
+    step: Option<crate::analysis::step::StepReport>,
+    group_delay: Option<crate::analysis::step::GroupDelayReport>,
+}
+
+impl TimeDomain {
+    /// The step from the whole network's roots when nothing couples the signal through a
+    /// capacitor (a low-pass stage: H(0) is the mid-band gain), else from the high-frequency
+    /// network's (coupling capacitors shorted), whose rise is the stage's and whose final
+    /// value is the mid-band gain; the group delay from the whole network's across `band`.
+    fn of(
+        whole: (&[Root], &[Root]),
+        high: Option<(&[Root], &[Root])>,
+        gain: f64,
+        f_high: Option<f64>,
+        band: Option<(f64, f64)>,
+        settling_band: f64,
+    ) -> TimeDomain {
+        let (poles, zeros) = high.unwrap_or(whole);
+        TimeDomain {
+            step: (gain != 0.0)
+                .then(|| crate::analysis::step::step(poles, zeros, settling_band, f_high))
+                .flatten(),
+            group_delay: band.and_then(|(lo, hi)| {
+                crate::analysis::step::group_delay_over(whole.0, whole.1, lo, hi)
+            }),
+        }
+    }
+}
+
+/// The band a stage's match and group delay are judged over: the stated operating band,
+/// else between the exact cut-offs (from the sweep's start for a stage coupled down to DC).
+fn review_band(
+    band: Option<Band>,
+    f_low: Option<f64>,
+    f_high: Option<f64>,
+    settings: &AnalysisSettings,
+) -> Option<(f64, f64)> {
+    band.map(|b| (b.from_hz, b.to_hz))
+        .or(f_high.map(|hi| (f_low.unwrap_or(settings.sweep_start_hz), hi)))
+        .filter(|(lo, hi)| hi > lo)
 }
 
 /// Each transistor's flicker-noise corner frequency from its model, Hz (0 where the model
@@ -293,6 +345,47 @@ fn core(design: &Design, near: Option<&OperatingPoint>) -> Result<Core, Analysis
         },
         wanted,
     );
+    let settings = &design.analysis;
+    let review_band = review_band(band.map(|(b, _)| b), f_low, f_high, settings);
+    let ports = crate::analysis::ports::figures(
+        &lin,
+        settings.reference_impedance_ohm,
+        &if req.stability.is_some() {
+            response::grid(
+                settings.sweep_start_hz,
+                settings.sweep_stop_hz,
+                settings.points_per_decade,
+            )
+        } else {
+            Vec::new()
+        },
+        review_band,
+        crate::analysis::ports::Wanted {
+            return_loss: req.input_return_loss.is_some() || req.output_return_loss.is_some(),
+            stability: req.stability.is_some(),
+        },
+    );
+    let wants_time =
+        req.rise_time.is_some() || req.overshoot.is_some() || req.group_delay_variation.is_some();
+    let time = if wants_time && poles::finds_all(&full.c) {
+        let window = root_window(f_low, f_high, settings);
+        let whole = poles_and_zeros(&full, window)?;
+        let high = if sctc_caps.is_empty() {
+            None
+        } else {
+            Some(poles_and_zeros(&high_network(&lin), window)?)
+        };
+        TimeDomain::of(
+            (&whole.0, &whole.1),
+            high.as_ref().map(|(p, z)| (p.as_slice(), z.as_slice())),
+            gain,
+            f_high,
+            review_band,
+            settings.settling_band,
+        )
+    } else {
+        TimeDomain::default()
+    };
     Ok(Core {
         net,
         op,
@@ -328,6 +421,9 @@ fn core(design: &Design, near: Option<&OperatingPoint>) -> Result<Core, Analysis
         stress,
         large,
         signal_frequency: design.signal.frequency_hz,
+        review_band,
+        ports,
+        time,
     })
 }
 
@@ -371,6 +467,12 @@ impl Core {
             output_swing: self.large.output_swing_v,
             thd_percent: self.large.thd_percent,
             input_compression: self.large.compression_v,
+            input_return_loss_db: self.ports.input_return_loss_db,
+            output_return_loss_db: self.ports.output_return_loss_db,
+            mu_min: self.ports.mu_min,
+            rise_time_s: self.time.step.as_ref().map(|s| s.rise_time_s),
+            overshoot_percent: self.time.step.as_ref().map(|s| 100.0 * s.overshoot),
+            group_delay_variation_s: self.time.group_delay.as_ref().map(|g| g.variation_s()),
         }
     }
 
@@ -438,40 +540,26 @@ impl Core {
                     .map(|b| b.input_rms_v),
             })
         });
-        // The step: from the whole network when nothing couples the signal through a
-        // capacitor (a low-pass stage: H(0) is the mid-band gain), else from the
-        // high-frequency network (coupling capacitors shorted), whose rise is the stage's
-        // and whose final value is the mid-band gain; only with every root found.
-        let every_root = root_window.is_none();
-        let (step_poles, step_zeros) = if self.sctc_caps.is_empty() {
-            (&roots.poles, &roots.zeros)
+        // The step and the group delay, only with every root found.
+        let time = if root_window.is_none() {
+            TimeDomain::of(
+                (&roots.poles, &roots.zeros),
+                (!self.sctc_caps.is_empty())
+                    .then_some((roots.high_poles.as_slice(), roots.high_zeros.as_slice())),
+                self.gain,
+                f_high,
+                self.review_band,
+                settings.settling_band,
+            )
         } else {
-            (&roots.high_poles, &roots.high_zeros)
+            TimeDomain::default()
         };
-        let step = (every_root && self.gain != 0.0)
-            .then(|| {
-                crate::analysis::step::step(
-                    step_poles,
-                    step_zeros,
-                    crate::analysis::step::DEFAULT_SETTLING_BAND,
-                    f_high,
-                )
-            })
-            .flatten();
-        // The stated band, else between the cut-offs (from the sweep's start for a stage
-        // coupled down to DC).
-        let delay_band = self
-            .band
-            .map(|(b, _)| (b.from_hz, b.to_hz))
-            .or(f_high.map(|hi| (f_low.unwrap_or(settings.sweep_start_hz), hi)));
-        let group_delay = delay_band.filter(|_| every_root).and_then(|(lo, hi)| {
-            crate::analysis::step::group_delay_over(&roots.poles, &roots.zeros, lo, hi)
-        });
         let ports = crate::analysis::ports::review(
             &self.lin,
             settings.reference_impedance_ohm,
             &frequencies,
             frequency_hz,
+            self.review_band,
         );
         Ok(Analysis {
             operating_point,
@@ -533,8 +621,8 @@ impl Core {
             noise,
             large_signal,
             ports,
-            step,
-            group_delay,
+            step: time.step,
+            group_delay: time.group_delay,
         })
     }
 
@@ -625,17 +713,7 @@ struct Roots {
 impl Roots {
     fn of(lin: &LinearNetwork, full: &Mna, window: Window) -> Result<Roots, AnalysisError> {
         let partial = Assembly { inductors_shorted: true, ..Assembly::default() };
-        let high_net = mna::assemble(
-            lin,
-            |i| {
-                if cap_set(lin, i) == Some(CapSet::Low) {
-                    CapState::Short
-                } else {
-                    CapState::Present
-                }
-            },
-            partial,
-        );
+        let high_net = high_network(lin);
         let low_net = mna::assemble(
             lin,
             |i| {
@@ -697,6 +775,17 @@ fn root_window(f_low: Option<f64>, f_high: Option<f64>, settings: &AnalysisSetti
         (None, None) => settings.sweep_stop_hz,
     };
     Window { from_hz, to_hz }
+}
+
+/// The high-frequency network: the low-set capacitors shorted, the inductors shorted.
+fn high_network(lin: &LinearNetwork) -> Mna {
+    mna::assemble(
+        lin,
+        |i| {
+            if cap_set(lin, i) == Some(CapSet::Low) { CapState::Short } else { CapState::Present }
+        },
+        Assembly { inductors_shorted: true, ..Assembly::default() },
+    )
 }
 
 /// The poles of `m` and its zeros from the source to the output (zeros within rounding of
@@ -947,6 +1036,31 @@ mod tests {
     fn the_lean_figures_are_the_full_analysis_figures() {
         let d = band_pass();
         assert_eq!(metrics(&d).unwrap(), analyze(&d).unwrap().metrics(&d.requirements));
+    }
+
+    #[test]
+    fn the_lean_port_and_time_figures_are_the_full_analysis_figures() {
+        // The example with every port and time-domain requirement: the tolerance study's
+        // lean evaluation must give the review's own numbers.
+        let text = std::fs::read_to_string("designs/rx-preamp-ce.yaml").unwrap().replace(
+            "requirements:\n",
+            "requirements:\n  input_return_loss: {min: 1 dB}\n  output_return_loss: {min: 1 dB}\n  \
+             stability: {min: 1}\n  rise_time: {max: 1 µs}\n  overshoot: {max: 5 %}\n  \
+             group_delay_variation: {max: 1 µs}\n",
+        );
+        let d = crate::design::load(&text).design.expect("the example reads");
+        let lean = metrics(&d).unwrap();
+        assert_eq!(lean, analyze(&d).unwrap().metrics(&d.requirements));
+        for v in [
+            lean.input_return_loss_db,
+            lean.output_return_loss_db,
+            lean.mu_min,
+            lean.rise_time_s,
+            lean.overshoot_percent,
+            lean.group_delay_variation_s,
+        ] {
+            assert!(v.is_some_and(f64::is_finite), "{lean:?}");
+        }
     }
 
     #[test]

@@ -398,6 +398,18 @@ pub struct Metrics {
     pub thd_percent: Option<f64>,
     /// The 1 dB compression EMF, peak V, when a requirement limits it.
     pub input_compression: Option<f64>,
+    /// The smallest input return loss across the band, dB, when a requirement limits it.
+    pub input_return_loss_db: Option<f64>,
+    /// The smallest output return loss across the band, dB, when a requirement limits it.
+    pub output_return_loss_db: Option<f64>,
+    /// The smallest μ over the sweep, when a requirement limits it.
+    pub mu_min: Option<f64>,
+    /// The step's 10–90 % rise time, s, when a requirement limits it.
+    pub rise_time_s: Option<f64>,
+    /// The step's overshoot, %, when a requirement limits it.
+    pub overshoot_percent: Option<f64>,
+    /// The group delay's spread across the band, s, when a requirement limits it.
+    pub group_delay_variation_s: Option<f64>,
 }
 
 /// The largest magnitude among supply currents, None without supplies.
@@ -413,6 +425,7 @@ impl Analysis {
         let band = self.midband.band.as_ref();
         let noise = self.noise.as_ref();
         let large = self.large_signal.as_ref();
+        let port_band = self.ports.as_ref().and_then(|p| p.band.as_ref());
         Metrics {
             gain: band.map_or(self.midband.gain.abs(), |b| b.centre_gain),
             flatness_db: band.map(|b| b.flatness_db),
@@ -453,6 +466,34 @@ impl Analysis {
             input_compression: large
                 .and_then(|l| l.compression_1db_input_v)
                 .filter(|_| req.input_compression.is_some()),
+            input_return_loss_db: port_band
+                .and_then(|b| b.input_return_loss_db)
+                .map(|(v, _)| v)
+                .filter(|_| req.input_return_loss.is_some()),
+            output_return_loss_db: port_band
+                .and_then(|b| b.output_return_loss_db)
+                .map(|(v, _)| v)
+                .filter(|_| req.output_return_loss.is_some()),
+            mu_min: self
+                .ports
+                .as_ref()
+                .and_then(|p| p.mu_min())
+                .filter(|_| req.stability.is_some()),
+            rise_time_s: self
+                .step
+                .as_ref()
+                .map(|s| s.rise_time_s)
+                .filter(|_| req.rise_time.is_some()),
+            overshoot_percent: self
+                .step
+                .as_ref()
+                .map(|s| 100.0 * s.overshoot)
+                .filter(|_| req.overshoot.is_some()),
+            group_delay_variation_s: self
+                .group_delay
+                .as_ref()
+                .map(|g| g.variation_s())
+                .filter(|_| req.group_delay_variation.is_some()),
         }
     }
 

@@ -43,28 +43,36 @@ impl PortPoint {
     }
 
     /// Rollett's K = (1 − |S₁₁|² − |S₂₂|² + |Δ|²)/(2|S₁₂S₂₁|); None for a unilateral stage
-    /// (S₁₂S₂₁ = 0), which K cannot judge.
+    /// (|S₁₂S₂₁| at or under [`NEGLIGIBLE`]), which K cannot judge.
     pub fn k(&self) -> Option<f64> {
         let [s11, s21, s12, s22] = self.s;
         let loop_gain = (s12 * s21).norm();
-        (loop_gain > 0.0).then(|| {
+        (loop_gain > NEGLIGIBLE).then(|| {
             (1.0 - s11.norm_sqr() - s22.norm_sqr() + self.delta().norm_sqr()) / (2.0 * loop_gain)
         })
     }
 
     /// Edwards and Sinsky's μ = (1 − |S₁₁|²)/(|S₂₂ − ΔS₁₁*| + |S₁₂S₂₁|) (IEEE Trans. MTT
     /// 40(12), 1992): the stage is unconditionally stable exactly when μ > 1. None when the
-    /// denominator vanishes.
+    /// denominator is at or under [`NEGLIGIBLE`]: for a unilateral stage it is
+    /// |S₂₂|(1 − |S₁₁|²), and with a lossless input (|S₁₁| = 1) μ is 0/0, rounding alone.
     pub fn mu(&self) -> Option<f64> {
         let [s11, s21, s12, s22] = self.s;
         let den = (s22 - self.delta() * s11.conj()).norm() + (s12 * s21).norm();
-        (den > 0.0).then(|| (1.0 - s11.norm_sqr()) / den)
+        (den > NEGLIGIBLE).then(|| (1.0 - s11.norm_sqr()) / den)
     }
 
     /// Return loss at port 1, dB (−20·log10|S₁₁|); None for a perfect match.
     pub fn input_return_loss_db(&self) -> Option<f64> {
         let m = self.s[0].norm();
         (m > 0.0).then(|| -20.0 * m.log10())
+    }
+
+    /// Reverse isolation −20·log10|S₁₂|, dB; None for a unilateral stage (|S₁₂| at or under
+    /// [`NEGLIGIBLE`]: more than 180 dB, rounding).
+    pub fn reverse_isolation_db(&self) -> Option<f64> {
+        let m = self.s[2].norm();
+        (m > NEGLIGIBLE).then(|| -20.0 * m.log10())
     }
 
     /// Return loss at port 2, dB.
@@ -74,11 +82,17 @@ impl PortPoint {
     }
 }
 
-/// Voltage standing-wave ratio (1 + |Γ|)/(1 − |Γ|); None at total reflection or beyond.
+/// Voltage standing-wave ratio (1 + |Γ|)/(1 − |Γ|); None at total reflection or beyond
+/// (|Γ| within [`NEGLIGIBLE`] of 1, where the ratio is rounding).
 pub fn vswr(gamma: c64) -> Option<f64> {
     let m = gamma.norm();
-    (m < 1.0).then(|| (1.0 + m) / (1.0 - m))
+    (m < 1.0 - NEGLIGIBLE).then(|| (1.0 + m) / (1.0 - m))
 }
+
+/// A product of unit-order scattering parameters at or under this is rounding: a loop gain
+/// |S₁₂S₂₁| this small makes the stage unilateral (more than 90 dB of isolation at unity
+/// gain), and a μ denominator this small leaves μ undetermined.
+pub const NEGLIGIBLE: f64 = 1e-9;
 
 /// How far below 1 μ must fall to count as conditionally stable: a lone series or shunt
 /// element sits exactly on μ = 1, which rounding must not flag.
@@ -95,6 +109,96 @@ pub struct PortsReport {
     pub points: Vec<PortPoint>,
     /// At the spot frequency (the band's centre, else mid-band).
     pub spot: Option<PortPoint>,
+    /// The worst return loss at each port across the review band.
+    pub band: Option<PortBand>,
+}
+
+/// The worst match across a band: the smallest return loss at each port and where.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct PortBand {
+    /// Band edges, Hz.
+    pub from_hz: f64,
+    /// Band edges, Hz.
+    pub to_hz: f64,
+    /// The smallest return loss at port 1, dB, and its frequency (None when no point of the
+    /// band solves).
+    pub input_return_loss_db: Option<(f64, f64)>,
+    /// The smallest return loss at port 2, dB, and its frequency.
+    pub output_return_loss_db: Option<(f64, f64)>,
+}
+
+/// Points of a band on which its worst return loss is searched: log-spaced, edges included.
+pub const BAND_POINTS: usize = 64;
+
+/// The log-spaced frequencies of a band, edges included.
+fn band_grid(from: f64, to: f64) -> impl Iterator<Item = f64> {
+    let n = BAND_POINTS - 1;
+    (0..=n).map(move |k| if k == n { to } else { from * (to / from).powf(k as f64 / n as f64) })
+}
+
+/// The point with the smallest value of `f` among `points`: (value, frequency).
+fn least(points: &[PortPoint], f: impl Fn(&PortPoint) -> Option<f64>) -> Option<(f64, f64)> {
+    points
+        .iter()
+        .filter_map(|p| f(p).map(|v| (v, p.frequency_hz)))
+        .min_by(|a, b| a.0.total_cmp(&b.0))
+}
+
+/// The worst return losses across [from, to] Hz.
+fn band_of(t: &Terminated, lin: &LinearNetwork, z0: f64, (from, to): (f64, f64)) -> PortBand {
+    let points: Vec<PortPoint> = band_grid(from, to).filter_map(|f| t.at(f, lin, z0)).collect();
+    PortBand {
+        from_hz: from,
+        to_hz: to,
+        input_return_loss_db: least(&points, PortPoint::input_return_loss_db),
+        output_return_loss_db: least(&points, PortPoint::output_return_loss_db),
+    }
+}
+
+/// The figures requirements limit, without the rest of the review.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct Figures {
+    /// The smallest return loss at port 1 across the band, dB.
+    pub input_return_loss_db: Option<f64>,
+    /// The smallest return loss at port 2 across the band, dB.
+    pub output_return_loss_db: Option<f64>,
+    /// The smallest μ over the sweep.
+    pub mu_min: Option<f64>,
+}
+
+/// Which of [`Figures`] to compute.
+#[derive(Clone, Copy, Debug, Default)]
+pub struct Wanted {
+    /// Either return loss (both come from the same solves).
+    pub return_loss: bool,
+    /// μ over the sweep.
+    pub stability: bool,
+}
+
+/// The figures `wanted` asks for: the return losses across `band`, μ over `frequencies` —
+/// the same numbers [`review`] reports.
+pub fn figures(
+    lin: &LinearNetwork,
+    reference_ohm: Option<f64>,
+    frequencies: &[f64],
+    band: Option<(f64, f64)>,
+    wanted: Wanted,
+) -> Figures {
+    if !wanted.return_loss && !wanted.stability {
+        return Figures::default();
+    }
+    let z0 = reference_ohm.unwrap_or(DEFAULT_REFERENCE_OHM);
+    let Some(t) = Terminated::new(lin, z0) else { return Figures::default() };
+    let b = band.filter(|_| wanted.return_loss).map(|b| band_of(&t, lin, z0, b));
+    let mu_min = wanted
+        .stability
+        .then(|| frequencies.iter().filter_map(|&f| t.at(f, lin, z0)?.mu()).reduce(f64::min))
+        .flatten();
+    Figures {
+        input_return_loss_db: b.and_then(|b| b.input_return_loss_db).map(|(v, _)| v),
+        output_return_loss_db: b.and_then(|b| b.output_return_loss_db).map(|(v, _)| v),
+        mu_min,
+    }
 }
 
 impl PortsReport {
@@ -315,13 +419,14 @@ impl Terminated {
     }
 }
 
-/// The ports review over `frequencies`, with the spot values at `spot_hz`; None when the
-/// terminated stage cannot be assembled.
+/// The ports review over `frequencies`, with the spot values at `spot_hz` and the worst
+/// match across `band`; None when the terminated stage cannot be assembled.
 pub fn review(
     lin: &LinearNetwork,
     reference_ohm: Option<f64>,
     frequencies: &[f64],
     spot_hz: f64,
+    band: Option<(f64, f64)>,
 ) -> Option<PortsReport> {
     let z0 = reference_ohm.unwrap_or(DEFAULT_REFERENCE_OHM);
     let t = Terminated::new(lin, z0)?;
@@ -331,6 +436,7 @@ pub fn review(
         reference_stated: reference_ohm.is_some(),
         points,
         spot: t.at(spot_hz, lin, z0),
+        band: band.map(|b| band_of(&t, lin, z0, b)),
     })
 }
 
@@ -370,6 +476,7 @@ mod tests {
                 point(5.0, unstable),
             ],
             spot: None,
+            band: None,
         };
         assert_eq!(report.conditionally_stable(), vec![(2.0, 3.0), (5.0, 5.0)]);
         assert!(report.mu_min().unwrap() < 1.0);

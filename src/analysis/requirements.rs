@@ -13,8 +13,7 @@ use crate::design::Requirements;
 /// One checked requirement.
 #[derive(Clone, Debug, Serialize)]
 pub struct RequirementCheck {
-    /// `midband_gain`, `gain_flatness`, `upper_cutoff`, `lower_cutoff`, `input_resistance`,
-    /// `output_resistance`, `noise_figure`, `input_noise_density`, `output_noise`.
+    /// The requirement's key in the design file (`midband_gain`, `upper_cutoff`, …).
     pub name: &'static str,
     /// SI unit of the value ("" for a gain in V/V, "dB" for the flatness and the noise
     /// figure).
@@ -56,6 +55,11 @@ pub struct RequirementCheck {
 /// Adds the worst-case corners and Monte Carlo yields of a tolerance study.
 pub fn with_study(checks: &mut [RequirementCheck], study: &crate::analysis::tolerance::Study) {
     for c in checks.iter_mut() {
+        // Every limited requirement has a yield, even one whose figure has no corners (a
+        // figure that is zero at nominal, such as a step without overshoot).
+        if let Some(mc) = &study.monte_carlo {
+            c.yield_fraction = mc.yields.iter().find(|(n, _)| n == c.name).map(|(_, y)| *y);
+        }
         let Some(w) = study.worst_case.iter().find(|w| w.figure == c.name) else { continue };
         let inside = |v: f64| c.min.is_none_or(|lo| v >= lo) && c.max.is_none_or(|hi| v <= hi);
         c.low_corner = c.min.and(w.low_corner);
@@ -81,9 +85,6 @@ pub fn with_study(checks: &mut [RequirementCheck], study: &crate::analysis::tole
             w.low_corner.is_none_or(|v| v <= w.nominal)
                 && w.high_corner.is_none_or(|v| v >= w.nominal)
         });
-        if let Some(mc) = &study.monte_carlo {
-            c.yield_fraction = mc.yields.iter().find(|(n, _)| n == c.name).map(|(_, y)| *y);
-        }
     }
 }
 
@@ -110,7 +111,10 @@ pub fn unit_of(name: &str) -> &'static str {
         "snr" => "dB",
         "supply_current" => "A",
         "output_swing" | "input_compression" => "V",
-        "thd" => "%",
+        "thd" | "overshoot" => "%",
+        "input_return_loss" | "output_return_loss" => "dB",
+        "stability" => "",
+        "rise_time" | "group_delay_variation" => "s",
         _ => "Ω",
     }
 }
@@ -152,6 +156,28 @@ fn quantity(name: &str, a: &Analysis) -> (Option<f64>, Scale) {
             a.noise.as_ref().and_then(|n| n.band.as_ref()).map(|b| b.output_rms_v),
             Scale::Relative,
         ),
+        "input_return_loss" => (
+            a.ports
+                .as_ref()
+                .and_then(|p| p.band.as_ref())
+                .and_then(|b| b.input_return_loss_db)
+                .map(|(v, _)| v),
+            Scale::Db,
+        ),
+        "output_return_loss" => (
+            a.ports
+                .as_ref()
+                .and_then(|p| p.band.as_ref())
+                .and_then(|b| b.output_return_loss_db)
+                .map(|(v, _)| v),
+            Scale::Db,
+        ),
+        "stability" => (a.ports.as_ref().and_then(|p| p.mu_min()), Scale::Relative),
+        "rise_time" => (a.step.as_ref().map(|s| s.rise_time_s), Scale::Relative),
+        "overshoot" => (a.step.as_ref().map(|s| 100.0 * s.overshoot), Scale::Relative),
+        "group_delay_variation" => {
+            (a.group_delay.as_ref().map(|g| g.variation_s()), Scale::Relative)
+        }
         _ => (m.output_resistance_ohm, Scale::Relative),
     }
 }

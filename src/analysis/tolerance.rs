@@ -55,6 +55,18 @@ pub enum Figure {
     Thd,
     /// The 1 dB compression EMF.
     InputCompression,
+    /// The smallest input return loss across the band, dB.
+    InputReturnLoss,
+    /// The smallest output return loss across the band, dB.
+    OutputReturnLoss,
+    /// The smallest μ over the sweep.
+    Stability,
+    /// The step's rise time.
+    RiseTime,
+    /// The step's overshoot, %.
+    Overshoot,
+    /// The group delay's spread across the band.
+    GroupDelayVariation,
 }
 
 impl Figure {
@@ -76,6 +88,12 @@ impl Figure {
             Figure::OutputSwing => m.output_swing,
             Figure::Thd => m.thd_percent,
             Figure::InputCompression => m.input_compression,
+            Figure::InputReturnLoss => m.input_return_loss_db,
+            Figure::OutputReturnLoss => m.output_return_loss_db,
+            Figure::Stability => m.mu_min,
+            Figure::RiseTime => m.rise_time_s,
+            Figure::Overshoot => m.overshoot_percent,
+            Figure::GroupDelayVariation => m.group_delay_variation_s,
         }
     }
 
@@ -99,6 +117,12 @@ impl Figure {
             Figure::OutputSwing => "output_swing".into(),
             Figure::Thd => "thd".into(),
             Figure::InputCompression => "input_compression".into(),
+            Figure::InputReturnLoss => "input_return_loss".into(),
+            Figure::OutputReturnLoss => "output_return_loss".into(),
+            Figure::Stability => "stability".into(),
+            Figure::RiseTime => "rise_time".into(),
+            Figure::Overshoot => "overshoot".into(),
+            Figure::GroupDelayVariation => "group_delay_variation".into(),
         }
     }
 }
@@ -120,6 +144,12 @@ impl Figure {
             "output_swing" => Figure::OutputSwing,
             "thd" => Figure::Thd,
             "input_compression" => Figure::InputCompression,
+            "input_return_loss" => Figure::InputReturnLoss,
+            "output_return_loss" => Figure::OutputReturnLoss,
+            "stability" => Figure::Stability,
+            "rise_time" => Figure::RiseTime,
+            "overshoot" => Figure::Overshoot,
+            "group_delay_variation" => Figure::GroupDelayVariation,
             _ => Figure::ROut,
         }
     }
@@ -143,6 +173,12 @@ pub fn figures(nominal: &Metrics) -> Vec<Figure> {
             Figure::OutputSwing,
             Figure::Thd,
             Figure::InputCompression,
+            Figure::InputReturnLoss,
+            Figure::OutputReturnLoss,
+            Figure::Stability,
+            Figure::RiseTime,
+            Figure::Overshoot,
+            Figure::GroupDelayVariation,
         ]
         .into_iter()
         .filter(|f| f.of(nominal).is_some_and(|v| v > 0.0)),
@@ -212,7 +248,13 @@ fn sensitivities_reporting(
             | Figure::SupplyCurrent
             | Figure::OutputSwing
             | Figure::Thd
-            | Figure::InputCompression => None,
+            | Figure::InputCompression
+            | Figure::InputReturnLoss
+            | Figure::OutputReturnLoss
+            | Figure::Stability
+            | Figure::RiseTime
+            | Figure::Overshoot
+            | Figure::GroupDelayVariation => None,
         }
     };
     let dc = transistors.then(|| DcChain::new(design, &nominal)).flatten();

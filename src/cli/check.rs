@@ -461,7 +461,20 @@ fn ports_block(p: &crate::analysis::ports::PortsReport) -> String {
             db((s21 > 0.0).then(|| 20.0 * s21.log10())),
             db(q.input_return_loss_db()),
             db(q.output_return_loss_db()),
-            db((q.s[2].norm() > 0.0).then(|| -20.0 * q.s[2].norm().log10()))
+            db(q.reverse_isolation_db())
+        );
+    }
+    if let Some(b) = &p.band {
+        let worst = |v: Option<(f64, f64)>| {
+            v.map_or_else(absent, |(db, f)| format!("{} dB at {}", plain(db, 4), si(f, "Hz", 4)))
+        };
+        let _ = writeln!(
+            out,
+            "  worst match across {} … {}: return loss in {}, out {}",
+            si(b.from_hz, "Hz", 4),
+            si(b.to_hz, "Hz", 4),
+            worst(b.input_return_loss_db),
+            worst(b.output_return_loss_db)
         );
     }
     let num = |v: Option<f64>| v.map_or_else(absent, |v| plain(v, 4));

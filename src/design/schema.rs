@@ -218,6 +218,12 @@ pub fn design_schema() -> Value {
                 "derating" => object(DERATING_KEYS, &[], |_| {
                     quantity("the fraction of the rating to stay under, e.g. 50 %")
                 }),
+                "reference_impedance" => {
+                    quantity("reference impedance of the scattering parameters, e.g. 75 ohm")
+                }
+                "settling_band" => {
+                    quantity("band the step response settles within, e.g. 1 % (default 1 %)")
+                }
                 _ => object(MONTE_CARLO_KEYS, &[], |_| json!({"type": "integer", "minimum": 0})),
             }),
             _ => json!({}),

@@ -489,11 +489,24 @@ pub struct Requirements {
     pub thd: Option<Limits>,
     /// The source EMF at which the fundamental's gain is 1 dB down, peak V.
     pub input_compression: Option<Limits>,
+    /// The smallest return loss at the input port across the band, dB, in the reference
+    /// impedance.
+    pub input_return_loss: Option<Limits>,
+    /// The smallest return loss at the output port across the band, dB.
+    pub output_return_loss: Option<Limits>,
+    /// The smallest Edwards–Sinsky μ over the sweep (above 1: unconditionally stable).
+    pub stability: Option<Limits>,
+    /// The step response's 10–90 % rise time, s.
+    pub rise_time: Option<Limits>,
+    /// The step response's overshoot, %.
+    pub overshoot: Option<Limits>,
+    /// The group delay's spread (max − min) across the band, s.
+    pub group_delay_variation: Option<Limits>,
 }
 
 impl Requirements {
     /// Every requirement by its name in the design file, set or not, in report order.
-    pub fn items(&self) -> [(&'static str, Option<Limits>); 14] {
+    pub fn items(&self) -> [(&'static str, Option<Limits>); 20] {
         [
             ("midband_gain", self.midband_gain),
             ("gain_flatness", self.gain_flatness),
@@ -509,6 +522,12 @@ impl Requirements {
             ("output_swing", self.output_swing),
             ("thd", self.thd),
             ("input_compression", self.input_compression),
+            ("input_return_loss", self.input_return_loss),
+            ("output_return_loss", self.output_return_loss),
+            ("stability", self.stability),
+            ("rise_time", self.rise_time),
+            ("overshoot", self.overshoot),
+            ("group_delay_variation", self.group_delay_variation),
         ]
     }
 
@@ -537,6 +556,8 @@ pub struct AnalysisSettings {
     pub capacitor_voltage_derating: f64,
     /// The reference impedance of the scattering parameters, Ω, when the design states one.
     pub reference_impedance_ohm: Option<f64>,
+    /// The band the step response must settle within, a fraction of its final value.
+    pub settling_band: f64,
 }
 
 impl AnalysisSettings {
@@ -551,6 +572,7 @@ impl AnalysisSettings {
             resistor_power_derating: crate::analysis::stress::RESISTOR_POWER_DERATING,
             capacitor_voltage_derating: crate::analysis::stress::CAPACITOR_VOLTAGE_DERATING,
             reference_impedance_ohm: None,
+            settling_band: crate::analysis::step::DEFAULT_SETTLING_BAND,
         }
     }
 }

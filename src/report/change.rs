@@ -269,6 +269,12 @@ fn requirement_of(key: &str) -> Option<&str> {
         "/large_signal/output_swing/positive_v" | "/large_signal/output_swing/negative_v" => {
             Some("output_swing")
         }
+        "/ports/band/input_return_loss_min_db" => Some("input_return_loss"),
+        "/ports/band/output_return_loss_min_db" => Some("output_return_loss"),
+        "/ports/stability/mu_min" => Some("stability"),
+        "/step/rise_time_s" => Some("rise_time"),
+        "/step/overshoot" => Some("overshoot"),
+        "/group_delay/variation_s" => Some("group_delay_variation"),
         _ => None,
     };
     own.or_else(|| {
@@ -815,6 +821,44 @@ fn figures(doc: &ResultsDocument) -> Vec<Figure> {
             push(key.into(), label.into(), unit, value);
         }
     }
+    if let Some(p) = &doc.ports {
+        let band = p.band.as_ref();
+        for (key, label, unit, value) in [
+            (
+                "/ports/band/input_return_loss_min_db",
+                "least input return loss across the band",
+                "dB",
+                band.and_then(|b| b.input_return_loss_min_db),
+            ),
+            (
+                "/ports/band/output_return_loss_min_db",
+                "least output return loss across the band",
+                "dB",
+                band.and_then(|b| b.output_return_loss_min_db),
+            ),
+            ("/ports/stability/k_min", "K, least over the sweep", NUMBER, p.stability.k_min),
+            ("/ports/stability/mu_min", "μ, least over the sweep", NUMBER, p.stability.mu_min),
+        ] {
+            push(key.into(), label.into(), unit, value);
+        }
+    }
+    if let Some(st) = &doc.step {
+        for (key, label, unit, value) in [
+            ("/step/rise_time_s", "step rise time", "s", Some(st.rise_time_s)),
+            ("/step/overshoot", "step overshoot", "%", Some(st.overshoot)),
+            ("/step/settling_time_s", "step settling time", "s", st.settling_time_s),
+        ] {
+            push(key.into(), label.into(), unit, value);
+        }
+    }
+    if let Some(g) = &doc.group_delay {
+        for (key, label, unit, value) in [
+            ("/group_delay/centre_s", "group delay at the band centre", "s", Some(g.centre_s)),
+            ("/group_delay/variation_s", "group delay variation", "s", Some(g.variation_s)),
+        ] {
+            push(key.into(), label.into(), unit, value);
+        }
+    }
     if let Some(op) = &doc.operating_point {
         for (k, x) in op.nodes.iter().filter(|(k, _)| !k.contains('.') && *k != "source") {
             push(format!("node {k}"), format!("V({k})"), "V", Some(*x));
@@ -875,6 +919,8 @@ fn figures(doc: &ResultsDocument) -> Vec<Figure> {
             "V/√Hz" => "V/√Hz",
             "A" => "A",
             "%" => "%",
+            "s" => "s",
+            "" if name == "stability" => NUMBER,
             _ => "",
         };
         // A figure in per cent (the THD) is carried as the fraction `show` expects.
@@ -944,11 +990,15 @@ fn pole_figures(old: &[RootResults], new: &[RootResults]) -> (Vec<Figure>, Vec<F
 }
 
 /// A value in its unit: engineering notation, V/V plain, dB, a fraction as per cent.
+/// The unit of a pure number (a stability factor), shown without one.
+const NUMBER: &str = "number";
+
 fn show(v: Option<f64>, unit: &str) -> String {
     match (v, unit) {
         (None, _) => absent(),
         (Some(v), "%") => format!("{} %", plain(v * 100.0, 4)),
         (Some(v), "") => format!("{} V/V", plain(v, 4)),
+        (Some(v), NUMBER) => plain(v, 4),
         (Some(v), "dB") => format!("{} dB", plain(v, 4)),
         (Some(v), u) => si(v, u, 4),
     }

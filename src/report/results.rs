@@ -688,6 +688,27 @@ pub struct PortsResults {
     pub s_parameters: Vec<SParameterResults>,
     /// Rollett's K and Edwards–Sinsky μ over the whole sweep.
     pub stability: StabilityResults,
+    /// The worst match across the review band (the stated band, else between the
+    /// cut-offs); null without one.
+    pub band: Option<PortBandResults>,
+}
+
+/// `ports.band`: the smallest return loss at each port across the band, where the return-loss
+/// requirements are judged.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct PortBandResults {
+    /// Hz.
+    pub from_hz: f64,
+    /// Hz.
+    pub to_hz: f64,
+    /// The smallest return loss at port 1, dB (null if no point solves).
+    pub input_return_loss_min_db: Option<f64>,
+    /// Where, Hz.
+    pub input_worst_hz: Option<f64>,
+    /// The smallest return loss at port 2, dB.
+    pub output_return_loss_min_db: Option<f64>,
+    /// Where, Hz.
+    pub output_worst_hz: Option<f64>,
 }
 
 /// The ports at one frequency, in the terms a reviewer reads.
@@ -775,7 +796,7 @@ fn ports(p: &crate::analysis::ports::PortsReport, per_decade: u32) -> PortsResul
             output_return_loss_db: q.output_return_loss_db(),
             input_vswr: vswr(q.s[0]),
             output_vswr: vswr(q.s[3]),
-            reverse_isolation_db: db(q.s[2].norm()).map(|v| -v),
+            reverse_isolation_db: q.reverse_isolation_db(),
             k: q.k(),
             delta: q.delta().norm(),
             mu: q.mu(),
@@ -804,6 +825,14 @@ fn ports(p: &crate::analysis::ports::PortsReport, per_decade: u32) -> PortsResul
                 .map(|(a, b)| [a, b])
                 .collect(),
         },
+        band: p.band.map(|b| PortBandResults {
+            from_hz: b.from_hz,
+            to_hz: b.to_hz,
+            input_return_loss_min_db: b.input_return_loss_db.map(|(v, _)| v),
+            input_worst_hz: b.input_return_loss_db.map(|(_, f)| f),
+            output_return_loss_min_db: b.output_return_loss_db.map(|(v, _)| v),
+            output_worst_hz: b.output_return_loss_db.map(|(_, f)| f),
+        }),
     }
 }
 

@@ -346,14 +346,24 @@ fn ports_table(a: &Analysis) -> String {
                     num(crate::analysis::ports::vswr(q.s[3]))
                 ),
             ]);
-            let iso = q.s[2].norm();
-            rows.push(vec![
-                "reverse isolation".into(),
-                db((iso > 0.0).then(|| -20.0 * iso.log10())),
-            ]);
+            rows.push(vec!["reverse isolation".into(), db(q.reverse_isolation_db())]);
             rows.push(vec![
                 cell("K, |Δ|, μ"),
                 format!("{}, {}, {}", num(q.k()), plain(q.delta().norm(), 4), num(q.mu())),
+            ]);
+        }
+        if let Some(b) = &p.band {
+            let worst = |v: Option<(f64, f64)>| {
+                v.map_or_else(absent, |(d, f)| format!("{} dB at {}", plain(d, 4), si(f, "Hz", 4)))
+            };
+            let across = format!("{} … {}", si(b.from_hz, "Hz", 4), si(b.to_hz, "Hz", 4));
+            rows.push(vec![
+                format!("least return loss in, across {across}"),
+                worst(b.input_return_loss_db),
+            ]);
+            rows.push(vec![
+                format!("least return loss out, across {across}"),
+                worst(b.output_return_loss_db),
             ]);
         }
         rows.push(vec![
@@ -717,6 +727,8 @@ pub fn requirement_value(name: &str, unit: &str, v: f64) -> String {
         format!("{} dB", plain(v, 3))
     } else if unit == "%" {
         format!("{} %", plain(v, 3))
+    } else if unit.is_empty() {
+        plain(v, 4)
     } else {
         si(v, unit, 4)
     }
@@ -813,6 +825,7 @@ pub fn requirement_words(name: &str) -> String {
         "snr" => "signal-to-noise ratio".into(),
         "thd" => "total harmonic distortion".into(),
         "input_compression" => "input 1 dB compression".into(),
+        "stability" => "stability (μ)".into(),
         other => other.replace('_', " "),
     }
 }
@@ -834,6 +847,12 @@ pub fn figure_label(key: &str) -> String {
         "output_swing" => "swing".into(),
         "thd" => "THD".into(),
         "input_compression" => "1 dB in".into(),
+        "input_return_loss" => "RL in".into(),
+        "output_return_loss" => "RL out".into(),
+        "stability" => "μ".into(),
+        "rise_time" => "t_r".into(),
+        "overshoot" => "overshoot".into(),
+        "group_delay_variation" => "Δτ_g".into(),
         other => other.replace(".bias_current", " bias"),
     }
 }
@@ -849,7 +868,10 @@ fn figure_value(key: &str, v: f64) -> String {
         "output_noise" => si(v, "V", 4),
         "snr" => format!("{} dB", plain(v, 3)),
         "output_swing" | "input_compression" => si(v, "V", 4),
-        "thd" => format!("{} %", plain(v, 3)),
+        "thd" | "overshoot" => format!("{} %", plain(v, 3)),
+        "input_return_loss" | "output_return_loss" => format!("{} dB", plain(v, 3)),
+        "stability" => plain(v, 4),
+        "rise_time" | "group_delay_variation" => si(v, "s", 4),
         _ => si(v, "A", 4),
     }
 }

@@ -1,7 +1,7 @@
 #!/usr/bin/env python3
 """Independent reference for tauweave's small-signal analysis and its noise analysis.
 
-Usage: mna_reference.py DESIGN.yaml [--bias RESULTS.json] [--noise]   -> JSON on stdout
+Usage: mna_reference.py DESIGN.yaml [--bias RESULTS.json] [--noise] [--ports]   -> JSON on stdout
 
 Parts of kind resistor, capacitor, inductor, transconductance and voltage_amplifier
 (supplies may be present; they are AC ground). Shares no code with the Rust crate: it reads
@@ -15,6 +15,8 @@ small-signal network, and everything after it, itself. So for a design with tran
 checks the small-signal analysis and the noise, not the operating point.
 
 --noise adds the noise analysis (`noise`, as results.json has it); see noise_review().
+--ports adds the stage at its ports (`ports`: S-parameters from the network's own
+y-parameters, K and μ, the impedances solved directly); see ports_review().
 
 The conventions (tauweave's definitions) are summarised in tests/reference/README.md.
 
@@ -688,8 +690,9 @@ def _f3db(H, f_start, target, upward, per_decade=100):
     return None
 
 
-def analyze(doc, bias=None, noise=False):
-    """results.json's linear keys for the design `doc`; with noise=True also `noise`.
+def analyze(doc, bias=None, noise=False, ports=False):
+    """results.json's linear keys for the design `doc`; with noise=True also `noise`, with
+    ports=True also `ports`.
     bias: {part: device entry of results.json}, for designs with transistors."""
     ckt = Circuit(doc, bias)
     low, high = ckt.low, ckt.high
@@ -807,6 +810,16 @@ def analyze(doc, bias=None, noise=False):
         "poles": poles_hz,
         "zeros": zeros_hz,
     }
+    if ports:
+        # The worst match across the stated band, else between the exact cut-offs (from the
+        # sweep's start for a stage coupled down to DC).
+        if ckt.band:
+            review_band = ckt.band
+        elif f_hi is not None:
+            review_band = (f_lo if f_lo is not None else _sweep_grid(doc)[0][0], f_hi)
+        else:
+            review_band = None
+        out["ports"] = ports_review(ckt, doc, midband["frequency_hz"], review_band)
     if noise:
         # Spot values at the band centre, else at the mid-band frequency; integrated over the
         # stated band, else between the exact −3 dB points (tauweave's definitions).
@@ -1029,8 +1042,219 @@ def noise_review(ckt, spot_hz, band):
     }
 
 
+# --------------------------------------------------------------------------------------------
+# Ports: the stage as a two-port in a reference impedance Z0, from its own admittance matrix
+
+MU_MARGIN = 1e-9  # μ this far under 1 counts as conditionally stable (tauweave's convention)
+# A product of unit-order S-parameters at or under this is rounding (tauweave's convention):
+# K needs |S12·S21| above it (else the stage is unilateral), μ its denominator above it (for a
+# unilateral stage with a lossless input μ is 0/0), and a VSWR |Γ| below 1 by more than it.
+NEGLIGIBLE = 1e-9
+BAND_POINTS = 64  # log-spaced points, edges included, on which a band's worst match is found
+
+
+def _sweep_grid(doc):
+    """The sweep's frequencies: `steps` = ⌈decades·points_per_decade⌉ log-spaced steps from
+    start to stop (defaults 1 Hz, 10 GHz, 40 a decade; docs/design-format.md)."""
+    q = Quantities(doc.get("params"))
+    sw = (doc.get("analysis") or {}).get("sweep") or {}
+    start = q.value(sw["start"]) if "start" in sw else 1.0
+    stop = q.value(sw["stop"]) if "stop" in sw else 10e9
+    ppd = int(sw.get("points_per_decade", 40))
+    decades = math.log10(stop) - math.log10(start)
+    steps = max(math.ceil(decades * ppd), 1)
+    return [start * 10 ** (decades * k / steps) for k in range(steps + 1)], ppd
+
+
+def _port_admittance(net, ports, f):
+    """The 2×2 admittance matrix of the ports at f: the network's own MNA extended with an
+    ideal voltage source across each port; Y[j, k] is the current into port j for 1 V at
+    port k with the other port shorted (the definition of the y-parameters)."""
+    G, C = net["G"], net["C"]
+    n = G.shape[0]
+    A = np.zeros((n + 2, n + 2), dtype=np.clongdouble)
+    A[:n, :n] = G + TWO_PI_J * WIDE(f) * C
+    for k, (p, m) in enumerate(ports):
+        for node, sgn in ((p, 1.0), (m, -1.0)):
+            i = net["ix"](node)
+            if i is not None:
+                A[i, n + k] += sgn
+                A[n + k, i] += sgn
+    B = np.zeros((n + 2, 2), dtype=np.clongdouble)
+    B[n, 0] = B[n + 1, 1] = 1
+    X = solve(A, B)
+    # The source's branch current flows from p through the source: the port current is its
+    # negative.
+    return np.array(-X[n:, :], dtype=np.complex128)
+
+
+def _port_impedance(net, ports, f):
+    """The 2×2 impedance matrix of the ports at f: Z[j, k] is the voltage at port j for 1 A
+    into port k with the other port open (the definition of the z-parameters)."""
+    n = net["G"].shape[0]
+    D = np.zeros((n, 2), dtype=np.clongdouble)
+    for k, (p, m) in enumerate(ports):
+        for node, sgn in ((p, 1.0), (m, -1.0)):
+            if net["ix"](node) is not None:
+                D[net["ix"](node), k] += sgn
+    X = solve(net["G"] + TWO_PI_J * WIDE(f) * net["C"], D)
+    return np.array(D.T @ X, dtype=np.complex128)
+
+
+def _impedance(net, p, m, f):
+    """The impedance between p and m at f: 1 A in at p, out at m, v(p) − v(m)."""
+    n = net["G"].shape[0]
+    d = np.zeros(n, dtype=np.clongdouble)
+    for node, sgn in ((p, 1.0), (m, -1.0)):
+        if net["ix"](node) is not None:
+            d[net["ix"](node)] += sgn
+    x = solve(net["G"] + TWO_PI_J * WIDE(f) * net["C"], d)
+    return complex(d @ x)
+
+
+def _s_from_y(Y, z0):
+    """S = (I − Z0·Y)(I + Z0·Y)⁻¹, both ports in Z0 (Pozar, Microwave Engineering, table 4.2,
+    from memory)."""
+    y = z0 * Y
+    eye = np.eye(2)
+    return (eye - y) @ np.linalg.inv(eye + y)
+
+
+def _s_from_z(Z, z0):
+    """S = (Z − Z0·I)(Z + Z0·I)⁻¹ (Pozar, table 4.2, from memory): for ports that share a
+    node, whose y-parameters do not exist."""
+    eye = np.eye(2)
+    return (Z - z0 * eye) @ np.linalg.inv(Z + z0 * eye)
+
+
+def _k_delta_mu(S):
+    """Rollett's K, |Δ| and Edwards–Sinsky μ (IEEE Trans. MTT 40(12), 1992) of S."""
+    s11, s12, s21, s22 = S[0, 0], S[0, 1], S[1, 0], S[1, 1]
+    delta = s11 * s22 - s12 * s21
+    loop = abs(s12 * s21)
+    k = (1 - abs(s11) ** 2 - abs(s22) ** 2 + abs(delta) ** 2) / (2 * loop) if loop > NEGLIGIBLE else None
+    den = abs(s22 - delta * s11.conjugate()) + loop
+    mu = (1 - abs(s11) ** 2) / den if den > NEGLIGIBLE else None
+    return k, abs(delta), mu
+
+
+def ports_review(ckt, doc, spot_hz, band):
+    """results.json's `ports`: the stage without the source resistance and the design's load
+    as a two-port (port 1 the source's terminals, port 2 the output), its S-parameters in Z0
+    from its y-parameters, K and μ over the whole sweep; the input impedance with the design's
+    load and the output impedance with the design's source resistance, each solved directly;
+    the worst return loss across `band` (from, to)."""
+    q = Quantities(doc.get("params"))
+    analysis = doc.get("analysis") or {}
+    z0 = q.value(analysis["reference_impedance"]) if "reference_impedance" in analysis else 50.0
+    caps = [e for e in ckt.low + ckt.high]
+    dyn = {e["name"]: "dyn" for e in caps}
+    bare = ckt.network({k: v for k, v in dyn.items() if k != "load.c"}, inductors="dyn",
+                       rsig=False, loadr=False)
+    loaded = ckt.network(dyn, inductors="dyn", rsig=False)
+    sourced = ckt.network({k: v for k, v in dyn.items() if k != "load.c"}, inductors="dyn",
+                          loadr=False)
+    ports = [(ckt.sig_p, ckt.sig_n), (ckt.out_p, ckt.out_n)]
+
+    # Ports across the same two nodes (input and output at one node) have no y-parameters:
+    # their z-parameters then.
+    same = {bare["ix"](n) for n in ports[0]} == {bare["ix"](n) for n in ports[1]}
+
+    def s_at(f):
+        if same:
+            return _s_from_z(_port_impedance(bare, ports, f), z0)
+        return _s_from_y(_port_admittance(bare, ports, f), z0)
+
+    grid, ppd = _sweep_grid(doc)
+    every = [(f, s_at(f)) for f in grid]
+    shown = every[:: max(ppd // 10, 1)]
+    ks, mus, unstable, open_range = [], [], [], None
+    for f, S in every:
+        k, _, mu = _k_delta_mu(S)
+        if k is not None:
+            ks.append(k)
+        if mu is not None:
+            mus.append(mu)
+        if mu is not None and mu < 1 - MU_MARGIN:
+            open_range = [open_range[0], f] if open_range else [f, f]
+        elif open_range:
+            unstable.append(open_range)
+            open_range = None
+    if open_range:
+        unstable.append(open_range)
+
+    def pair(z):
+        return [z.real, z.imag]
+
+    def imp(f, z):
+        return {"frequency_hz": f, "re_ohm": z.real, "im_ohm": z.imag}
+
+    def db(x):
+        return 20 * math.log10(x) if x > 0 else None
+
+    def vswr(g):
+        return (1 + abs(g)) / (1 - abs(g)) if abs(g) < 1 - NEGLIGIBLE else None
+
+    def z_in(f):
+        return _impedance(loaded, ckt.sig_p, ckt.sig_n, f)
+
+    def z_out(f):
+        return _impedance(sourced, ckt.out_p, ckt.out_n, f)
+
+    def spot_at(f):
+        S = s_at(f)
+        k, delta, mu = _k_delta_mu(S)
+        return {
+            "frequency_hz": f,
+            "input_impedance": imp(f, z_in(f)),
+            "output_impedance": imp(f, z_out(f)),
+            "s21_db": db(abs(S[1, 0])),
+            "input_return_loss_db": None if abs(S[0, 0]) == 0 else -db(abs(S[0, 0])),
+            "output_return_loss_db": None if abs(S[1, 1]) == 0 else -db(abs(S[1, 1])),
+            "input_vswr": vswr(S[0, 0]),
+            "output_vswr": vswr(S[1, 1]),
+            "reverse_isolation_db": None if abs(S[0, 1]) <= NEGLIGIBLE else -db(abs(S[0, 1])),
+            "k": k,
+            "delta": delta,
+            "mu": mu,
+        }
+
+    # No spot without a mid-band frequency (a network without capacitors, here).
+    spot = None if spot_hz is None else spot_at(spot_hz)
+    out = {
+        "reference_ohm": z0,
+        "spot": spot,
+        "input_impedance": [imp(f, z_in(f)) for f, _ in shown],
+        "output_impedance": [imp(f, z_out(f)) for f, _ in shown],
+        "s_parameters": [{"frequency_hz": f, "s11": pair(S[0, 0]), "s21": pair(S[1, 0]),
+                          "s12": pair(S[0, 1]), "s22": pair(S[1, 1])} for f, S in shown],
+        "stability": {"k_min": min(ks) if ks else None, "mu_min": min(mus) if mus else None,
+                      "conditionally_stable_hz": unstable},
+    }
+    if band:
+        lo, hi = band
+        n = BAND_POINTS - 1
+        points = [hi if k == n else lo * (hi / lo) ** (k / n) for k in range(n + 1)]
+        rl_in, rl_out = [], []
+        for f in points:
+            S = s_at(f)
+            if abs(S[0, 0]) > 0:
+                rl_in.append((-db(abs(S[0, 0])), f))
+            if abs(S[1, 1]) > 0:
+                rl_out.append((-db(abs(S[1, 1])), f))
+        worst_in, worst_out = min(rl_in, default=None), min(rl_out, default=None)
+        out["band"] = {
+            "from_hz": lo, "to_hz": hi,
+            "input_return_loss_min_db": worst_in[0] if worst_in else None,
+            "input_worst_hz": worst_in[1] if worst_in else None,
+            "output_return_loss_min_db": worst_out[0] if worst_out else None,
+            "output_worst_hz": worst_out[1] if worst_out else None,
+        }
+    return out
+
+
 def main(argv):
-    args, bias_path, with_noise = [], None, False
+    args, bias_path, with_noise, with_ports = [], None, False, False
     rest = list(argv[1:])
     while rest:
         a = rest.pop(0)
@@ -1038,6 +1262,8 @@ def main(argv):
             bias_path = rest.pop(0)
         elif a == "--noise":
             with_noise = True
+        elif a == "--ports":
+            with_ports = True
         else:
             args.append(a)
     if len(args) != 1:
@@ -1048,7 +1274,7 @@ def main(argv):
         with open(bias_path, encoding="utf-8") as f:
             op = json.load(f).get("operating_point") or {}
         bias = {d["part"]: d for d in op.get("devices") or []}
-    result = analyze(load_design(args[0]), bias=bias, noise=with_noise)
+    result = analyze(load_design(args[0]), bias=bias, noise=with_noise, ports=with_ports)
     print(json.dumps(result, indent=2, allow_nan=False))
     return 0
 

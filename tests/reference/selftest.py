@@ -546,8 +546,40 @@ def check_noise_identities():
               total / contributor(nz, "source")["density_v2_per_hz"], 1e-12)
 
 
+def check_ports():
+    """The reference's S-parameters against closed forms in Z0 = 50 Ω (Pozar, Microwave
+    Engineering, ch. 4, from memory): a series R has S11 = R/(R + 2Z0), S21 = 2Z0/(R + 2Z0)
+    (by y-parameters); a shunt R has S11 = −Z0/(2R + Z0), S21 = 2R/(2R + Z0) (ports on one
+    node: by z-parameters); K = μ = 1 for both (a lone lossy element, derived); and a matched
+    T attenuator (series arms Z0(k − 1)/(k + 1), shunt 2Z0k/(k² − 1), common practice)
+    reflects nothing and passes 1/k."""
+    z0, r = 50.0, 100.0
+    doc = design({"R1": R("in", "out", r), "RB": R("out", "gnd", 1e15)}, rsig=1e3)
+    doc["analysis"] = {"sweep": {"start": "1 kHz", "stop": "1 MHz", "points_per_decade": 10}}
+    pr = ref.analyze(doc, ports=True)["ports"]
+    for sp in pr["s_parameters"]:
+        close("series R: S11", sp["s11"][0], r / (r + 2 * z0), 1e-9)
+        close("series R: S21", sp["s21"][0], 2 * z0 / (r + 2 * z0), 1e-9)
+    close("series R: μ min", pr["stability"]["mu_min"], 1.0, 1e-9)
+    doc = design({"R1": R("n", "gnd", r)}, at="n", out="n", rsig=1e3)
+    doc["analysis"] = {"sweep": {"start": "1 kHz", "stop": "1 MHz", "points_per_decade": 10}}
+    pr = ref.analyze(doc, ports=True)["ports"]
+    for sp in pr["s_parameters"]:
+        close("shunt R: S11", sp["s11"][0], -z0 / (2 * r + z0), 1e-9)
+        close("shunt R: S21", sp["s21"][0], 2 * r / (2 * r + z0), 1e-9)
+    close("shunt R: K min", pr["stability"]["k_min"], 1.0, 1e-9)
+    k = 10 ** (6 / 20)
+    arm, leg = z0 * (k - 1) / (k + 1), 2 * z0 * k / (k * k - 1)
+    doc = design({"R1": R("in", "m", arm), "R2": R("m", "out", arm), "R3": R("m", "gnd", leg)}, rsig=1e3)
+    doc["analysis"] = {"sweep": {"start": "1 kHz", "stop": "1 MHz", "points_per_decade": 10}}
+    pr = ref.analyze(doc, ports=True)["ports"]
+    truth("matched T: S11 = 0", all(abs(complex(*sp["s11"])) < 1e-12 for sp in pr["s_parameters"]))
+    for sp in pr["s_parameters"]:
+        close("matched T: S21 = 1/k", sp["s21"][0], 1 / k, 1e-9)
+
+
 def main():
-    for check in (check_quantities, check_single_pole, check_ce_gray_meyer, check_ce_degenerated,
+    for check in (check_ports, check_quantities, check_single_pole, check_ce_gray_meyer, check_ce_degenerated,
                   check_cs_razavi, check_cs_published, check_follower, check_isolated_sections,
                   check_classification, check_identities, check_random_networks, check_noise_kt_over_c,
                   check_noise_divider, check_noise_transistors, check_noise_nyquist, check_noise_identities):

@@ -8,7 +8,10 @@
 //! transistor's bias currents and small-signal parameters from results.json
 //! (`operating_point.devices`, through `--bias`) and builds the small-signal network, and
 //! everything after it, itself. With `--noise` it adds the `noise` object, solving the
-//! network directly for each noise source where tauweave uses one adjoint solve.
+//! network directly for each noise source where tauweave uses one adjoint solve. With
+//! `--ports` it adds the `ports` object: the scattering parameters from the network's own
+//! y-parameters (an ideal source across each port), K, μ, and the impedances solved directly,
+//! where tauweave terminates both ports in Z₀ and reads S from the port voltages.
 
 use std::collections::BTreeMap;
 use std::path::Path;
@@ -50,15 +53,33 @@ fn quantity(path: &str) -> String {
 }
 
 /// The absolute size below which the number at `path` is compared absolutely, given the
-/// total output noise density `total` (V²/Hz).
+/// total output noise density `total` (V²/Hz). A figure in dB is compared to 1e-6 dB below
+/// 1 dB (a return loss of 1e-15 dB is 0 dB to both).
 fn floor(path: &str, total: f64) -> f64 {
-    if path.ends_with(".share") || path.ends_with(".band_share") {
+    if path.ends_with("_db") {
+        1.0
+    } else if path.ends_with(".share") || path.ends_with(".band_share") {
         SHARE_FLOOR
     } else if path.ends_with(".density_v2_per_hz") {
         SHARE_FLOOR * total
     } else {
         0.0
     }
+}
+
+/// The magnitude of a complex number written as `{re_ohm, im_ohm}` or as `[re, im]` (an
+/// S-parameter): each part is compared relative to it, the complex value's own relative
+/// error (the resistance of a near-pure capacitor is rounding beside its reactance). An
+/// S-parameter, a wave over a unit incident wave, is compared absolutely below 1e-9.
+fn pair_scale(path: &str, v: &Value) -> f64 {
+    let parts = match v {
+        Value::Object(m) => m.get("re_ohm").zip(m.get("im_ohm")),
+        Value::Array(a) if a.len() == 2 && path.contains(".s_parameters") => Some((&a[0], &a[1])),
+        _ => None,
+    };
+    let Some((re, im)) = parts.and_then(|(a, b)| a.as_f64().zip(b.as_f64())) else { return 0.0 };
+    let floor = if path.contains(".s_parameters") { SHARE_FLOOR } else { 0.0 };
+    re.hypot(im).max(floor)
 }
 
 fn compare(
@@ -69,19 +90,37 @@ fn compare(
     out: &mut Vec<String>,
     gaps: &mut Gaps,
 ) {
+    compare_within(reference, ours, path, total, 0.0, out, gaps);
+}
+
+/// [`compare`], numbers below `scale` compared absolutely (the complex value they are part
+/// of).
+fn compare_within(
+    reference: &Value,
+    ours: &Value,
+    path: &str,
+    total: f64,
+    scale: f64,
+    out: &mut Vec<String>,
+    gaps: &mut Gaps,
+) {
     match reference {
         Value::Object(map) => {
+            let scale = pair_scale(path, reference);
             for (k, v) in map {
                 match ours.get(k) {
-                    Some(o) => compare(v, o, &format!("{path}.{k}"), total, out, gaps),
+                    Some(o) => {
+                        compare_within(v, o, &format!("{path}.{k}"), total, scale, out, gaps)
+                    }
                     None => out.push(format!("{path}.{k}: missing from results.json")),
                 }
             }
         }
         Value::Array(items) => match ours.as_array() {
             Some(o) if o.len() == items.len() => {
+                let scale = pair_scale(path, reference);
                 for (i, (a, b)) in items.iter().zip(o).enumerate() {
-                    compare(a, b, &format!("{path}[{i}]"), total, out, gaps);
+                    compare_within(a, b, &format!("{path}[{i}]"), total, scale, out, gaps);
                 }
             }
             _ => out.push(format!(
@@ -93,7 +132,7 @@ fn compare(
             let a = n.as_f64().unwrap();
             match ours.as_f64() {
                 Some(b) => {
-                    let size = a.abs().max(b.abs()).max(floor(path, total));
+                    let size = a.abs().max(b.abs()).max(floor(path, total)).max(scale);
                     let gap = if size > 0.0 { (a - b).abs() / size } else { 0.0 };
                     let worst = gaps.entry(quantity(path)).or_insert(0.0);
                     *worst = worst.max(gap);
@@ -135,9 +174,9 @@ fn key_contributors(results: &mut Value) {
 }
 
 /// The reference's results for `design`, with the transistors' bias read from `results`
-/// and the noise analysis on.
+/// and the noise and ports analyses on.
 fn reference_with_noise(design: &Path, results: &Path) -> Value {
-    reference_with(design, &["--bias", results.to_str().unwrap(), "--noise"])
+    reference_with(design, &["--bias", results.to_str().unwrap(), "--noise", "--ports"])
 }
 
 /// Renders `design`, runs the reference on it and compares: the mismatches, the largest gap
@@ -160,12 +199,27 @@ fn cross_check(design: &Path, label: &str) -> (Vec<String>, Gaps, usize) {
             || reference["low"]["sctc"]["f_estimate_hz"].is_number(),
         "{name}"
     );
+    // Where across the band the match is worst is compared by its value only: over a flat
+    // stretch (a return loss near 0 dB at low frequencies) the place of the least is a near
+    // tie that rounding settles.
+    if let Some(band) = reference.pointer_mut("/ports/band").and_then(Value::as_object_mut) {
+        band.remove("input_worst_hz");
+        band.remove("output_worst_hz");
+    }
     let noise = &reference["noise"];
     assert!(
         noise["noise_factor"].is_number()
             && noise["e_n_v_per_rthz"].is_number()
             && noise["contributors"].as_array().is_some_and(|c| c.len() >= 3),
         "{name}: the reference's noise is incomplete: {noise}"
+    );
+    // And its ports: S-parameters from its own y-parameters at every listed frequency.
+    let listed = reference.pointer("/ports/s_parameters").and_then(Value::as_array);
+    assert!(
+        listed.is_some_and(|s| s.len() >= 10)
+            && reference.pointer("/ports/stability").is_some_and(Value::is_object),
+        "{name}: the reference's ports are incomplete: {}",
+        reference["ports"]
     );
     let total = noise["output_density_v_per_rthz"].as_f64().unwrap().powi(2);
     key_contributors(&mut reference);

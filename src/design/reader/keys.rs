@@ -125,11 +125,18 @@ pub const REQUIREMENT_KEYS: &[&str] = &[
     "output_swing",
     "thd",
     "input_compression",
+    "input_return_loss",
+    "output_return_loss",
+    "stability",
+    "rise_time",
+    "overshoot",
+    "group_delay_variation",
 ];
 /// Keys of one requirement.
 pub const LIMIT_KEYS: &[&str] = &["min", "max"];
 /// Keys of `analysis`.
-pub const ANALYSIS_KEYS: &[&str] = &["sweep", "monte_carlo", "derating", "reference_impedance"];
+pub const ANALYSIS_KEYS: &[&str] =
+    &["sweep", "monte_carlo", "derating", "reference_impedance", "settling_band"];
 /// Keys of `analysis.derating`.
 pub const DERATING_KEYS: &[&str] = &["resistor_power", "capacitor_voltage"];
 /// Keys of `analysis.sweep`.

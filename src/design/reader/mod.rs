@@ -42,6 +42,14 @@ struct Place {
     decibels: Decibels,
 }
 
+impl Place {
+    /// A pure ratio that reads naturally in percent (`1 %` of distortion, `5 %` of
+    /// overshoot); everywhere else a `%` is a slip (a tolerance in a value's place).
+    fn takes_percent(&self) -> bool {
+        self.dim == Dim::NONE && matches!(self.what, "a distortion ratio" | "an overshoot")
+    }
+}
+
 /// What a place does with a value written in `dB`.
 #[derive(Clone, Copy, PartialEq)]
 enum Decibels {
@@ -122,6 +130,26 @@ const PEAK_VOLTAGE: Place =
 /// A distortion ratio: `1 %`, `-40 dB` or the plain ratio `0.01`, kept as the ratio.
 const DISTORTION: Place =
     Place { what: "a distortion ratio", dim: Dim::NONE, positive: true, decibels: Decibels::Ratio };
+
+/// A return loss, written in dB and kept as the dB figure.
+const RETURN_LOSS: Place =
+    Place { what: "a return loss", dim: Dim::NONE, positive: false, decibels: Decibels::Figure };
+
+/// A stability factor (μ): a pure number.
+const STABILITY: Place = Place {
+    what: "a stability factor",
+    dim: Dim::NONE,
+    positive: true,
+    decibels: Decibels::Refused,
+};
+
+/// A duration: a rise time, a delay.
+const DURATION: Place =
+    Place { what: "a duration", dim: Dim::SECOND, positive: true, decibels: Decibels::Refused };
+
+/// An overshoot: `10 %` or the plain ratio `0.1`, kept as the ratio.
+const OVERSHOOT: Place =
+    Place { what: "an overshoot", dim: Dim::NONE, positive: false, decibels: Decibels::Refused };
 
 /// A temperature exponent: any sign, no unit.
 const EXPONENT: Place =
@@ -566,6 +594,10 @@ fn example(place: Place) -> &'static str {
         "a signal amplitude" => "10 mV",
         "a peak voltage" => "2 V",
         "a distortion ratio" => "1 %",
+        "a return loss" => "10 dB",
+        "a stability factor" => "1",
+        "a duration" => "50 ns",
+        "an overshoot" => "5 %",
         "a power rating" => "250 mW",
         "a voltage rating" => "50 V",
         _ => "100",
@@ -587,6 +619,28 @@ mod tests {
         format!(
             "{HEAD}{extra}signal: {{at: in, resistance: 50}}\noutput: {{at: out}}\nparts:\n{parts}"
         )
+    }
+
+    #[test]
+    fn ratios_read_in_percent_where_they_are_ratios_and_nowhere_else() {
+        let parts = "  R1: {kind: resistor, value: 1k, between: [in, out]}\n\
+                     \x20 C1: {kind: capacitor, value: 1n, between: [out, gnd], role: load}\n";
+        let text = stage(
+            parts,
+            "requirements: {thd: {max: 1 %}, overshoot: {max: 5 %}, rise_time: {max: 2 µs}}\n",
+        )
+        .replace("resistance: 50}", "resistance: 50, amplitude: 10 mV}");
+        let l = load(&text);
+        let d = l.design.unwrap_or_else(|| panic!("{:?}", l.diagnostics));
+        // Kept in percent, as reported.
+        assert_eq!(d.requirements.thd.unwrap().max, Some(1.0));
+        assert_eq!(d.requirements.overshoot.unwrap().max, Some(5.0));
+        assert_eq!(d.requirements.rise_time.unwrap().max, Some(2e-6));
+        // A per cent where a duration or a return loss belongs is a unit error.
+        for bad in ["rise_time: {max: 5 %}", "input_return_loss: {min: 5 %}"] {
+            let text = stage(parts, &format!("requirements: {{{bad}}}\n"));
+            assert_eq!(codes(&text), ["unit"], "{bad}");
+        }
     }
 
     #[test]

@@ -1,5 +1,6 @@
-//! Requirements (limits on gain, cut-offs, port resistances and noise) and the analysis settings
-//! (sweep, Monte Carlo runs and seed).
+//! Requirements (limits on gain, cut-offs, port resistances, noise, signal handling, the
+//! match and stability at the ports and the step response) and the analysis settings (sweep,
+//! Monte Carlo runs and seed, derating, reference impedance, settling band).
 
 use super::*;
 
@@ -39,10 +40,14 @@ impl Reader<'_> {
                 "supply_current" => CURRENT,
                 "output_swing" | "input_compression" => PEAK_VOLTAGE,
                 "thd" => DISTORTION,
+                "input_return_loss" | "output_return_loss" => RETURN_LOSS,
+                "stability" => STABILITY,
+                "rise_time" | "group_delay_variation" => DURATION,
+                "overshoot" => OVERSHOOT,
                 _ => RESISTANCE,
             };
             let mut limits = self.limits(name, k, n, place);
-            if name == "thd" {
+            if name == "thd" || name == "overshoot" {
                 // Read as a ratio (1 % or −40 dB is 0.01), kept in percent as reported.
                 limits = limits.map(|l| Limits {
                     min: l.min.map(|v| 100.0 * v),
@@ -96,6 +101,12 @@ impl Reader<'_> {
                 "output_swing" => out.output_swing = limits,
                 "thd" => out.thd = limits,
                 "input_compression" => out.input_compression = limits,
+                "input_return_loss" => out.input_return_loss = limits,
+                "output_return_loss" => out.output_return_loss = limits,
+                "stability" => out.stability = limits,
+                "rise_time" => out.rise_time = limits,
+                "overshoot" => out.overshoot = limits,
+                "group_delay_variation" => out.group_delay_variation = limits,
                 _ => out.output_resistance = limits,
             }
         }
@@ -272,8 +283,40 @@ impl Reader<'_> {
                 None => ok = false,
             }
         }
+        if let Some(n) = f.get("settling_band") {
+            match self.settling_band(n) {
+                Some(v) => out.settling_band = v,
+                None => ok = false,
+            }
+        }
         f.finish(&mut self.diagnostics);
         ok.then_some(out)
+    }
+
+    /// The settling band of the step response: a fraction of the final value in (0, 50 %],
+    /// written as a percentage (`0.1 %`) or a plain number (`0.001`).
+    fn settling_band(&mut self, node: &Node) -> Option<f64> {
+        let text = node.scalar().unwrap_or("").to_string();
+        let value = match quantity::evaluate(&text, &self.params) {
+            Ok(v) if v.dim.is_none_or(|d| d == Dim::NONE) => v.si,
+            Ok(_) => f64::NAN,
+            Err(e) => {
+                self.quantity_error(node, &text, e);
+                return None;
+            }
+        };
+        if value > 0.0 && value <= 0.5 {
+            return Some(value);
+        }
+        self.push(
+            Diagnostic::error(
+                "out_of_range",
+                "`settling_band` must be a fraction of the final value",
+            )
+            .at(node.span, "not above 0 and up to 50 %")
+            .help("give the band the step must settle within, e.g. `1 %` or `0.1 %`"),
+        );
+        None
     }
 
     /// A fraction in (0, 1], written as a percentage (`50 %`) or a plain number (`0.5`).

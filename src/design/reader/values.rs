@@ -111,6 +111,7 @@ impl Reader<'_> {
                 return None;
             }
             Mark::Celsius if place.dim != Dim::KELVIN => {}
+            Mark::Percent if place.takes_percent() => return Some(v.si),
             Mark::Percent => {
                 self.push(
                     Diagnostic::error(
