@@ -185,8 +185,38 @@ pub fn all(a: &Analysis, requirements: &[RequirementCheck], study: Option<&Study
             out.push(Plot { name: "waveform", caption: "The output over one period at the stated amplitude (solid) beside the sine the small-signal gain alone would give (dashed); the difference is the distortion, any shift the rectified DC.".into(), svg, file: None, max_width: None });
         }
     }
-    if let Some(svg) = a.ports.as_ref().and_then(crate::report::port_plots::ports) {
-        out.push(Plot { name: "ports", caption: "The stage in the reference impedance: return loss at the input (solid) and output (dashed), and the stability factor μ (unconditionally stable above the dotted line at 1; shaded where it is not).".into(), svg, file: None, max_width: None });
+    let asked = |name: &str| requirements.iter().find(|r| r.name == name).and_then(|r| r.min);
+    let limits = crate::report::port_plots::PortLimits {
+        input_return_loss_db: asked("input_return_loss"),
+        output_return_loss_db: asked("output_return_loss"),
+        mu: asked("stability"),
+    };
+    if let Some(p) = &a.ports {
+        if let Some(svg) = crate::report::port_plots::ports(p, limits) {
+            let band = p.band.map_or(String::new(), |b| {
+                format!(
+                    ", the band {} … {} shaded",
+                    crate::notation::si(b.from_hz, "Hz", 4),
+                    crate::notation::si(b.to_hz, "Hz", 4)
+                )
+            });
+            let mut wanted = Vec::new();
+            if limits.input_return_loss_db.is_some() || limits.output_return_loss_db.is_some() {
+                wanted.push("the required minimum return loss (long dashes: input, short: output)");
+            }
+            if limits.mu.is_some_and(|m| m > 1.0) {
+                wanted.push("the required minimum μ (long dashes)");
+            }
+            let wanted = if wanted.is_empty() {
+                String::new()
+            } else {
+                format!(" Drawn across: {}.", wanted.join("; "))
+            };
+            let caption = format!(
+                "The stage in the reference impedance: return loss at the input (solid) and output (dashed){band}, and the stability factor μ (unconditionally stable above the dotted line at 1; shaded where it is not).{wanted}"
+            );
+            out.push(Plot { name: "ports", caption, svg, file: None, max_width: None });
+        }
     }
     if let Some(svg) = a.step.as_ref().and_then(crate::report::port_plots::step) {
         out.push(Plot { name: "step", caption: "Step response from the exact poles and zeros, as a fraction of its final value: the 10 % and 90 % levels dashed, the settling band shaded.".into(), svg, file: None, max_width: None });

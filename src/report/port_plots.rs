@@ -12,9 +12,21 @@ use crate::analysis::step::StepReport;
 use crate::report::plots::{Axis, INK, MID, PALE, WIDTH, finish, frequency_panel, px};
 use crate::report::signal_plots::{Linear, linear_chart};
 
-/// Return loss at each port (solid: input, dashed: output) and μ (unconditionally stable
-/// above the dotted line at 1), over the sweep.
-pub fn ports(p: &PortsReport) -> Option<String> {
+/// The limits a ports plot draws: the least return loss asked at each port, the least μ.
+#[derive(Clone, Copy, Debug, Default)]
+pub struct PortLimits {
+    /// `input_return_loss.min`, dB.
+    pub input_return_loss_db: Option<f64>,
+    /// `output_return_loss.min`, dB.
+    pub output_return_loss_db: Option<f64>,
+    /// `stability.min`.
+    pub mu: Option<f64>,
+}
+
+/// Return loss at each port (solid: input, dashed: output) with the review band shaded and
+/// any required minimum drawn, and μ (unconditionally stable above the dotted line at 1; a
+/// required minimum above 1 drawn too), over the sweep.
+pub fn ports(p: &PortsReport, limits: PortLimits) -> Option<String> {
     if p.points.len() < 2 {
         return None;
     }
@@ -31,7 +43,13 @@ pub fn ports(p: &PortsReport) -> Option<String> {
     if rl.len() < 2 || mu.len() < 2 {
         return None;
     }
-    let top = rl.iter().map(|r| r.1.max(r.2)).fold(0.0, f64::max).min(60.0);
+    let asked = [limits.input_return_loss_db, limits.output_return_loss_db];
+    let top = rl
+        .iter()
+        .map(|r| r.1.max(r.2))
+        .chain(asked.into_iter().flatten())
+        .fold(0.0, f64::max)
+        .min(60.0);
     let top = ((top / 5.0).ceil() * 5.0).max(5.0);
     let mut svg = String::new();
     {
@@ -46,6 +64,25 @@ pub fn ports(p: &PortsReport) -> Option<String> {
             decimals: 1,
         };
         let mut chart = frequency_panel(&upper, (f0, f1), (0.0, top), axis)?;
+        if let Some(b) = &p.band {
+            chart
+                .draw_series(std::iter::once(Rectangle::new(
+                    [(b.from_hz.max(f0), 0.0), (b.to_hz.min(f1), top)],
+                    PALE.mix(0.45).filled(),
+                )))
+                .ok()?;
+        }
+        for (limit, gap) in asked.iter().zip([6, 2]) {
+            let Some(db) = limit.filter(|d| *d > 0.0 && *d <= top) else { continue };
+            chart
+                .draw_series(DashedLineSeries::new(
+                    [(f0, db), (f1, db)],
+                    px(gap),
+                    px(3),
+                    MID.stroke_width(px(1)),
+                ))
+                .ok()?;
+        }
         chart
             .draw_series(LineSeries::new(
                 rl.iter().map(|r| (r.0, r.1.min(top))),
@@ -84,6 +121,16 @@ pub fn ports(p: &PortsReport) -> Option<String> {
                 MID.stroke_width(px(1)),
             ))
             .ok()?;
+        if let Some(m) = limits.mu.filter(|m| *m > 1.0 && *m < 3.0) {
+            chart
+                .draw_series(DashedLineSeries::new(
+                    [(f0, m), (f1, m)],
+                    px(6),
+                    px(3),
+                    MID.stroke_width(px(1)),
+                ))
+                .ok()?;
+        }
         chart.draw_series(LineSeries::new(mu, INK.stroke_width(px(2)))).ok()?;
         root.present().ok()?;
     }
