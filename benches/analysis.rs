@@ -253,7 +253,12 @@ fn main() {
             analysis::requirements::with_study(&mut requirements, &study);
             let review = Review {
                 cautions: report::cautions::cautions(&d, &analysis),
-                explanation: report::explain::explain(&analysis, Some(&study), &fixed),
+                explanation: report::explain::explain(
+                    &analysis,
+                    Some(&study),
+                    &fixed,
+                    report::port_words::Asked::of(&d.requirements),
+                ),
                 analysis,
                 study: study.clone(),
                 requirements,

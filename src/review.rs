@@ -71,7 +71,8 @@ pub fn review(design: &Design, options: &ReviewOptions) -> Result<Review, Analys
     let cautions = cautions::cautions(design, &analysis);
     let fixed: Vec<String> =
         design.parts.iter().filter(|p| p.is_fixed()).map(|p| p.name.clone()).collect();
-    let explanation = explain::explain(&analysis, Some(&study), &fixed);
+    let asked = crate::report::port_words::Asked::of(&design.requirements);
+    let explanation = explain::explain(&analysis, Some(&study), &fixed, asked);
     Ok(Review { analysis, study, requirements: checks, cautions, explanation })
 }
 

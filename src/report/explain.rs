@@ -33,6 +33,8 @@ pub struct Explanation {
     pub noise: Vec<String>,
     /// Paragraphs about signal handling: swing, distortion, compression.
     pub signal: Vec<String>,
+    /// Paragraphs about the ports and the step: match, stability, rise and overshoot.
+    pub ports: Vec<String>,
 }
 
 fn pct(x: f64) -> String {
@@ -45,7 +47,12 @@ fn signed_pct(x: f64) -> String {
 
 /// The explanation for `a`, with the strongest levers when a tolerance study ran; `fixed`
 /// names the parts the design cannot change.
-pub fn explain(a: &Analysis, study: Option<&Study>, fixed: &[String]) -> Explanation {
+pub fn explain(
+    a: &Analysis,
+    study: Option<&Study>,
+    fixed: &[String],
+    asked: crate::report::port_words::Asked,
+) -> Explanation {
     let mut high = high(a, study, fixed);
     let mut low = low(a, study, fixed);
     if let Some(s) = study {
@@ -59,7 +66,13 @@ pub fn explain(a: &Analysis, study: Option<&Study>, fixed: &[String]) -> Explana
         noise.extend(levers(s, "noise_figure", "the noise figure", fixed));
     }
     let signal = a.large_signal.as_ref().map(crate::report::headroom::explain).unwrap_or_default();
-    Explanation { high, low, noise, signal }
+    let mut ports = crate::report::port_words::explain(a, asked);
+    if let Some(s) = study {
+        ports.extend(levers(s, "input_return_loss", "the input return loss", fixed));
+        ports.extend(levers(s, "output_return_loss", "the output return loss", fixed));
+        ports.extend(levers(s, "stability", "μ", fixed));
+    }
+    Explanation { high, low, noise, signal, ports }
 }
 
 /// Which source sets the noise, what the noise figure would be without it, what would

@@ -18,6 +18,7 @@ pub mod html;
 pub mod manifest;
 pub mod plots;
 pub mod port_plots;
+pub mod port_words;
 pub mod results;
 pub mod schematic;
 pub mod signal_plots;

@@ -272,9 +272,11 @@ pub fn render(
             "low" => &explanation.low,
             "noise" => &explanation.noise,
             "signal" => &explanation.signal,
+            "ports" => &explanation.ports,
             other => {
                 return Err(tera::Error::message(format!(
-                    "explanation side `{other}`: write `high`, `low`, `noise` or `signal`"
+                    "explanation side `{other}`: write `high`, `low`, `noise`, `signal` or \
+                     `ports`"
                 )));
             }
         };

@@ -1045,7 +1045,7 @@ def noise_review(ckt, spot_hz, band):
 # --------------------------------------------------------------------------------------------
 # Ports: the stage as a two-port in a reference impedance Z0, from its own admittance matrix
 
-MU_MARGIN = 1e-9  # μ this far under 1 counts as conditionally stable (tauweave's convention)
+MU_MARGIN = 1e-6  # μ this far under 1 counts as conditionally stable (tauweave's convention)
 # A product of unit-order S-parameters at or under this is rounding (tauweave's convention):
 # K needs |S12·S21| above it (else the stage is unilateral), μ its denominator above it (for a
 # unilateral stage with a lossless input μ is 0/0), and a VSWR |Γ| below 1 by more than it.

@@ -355,3 +355,35 @@ fn the_settling_band_is_the_design_s() {
     assert_eq!(s.settling_band, 1e-3);
     assert!((s.settling_time_s.unwrap() - tau * 1000f64.ln()).abs() <= 1e-9 * tau);
 }
+
+#[test]
+fn the_explanation_sets_the_overshoot_beside_its_pole_pair_and_the_match_beside_its_range() {
+    // The series RLC of ζ = 0.3: its one pole pair alone makes the step, so the overshoot
+    // a lone pair of that damping would give, e^(−πζ/√(1 − ζ²)) = 37.2 % (Ogata, from
+    // memory), is the exact one.
+    let r = 0.6 * (1e-6f64 / 1e-9).sqrt();
+    let text = format!(
+        "tauweave: 1\ndesign: {{id: td, title: time domain, revision: A, date: 2026-12-05}}\n\
+         signal: {{at: in, resistance: {r} Ω}}\noutput: {{at: out}}\nparts:\n\
+         \x20 L1: {{kind: inductor, value: 1 µH, between: [in, out]}}\n\
+         \x20 C1: {{kind: capacitor, value: 1 nF, between: [out, gnd], role: load}}\n\
+         requirements:\n  input_return_loss: {{min: 10 dB}}\n\
+         analysis: {{monte_carlo: {{runs: 0}}}}\n"
+    );
+    let review = reviewed(&text, 0);
+    let words = review.explanation.ports.join("\n");
+    assert!(
+        words.contains("overshoots by **37.2 %**")
+            && words.contains("damping ζ = 0.3,")
+            && words.contains("would overshoot by 37.2 %"),
+        "{words}"
+    );
+    // 10 dB in 50 Ω needs 26 … 96.2 Ω resistive (|Γ| = 10^(−1/2), by hand).
+    // Matched at the spot, not across the band: the sentence is about the band's worst point.
+    assert!(
+        words.contains(": to reach the required 10 dB it would have to look like 26 Ω … 96.2 Ω, resistive there"),
+        "{words}"
+    );
+    // A lossless two-port sits on μ = 1: not flagged.
+    assert!(review.analysis.ports.as_ref().unwrap().conditionally_stable().is_empty(), "{words}");
+}

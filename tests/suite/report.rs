@@ -246,7 +246,7 @@ fn explanation_of(parts: &str, output: &str) -> (String, analysis::Analysis) {
     let a = analysis::analyze(&d).expect("analysis");
     let fixed: Vec<String> =
         d.parts.iter().filter(|p| p.is_fixed()).map(|p| p.name.clone()).collect();
-    (report::explain::explain(&a, None, &fixed).high.join("\n"), a)
+    (report::explain::explain(&a, None, &fixed, Default::default()).high.join("\n"), a)
 }
 
 #[test]
