@@ -44,6 +44,8 @@ pub struct Review {
     pub cautions: Vec<Caution>,
     /// Which capacitor sets each cut-off, and which estimate to trust.
     pub explanation: Explanation,
+    /// The what-if answers: the sweeps and limits the design asks.
+    pub what_if: crate::analysis::what_if::WhatIfReport,
 }
 
 impl Review {
@@ -73,7 +75,8 @@ pub fn review(design: &Design, options: &ReviewOptions) -> Result<Review, Analys
         design.parts.iter().filter(|p| p.is_fixed()).map(|p| p.name.clone()).collect();
     let asked = crate::report::port_words::Asked::of(&design.requirements);
     let explanation = explain::explain(&analysis, Some(&study), &fixed, asked);
-    Ok(Review { analysis, study, requirements: checks, cautions, explanation })
+    let what_if = crate::analysis::what_if::review(design);
+    Ok(Review { analysis, study, requirements: checks, cautions, explanation, what_if })
 }
 
 #[cfg(test)]

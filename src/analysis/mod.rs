@@ -23,6 +23,7 @@ pub mod step;
 pub mod stress;
 pub mod time_constants;
 pub mod tolerance;
+pub mod what_if;
 
 use std::collections::BTreeMap;
 use std::f64::consts::PI;

@@ -40,12 +40,38 @@ pub fn run(args: &CheckArgs) -> Result<Outcome, Failure> {
         progress::review(design, runs).map_err(|e| Failure::Input(analysis_failure(&file, &e)))?;
     out(&analysis_text(&review.analysis))?;
     out(&requirements_text(&review.requirements, &review.study))?;
+    out(&what_if_text(&review.what_if))?;
     if review.failing() {
         let failing = review.failing_names();
         eprintln!("{}: fails {} at nominal values", file.name, failing.join(", "));
         return Ok(Outcome::Failing);
     }
     Ok(Outcome::Done)
+}
+
+/// The what-if block: each limit as a sentence, each sweep as a table.
+pub fn what_if_text(w: &crate::analysis::what_if::WhatIfReport) -> String {
+    use crate::report::what_if::{limit_sentence, sweep_rows};
+    let mut out = String::new();
+    if w.sweeps.is_empty() && w.limits.is_empty() {
+        return out;
+    }
+    out.push_str("\nwhat if\n");
+    for l in &w.limits {
+        let _ = writeln!(out, "  {}", limit_sentence(l).replace("**", "").replace('`', ""));
+    }
+    for s in &w.sweeps {
+        let _ = writeln!(out, "  {} swept", s.quantity);
+        let (header, rows) = sweep_rows(s);
+        let last = header.len() - 1;
+        let cols: Vec<(&str, Align)> = header
+            .iter()
+            .enumerate()
+            .map(|(i, h)| (h.as_str(), if i == last { Align::Left } else { Align::Right }))
+            .collect();
+        out.push_str(&render(4, &cols, &rows));
+    }
+    out
 }
 
 /// The requirement table: nominal, margin, worst corner, yield.

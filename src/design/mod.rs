@@ -42,11 +42,16 @@ impl Loaded {
 
 /// Reads and checks a design from its text.
 pub fn load(text: &str) -> Loaded {
+    load_with(text, &std::collections::BTreeMap::new())
+}
+
+/// [`load`] with some params replaced by SI values, their units kept (a what-if point).
+pub fn load_with(text: &str, overrides: &std::collections::BTreeMap<String, f64>) -> Loaded {
     let root = match yaml::parse(text) {
         Ok(root) => root,
         Err(d) => return Loaded { design: None, diagnostics: vec![*d] },
     };
-    let reader::Read { design, mut diagnostics } = reader::read(text, &root);
+    let reader::Read { design, mut diagnostics } = reader::read_with(text, &root, overrides);
     if let Some(d) = &design {
         diagnostics.extend(topology::check(d));
     }

@@ -226,6 +226,25 @@ pub fn design_schema() -> Value {
                 }
                 _ => object(MONTE_CARLO_KEYS, &[], |_| json!({"type": "integer", "minimum": 0})),
             }),
+            "what_if" => object(WHAT_IF_KEYS, &[], |k| match k {
+                "sweeps" => {
+                    json!({"type": "array", "items": object(SWEEP_SPEC_KEYS, &["vary"], |k| match k {
+                        "vary" => text("a param, a part's designator, `temperature` or a supply's node"),
+                        "points" => json!({"type": "integer", "minimum": 2, "maximum": 200}),
+                        "spacing" => enumeration("how the points are spread between from and to", &["linear", "log"]),
+                        "values" => json!({"type": "array", "items": quantity("a value in the quantity's unit")}),
+                        _ => quantity(k),
+                    })})
+                }
+                _ => {
+                    json!({"type": "array", "items": object(LIMIT_SPEC_KEYS, &["vary", "keeping"], |k| match k {
+                        "vary" => text("a param, a part's designator, `temperature` or a supply's node"),
+                        "keeping" => enumeration("the requirement that must keep passing", REQUIREMENT_KEYS),
+                        "precision" => quantity("relative precision of the answer, e.g. 0.1 %"),
+                        _ => quantity("how far to search from the nominal value"),
+                    })})
+                }
+            }),
             _ => json!({}),
         }
     });

@@ -40,6 +40,12 @@ pub struct Design {
     pub requirements: Requirements,
     /// Sweep and Monte Carlo settings.
     pub analysis: AnalysisSettings,
+    /// The what-if questions: sweeps and limits.
+    pub what_if: WhatIf,
+    /// The text the design was read from, so a param can be replaced and the design read
+    /// again (shared, not copied).
+    #[serde(skip)]
+    pub source: std::sync::Arc<str>,
     /// Where each key was written, by dotted path (`parts.R1.value`), for later messages.
     /// Shared, not copied, by the perturbed copies tolerance work makes of a design.
     #[serde(skip)]
@@ -535,6 +541,62 @@ impl Requirements {
     pub fn count(&self) -> usize {
         self.items().iter().filter(|(_, l)| l.is_some()).count()
     }
+}
+
+/// A quantity a what-if study varies.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Varied {
+    /// A param: the design is read again with it replaced, so everything computed from it
+    /// follows.
+    Param(String),
+    /// A part's value, by designator.
+    Part(String),
+    /// The junction temperature.
+    Temperature,
+    /// A supply's voltage, by its node.
+    Supply(String),
+}
+
+/// A sweep: every figure at each of `values`.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct SweepSpec {
+    /// What varies.
+    pub varied: Varied,
+    /// Its name as written (`cable_length`, `RE1`, `temperature`, `vcc`).
+    pub name: String,
+    /// Its SI unit symbol (`m`, `Ω`, `K`, `V`; empty for a pure number).
+    pub unit: String,
+    /// The values, SI, in the order given.
+    pub values: Vec<f64>,
+    /// True when the values are log-spaced (plots use a log axis).
+    pub log: bool,
+}
+
+/// A limit: how far `varied` can go before `requirement` stops passing.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct LimitSpec {
+    /// What varies.
+    pub varied: Varied,
+    /// Its name as written.
+    pub name: String,
+    /// Its SI unit symbol.
+    pub unit: String,
+    /// The requirement that must keep passing.
+    pub requirement: &'static str,
+    /// How far to search from the nominal value (`up_to` or `down_to`), SI.
+    pub bound: f64,
+    /// The relative precision of the answer.
+    pub precision: f64,
+}
+
+/// The what-if questions the design asks.
+#[derive(Clone, Debug, Default, PartialEq, Serialize)]
+pub struct WhatIf {
+    /// Sweeps, in file order.
+    pub sweeps: Vec<SweepSpec>,
+    /// Limits, in file order.
+    pub limits: Vec<LimitSpec>,
 }
 
 /// Sweep and Monte Carlo settings.

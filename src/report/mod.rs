@@ -26,6 +26,7 @@ pub mod tables;
 pub mod template;
 pub mod typst;
 pub mod view;
+pub mod what_if;
 pub mod write;
 
 use sha2::{Digest, Sha256};
@@ -147,8 +148,22 @@ fn page(
     if let Some(drawn) = drawn {
         plots.insert(0, drawn);
     }
+    for (name, s) in crate::report::what_if::SWEEP_PLOTS.iter().zip(&review.what_if.sweeps) {
+        if let Some(svg) = crate::report::what_if::plot(s, &design.requirements) {
+            let caption = format!(
+                "What if `{}` moves: each limited figure at every swept value (dots), its \
+                 requirement's limits dashed.",
+                s.quantity
+            );
+            plots.push(plots::Plot { name, caption, svg, file: None, max_width: None });
+        }
+    }
+    let mut tables = tables::all(design, a, checks, study);
+    if let Some(t) = crate::report::what_if::markdown(&review.what_if) {
+        tables.insert("what_if", t);
+    }
     let blocks = Blocks {
-        tables: tables::all(design, a, checks, study),
+        tables,
         known_tables: tables::TABLES.iter().map(|(n, _)| *n).collect(),
         plots: plots.iter().map(|p| p.name).collect(),
         known_plots: plots::PLOTS.to_vec(),

@@ -142,6 +142,10 @@ pub const PLOTS: &[&str] = &[
     "step",
     "tornado",
     "histograms",
+    "what_if",
+    "what_if_2",
+    "what_if_3",
+    "what_if_4",
 ];
 
 /// Every plot of the review.

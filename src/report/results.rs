@@ -637,6 +637,47 @@ pub struct ContributorResults {
     pub band_share: Option<f64>,
 }
 
+/// `sweeps[]`: one what-if sweep.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct SweepResults {
+    /// The swept quantity, as the design names it.
+    pub quantity: String,
+    /// Its SI unit (empty for a pure number).
+    pub unit: String,
+    /// True for log-spaced values.
+    pub log: bool,
+    /// The values, SI.
+    pub values: Vec<f64>,
+    /// Each figure (results.json's requirement names) at each value; null where it could not
+    /// be computed.
+    pub figures: std::collections::BTreeMap<String, Vec<Option<f64>>>,
+    /// The limited requirements failing at each value (null: not evaluated there).
+    pub failing: Vec<Option<Vec<String>>>,
+}
+
+/// `limits[]`: how far a quantity can go before a requirement fails.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct LimitResults {
+    /// The varied quantity.
+    pub quantity: String,
+    /// Its SI unit.
+    pub unit: String,
+    /// The requirement kept passing.
+    pub requirement: String,
+    /// The last passing value, SI (null unless `outcome` is `reached`).
+    pub value: Option<f64>,
+    /// The nominal value, SI.
+    pub nominal: f64,
+    /// (value − nominal)/|nominal|.
+    pub margin: Option<f64>,
+    /// The end of the search, SI.
+    pub bound: f64,
+    /// Relative precision of `value`.
+    pub precision: f64,
+    /// `reached`, `not_reached` (still passing at `bound`) or `fails_at_nominal`.
+    pub outcome: String,
+}
+
 /// `step`: the step response from the exact poles and zeros.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct StepResults {
@@ -992,6 +1033,13 @@ pub struct ResultsDocument {
     /// The group delay across the band.
     #[serde(default)]
     pub group_delay: Option<GroupDelayResults>,
+    /// What-if sweeps: every figure at each value of a swept quantity (empty when the
+    /// design asks none).
+    #[serde(default)]
+    pub sweeps: Vec<SweepResults>,
+    /// What-if limits: how far a quantity can go before a requirement fails.
+    #[serde(default)]
+    pub limits: Vec<LimitResults>,
     /// Each requirement at nominal values, at its tolerance corner and its yield.
     pub requirements: Vec<RequirementResults>,
     /// Normalised sensitivities of every figure to every lever.
@@ -1137,6 +1185,44 @@ pub fn document(
             max_s: g.max_s,
             variation_s: g.variation_s(),
         }),
+        sweeps: review
+            .what_if
+            .sweeps
+            .iter()
+            .map(|s| SweepResults {
+                quantity: s.quantity.clone(),
+                unit: s.unit.clone(),
+                log: s.log,
+                values: s.values.clone(),
+                figures: s.figures.iter().cloned().collect(),
+                failing: s
+                    .failing
+                    .iter()
+                    .map(|f| f.as_ref().map(|f| f.iter().map(|n| n.to_string()).collect()))
+                    .collect(),
+            })
+            .collect(),
+        limits: review
+            .what_if
+            .limits
+            .iter()
+            .map(|l| LimitResults {
+                quantity: l.quantity.clone(),
+                unit: l.unit.clone(),
+                requirement: l.requirement.to_string(),
+                value: l.value,
+                nominal: l.nominal,
+                margin: l.margin,
+                bound: l.bound,
+                precision: l.precision,
+                outcome: match l.outcome {
+                    crate::analysis::what_if::Outcome::Reached => "reached",
+                    crate::analysis::what_if::Outcome::NotReached => "not_reached",
+                    crate::analysis::what_if::Outcome::FailsAtNominal => "fails_at_nominal",
+                }
+                .to_string(),
+            })
+            .collect(),
         requirements: review.requirements.iter().map(requirement).collect(),
         sensitivity: Some(sensitivity(&review.study)),
         tolerance: Some(tolerance_summary(&review.study)),

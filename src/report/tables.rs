@@ -45,6 +45,7 @@ pub const TABLES: &[(&str, &str)] = &[
         "requirements",
         "each requirement: nominal value, pass or fail, margin, worst-case corner, yield",
     ),
+    ("what_if", "what-if: each limit as a sentence, each sweep's figures at every value"),
     ("sensitivity", "normalised sensitivities of gain and cut-offs to every lever, largest first"),
     ("worst_case", "linearised worst-case bound beside the evaluated corners"),
     ("monte_carlo", "Monte Carlo mean, spread and percentiles of each figure"),
@@ -857,7 +858,8 @@ pub fn figure_label(key: &str) -> String {
     }
 }
 
-fn figure_value(key: &str, v: f64) -> String {
+/// A figure's value as text in its unit: `20.4 dB`, `1.275 MHz`, `3 %`.
+pub fn figure_value(key: &str, v: f64) -> String {
     match key {
         "midband_gain" => format!("{} V/V", plain(v, 4)),
         "gain_flatness" => format!("{} dB", plain(v, 3)),

@@ -13,9 +13,9 @@ use crate::notation::si;
 use crate::report::explain::Explanation;
 use crate::report::results::{
     CapacitorResults, CautionResults, GroupDelayResults, HighResults, LargeSignalResults,
-    LowResults, MidbandResults, NoiseResults, OperatingPointResults, PortsResults, Provenance,
-    RequirementResults, ResultsDocument, RootResults, RootWindowResults, SensitivityResults,
-    StepResults, ToleranceSummary, Tool,
+    LimitResults, LowResults, MidbandResults, NoiseResults, OperatingPointResults, PortsResults,
+    Provenance, RequirementResults, ResultsDocument, RootResults, RootWindowResults,
+    SensitivityResults, StepResults, SweepResults, ToleranceSummary, Tool,
 };
 use crate::report::template::MARKER;
 
@@ -161,6 +161,10 @@ pub struct View<'a> {
     pub step: &'a Option<StepResults>,
     /// The group delay across the band.
     pub group_delay: &'a Option<GroupDelayResults>,
+    /// What-if sweeps.
+    pub sweeps: &'a [SweepResults],
+    /// What-if limits.
+    pub limits: &'a [LimitResults],
     /// Requirements at nominal values, corners and yields.
     pub requirements: &'a [RequirementResults],
     /// Sensitivities.
@@ -198,6 +202,8 @@ impl<'a> View<'a> {
             ports: &doc.ports,
             step: &doc.step,
             group_delay: &doc.group_delay,
+            sweeps: &doc.sweeps,
+            limits: &doc.limits,
             requirements: &doc.requirements,
             sensitivity: &doc.sensitivity,
             tolerance: &doc.tolerance,

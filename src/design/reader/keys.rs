@@ -15,7 +15,14 @@ pub const TOP_KEYS: &[&str] = &[
     "models",
     "requirements",
     "analysis",
+    "what_if",
 ];
+/// Keys of `what_if`.
+pub const WHAT_IF_KEYS: &[&str] = &["sweeps", "limits"];
+/// Keys of one sweep.
+pub const SWEEP_SPEC_KEYS: &[&str] = &["vary", "from", "to", "points", "spacing", "values"];
+/// Keys of one limit.
+pub const LIMIT_SPEC_KEYS: &[&str] = &["vary", "keeping", "up_to", "down_to", "precision"];
 /// Keys of `design`.
 pub const META_KEYS: &[&str] =
     &["id", "title", "revision", "date", "author", "purpose", "schematic"];

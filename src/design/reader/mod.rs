@@ -18,6 +18,7 @@ mod settings;
 #[cfg(test)]
 mod unit_tests;
 mod values;
+mod what_if;
 
 pub use keys::*;
 
@@ -176,7 +177,14 @@ pub struct Read {
 /// even when, say, the date is malformed; it is usable only when `diagnostics` holds no
 /// error.
 pub fn read(text: &str, root: &Node) -> Read {
+    read_with(text, root, &BTreeMap::new())
+}
+
+/// [`read`] with some params replaced by SI values (their units kept): what a param sweep
+/// reads at each point.
+pub fn read_with(text: &str, root: &Node, overrides: &BTreeMap<String, f64>) -> Read {
     let mut r = Reader {
+        overrides,
         text,
         diagnostics: Vec::new(),
         params: BTreeMap::new(),
@@ -189,6 +197,8 @@ pub fn read(text: &str, root: &Node) -> Read {
 }
 
 struct Reader<'t> {
+    /// Params replaced by SI values.
+    overrides: &'t BTreeMap<String, f64>,
     text: &'t str,
     diagnostics: Vec<Diagnostic>,
     params: BTreeMap<String, Value>,
@@ -284,6 +294,13 @@ impl Reader<'_> {
         let requirements =
             self.requirements(top.get_entry("requirements"), has_band, has_amplitude);
         let analysis = self.analysis(top.get_entry("analysis"));
+        let what_if = self.what_if(
+            top.get_entry("what_if"),
+            &parts,
+            &supplies,
+            &requirements,
+            temperature_k.unwrap_or(300.15),
+        );
         top.finish(&mut self.diagnostics);
         self.unused_models(root, &models, &parts);
         self.unused_params(root);
@@ -315,6 +332,8 @@ impl Reader<'_> {
             models,
             requirements,
             analysis: analysis.unwrap_or_else(AnalysisSettings::defaults),
+            what_if,
+            source: std::sync::Arc::from(self.text),
             places: std::sync::Arc::new(std::mem::take(&mut self.places)),
         })
     }

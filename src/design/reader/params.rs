@@ -127,7 +127,10 @@ impl Reader<'_> {
             return; // the failing dependency was reported already
         }
         match quantity::evaluate(&text, &self.params) {
-            Ok(v) => {
+            Ok(mut v) => {
+                if let Some(&si) = self.overrides.get(name) {
+                    v.si = si;
+                }
                 self.params.insert(name.to_string(), v);
                 self.places.insert(format!("params.{name}"), key.span);
             }

@@ -1,0 +1,213 @@
+//! The what-if answers as text, tables and plots: each limit as a sentence (how far the
+//! quantity can go before its requirement fails), each sweep as a table of every figure at
+//! every value with the requirements that fail there, and as a plot of the limited figures
+//! against the swept quantity with their limits drawn.
+//!
+//! In: the [`WhatIfReport`] and the design's requirements. Out: strings and SVG. No I/O.
+
+use plotters::prelude::*;
+
+use crate::analysis::what_if::{LimitResult, Outcome, SweepResult, WhatIfReport};
+use crate::design::Requirements;
+use crate::notation::{plain, si, signed_percent};
+use crate::report::plots::{INK, MID, WIDTH, finish, px};
+use crate::report::signal_plots::{Linear, linear_chart};
+use crate::report::tables::{figure_label, figure_value, markdown_table, requirement_words};
+
+/// The plot names of the first sweeps, in order (a review shows at most this many).
+pub const SWEEP_PLOTS: [&str; 4] = ["what_if", "what_if_2", "what_if_3", "what_if_4"];
+/// The most figures one sweep plot stacks.
+const PANELS: usize = 4;
+
+fn value(v: f64, unit: &str) -> String {
+    if unit.is_empty() { plain(v, 4) } else { si(v, unit, 4) }
+}
+
+/// A limit as a sentence.
+pub fn limit_sentence(l: &LimitResult) -> String {
+    let what = requirement_words(l.requirement);
+    let nominal = value(l.nominal, &l.unit);
+    let way = if l.bound > l.nominal { "rise" } else { "fall" };
+    match (l.outcome, l.value) {
+        (Outcome::Reached, Some(v)) => format!(
+            "`{}` can {way} from {nominal} to **{}** ({}) before the {what} requirement fails \
+             (to {} %, {} evaluations).",
+            l.quantity,
+            value(v, &l.unit),
+            l.margin.map_or(String::new(), |m| signed_percent(m, 3)),
+            plain(100.0 * l.precision, 2),
+            l.evaluations
+        ),
+        (Outcome::FailsAtNominal, _) => format!(
+            "The {what} requirement fails already at `{}` = {nominal}: there is no room to move.",
+            l.quantity
+        ),
+        _ => format!(
+            "`{}` can {way} from {nominal} all the way to {}, the end of the search, and the \
+             {what} requirement still passes: not reached within the range.",
+            l.quantity,
+            value(l.bound, &l.unit)
+        ),
+    }
+}
+
+/// A sweep's header and rows: the value, each figure, and the requirements failing there.
+pub fn sweep_rows(s: &SweepResult) -> (Vec<String>, Vec<Vec<String>>) {
+    let mut header = vec![if s.unit.is_empty() {
+        s.quantity.clone()
+    } else {
+        format!("{} ({})", s.quantity, s.unit)
+    }];
+    header.extend(s.figures.iter().map(|(k, _)| figure_label(k)));
+    header.push("requirements".into());
+    let rows = s
+        .values
+        .iter()
+        .enumerate()
+        .map(|(i, &x)| {
+            let mut row = vec![value(x, &s.unit)];
+            row.extend(
+                s.figures
+                    .iter()
+                    .map(|(k, v)| v[i].map_or("—".to_string(), |v| figure_value(k, v))),
+            );
+            row.push(match &s.failing[i] {
+                None => "not evaluated".into(),
+                Some(f) if f.is_empty() => "pass".into(),
+                Some(f) => {
+                    let names: Vec<String> = f.iter().map(|n| figure_label(n)).collect();
+                    format!("FAIL {}", names.join(", "))
+                }
+            });
+            row
+        })
+        .collect();
+    (header, rows)
+}
+
+/// The `what_if` table: the limits as sentences, then each sweep's table.
+pub fn markdown(w: &WhatIfReport) -> Option<String> {
+    if w.sweeps.is_empty() && w.limits.is_empty() {
+        return None;
+    }
+    let mut out = String::new();
+    for l in &w.limits {
+        out.push_str(&format!("- {}\n", limit_sentence(l)));
+    }
+    for s in &w.sweeps {
+        let (header, rows) = sweep_rows(s);
+        let head: Vec<&str> = header.iter().map(String::as_str).collect();
+        let align: String =
+            std::iter::once('r').chain(s.figures.iter().map(|_| 'r')).chain(['l']).collect();
+        if !out.is_empty() {
+            out.push('\n');
+        }
+        out.push_str(&format!("**{} swept, {} points**\n\n", s.quantity, s.values.len()));
+        out.push_str(&markdown_table(&head, &align, rows));
+    }
+    Some(out)
+}
+
+/// The figures a sweep plot shows: those a requirement limits — the ones that fail
+/// somewhere in the sweep first, then the ones that move most — else the gain and the
+/// upper cut-off; at most [`PANELS`], in the review's order.
+fn shown<'s>(s: &'s SweepResult, req: &Requirements) -> Vec<&'s (String, Vec<Option<f64>>)> {
+    let limited: Vec<&str> =
+        req.items().iter().filter(|(_, l)| l.is_some()).map(|(n, _)| *n).collect();
+    let fails = |k: &str| s.failing.iter().flatten().any(|f| f.contains(&k));
+    let spread = |v: &[Option<f64>]| {
+        let vals: Vec<f64> = v.iter().flatten().map(|x| x.abs()).collect();
+        let (lo, hi) = vals.iter().fold((f64::INFINITY, 0.0f64), |(a, b), &x| (a.min(x), b.max(x)));
+        if lo > 0.0 { hi / lo } else { f64::INFINITY }
+    };
+    let mut ranked: Vec<(usize, &(String, Vec<Option<f64>>))> =
+        s.figures.iter().enumerate().filter(|(_, (k, _))| limited.contains(&k.as_str())).collect();
+    ranked.sort_by(|a, b| {
+        fails(&b.1.0)
+            .cmp(&fails(&a.1.0))
+            .then(spread(&b.1.1).total_cmp(&spread(&a.1.1)))
+            .then(a.0.cmp(&b.0))
+    });
+    ranked.truncate(PANELS);
+    ranked.sort_by_key(|(i, _)| *i);
+    let mut out: Vec<_> = ranked.into_iter().map(|(_, f)| f).collect();
+    if out.is_empty() {
+        out =
+            s.figures.iter().filter(|(k, _)| k == "midband_gain" || k == "upper_cutoff").collect();
+    }
+    out
+}
+
+/// A sweep's plot: each shown figure in its own panel against the swept quantity (a log axis
+/// for a log sweep), its requirement's limits dashed.
+pub fn plot(s: &SweepResult, req: &Requirements) -> Option<String> {
+    let panels = shown(s, req);
+    if panels.is_empty() || s.values.len() < 2 {
+        return None;
+    }
+    let x_of = |v: f64| if s.log { v.log10() } else { v };
+    let (x0, x1) = s
+        .values
+        .iter()
+        .map(|&v| x_of(v))
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| (a.min(v), b.max(v)));
+    if x1.partial_cmp(&x0) != Some(std::cmp::Ordering::Greater) {
+        return None;
+    }
+    let height = 200;
+    let mut svg = String::new();
+    {
+        let total = (height * panels.len()) as u32;
+        let root = SVGBackend::with_string(&mut svg, (px(WIDTH), px(total))).into_drawing_area();
+        root.fill(&WHITE).ok()?;
+        let areas = root.split_evenly((panels.len(), 1));
+        let unit = s.unit.clone();
+        let log = s.log;
+        let x_label = move |v: &f64| {
+            let x = if log { 10f64.powf(*v) } else { *v };
+            if unit.is_empty() { plain(x, 3) } else { si(x, &unit, 3) }
+        };
+        for (area, (key, ys)) in areas.iter().zip(&panels) {
+            let limits = req.items().into_iter().find(|(n, _)| n == key).and_then(|(_, l)| l);
+            let points: Vec<(f64, f64)> =
+                s.values.iter().zip(ys).filter_map(|(&x, y)| Some((x_of(x), (*y)?))).collect();
+            if points.is_empty() {
+                continue;
+            }
+            let mut lo = points.iter().map(|p| p.1).fold(f64::INFINITY, f64::min);
+            let mut hi = points.iter().map(|p| p.1).fold(f64::NEG_INFINITY, f64::max);
+            for v in limits.iter().flat_map(|l| [l.min, l.max]).flatten() {
+                lo = lo.min(v);
+                hi = hi.max(v);
+            }
+            let pad = ((hi - lo) * 0.08).max(hi.abs() * 1e-3).max(1e-300);
+            let (lo, hi) = (lo - pad, hi + pad);
+            let k = key.clone();
+            let y_label = move |v: &f64| figure_value(&k, *v);
+            let mut chart = linear_chart(
+                area,
+                Linear {
+                    x: (x0, x1),
+                    y: (lo, hi),
+                    ticks: (6, 5),
+                    labels: (&x_label, &y_label),
+                    names: (s.quantity.clone(), figure_label(key)),
+                },
+            )?;
+            for v in limits.iter().flat_map(|l| [l.min, l.max]).flatten() {
+                chart
+                    .draw_series(DashedLineSeries::new(
+                        [(x0, v), (x1, v)],
+                        px(6),
+                        px(4),
+                        MID.stroke_width(px(1)),
+                    ))
+                    .ok()?;
+            }
+            chart.draw_series(LineSeries::new(points.clone(), INK.stroke_width(px(2)))).ok()?;
+            chart.draw_series(points.iter().map(|&p| Circle::new(p, px(3), INK.filled()))).ok()?;
+        }
+        root.present().ok()?;
+    }
+    Some(finish(svg))
+}
