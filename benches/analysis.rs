@@ -259,6 +259,7 @@ fn main() {
                     &fixed,
                     report::port_words::Asked::of(&d.requirements),
                 ),
+                what_if: analysis::what_if::review(&d),
                 analysis,
                 study: study.clone(),
                 requirements,
@@ -273,6 +274,35 @@ fn main() {
             t.as_secs_f64() * 1e3,
             t_without.as_secs_f64() * 1e3
         );
+    }
+    println!("\nwhat-if on the demo, one core: a 20-point sweep and a limit solve of cable_length");
+    {
+        let text = std::fs::read_to_string(format!("{root}/designs/rx-preamp-ce.yaml")).unwrap();
+        let base = design::load(&text).design.expect("valid design");
+        let spec = |sweeps: bool, limits: bool| {
+            let mut d = base.clone();
+            if !sweeps {
+                d.what_if.sweeps.clear();
+            } else {
+                let s = &mut d.what_if.sweeps[0];
+                s.values = (0..20).map(|k| 1.0 * 20f64.powf(k as f64 / 19.0)).collect();
+            }
+            if !limits {
+                d.what_if.limits.clear();
+            }
+            d
+        };
+        let one = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap();
+        for (label, d) in
+            [("20-point sweep", spec(true, false)), ("limit solve", spec(false, true))]
+        {
+            let (t, runs) = median(
+                || one.install(|| drop(black_box(analysis::what_if::review(&d)))),
+                Duration::from_secs(2),
+                200,
+            );
+            println!("  {label:<28} {:>10.3} ms  ({runs} runs)", t.as_secs_f64() * 1e3);
+        }
     }
     println!(
         "\nMonte Carlo: full evaluations (bias, mid-band, time constants, exact cut-offs) per second, all cores"

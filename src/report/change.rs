@@ -277,7 +277,9 @@ fn requirement_of(key: &str) -> Option<&str> {
         "/group_delay/variation_s" => Some("group_delay_variation"),
         _ => None,
     };
-    own.or_else(|| {
+    // A what-if limit bears on the requirement it keeps: `limit QUANTITY REQUIREMENT`.
+    let limit = key.strip_prefix("limit ").and_then(|rest| rest.rsplit(' ').next());
+    own.or(limit).or_else(|| {
         ["margin ", "corner ", "yield "]
             .iter()
             .find_map(|p| key.strip_prefix(p))
@@ -858,6 +860,25 @@ fn figures(doc: &ResultsDocument) -> Vec<Figure> {
         ] {
             push(key.into(), label.into(), unit, value);
         }
+    }
+    for l in &doc.limits {
+        let unit = match l.unit.as_str() {
+            "m" => "m",
+            "Ω" => "Ω",
+            "F" => "F",
+            "H" => "H",
+            "K" => "K",
+            "V" => "V",
+            "S" => "S",
+            _ => NUMBER,
+        };
+        let words = crate::report::tables::requirement_words(&l.requirement);
+        push(
+            format!("limit {} {}", l.quantity, l.requirement),
+            format!("how far {} can go, keeping {words}", l.quantity),
+            unit,
+            l.value,
+        );
     }
     if let Some(op) = &doc.operating_point {
         for (k, x) in op.nodes.iter().filter(|(k, _)| !k.contains('.') && *k != "source") {

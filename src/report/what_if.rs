@@ -108,10 +108,13 @@ pub fn markdown(w: &WhatIfReport) -> Option<String> {
     Some(out)
 }
 
+/// A figure's name and its value at each point of a sweep.
+type Series = (String, Vec<Option<f64>>);
+
 /// The figures a sweep plot shows: those a requirement limits — the ones that fail
 /// somewhere in the sweep first, then the ones that move most — else the gain and the
 /// upper cut-off; at most [`PANELS`], in the review's order.
-fn shown<'s>(s: &'s SweepResult, req: &Requirements) -> Vec<&'s (String, Vec<Option<f64>>)> {
+fn shown<'s>(s: &'s SweepResult, req: &Requirements) -> Vec<&'s Series> {
     let limited: Vec<&str> =
         req.items().iter().filter(|(_, l)| l.is_some()).map(|(n, _)| *n).collect();
     let fails = |k: &str| s.failing.iter().flatten().any(|f| f.contains(&k));
@@ -120,7 +123,7 @@ fn shown<'s>(s: &'s SweepResult, req: &Requirements) -> Vec<&'s (String, Vec<Opt
         let (lo, hi) = vals.iter().fold((f64::INFINITY, 0.0f64), |(a, b), &x| (a.min(x), b.max(x)));
         if lo > 0.0 { hi / lo } else { f64::INFINITY }
     };
-    let mut ranked: Vec<(usize, &(String, Vec<Option<f64>>))> =
+    let mut ranked: Vec<(usize, &Series)> =
         s.figures.iter().enumerate().filter(|(_, (k, _))| limited.contains(&k.as_str())).collect();
     ranked.sort_by(|a, b| {
         fails(&b.1.0)

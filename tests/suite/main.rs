@@ -23,3 +23,4 @@ mod supplies;
 mod support;
 mod tolerance;
 mod watch;
+mod what_if;
