@@ -78,9 +78,27 @@ pub struct LimitResult {
     pub evaluations: usize,
 }
 
+/// One operating corner: the temperature and each ranged supply, and every figure there.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct CornerResult {
+    /// A short name: `nominal`, or each ranged quantity at its `low` or `high` end.
+    pub label: String,
+    /// The junction temperature, K.
+    pub temperature_k: f64,
+    /// Each supply's voltage at this corner (node, V), in the design's order.
+    pub supplies: Vec<(String, f64)>,
+    /// Each figure (requirement names, then each transistor's `NAME.bias_current`), None
+    /// where it could not be computed.
+    pub figures: Vec<(String, Option<f64>)>,
+    /// The limited requirements failing here (None: the design could not be evaluated).
+    pub failing: Option<Vec<&'static str>>,
+}
+
 /// Every what-if answer of a design.
 #[derive(Clone, Debug, Default, PartialEq, Serialize)]
 pub struct WhatIfReport {
+    /// The nominal point first, then every combination of the ranges' ends.
+    pub corners: Vec<CornerResult>,
     /// In the design's order.
     pub sweeps: Vec<SweepResult>,
     /// In the design's order.
@@ -178,7 +196,7 @@ fn margin(design: &Design, requirement: &str, m: Option<&Metrics>) -> f64 {
 /// Every sweep and limit the design asks.
 pub fn review(design: &Design) -> WhatIfReport {
     let w = &design.what_if;
-    if w.sweeps.is_empty() && w.limits.is_empty() {
+    if w.sweeps.is_empty() && w.limits.is_empty() && w.corners.is_empty() {
         return WhatIfReport::default();
     }
     let keys: Vec<Figure> = crate::analysis::metrics(design)
@@ -209,7 +227,58 @@ pub fn review(design: &Design) -> WhatIfReport {
         })
         .collect();
     let limits = w.limits.iter().filter_map(|l| limit(design, l)).collect();
-    WhatIfReport { sweeps, limits }
+    WhatIfReport { corners: corners(design), sweeps, limits }
+}
+
+/// The nominal point, then each combination of the ranges' ends (the first range varying
+/// slowest): every figure and bias current there.
+fn corners(design: &Design) -> Vec<CornerResult> {
+    let ranges = &design.what_if.corners;
+    if ranges.is_empty() {
+        return Vec::new();
+    }
+    let mut settings: Vec<Vec<Option<usize>>> = vec![vec![None; ranges.len()]];
+    for k in 0..1usize << ranges.len() {
+        settings.push((0..ranges.len()).map(|i| Some((k >> (ranges.len() - 1 - i)) & 1)).collect());
+    }
+    let nominal = crate::analysis::metrics(design).ok();
+    let names = crate::analysis::evaluate::operating_point(design)
+        .map(|op| op.devices.iter().map(|d| d.part.clone()).collect::<Vec<_>>())
+        .unwrap_or_default();
+    let keys: Vec<Figure> = nominal
+        .as_ref()
+        .map(|m| {
+            let mut k: Vec<Figure> =
+                figures(m).into_iter().filter(|f| !matches!(f, Figure::Bias(_))).collect();
+            k.extend((0..m.bias.len()).map(Figure::Bias));
+            k
+        })
+        .unwrap_or_default();
+    settings
+        .par_iter()
+        .map(|ends| {
+            let mut d = Some(design.clone());
+            let mut label = Vec::new();
+            for (r, end) in ranges.iter().zip(ends) {
+                if let Some(e) = end {
+                    d = d.and_then(|d| at(&d, &r.varied, r.ends[*e]));
+                    label.push(format!("{} {}", r.name, if *e == 0 { "low" } else { "high" }));
+                }
+            }
+            let d = d.unwrap_or_else(|| design.clone());
+            let m = crate::analysis::metrics(&d).ok();
+            CornerResult {
+                label: if label.is_empty() { "nominal".into() } else { label.join(", ") },
+                temperature_k: d.temperature_k,
+                supplies: d.supplies.iter().map(|s| (s.node.clone(), s.voltage.nominal)).collect(),
+                figures: keys
+                    .iter()
+                    .map(|f| (f.key(&names), m.as_ref().and_then(|m| f.of(m))))
+                    .collect(),
+                failing: m.as_ref().map(|m| failing(design, m)),
+            }
+        })
+        .collect()
 }
 
 /// Where `l.requirement` stops passing as `l.varied` moves from its nominal value toward

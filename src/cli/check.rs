@@ -51,12 +51,22 @@ pub fn run(args: &CheckArgs) -> Result<Outcome, Failure> {
 
 /// The what-if block: each limit as a sentence, each sweep as a table.
 pub fn what_if_text(w: &crate::analysis::what_if::WhatIfReport) -> String {
-    use crate::report::what_if::{limit_sentence, sweep_rows};
+    use crate::report::what_if::{corner_rows, limit_sentence, sweep_rows};
     let mut out = String::new();
-    if w.sweeps.is_empty() && w.limits.is_empty() {
+    if w.sweeps.is_empty() && w.limits.is_empty() && w.corners.is_empty() {
         return out;
     }
     out.push_str("\nwhat if\n");
+    if !w.corners.is_empty() {
+        let _ = writeln!(out, "  operating corners");
+        let (header, rows) = corner_rows(&w.corners);
+        let cols: Vec<(&str, Align)> = header
+            .iter()
+            .enumerate()
+            .map(|(i, h)| (h.as_str(), if i == 0 { Align::Left } else { Align::Right }))
+            .collect();
+        out.push_str(&render(4, &cols, &rows));
+    }
     for l in &w.limits {
         let _ = writeln!(out, "  {}", limit_sentence(l).replace("**", "").replace('`', ""));
     }

@@ -227,6 +227,11 @@ pub fn design_schema() -> Value {
                 _ => object(MONTE_CARLO_KEYS, &[], |_| json!({"type": "integer", "minimum": 0})),
             }),
             "what_if" => object(WHAT_IF_KEYS, &[], |k| match k {
+                "corners" => json!({
+                    "type": "object",
+                    "description": "operating ranges: `temperature` or a supply's node, each {from, to}",
+                    "additionalProperties": object(RANGE_KEYS, &["from", "to"], |k| quantity(if k == "from" { "the low end" } else { "the high end" }))
+                }),
                 "sweeps" => {
                     json!({"type": "array", "items": object(SWEEP_SPEC_KEYS, &["vary"], |k| match k {
                         "vary" => text("a param, a part's designator, `temperature` or a supply's node"),

@@ -590,9 +590,23 @@ pub struct LimitSpec {
     pub precision: f64,
 }
 
+/// An operating range: the quantity and its two ends, SI.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Range {
+    /// `Temperature` or a `Supply`.
+    pub varied: Varied,
+    /// Its name as written.
+    pub name: String,
+    /// The low and high ends, SI.
+    pub ends: [f64; 2],
+}
+
 /// The what-if questions the design asks.
 #[derive(Clone, Debug, Default, PartialEq, Serialize)]
 pub struct WhatIf {
+    /// Operating ranges of the temperature and the supplies: the review evaluates every
+    /// requirement at each combination of their ends, and at nominal.
+    pub corners: Vec<Range>,
     /// Sweeps, in file order.
     pub sweeps: Vec<SweepSpec>,
     /// Limits, in file order.

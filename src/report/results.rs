@@ -637,6 +637,24 @@ pub struct ContributorResults {
     pub band_share: Option<f64>,
 }
 
+/// `corners[]`: one operating corner.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct CornerResults {
+    /// `nominal`, or each ranged quantity at its `low` or `high` end.
+    pub label: String,
+    /// Junction temperature, K.
+    pub temperature_k: f64,
+    /// Each supply's voltage here, V, by node.
+    pub supplies: std::collections::BTreeMap<String, f64>,
+    /// Each figure here (requirement names, then `PART.bias_current`); null where not
+    /// computed.
+    pub figures: std::collections::BTreeMap<String, Option<f64>>,
+    /// True when every limited requirement passes here (null: not evaluated).
+    pub pass: Option<bool>,
+    /// The limited requirements failing here.
+    pub failing: Vec<String>,
+}
+
 /// `sweeps[]`: one what-if sweep.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct SweepResults {
@@ -1033,6 +1051,10 @@ pub struct ResultsDocument {
     /// The group delay across the band.
     #[serde(default)]
     pub group_delay: Option<GroupDelayResults>,
+    /// What-if operating corners: every figure at the nominal point and at each
+    /// combination of the temperature's and the supplies' range ends.
+    #[serde(default)]
+    pub corners: Vec<CornerResults>,
     /// What-if sweeps: every figure at each value of a swept quantity (empty when the
     /// design asks none).
     #[serde(default)]
@@ -1185,6 +1207,23 @@ pub fn document(
             max_s: g.max_s,
             variation_s: g.variation_s(),
         }),
+        corners: review
+            .what_if
+            .corners
+            .iter()
+            .map(|c| CornerResults {
+                label: c.label.clone(),
+                temperature_k: c.temperature_k,
+                supplies: c.supplies.iter().cloned().collect(),
+                figures: c.figures.iter().cloned().collect(),
+                pass: c.failing.as_ref().map(Vec::is_empty),
+                failing: c
+                    .failing
+                    .as_ref()
+                    .map(|f| f.iter().map(|n| n.to_string()).collect())
+                    .unwrap_or_default(),
+            })
+            .collect(),
         sweeps: review
             .what_if
             .sweeps

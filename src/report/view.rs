@@ -12,10 +12,11 @@ use crate::design::Design;
 use crate::notation::si;
 use crate::report::explain::Explanation;
 use crate::report::results::{
-    CapacitorResults, CautionResults, GroupDelayResults, HighResults, LargeSignalResults,
-    LimitResults, LowResults, MidbandResults, NoiseResults, OperatingPointResults, PortsResults,
-    Provenance, RequirementResults, ResultsDocument, RootResults, RootWindowResults,
-    SensitivityResults, StepResults, SweepResults, ToleranceSummary, Tool,
+    CapacitorResults, CautionResults, CornerResults, GroupDelayResults, HighResults,
+    LargeSignalResults, LimitResults, LowResults, MidbandResults, NoiseResults,
+    OperatingPointResults, PortsResults, Provenance, RequirementResults, ResultsDocument,
+    RootResults, RootWindowResults, SensitivityResults, StepResults, SweepResults,
+    ToleranceSummary, Tool,
 };
 use crate::report::template::MARKER;
 
@@ -161,6 +162,8 @@ pub struct View<'a> {
     pub step: &'a Option<StepResults>,
     /// The group delay across the band.
     pub group_delay: &'a Option<GroupDelayResults>,
+    /// What-if operating corners.
+    pub corners: &'a [CornerResults],
     /// What-if sweeps.
     pub sweeps: &'a [SweepResults],
     /// What-if limits.
@@ -202,6 +205,7 @@ impl<'a> View<'a> {
             ports: &doc.ports,
             step: &doc.step,
             group_delay: &doc.group_delay,
+            corners: &doc.corners,
             sweeps: &doc.sweeps,
             limits: &doc.limits,
             requirements: &doc.requirements,

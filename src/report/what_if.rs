@@ -7,7 +7,7 @@
 
 use plotters::prelude::*;
 
-use crate::analysis::what_if::{LimitResult, Outcome, SweepResult, WhatIfReport};
+use crate::analysis::what_if::{CornerResult, LimitResult, Outcome, SweepResult, WhatIfReport};
 use crate::design::Requirements;
 use crate::notation::{plain, si, signed_percent};
 use crate::report::plots::{INK, MID, WIDTH, finish, px};
@@ -85,12 +85,68 @@ pub fn sweep_rows(s: &SweepResult) -> (Vec<String>, Vec<Vec<String>>) {
     (header, rows)
 }
 
-/// The `what_if` table: the limits as sentences, then each sweep's table.
+/// A corner's column heading: its temperature in °C and each supply's voltage.
+fn corner_heading(c: &CornerResult) -> String {
+    let mut parts = vec![format!("{} °C", plain(c.temperature_k - 273.15, 3))];
+    parts.extend(c.supplies.iter().map(|(n, v)| format!("{n} {}", si(*v, "V", 3))));
+    parts.join(", ")
+}
+
+/// The corner table: one row per figure, one column per corner (nominal first); a value
+/// whose requirement fails at that corner is marked `(fail)`.
+pub fn corner_rows(corners: &[CornerResult]) -> (Vec<String>, Vec<Vec<String>>) {
+    let mut header = vec!["figure".to_string()];
+    header.extend(corners.iter().map(|c| {
+        if c.label == "nominal" {
+            format!("nominal ({})", corner_heading(c))
+        } else {
+            corner_heading(c)
+        }
+    }));
+    let Some(first) = corners.first() else { return (header, Vec::new()) };
+    let mut rows: Vec<Vec<String>> = first
+        .figures
+        .iter()
+        .enumerate()
+        .map(|(i, (key, _))| {
+            let mut row = vec![figure_label(key)];
+            row.extend(corners.iter().map(|c| {
+                let fails = c.failing.as_ref().is_some_and(|f| f.iter().any(|n| n == key));
+                match c.figures.get(i).and_then(|f| f.1) {
+                    Some(v) if fails => format!("{} (fail)", figure_value(key, v)),
+                    Some(v) => figure_value(key, v),
+                    None => "—".into(),
+                }
+            }));
+            row
+        })
+        .collect();
+    let mut verdict = vec!["requirements".to_string()];
+    verdict.extend(corners.iter().map(|c| match &c.failing {
+        None => "not evaluated".into(),
+        Some(f) if f.is_empty() => "pass".into(),
+        Some(f) => {
+            format!("FAIL {}", f.iter().map(|n| figure_label(n)).collect::<Vec<_>>().join(", "))
+        }
+    }));
+    rows.push(verdict);
+    (header, rows)
+}
+
+/// The `what_if` table: the corners, the limits as sentences, then each sweep's table.
 pub fn markdown(w: &WhatIfReport) -> Option<String> {
-    if w.sweeps.is_empty() && w.limits.is_empty() {
+    if w.sweeps.is_empty() && w.limits.is_empty() && w.corners.is_empty() {
         return None;
     }
     let mut out = String::new();
+    if !w.corners.is_empty() {
+        let (header, rows) = corner_rows(&w.corners);
+        let head: Vec<&str> = header.iter().map(String::as_str).collect();
+        let align: String = std::iter::once('l').chain(w.corners.iter().map(|_| 'r')).collect();
+        out.push_str("**Operating corners**\n\n");
+        out.push_str(&markdown_table(&head, &align, rows));
+        out.push('\n');
+    }
     for l in &w.limits {
         out.push_str(&format!("- {}\n", limit_sentence(l)));
     }

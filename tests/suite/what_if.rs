@@ -129,3 +129,36 @@ fn what_if_answers_are_in_results_json() {
     assert_eq!(sweep["values"].as_array().unwrap().len(), 9);
     assert_eq!(sweep["figures"]["upper_cutoff"].as_array().unwrap().len(), 9);
 }
+
+#[test]
+fn each_operating_corner_is_the_design_read_at_that_temperature_and_supply() {
+    // The demo's corners (−20 … 50 °C, vcc 11 … 13 V): each corner's figures must be the
+    // numbers of the same design written with that temperature and that supply voltage.
+    let text =
+        std::fs::read_to_string(crate::support::root().join("designs/rx-preamp-ce.yaml")).unwrap();
+    let d = load(&text);
+    let r = what_if::review(&d);
+    assert_eq!(r.corners.len(), 5, "nominal and the four combinations of two ranges");
+    assert_eq!(r.corners[0].label, "nominal");
+    for c in &r.corners {
+        let vcc = c.supplies.iter().find(|(n, _)| n == "vcc").unwrap().1;
+        let written = text
+            .replace("  temperature: 27 °C\n", &format!("  temperature: {:?} K\n", c.temperature_k))
+            .replace("  vcc: {voltage: 12 V,", &format!("  vcc: {{voltage: {vcc:?} V,"));
+        assert!(
+            written.contains(&format!("temperature: {:?} K", c.temperature_k))
+                && written.contains(&format!("vcc: {{voltage: {vcc:?} V,")),
+            "the temperature and the supply are written in"
+        );
+        let m = tauweave::analysis::metrics(&load(&written)).unwrap();
+        let figure = |k: &str| c.figures.iter().find(|(n, _)| n == k).unwrap().1;
+        assert_eq!(figure("upper_cutoff"), m.f_high, "{}", c.label);
+        assert_eq!(figure("midband_gain"), Some(m.gain), "{}", c.label);
+        assert_eq!(figure("Q1.bias_current"), m.bias.first().copied(), "{}", c.label);
+    }
+    // Colder means less collector current at the same base bias (V_BE rises about 2 mV/K,
+    // common practice), so the cold corners run below nominal.
+    let bias =
+        |i: usize| r.corners[i].figures.iter().find(|(n, _)| n == "Q1.bias_current").unwrap().1;
+    assert!(bias(1).unwrap() < bias(0).unwrap() && bias(2).unwrap() < bias(4).unwrap());
+}

@@ -18,7 +18,9 @@ pub const TOP_KEYS: &[&str] = &[
     "what_if",
 ];
 /// Keys of `what_if`.
-pub const WHAT_IF_KEYS: &[&str] = &["sweeps", "limits"];
+pub const WHAT_IF_KEYS: &[&str] = &["corners", "sweeps", "limits"];
+/// Keys of one corner range.
+pub const RANGE_KEYS: &[&str] = &["from", "to"];
 /// Keys of one sweep.
 pub const SWEEP_SPEC_KEYS: &[&str] = &["vary", "from", "to", "points", "spacing", "values"];
 /// Keys of one limit.

@@ -37,6 +37,9 @@ impl Reader<'_> {
             return out;
         };
         let ctx = Context { parts, supplies, requirements, temperature_k };
+        if let Some((k, n)) = f.get_entry("corners") {
+            out.corners = self.corner_ranges(k, n, &ctx);
+        }
         if let Some(n) = f.get("sweeps") {
             for item in self.items(n, "`what_if.sweeps`") {
                 if let Some(s) = self.sweep_spec(item, &ctx) {
@@ -52,6 +55,63 @@ impl Reader<'_> {
             }
         }
         f.finish(&mut self.diagnostics);
+        out
+    }
+
+    /// `corners`: `temperature` and supply nodes, each `{from, to}` in its unit.
+    fn corner_ranges(&mut self, key: &Key, node: &Node, ctx: &Context) -> Vec<Range> {
+        let mut out = Vec::new();
+        let NodeKind::Map(entries) = &node.kind else {
+            self.push(
+                Diagnostic::error("wrong_type", "`what_if.corners` must be a mapping")
+                    .at(node.span, format!("found {}", node.shape()))
+                    .help("write `temperature: {from: -20 °C, to: 60 °C}` or `vcc: {from: 10.8 V, to: 13.2 V}`"),
+            );
+            return out;
+        };
+        let _ = key;
+        for (k, v) in entries {
+            let name_node = Node { kind: NodeKind::Scalar(k.name.clone()), span: k.span };
+            let Some(r) = self.varied(&name_node, ctx) else { continue };
+            if !matches!(r.varied, Varied::Temperature | Varied::Supply(_)) {
+                self.push(
+                    Diagnostic::error("what_if", format!("`{}` has no operating range", k.name))
+                        .at(k.span, "corners are of the temperature and the supplies")
+                        .help("sweep a param or a part under `what_if.sweeps` instead"),
+                );
+                continue;
+            }
+            let Some(mut f) = Fields::open(
+                v,
+                format!("the range of `{}`", k.name),
+                RANGE_KEYS,
+                k.span,
+                &mut self.diagnostics,
+            ) else {
+                continue;
+            };
+            let from = f.require("from", &mut self.diagnostics);
+            let to = f.require("to", &mut self.diagnostics);
+            f.finish(&mut self.diagnostics);
+            let (Some(a), Some(b)) = (from, to) else { continue };
+            let (Some(lo), Some(hi)) =
+                (self.value_of(a, &r, &k.name), self.value_of(b, &r, &k.name))
+            else {
+                continue;
+            };
+            if lo >= hi {
+                self.push(
+                    Diagnostic::error(
+                        "limits",
+                        format!("the range of `{}` runs backwards or is empty", k.name),
+                    )
+                    .at(a.span, "`from` is not below `to`")
+                    .help("write the low end as `from` and the high end as `to`"),
+                );
+                continue;
+            }
+            out.push(Range { varied: r.varied, name: k.name.clone(), ends: [lo, hi] });
+        }
         out
     }
 
