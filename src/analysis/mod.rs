@@ -14,6 +14,7 @@ pub mod linear;
 pub mod matrix;
 pub mod mna;
 pub mod noise;
+pub mod part_changes;
 pub mod poles;
 pub mod ports;
 pub mod requirements;

@@ -97,6 +97,8 @@ pub struct CornerResult {
 /// Every what-if answer of a design.
 #[derive(Clone, Debug, Default, PartialEq, Serialize)]
 pub struct WhatIfReport {
+    /// Part changes that make every requirement pass, when one fails at nominal values.
+    pub suggestions: Vec<crate::analysis::part_changes::Suggestion>,
     /// The nominal point first, then every combination of the ranges' ends.
     pub corners: Vec<CornerResult>,
     /// In the design's order.
@@ -184,7 +186,7 @@ fn failing(design: &Design, m: &Metrics) -> Vec<&'static str> {
 
 /// The relative distance of `m`'s figure to `requirement`'s nearer limit, positive inside;
 /// −1 when the figure could not be computed.
-fn margin(design: &Design, requirement: &str, m: Option<&Metrics>) -> f64 {
+pub(crate) fn requirement_margin(design: &Design, requirement: &str, m: Option<&Metrics>) -> f64 {
     let limits = design.requirements.items().into_iter().find(|(n, _)| *n == requirement);
     let Some((_, Some(l))) = limits else { return -1.0 };
     let Some(v) = m.and_then(|m| Figure::of_requirement(requirement).of(m)) else { return -1.0 };
@@ -196,8 +198,9 @@ fn margin(design: &Design, requirement: &str, m: Option<&Metrics>) -> f64 {
 /// Every sweep and limit the design asks.
 pub fn review(design: &Design) -> WhatIfReport {
     let w = &design.what_if;
+    let suggestions = crate::analysis::part_changes::suggest(design);
     if w.sweeps.is_empty() && w.limits.is_empty() && w.corners.is_empty() {
-        return WhatIfReport::default();
+        return WhatIfReport { suggestions, ..WhatIfReport::default() };
     }
     let keys: Vec<Figure> = crate::analysis::metrics(design)
         .map(|m| figures(&m).into_iter().filter(|f| !matches!(f, Figure::Bias(_))).collect())
@@ -227,7 +230,7 @@ pub fn review(design: &Design) -> WhatIfReport {
         })
         .collect();
     let limits = w.limits.iter().filter_map(|l| limit(design, l)).collect();
-    WhatIfReport { corners: corners(design), sweeps, limits }
+    WhatIfReport { suggestions, corners: corners(design), sweeps, limits }
 }
 
 /// The nominal point, then each combination of the ranges' ends (the first range varying
@@ -285,7 +288,8 @@ fn corners(design: &Design) -> Vec<CornerResult> {
 /// `l.bound`.
 fn limit(design: &Design, l: &crate::design::LimitSpec) -> Option<LimitResult> {
     let x0 = nominal(design, &l.varied)?;
-    let g = |x: f64| margin(design, l.requirement, evaluate(design, &l.varied, x).as_ref());
+    let g =
+        |x: f64| requirement_margin(design, l.requirement, evaluate(design, &l.varied, x).as_ref());
     let log = x0 > 0.0 && l.bound > 0.0;
     // Points from x0 to the bound, evenly in ratio where both are positive.
     let step = |t: f64| if log { x0 * (l.bound / x0).powf(t) } else { x0 + (l.bound - x0) * t };

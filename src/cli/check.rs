@@ -41,12 +41,33 @@ pub fn run(args: &CheckArgs) -> Result<Outcome, Failure> {
     out(&analysis_text(&review.analysis))?;
     out(&requirements_text(&review.requirements, &review.study))?;
     out(&what_if_text(&review.what_if))?;
+    out(&suggestions_text(&review.what_if))?;
     if review.failing() {
         let failing = review.failing_names();
         eprintln!("{}: fails {} at nominal values", file.name, failing.join(", "));
         return Ok(Outcome::Failing);
     }
     Ok(Outcome::Done)
+}
+
+/// The suggested part changes, when a requirement fails at nominal values.
+pub fn suggestions_text(w: &crate::analysis::what_if::WhatIfReport) -> String {
+    let mut out = String::new();
+    if w.suggestions.is_empty() {
+        return out;
+    }
+    let _ = writeln!(
+        out,
+        "\nsuggested changes  (series values by tolerance: E12 at ±10 %, E24 at ±2–10 %, E96 under ±2 %)"
+    );
+    let (header, rows) = crate::report::what_if::suggestion_rows(w);
+    let cols: Vec<(&str, Align)> = header
+        .iter()
+        .enumerate()
+        .map(|(i, h)| (h.as_str(), if i == 1 { Align::Right } else { Align::Left }))
+        .collect();
+    out.push_str(&render(2, &cols, &rows));
+    out
 }
 
 /// The what-if block: each limit as a sentence, each sweep as a table.

@@ -10,6 +10,7 @@ pub mod fields;
 pub mod quantity;
 pub mod reader;
 pub mod schema;
+pub mod series;
 pub mod suggest;
 pub mod toleranced;
 pub mod topology;

@@ -162,6 +162,9 @@ fn page(
     if let Some(t) = crate::report::what_if::markdown(&review.what_if) {
         tables.insert("what_if", t);
     }
+    if let Some(t) = crate::report::what_if::suggestions_markdown(&review.what_if) {
+        tables.insert("suggestions", t);
+    }
     let blocks = Blocks {
         tables,
         known_tables: tables::TABLES.iter().map(|(n, _)| *n).collect(),

@@ -637,6 +637,30 @@ pub struct ContributorResults {
     pub band_share: Option<f64>,
 }
 
+/// `suggestions[]`: part changes that make every requirement pass.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct SuggestionResults {
+    /// Each part's change.
+    pub changes: Vec<ChangeResults>,
+    /// Every figure with the changes made.
+    pub figures: std::collections::BTreeMap<String, Option<f64>>,
+    /// The smallest relative margin of any limited requirement with the changes made.
+    pub worst_margin: f64,
+}
+
+/// One part's suggested value.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct ChangeResults {
+    /// Designator.
+    pub part: String,
+    /// Present value, SI.
+    pub from: f64,
+    /// Suggested value, SI.
+    pub to: f64,
+    /// The IEC 60063 series it comes from.
+    pub series: String,
+}
+
 /// `corners[]`: one operating corner.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct CornerResults {
@@ -1051,6 +1075,10 @@ pub struct ResultsDocument {
     /// The group delay across the band.
     #[serde(default)]
     pub group_delay: Option<GroupDelayResults>,
+    /// Part changes to series values that make every requirement pass, when one fails at
+    /// nominal values; best first.
+    #[serde(default)]
+    pub suggestions: Vec<SuggestionResults>,
     /// What-if operating corners: every figure at the nominal point and at each
     /// combination of the temperature's and the supplies' range ends.
     #[serde(default)]
@@ -1207,6 +1235,25 @@ pub fn document(
             max_s: g.max_s,
             variation_s: g.variation_s(),
         }),
+        suggestions: review
+            .what_if
+            .suggestions
+            .iter()
+            .map(|s| SuggestionResults {
+                changes: s
+                    .changes
+                    .iter()
+                    .map(|c| ChangeResults {
+                        part: c.part.clone(),
+                        from: c.from,
+                        to: c.to,
+                        series: c.series.to_string(),
+                    })
+                    .collect(),
+                figures: s.figures.iter().cloned().collect(),
+                worst_margin: s.worst_margin,
+            })
+            .collect(),
         corners: review
             .what_if
             .corners

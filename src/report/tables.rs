@@ -45,6 +45,10 @@ pub const TABLES: &[(&str, &str)] = &[
         "requirements",
         "each requirement: nominal value, pass or fail, margin, worst-case corner, yield",
     ),
+    (
+        "suggestions",
+        "part changes to series values that make every failing requirement pass, least change first",
+    ),
     ("what_if", "what-if: each limit as a sentence, each sweep's figures at every value"),
     ("sensitivity", "normalised sensitivities of gain and cut-offs to every lever, largest first"),
     ("worst_case", "linearised worst-case bound beside the evaluated corners"),

@@ -15,8 +15,8 @@ use crate::report::results::{
     CapacitorResults, CautionResults, CornerResults, GroupDelayResults, HighResults,
     LargeSignalResults, LimitResults, LowResults, MidbandResults, NoiseResults,
     OperatingPointResults, PortsResults, Provenance, RequirementResults, ResultsDocument,
-    RootResults, RootWindowResults, SensitivityResults, StepResults, SweepResults,
-    ToleranceSummary, Tool,
+    RootResults, RootWindowResults, SensitivityResults, StepResults, SuggestionResults,
+    SweepResults, ToleranceSummary, Tool,
 };
 use crate::report::template::MARKER;
 
@@ -162,6 +162,8 @@ pub struct View<'a> {
     pub step: &'a Option<StepResults>,
     /// The group delay across the band.
     pub group_delay: &'a Option<GroupDelayResults>,
+    /// Suggested part changes.
+    pub suggestions: &'a [SuggestionResults],
     /// What-if operating corners.
     pub corners: &'a [CornerResults],
     /// What-if sweeps.
@@ -205,6 +207,7 @@ impl<'a> View<'a> {
             ports: &doc.ports,
             step: &doc.step,
             group_delay: &doc.group_delay,
+            suggestions: &doc.suggestions,
             corners: &doc.corners,
             sweeps: &doc.sweeps,
             limits: &doc.limits,

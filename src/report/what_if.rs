@@ -133,6 +133,49 @@ pub fn corner_rows(corners: &[CornerResult]) -> (Vec<String>, Vec<Vec<String>>) 
     (header, rows)
 }
 
+/// The suggested changes as rows: the changes, the worst margin, each limited figure.
+pub fn suggestion_rows(w: &WhatIfReport) -> (Vec<String>, Vec<Vec<String>>) {
+    let header = vec!["change".to_string(), "worst margin".to_string(), "figures".to_string()];
+    let rows = w
+        .suggestions
+        .iter()
+        .map(|s| {
+            let changes: Vec<String> = s
+                .changes
+                .iter()
+                .map(|c| {
+                    format!(
+                        "{} {} → {} ({})",
+                        c.part,
+                        si(c.from, c.unit, 3),
+                        si(c.to, c.unit, 3),
+                        c.series
+                    )
+                })
+                .collect();
+            let figures: Vec<String> = s
+                .figures
+                .iter()
+                .filter_map(|(k, v)| {
+                    Some(format!("{} {}", figure_label(k), figure_value(k, (*v)?)))
+                })
+                .collect();
+            vec![changes.join(" and "), signed_percent(s.worst_margin, 3), figures.join(", ")]
+        })
+        .collect();
+    (header, rows)
+}
+
+/// The `suggestions` table, when a requirement fails and a change within reach fixes it.
+pub fn suggestions_markdown(w: &WhatIfReport) -> Option<String> {
+    if w.suggestions.is_empty() {
+        return None;
+    }
+    let (header, rows) = suggestion_rows(w);
+    let head: Vec<&str> = header.iter().map(String::as_str).collect();
+    Some(markdown_table(&head, "lrl", rows))
+}
+
 /// The `what_if` table: the corners, the limits as sentences, then each sweep's table.
 pub fn markdown(w: &WhatIfReport) -> Option<String> {
     if w.sweeps.is_empty() && w.limits.is_empty() && w.corners.is_empty() {

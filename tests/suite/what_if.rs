@@ -162,3 +162,57 @@ fn each_operating_corner_is_the_design_read_at_that_temperature_and_supply() {
         |i: usize| r.corners[i].figures.iter().find(|(n, _)| n == "Q1.bias_current").unwrap().1;
     assert!(bias(1).unwrap() < bias(0).unwrap() && bias(2).unwrap() < bias(4).unwrap());
 }
+
+/// A purpose-made failing stage: R1 = 33 kΩ with the source's 1 kΩ, across the 1 MΩ load ∥
+/// R2's 2.2 MΩ (688 kΩ), on 100 pF corners at 1/(2π·(34 kΩ ∥ 688 kΩ)·100 pF) = 49.2 kHz, under
+/// the 50 kHz asked (common practice: the RC corner); R2 is marked fixed.
+const FAILING: &str = "tauweave: 1\ndesign: {id: sg, title: suggestion test, revision: A, date: 2026-12-05}\n\
+    signal: {at: in, resistance: 1 kΩ}\noutput: {at: out, load_resistance: 1 MΩ}\n\
+    tolerances: {resistor: 5 %, capacitor: 10 %}\nparts:\n\
+    \x20 R1: {kind: resistor, value: 33 kΩ, between: [in, out]}\n\
+    \x20 C1: {kind: capacitor, value: 100 pF, between: [out, gnd]}\n\
+    \x20 R2: {kind: resistor, value: 2.2 MΩ, between: [out, gnd], fixed: true}\n\
+    requirements:\n  upper_cutoff: {min: 50 kHz}\n  midband_gain: {min: -0.5 dB}\n\
+    analysis: {monte_carlo: {runs: 0}}\n";
+
+#[test]
+fn a_suggested_change_applied_to_the_design_makes_it_pass() {
+    let d = load(FAILING);
+    let suggestions = tauweave::analysis::part_changes::suggest(&d);
+    assert!(!suggestions.is_empty(), "a change within a decade fixes a 7 % shortfall");
+    for s in &suggestions {
+        for c in &s.changes {
+            assert!(c.part != "R2" && !c.part.starts_with("load."), "{} is fixed", c.part);
+            // The values come from the series the tolerance implies (E24 at 5 %, E12 at 10 %).
+            let series = if c.part == "R1" {
+                &tauweave::design::series::E24[..]
+            } else {
+                &tauweave::design::series::E12[..]
+            };
+            let mantissa = c.to / 10f64.powf(c.to.log10().floor());
+            assert!(series.iter().any(|m| (m - mantissa).abs() < 1e-9), "{} = {}", c.part, c.to);
+        }
+        assert!(s.worst_margin >= 0.0);
+    }
+    // The first suggestion, written into the design file and checked as a user would.
+    let first = &suggestions[0];
+    let mut text = FAILING.to_string();
+    for c in &first.changes {
+        let old = match c.part.as_str() {
+            "R1" => "value: 33 kΩ",
+            "C1" => "value: 100 pF",
+            other => panic!("unexpected part {other}"),
+        };
+        let unit = if c.part == "R1" { "Ω" } else { "F" };
+        text = text.replace(old, &format!("value: {:?} {unit}", c.to));
+    }
+    let dir = crate::support::scratch("what-if-suggestion");
+    std::fs::write(dir.join("fixed.yaml"), &text).unwrap();
+    std::fs::write(dir.join("failing.yaml"), FAILING).unwrap();
+    let before = crate::support::run_in(&dir, &["check", "failing.yaml"]);
+    let after = crate::support::run_in(&dir, &["check", "fixed.yaml"]);
+    assert_eq!(before.status.code(), Some(1), "the purpose-made design fails");
+    assert_eq!(after.status.code(), Some(0), "{}", String::from_utf8_lossy(&after.stdout));
+    // The least change: R1 to 30 kΩ (E24), 1/(2π·(31 kΩ ∥ 688 kΩ)·100 pF) = 53.7 kHz by hand.
+    assert_eq!((first.changes[0].part.as_str(), first.changes[0].to), ("R1", 30e3));
+}
