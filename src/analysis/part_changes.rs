@@ -1,5 +1,5 @@
-//! Suggested part changes: for a design that fails a requirement at nominal values, changes
-//! of one part and then of two parts to values of the IEC 60063 series each part's tolerance
+//! Suggested part changes: for a design that fails a requirement at nominal values or at one
+//! of the operating corners it states, changes of one part and then of two parts to values of the IEC 60063 series each part's tolerance
 //! implies ([`Series::for_tolerance`]), each evaluated in full by the evaluation core, and the
 //! few that make every requirement pass with the least change.
 //!
@@ -49,7 +49,8 @@ pub struct Suggestion {
     pub changes: Vec<Change>,
     /// Every figure with the changes made.
     pub figures: Vec<(String, Option<f64>)>,
-    /// The smallest relative margin of any limited requirement with the changes made.
+    /// The smallest relative margin of any limited requirement with the changes made, at
+    /// nominal values and at every operating corner.
     pub worst_margin: f64,
 }
 
@@ -106,11 +107,39 @@ fn evaluate(design: &Design, changes: &[(&str, f64)]) -> Option<Metrics> {
     crate::analysis::metrics(&d).ok()
 }
 
+/// Where a change must make every requirement pass: the nominal design and each operating
+/// corner it states.
+struct Judge {
+    conditions: Vec<Design>,
+}
+
+impl Judge {
+    /// The worst margin over every condition with `changes` made, and the nominal evaluation.
+    fn judge(&self, changes: &[(&str, f64)]) -> (f64, Option<Metrics>) {
+        let mut nominal = None;
+        let mut least = f64::INFINITY;
+        for (k, d) in self.conditions.iter().enumerate() {
+            let m = evaluate(d, changes);
+            least = least.min(worst(d, m.as_ref()));
+            if k == 0 {
+                nominal = m;
+            }
+        }
+        (least, nominal)
+    }
+}
+
 /// Suggested changes for `design`, best first; empty when every requirement passes at
-/// nominal values or nothing within reach fixes it.
+/// nominal values and at every operating corner, or nothing within reach fixes it.
 pub fn suggest(design: &Design) -> Vec<Suggestion> {
     let Ok(nominal) = crate::analysis::metrics(design) else { return Vec::new() };
-    if worst(design, Some(&nominal)) >= 0.0 {
+    let judge = Judge {
+        conditions: crate::analysis::what_if::corner_designs(design)
+            .into_iter()
+            .map(|(_, d)| d)
+            .collect(),
+    };
+    if judge.judge(&[]).0 >= 0.0 {
         return Vec::new();
     }
     let keys: Vec<Figure> =
@@ -127,13 +156,8 @@ pub fn suggest(design: &Design) -> Vec<Suggestion> {
                 .map(move |v| (i, v))
         })
         .collect();
-    let single_margins: Vec<(f64, Option<Metrics>)> = singles
-        .par_iter()
-        .map(|&(i, v)| {
-            let m = evaluate(design, &[(&parts[i].name, v)]);
-            (worst(design, m.as_ref()), m)
-        })
-        .collect();
+    let single_margins: Vec<(f64, Option<Metrics>)> =
+        singles.par_iter().map(|&(i, v)| judge.judge(&[(&parts[i].name, v)])).collect();
     let mut found: Vec<Found> = singles
         .iter()
         .zip(&single_margins)
@@ -178,13 +202,7 @@ pub fn suggest(design: &Design) -> Vec<Suggestion> {
         }
         let evaluated: Vec<(f64, Option<Metrics>)> = pairs
             .par_iter()
-            .map(|p| {
-                let m = evaluate(
-                    design,
-                    &[(&parts[p[0].0].name, p[0].1), (&parts[p[1].0].name, p[1].1)],
-                );
-                (worst(design, m.as_ref()), m)
-            })
+            .map(|p| judge.judge(&[(&parts[p[0].0].name, p[0].1), (&parts[p[1].0].name, p[1].1)]))
             .collect();
         found.extend(
             pairs

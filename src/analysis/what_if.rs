@@ -233,16 +233,40 @@ pub fn review(design: &Design) -> WhatIfReport {
     WhatIfReport { suggestions, corners: corners(design), sweeps, limits }
 }
 
+/// The design at the nominal point (labelled `nominal`), then at each combination of its
+/// operating ranges' ends, the first range varying slowest (`temperature low, vcc high`).
+pub(crate) fn corner_designs(design: &Design) -> Vec<(String, Design)> {
+    let ranges = &design.what_if.corners;
+    let mut settings: Vec<Vec<Option<usize>>> = vec![vec![None; ranges.len()]];
+    if !ranges.is_empty() {
+        for k in 0..1usize << ranges.len() {
+            settings
+                .push((0..ranges.len()).map(|i| Some((k >> (ranges.len() - 1 - i)) & 1)).collect());
+        }
+    }
+    settings
+        .iter()
+        .map(|ends| {
+            let mut d = Some(design.clone());
+            let mut label = Vec::new();
+            for (r, end) in ranges.iter().zip(ends) {
+                if let Some(e) = end {
+                    d = d.and_then(|d| at(&d, &r.varied, r.ends[*e]));
+                    label.push(format!("{} {}", r.name, if *e == 0 { "low" } else { "high" }));
+                }
+            }
+            let label = if label.is_empty() { "nominal".into() } else { label.join(", ") };
+            (label, d.unwrap_or_else(|| design.clone()))
+        })
+        .collect()
+}
+
 /// The nominal point, then each combination of the ranges' ends (the first range varying
 /// slowest): every figure and bias current there.
 fn corners(design: &Design) -> Vec<CornerResult> {
     let ranges = &design.what_if.corners;
     if ranges.is_empty() {
         return Vec::new();
-    }
-    let mut settings: Vec<Vec<Option<usize>>> = vec![vec![None; ranges.len()]];
-    for k in 0..1usize << ranges.len() {
-        settings.push((0..ranges.len()).map(|i| Some((k >> (ranges.len() - 1 - i)) & 1)).collect());
     }
     let nominal = crate::analysis::metrics(design).ok();
     let names = crate::analysis::evaluate::operating_point(design)
@@ -257,21 +281,12 @@ fn corners(design: &Design) -> Vec<CornerResult> {
             k
         })
         .unwrap_or_default();
-    settings
+    corner_designs(design)
         .par_iter()
-        .map(|ends| {
-            let mut d = Some(design.clone());
-            let mut label = Vec::new();
-            for (r, end) in ranges.iter().zip(ends) {
-                if let Some(e) = end {
-                    d = d.and_then(|d| at(&d, &r.varied, r.ends[*e]));
-                    label.push(format!("{} {}", r.name, if *e == 0 { "low" } else { "high" }));
-                }
-            }
-            let d = d.unwrap_or_else(|| design.clone());
-            let m = crate::analysis::metrics(&d).ok();
+        .map(|(label, d)| {
+            let m = crate::analysis::metrics(d).ok();
             CornerResult {
-                label: if label.is_empty() { "nominal".into() } else { label.join(", ") },
+                label: label.clone(),
                 temperature_k: d.temperature_k,
                 supplies: d.supplies.iter().map(|s| (s.node.clone(), s.voltage.nominal)).collect(),
                 figures: keys
