@@ -101,6 +101,10 @@ pub fn what_if_text(w: &crate::analysis::what_if::WhatIfReport) -> String {
             .map(|(i, h)| (h.as_str(), if i == last { Align::Left } else { Align::Right }))
             .collect();
         out.push_str(&render(4, &cols, &rows));
+        let still = crate::report::what_if::unmoved(s);
+        if !still.is_empty() {
+            let _ = writeln!(out, "    within 0.1 % across the sweep: {}", still.join(", "));
+        }
     }
     out
 }

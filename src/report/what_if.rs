@@ -51,14 +51,31 @@ pub fn limit_sentence(l: &LimitResult) -> String {
     }
 }
 
-/// A sweep's header and rows: the value, each figure, and the requirements failing there.
+/// True when a figure moves by more than 0.1 % across the sweep, or fails somewhere in it:
+/// the sweep's tables show those, and say which stayed put.
+fn moves(s: &SweepResult, key: &str, values: &[Option<f64>]) -> bool {
+    let v: Vec<f64> = values.iter().flatten().copied().collect();
+    let (lo, hi) =
+        v.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| (a.min(x), b.max(x)));
+    let fails = s.failing.iter().flatten().any(|f| f.iter().any(|n| *n == key));
+    fails || v.len() < values.len() || (hi - lo) > 1e-3 * lo.abs().max(hi.abs())
+}
+
+/// The figures of a sweep that stay within 0.1 % all the way, by label.
+pub fn unmoved(s: &SweepResult) -> Vec<String> {
+    s.figures.iter().filter(|(k, v)| !moves(s, k, v)).map(|(k, _)| figure_label(k)).collect()
+}
+
+/// A sweep's header and rows: the value, each figure that moves, and the requirements
+/// failing there.
 pub fn sweep_rows(s: &SweepResult) -> (Vec<String>, Vec<Vec<String>>) {
     let mut header = vec![if s.unit.is_empty() {
         s.quantity.clone()
     } else {
         format!("{} ({})", s.quantity, s.unit)
     }];
-    header.extend(s.figures.iter().map(|(k, _)| figure_label(k)));
+    let shown: Vec<&Series> = s.figures.iter().filter(|(k, v)| moves(s, k, v)).collect();
+    header.extend(shown.iter().map(|(k, _)| figure_label(k)));
     header.push("requirements".into());
     let rows = s
         .values
@@ -67,9 +84,7 @@ pub fn sweep_rows(s: &SweepResult) -> (Vec<String>, Vec<Vec<String>>) {
         .map(|(i, &x)| {
             let mut row = vec![value(x, &s.unit)];
             row.extend(
-                s.figures
-                    .iter()
-                    .map(|(k, v)| v[i].map_or("—".to_string(), |v| figure_value(k, v))),
+                shown.iter().map(|(k, v)| v[i].map_or("—".to_string(), |v| figure_value(k, v))),
             );
             row.push(match &s.failing[i] {
                 None => "not evaluated".into(),
@@ -196,13 +211,19 @@ pub fn markdown(w: &WhatIfReport) -> Option<String> {
     for s in &w.sweeps {
         let (header, rows) = sweep_rows(s);
         let head: Vec<&str> = header.iter().map(String::as_str).collect();
-        let align: String =
-            std::iter::once('r').chain(s.figures.iter().map(|_| 'r')).chain(['l']).collect();
+        let align: String = std::iter::once('r')
+            .chain(header[1..header.len() - 1].iter().map(|_| 'r'))
+            .chain(['l'])
+            .collect();
         if !out.is_empty() {
             out.push('\n');
         }
         out.push_str(&format!("**{} swept, {} points**\n\n", s.quantity, s.values.len()));
         out.push_str(&markdown_table(&head, &align, rows));
+        let still = unmoved(s);
+        if !still.is_empty() {
+            out.push_str(&format!("\nWithin 0.1 % across the sweep: {}.\n", still.join(", ")));
+        }
     }
     Some(out)
 }
