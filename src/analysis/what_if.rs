@@ -92,6 +92,11 @@ pub struct CornerResult {
     pub figures: Vec<(String, Option<f64>)>,
     /// The limited requirements failing here (None: the design could not be evaluated).
     pub failing: Option<Vec<&'static str>>,
+    /// With `tolerance_corners`: each limited requirement's value at its worst tolerance
+    /// corner here (the worst-case study of this corner's design), by requirement name.
+    pub tolerance: Vec<(&'static str, Option<f64>)>,
+    /// The limited requirements failing at their worst tolerance corner here.
+    pub tolerance_failing: Vec<&'static str>,
 }
 
 /// Every what-if answer of a design.
@@ -233,6 +238,42 @@ pub fn review(design: &Design) -> WhatIfReport {
     WhatIfReport { suggestions, corners: corners(design), sweeps, limits }
 }
 
+/// Each limited requirement's value at its worst tolerance corner in `d` (the tolerance
+/// study's worst case, without Monte Carlo): of the low and high corners, the one nearer or
+/// past a limit; and the requirements that fail there.
+fn worst_tolerance(
+    d: &Design,
+    m: &Metrics,
+) -> (Vec<(&'static str, Option<f64>)>, Vec<&'static str>) {
+    let names = crate::analysis::evaluate::operating_point(d)
+        .map(|op| op.devices.iter().map(|x| x.part.clone()).collect::<Vec<_>>())
+        .unwrap_or_default();
+    let study = crate::analysis::tolerance::study(d, m, &names, 0, &|_| {});
+    let mut values = Vec::new();
+    let mut fails = Vec::new();
+    for (name, l) in d.requirements.items() {
+        let Some(l) = l else { continue };
+        let w = study.worst_case.iter().find(|w| w.figure == name);
+        let distance = |v: f64| {
+            let to_min = l.min.map(|lo| (v - lo) / lo.abs().max(f64::MIN_POSITIVE));
+            let to_max = l.max.map(|hi| (hi - v) / hi.abs().max(f64::MIN_POSITIVE));
+            [to_min, to_max].into_iter().flatten().fold(f64::INFINITY, f64::min)
+        };
+        let worst = w
+            .map(|w| [w.low_corner, w.high_corner])
+            .into_iter()
+            .flatten()
+            .flatten()
+            .chain(Figure::of_requirement(name).of(m))
+            .min_by(|a, b| distance(*a).total_cmp(&distance(*b)));
+        if !worst.is_some_and(|v| within(&l, v)) {
+            fails.push(name);
+        }
+        values.push((name, worst));
+    }
+    (values, fails)
+}
+
 /// The design at the nominal point (labelled `nominal`), then at each combination of its
 /// operating ranges' ends, the first range varying slowest (`temperature low, vcc high`).
 pub(crate) fn corner_designs(design: &Design) -> Vec<(String, Design)> {
@@ -285,7 +326,13 @@ fn corners(design: &Design) -> Vec<CornerResult> {
         .par_iter()
         .map(|(label, d)| {
             let m = crate::analysis::metrics(d).ok();
+            let (tolerance, tolerance_failing) = match (&m, design.what_if.tolerance_corners) {
+                (Some(m), true) => worst_tolerance(d, m),
+                _ => (Vec::new(), Vec::new()),
+            };
             CornerResult {
+                tolerance,
+                tolerance_failing,
                 label: label.clone(),
                 temperature_k: d.temperature_k,
                 supplies: d.supplies.iter().map(|s| (s.node.clone(), s.voltage.nominal)).collect(),

@@ -227,6 +227,9 @@ pub fn design_schema() -> Value {
                 _ => object(MONTE_CARLO_KEYS, &[], |_| json!({"type": "integer", "minimum": 0})),
             }),
             "what_if" => object(WHAT_IF_KEYS, &[], |k| match k {
+                "tolerance_corners" => {
+                    json!({"type": "boolean", "description": "at each operating corner, also the worst tolerance corner of every limited requirement"})
+                }
                 "corners" => json!({
                     "type": "object",
                     "description": "operating ranges: `temperature` or a supply's node, each {from, to}",

@@ -607,6 +607,9 @@ pub struct WhatIf {
     /// Operating ranges of the temperature and the supplies: the review evaluates every
     /// requirement at each combination of their ends, and at nominal.
     pub corners: Vec<Range>,
+    /// True when each operating corner also takes the worst tolerance corner of every
+    /// limited requirement (`tolerance_corners: true`).
+    pub tolerance_corners: bool,
     /// Sweeps, in file order.
     pub sweeps: Vec<SweepSpec>,
     /// Limits, in file order.

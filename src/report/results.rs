@@ -677,6 +677,12 @@ pub struct CornerResults {
     pub pass: Option<bool>,
     /// The limited requirements failing here.
     pub failing: Vec<String>,
+    /// With `tolerance_corners`: each limited requirement at its worst tolerance corner here.
+    #[serde(default)]
+    pub tolerance: std::collections::BTreeMap<String, Option<f64>>,
+    /// The limited requirements failing at their worst tolerance corner here.
+    #[serde(default)]
+    pub tolerance_failing: Vec<String>,
 }
 
 /// `sweeps[]`: one what-if sweep.
@@ -1269,6 +1275,8 @@ pub fn document(
                     .as_ref()
                     .map(|f| f.iter().map(|n| n.to_string()).collect())
                     .unwrap_or_default(),
+                tolerance: c.tolerance.iter().map(|(n, v)| (n.to_string(), *v)).collect(),
+                tolerance_failing: c.tolerance_failing.iter().map(|n| n.to_string()).collect(),
             })
             .collect(),
         sweeps: review

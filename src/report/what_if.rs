@@ -136,6 +136,21 @@ pub fn corner_rows(corners: &[CornerResult]) -> (Vec<String>, Vec<Vec<String>>) 
             row
         })
         .collect();
+    let tolerance = corners.iter().any(|c| !c.tolerance.is_empty());
+    if tolerance {
+        for (j, (name, _)) in first.tolerance.iter().enumerate() {
+            let mut row = vec![format!("{}, worst tolerance corner", figure_label(name))];
+            row.extend(corners.iter().map(|c| {
+                let fails = c.tolerance_failing.contains(name);
+                match c.tolerance.get(j).and_then(|t| t.1) {
+                    Some(v) if fails => format!("{} (fail)", figure_value(name, v)),
+                    Some(v) => figure_value(name, v),
+                    None => "—".into(),
+                }
+            }));
+            rows.push(row);
+        }
+    }
     let mut verdict = vec!["requirements".to_string()];
     verdict.extend(corners.iter().map(|c| match &c.failing {
         None => "not evaluated".into(),
@@ -145,6 +160,19 @@ pub fn corner_rows(corners: &[CornerResult]) -> (Vec<String>, Vec<Vec<String>>) 
         }
     }));
     rows.push(verdict);
+    if tolerance {
+        let mut row = vec!["with tolerances".to_string()];
+        row.extend(corners.iter().map(|c| {
+            if c.tolerance_failing.is_empty() {
+                "pass".into()
+            } else {
+                let names: Vec<String> =
+                    c.tolerance_failing.iter().map(|n| figure_label(n)).collect();
+                format!("FAIL {}", names.join(", "))
+            }
+        }));
+        rows.push(row);
+    }
     (header, rows)
 }
 

@@ -216,3 +216,32 @@ fn a_suggested_change_applied_to_the_design_makes_it_pass() {
     // The least change: R1 to 30 kΩ (E24), 1/(2π·(31 kΩ ∥ 688 kΩ)·100 pF) = 53.7 kHz by hand.
     assert_eq!((first.changes[0].part.as_str(), first.changes[0].to), ("R1", 30e3));
 }
+
+#[test]
+fn the_nominal_corner_with_tolerances_is_the_review_s_worst_corner() {
+    // At the nominal point the worst tolerance corner of each requirement is the one the
+    // review's requirement table shows (the same study, run for the corner's design).
+    let text = std::fs::read_to_string(crate::support::root().join("designs/rx-preamp-ce.yaml"))
+        .unwrap()
+        .replace("what_if:\n", "what_if:\n  tolerance_corners: true\n");
+    let d = load(&text);
+    assert!(d.what_if.tolerance_corners);
+    let r =
+        tauweave::review::review(&d, &tauweave::review::ReviewOptions::quiet(&d, Some(0))).unwrap();
+    let nominal = &r.what_if.corners[0];
+    for check in &r.requirements {
+        let at_corner = nominal.tolerance.iter().find(|(n, _)| *n == check.name).unwrap().1;
+        assert_eq!(at_corner, check.corner, "{}", check.name);
+    }
+    // Colder and at 11 V the gain's worst corner falls furthest (less bias current).
+    let gain = |i: usize| {
+        r.what_if.corners[i]
+            .tolerance
+            .iter()
+            .find(|(n, _)| *n == "midband_gain")
+            .unwrap()
+            .1
+            .unwrap()
+    };
+    assert!(gain(1) < gain(0));
+}

@@ -18,7 +18,7 @@ pub const TOP_KEYS: &[&str] = &[
     "what_if",
 ];
 /// Keys of `what_if`.
-pub const WHAT_IF_KEYS: &[&str] = &["corners", "sweeps", "limits"];
+pub const WHAT_IF_KEYS: &[&str] = &["corners", "tolerance_corners", "sweeps", "limits"];
 /// Keys of one corner range.
 pub const RANGE_KEYS: &[&str] = &["from", "to"];
 /// Keys of one sweep.

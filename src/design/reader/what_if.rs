@@ -40,6 +40,9 @@ impl Reader<'_> {
         if let Some((k, n)) = f.get_entry("corners") {
             out.corners = self.corner_ranges(k, n, &ctx);
         }
+        if let Some(n) = f.get("tolerance_corners") {
+            out.tolerance_corners = self.flag(n, "tolerance_corners").unwrap_or(false);
+        }
         if let Some(n) = f.get("sweeps") {
             for item in self.items(n, "`what_if.sweeps`") {
                 if let Some(s) = self.sweep_spec(item, &ctx) {
