@@ -159,8 +159,16 @@ fn page(
         }
     }
     let mut tables = tables::all(design, a, checks, study);
-    if let Some(t) = crate::report::what_if::markdown(&review.what_if) {
-        tables.insert("what_if", t);
+    let w = &review.what_if;
+    for (name, table) in [
+        ("what_if", crate::report::what_if::markdown(w)),
+        ("corners", crate::report::what_if::corners_markdown(w)),
+        ("limits", crate::report::what_if::limits_markdown(w)),
+        ("sweeps", crate::report::what_if::sweeps_markdown(w)),
+    ] {
+        if let Some(t) = table {
+            tables.insert(name, t);
+        }
     }
     if let Some(t) = crate::report::what_if::suggestions_markdown(&review.what_if) {
         tables.insert("suggestions", t);

@@ -219,23 +219,31 @@ pub fn suggestions_markdown(w: &WhatIfReport) -> Option<String> {
     Some(markdown_table(&head, "lrl", rows))
 }
 
-/// The `what_if` table: the corners, the limits as sentences, then each sweep's table.
-pub fn markdown(w: &WhatIfReport) -> Option<String> {
-    if w.sweeps.is_empty() && w.limits.is_empty() && w.corners.is_empty() {
+/// The `corners` table: figure by operating corner, nominal first.
+pub fn corners_markdown(w: &WhatIfReport) -> Option<String> {
+    if w.corners.is_empty() {
+        return None;
+    }
+    let (header, rows) = corner_rows(&w.corners);
+    let head: Vec<&str> = header.iter().map(String::as_str).collect();
+    let align: String = std::iter::once('l').chain(w.corners.iter().map(|_| 'r')).collect();
+    Some(markdown_table(&head, &align, rows))
+}
+
+/// The `limits` block: each limit as a sentence.
+pub fn limits_markdown(w: &WhatIfReport) -> Option<String> {
+    if w.limits.is_empty() {
+        return None;
+    }
+    Some(w.limits.iter().map(|l| format!("- {}\n", limit_sentence(l))).collect())
+}
+
+/// The `sweeps` block: each sweep's table of the figures that move, under a heading line.
+pub fn sweeps_markdown(w: &WhatIfReport) -> Option<String> {
+    if w.sweeps.is_empty() {
         return None;
     }
     let mut out = String::new();
-    if !w.corners.is_empty() {
-        let (header, rows) = corner_rows(&w.corners);
-        let head: Vec<&str> = header.iter().map(String::as_str).collect();
-        let align: String = std::iter::once('l').chain(w.corners.iter().map(|_| 'r')).collect();
-        out.push_str("**Operating corners**\n\n");
-        out.push_str(&markdown_table(&head, &align, rows));
-        out.push('\n');
-    }
-    for l in &w.limits {
-        out.push_str(&format!("- {}\n", limit_sentence(l)));
-    }
     for s in &w.sweeps {
         let (header, rows) = sweep_rows(s);
         let head: Vec<&str> = header.iter().map(String::as_str).collect();
@@ -254,6 +262,17 @@ pub fn markdown(w: &WhatIfReport) -> Option<String> {
         }
     }
     Some(out)
+}
+
+/// The `what_if` table: the corners, the limits as sentences, then each sweep's table.
+pub fn markdown(w: &WhatIfReport) -> Option<String> {
+    let mut parts = Vec::new();
+    if let Some(c) = corners_markdown(w) {
+        parts.push(format!("**Operating corners**\n\n{c}"));
+    }
+    parts.extend(limits_markdown(w));
+    parts.extend(sweeps_markdown(w));
+    (!parts.is_empty()).then(|| parts.join("\n"))
 }
 
 /// A figure's name and its value at each point of a sweep.
