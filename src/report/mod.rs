@@ -149,11 +149,15 @@ fn page(
         plots.insert(0, drawn);
     }
     for (name, s) in crate::report::what_if::SWEEP_PLOTS.iter().zip(&review.what_if.sweeps) {
-        if let Some(svg) = crate::report::what_if::plot(s, &design.requirements) {
+        if let Some(svg) =
+            crate::report::what_if::plot(s, &design.requirements, &review.what_if.limits)
+        {
+            let solved = review.what_if.limits.iter().any(|l| l.quantity == s.quantity);
             let caption = format!(
                 "What if `{}` moves: each limited figure at every swept value (dots), its \
-                 requirement's limits dashed.",
-                s.quantity
+                 requirement's limits dashed{}.",
+                s.quantity,
+                if solved { ", the solved limit dotted" } else { "" }
             );
             plots.push(plots::Plot { name, caption, svg, file: None, max_width: None });
         }

@@ -309,8 +309,9 @@ fn shown<'s>(s: &'s SweepResult, req: &Requirements) -> Vec<&'s Series> {
 }
 
 /// A sweep's plot: each shown figure in its own panel against the swept quantity (a log axis
-/// for a log sweep), its requirement's limits dashed.
-pub fn plot(s: &SweepResult, req: &Requirements) -> Option<String> {
+/// for a log sweep), its requirement's limits dashed, and where a solved limit of the same
+/// quantity on that requirement falls, a dotted vertical line.
+pub fn plot(s: &SweepResult, req: &Requirements, solved: &[LimitResult]) -> Option<String> {
     let panels = shown(s, req);
     if panels.is_empty() || s.values.len() < 2 {
         return None;
@@ -373,6 +374,20 @@ pub fn plot(s: &SweepResult, req: &Requirements) -> Option<String> {
                         MID.stroke_width(px(1)),
                     ))
                     .ok()?;
+            }
+            for l in solved.iter().filter(|l| l.quantity == s.quantity && l.requirement == key) {
+                let Some(v) = l.value.filter(|v| *v > 0.0 || !s.log) else { continue };
+                let x = x_of(v);
+                if x >= x0 && x <= x1 {
+                    chart
+                        .draw_series(DashedLineSeries::new(
+                            [(x, lo), (x, hi)],
+                            px(2),
+                            px(3),
+                            INK.stroke_width(px(1)),
+                        ))
+                        .ok()?;
+                }
             }
             chart.draw_series(LineSeries::new(points.clone(), INK.stroke_width(px(2)))).ok()?;
             chart.draw_series(points.iter().map(|&p| Circle::new(p, px(3), INK.filled()))).ok()?;
