@@ -6,6 +6,7 @@
 
 pub mod build;
 pub mod check;
+pub mod completions;
 pub mod diff;
 pub mod new;
 pub mod pdf;
@@ -113,6 +114,10 @@ pub enum Command {
     Verify(verify::VerifyArgs),
     /// Print the JSON Schema of the design format (for editors).
     Schema(schema::SchemaArgs),
+    /// Print shell completions (bash, zsh, fish, powershell).
+    Completions(completions::CompletionsArgs),
+    /// Print the manual page (roff), for `man`.
+    Manual(completions::ManualArgs),
 }
 
 /// Parses the process arguments and runs the command.
@@ -127,6 +132,8 @@ pub fn run() -> Result<Outcome, Failure> {
         Command::New(args) => new::run(&args),
         Command::Template(args) => template::run(&args),
         Command::Verify(args) => verify::run(&args),
+        Command::Completions(args) => completions::run(&args),
+        Command::Manual(args) => completions::run_manual(&args),
     }
 }
 
