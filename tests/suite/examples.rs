@@ -35,12 +35,22 @@ fn the_cable_capacitance_comes_from_params() {
 
 #[test]
 fn every_starter_checks_and_renders_as_it_stands() {
-    for kind in ["common-emitter", "common-source", "cascode", "emitter-follower"] {
+    for kind in ["plain", "common-emitter", "common-source", "cascode", "emitter-follower"] {
         let dir = scratch(&format!("new-{kind}"));
-        let o = run_in(&dir, &["new", "my-stage", "--kind", kind]);
+        let args: Vec<&str> = if kind == "plain" {
+            vec!["new", "my-stage"]
+        } else {
+            vec!["new", "my-stage", "--kind", kind]
+        };
+        let o = run_in(&dir, &args);
         assert!(o.status.success(), "{kind}: {}", String::from_utf8_lossy(&o.stderr));
         let text = std::fs::read_to_string(dir.join("my-stage.yaml")).unwrap();
         assert!(text.contains("  id: my-stage\n"), "{kind}: id not set");
+        // The author is the user's to fill in, never the example's.
+        assert!(text.contains("  # author: your name\n"), "{kind}: author left to fill");
+        for other in ["Okafor", "Brandt", "Haapala", "Moreau"] {
+            assert!(!text.contains(other), "{kind}: carries another person's name");
+        }
         let check = run_in(&dir, &["check", "my-stage.yaml", "--runs", "20"]);
         assert_eq!(
             check.status.code(),
@@ -52,7 +62,15 @@ fn every_starter_checks_and_renders_as_it_stands() {
         assert!(render.status.success(), "{kind}: {}", String::from_utf8_lossy(&render.stderr));
         assert!(dir.join("out/my-stage/report.html").exists());
         // A second `new` with the same name refuses to overwrite.
-        let again = run_in(&dir, &["new", "my-stage", "--kind", kind]);
+        let again = run_in(&dir, &args);
         assert_eq!(again.status.code(), Some(2));
     }
+    // An author and a date given on the command line are written in.
+    let dir = scratch("new-author");
+    let o = run_in(&dir, &["new", "s", "--author", "A. Reviewer", "--date", "2026-12-05"]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let text = std::fs::read_to_string(dir.join("s.yaml")).unwrap();
+    assert!(text.contains("  author: \"A. Reviewer\"\n") && text.contains("  date: 2026-12-05\n"));
+    let bad = run_in(&dir, &["new", "t", "--date", "5.12.2026"]);
+    assert_eq!(bad.status.code(), Some(2));
 }
