@@ -296,15 +296,7 @@ impl Reader<'_> {
     /// The settling band of the step response: a fraction of the final value in (0, 50 %],
     /// written as a percentage (`0.1 %`) or a plain number (`0.001`).
     fn settling_band(&mut self, node: &Node) -> Option<f64> {
-        let text = node.scalar().unwrap_or("").to_string();
-        let value = match quantity::evaluate(&text, &self.params) {
-            Ok(v) if v.dim.is_none_or(|d| d == Dim::NONE) => v.si,
-            Ok(_) => f64::NAN,
-            Err(e) => {
-                self.quantity_error(node, &text, e);
-                return None;
-            }
-        };
+        let value = self.unitless(node)?;
         if value > 0.0 && value <= 0.5 {
             return Some(value);
         }
@@ -319,17 +311,23 @@ impl Reader<'_> {
         None
     }
 
-    /// A fraction in (0, 1], written as a percentage (`50 %`) or a plain number (`0.5`).
-    fn fraction(&mut self, node: &Node, what: &str) -> Option<f64> {
+    /// A number without a unit (`0.1 %` or `0.001`; NaN when a unit is written, for the caller's
+    /// range check to refuse); None after reporting an unreadable value.
+    pub(super) fn unitless(&mut self, node: &Node) -> Option<f64> {
         let text = node.scalar().unwrap_or("").to_string();
-        let value = match quantity::evaluate(&text, &self.params) {
-            Ok(v) if v.dim.is_none_or(|d| d == Dim::NONE) => v.si,
-            Ok(_) => f64::NAN,
+        match quantity::evaluate(&text, &self.params) {
+            Ok(v) if v.dim.is_none_or(|d| d == Dim::NONE) => Some(v.si),
+            Ok(_) => Some(f64::NAN),
             Err(e) => {
                 self.quantity_error(node, &text, e);
-                return None;
+                None
             }
-        };
+        }
+    }
+
+    /// A fraction in (0, 1], written as a percentage (`50 %`) or a plain number (`0.5`).
+    fn fraction(&mut self, node: &Node, what: &str) -> Option<f64> {
+        let value = self.unitless(node)?;
         if value > 0.0 && value <= 1.0 {
             return Some(value);
         }

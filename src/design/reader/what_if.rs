@@ -349,27 +349,16 @@ impl Reader<'_> {
         }
         let precision = match precision {
             Some(n) => {
-                let text = n.scalar().unwrap_or("").to_string();
-                match quantity::evaluate(&text, &self.params) {
-                    Ok(v) if v.dim.is_none_or(|d| d == Dim::NONE) && v.si > 0.0 && v.si <= 0.1 => {
-                        v.si
-                    }
-                    Ok(_) => {
-                        self.push(
-                            Diagnostic::error(
-                                "out_of_range",
-                                "`precision` is a fraction up to 10 %",
-                            )
+                let v = self.unitless(n)?;
+                if !(v > 0.0 && v <= 0.1) {
+                    self.push(
+                        Diagnostic::error("out_of_range", "`precision` is a fraction up to 10 %")
                             .at(n.span, "not between 0 and 10 %")
                             .help("e.g. `precision: 0.1 %`"),
-                        );
-                        return None;
-                    }
-                    Err(e) => {
-                        self.quantity_error(n, &text, e);
-                        return None;
-                    }
+                    );
+                    return None;
                 }
+                v
             }
             None => DEFAULT_LIMIT_PRECISION,
         };
