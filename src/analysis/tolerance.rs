@@ -826,9 +826,7 @@ pub fn monte_carlo(
         .into_iter()
         .map(|(name, limits)| (name, limits, Figure::of_requirement(name)))
         .collect();
-    let within = |l: &crate::design::Limits, v: Option<f64>| {
-        v.is_some_and(|v| l.min.is_none_or(|lo| v >= lo) && l.max.is_none_or(|hi| v <= hi))
-    };
+    let within = |l: &crate::design::Limits, v: Option<f64>| v.is_some_and(|v| l.contains(v));
     let total = samples.len().max(1) as f64;
     let mut yields = Vec::new();
     let mut any = false;

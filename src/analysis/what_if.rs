@@ -17,7 +17,7 @@ use serde::Serialize;
 
 use crate::analysis::Metrics;
 use crate::analysis::tolerance::{Figure, figures};
-use crate::design::{Design, Limits, PartKind, Varied};
+use crate::design::{Design, PartKind, Varied};
 
 /// Steps from the nominal value to the bound on which a limit is bracketed.
 const BRACKET_STEPS: usize = 32;
@@ -171,10 +171,6 @@ fn evaluate(design: &Design, varied: &Varied, value: f64) -> Option<Metrics> {
     crate::analysis::metrics(&at(design, varied, value)?).ok()
 }
 
-fn within(l: &Limits, v: f64) -> bool {
-    l.min.is_none_or(|lo| v >= lo) && l.max.is_none_or(|hi| v <= hi)
-}
-
 /// The limited requirements `m` fails.
 fn failing(design: &Design, m: &Metrics) -> Vec<&'static str> {
     design
@@ -184,7 +180,7 @@ fn failing(design: &Design, m: &Metrics) -> Vec<&'static str> {
         .filter_map(|(name, l)| {
             let l = l?;
             let v = Figure::of_requirement(name).of(m);
-            (!v.is_some_and(|v| within(&l, v))).then_some(name)
+            (!v.is_some_and(|v| l.contains(v))).then_some(name)
         })
         .collect()
 }
@@ -195,9 +191,7 @@ pub(crate) fn requirement_margin(design: &Design, requirement: &str, m: Option<&
     let limits = design.requirements.items().into_iter().find(|(n, _)| *n == requirement);
     let Some((_, Some(l))) = limits else { return -1.0 };
     let Some(v) = m.and_then(|m| Figure::of_requirement(requirement).of(m)) else { return -1.0 };
-    let to_min = l.min.map(|lo| (v - lo) / lo.abs().max(f64::MIN_POSITIVE));
-    let to_max = l.max.map(|hi| (hi - v) / hi.abs().max(f64::MIN_POSITIVE));
-    [to_min, to_max].into_iter().flatten().fold(f64::INFINITY, f64::min)
+    l.relative_margin(v)
 }
 
 /// Every sweep and limit the design asks.
@@ -254,19 +248,14 @@ fn worst_tolerance(
     for (name, l) in d.requirements.items() {
         let Some(l) = l else { continue };
         let w = study.worst_case.iter().find(|w| w.figure == name);
-        let distance = |v: f64| {
-            let to_min = l.min.map(|lo| (v - lo) / lo.abs().max(f64::MIN_POSITIVE));
-            let to_max = l.max.map(|hi| (hi - v) / hi.abs().max(f64::MIN_POSITIVE));
-            [to_min, to_max].into_iter().flatten().fold(f64::INFINITY, f64::min)
-        };
         let worst = w
             .map(|w| [w.low_corner, w.high_corner])
             .into_iter()
             .flatten()
             .flatten()
             .chain(Figure::of_requirement(name).of(m))
-            .min_by(|a, b| distance(*a).total_cmp(&distance(*b)));
-        if !worst.is_some_and(|v| within(&l, v)) {
+            .min_by(|a, b| l.relative_margin(*a).total_cmp(&l.relative_margin(*b)));
+        if !worst.is_some_and(|v| l.contains(v)) {
             fails.push(name);
         }
         values.push((name, worst));

@@ -460,6 +460,21 @@ pub struct Limits {
     pub max: Option<f64>,
 }
 
+impl Limits {
+    /// True when `v` is within both limits (each inclusive).
+    pub fn contains(&self, v: f64) -> bool {
+        self.min.is_none_or(|lo| v >= lo) && self.max.is_none_or(|hi| v <= hi)
+    }
+
+    /// The relative distance of `v` to the nearer limit, positive inside:
+    /// (v − min)/|min| or (max − v)/|max|, the smaller.
+    pub fn relative_margin(&self, v: f64) -> f64 {
+        let to_min = self.min.map(|lo| (v - lo) / lo.abs().max(f64::MIN_POSITIVE));
+        let to_max = self.max.map(|hi| (hi - v) / hi.abs().max(f64::MIN_POSITIVE));
+        [to_min, to_max].into_iter().flatten().fold(f64::INFINITY, f64::min)
+    }
+}
+
 /// What the design must meet.
 #[derive(Clone, Debug, Default, Serialize)]
 pub struct Requirements {
