@@ -129,8 +129,11 @@ fn main() {
         "whole analysis of each example design (operating point, sweep, cut-offs, QZ, time constants)"
     );
     let root = env!("CARGO_MANIFEST_DIR");
-    let mut names: Vec<_> =
-        std::fs::read_dir(format!("{root}/designs")).unwrap().map(|e| e.unwrap().path()).collect();
+    let mut names: Vec<_> = std::fs::read_dir(format!("{root}/designs"))
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().is_some_and(|e| e == "yaml"))
+        .collect();
     names.sort();
     for path in names {
         let text = std::fs::read_to_string(&path).unwrap();
@@ -149,8 +152,11 @@ fn main() {
     println!(
         "\nnoise review of each example design (sources, spot spectrum, input generators, band integral, the sweep's noise; bias and network built beforehand)"
     );
-    let mut names: Vec<_> =
-        std::fs::read_dir(format!("{root}/designs")).unwrap().map(|e| e.unwrap().path()).collect();
+    let mut names: Vec<_> = std::fs::read_dir(format!("{root}/designs"))
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().is_some_and(|e| e == "yaml"))
+        .collect();
     names.sort();
     for path in &names {
         use tauweave::circuit::{netlist::Netlist, operating_point, small_signal};
@@ -221,8 +227,11 @@ fn main() {
     println!(
         "\nrender of each example design (analysis, requirement checks, cautions, explanation, tables, plots, HTML, Markdown, JSON; tolerance study done once beforehand; no disk)"
     );
-    let mut names: Vec<_> =
-        std::fs::read_dir(format!("{root}/designs")).unwrap().map(|e| e.unwrap().path()).collect();
+    let mut names: Vec<_> = std::fs::read_dir(format!("{root}/designs"))
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().is_some_and(|e| e == "yaml"))
+        .collect();
     names.sort();
     let tpl = template::TemplateSource {
         name: template::BUILT_IN_NAME.into(),
@@ -237,6 +246,7 @@ fn main() {
             template: &tpl,
             built_in_template: true,
             schematic: None,
+            logo: None,
         };
         let study =
             review::review(&d, &ReviewOptions { runs: 0, progress: &|_| {} }).unwrap().study;
@@ -307,8 +317,11 @@ fn main() {
     println!(
         "\nMonte Carlo: full evaluations (bias, mid-band, time constants, exact cut-offs) per second, all cores"
     );
-    let mut names: Vec<_> =
-        std::fs::read_dir(format!("{root}/designs")).unwrap().map(|e| e.unwrap().path()).collect();
+    let mut names: Vec<_> = std::fs::read_dir(format!("{root}/designs"))
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().is_some_and(|e| e == "yaml"))
+        .collect();
     names.sort();
     for path in &names {
         let text = std::fs::read_to_string(path).unwrap();
@@ -337,6 +350,7 @@ fn main() {
         template: &tpl,
         built_in_template: true,
         schematic: None,
+        logo: None,
     };
     let files = report::render(&d, &review, &inputs, &FORMATS).unwrap();
     println!(

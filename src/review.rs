@@ -122,6 +122,9 @@ mod tests {
     fn the_analysis_and_the_lean_evaluation_agree_on_every_example() {
         for entry in std::fs::read_dir("designs").unwrap() {
             let path = entry.unwrap().path();
+            if path.extension().is_none_or(|e| e != "yaml") {
+                continue; // designs/house: read under its project file, tested in the suite
+            }
             let design = crate::design::load(&std::fs::read_to_string(&path).unwrap())
                 .design
                 .unwrap_or_else(|| panic!("{} reads", path.display()));

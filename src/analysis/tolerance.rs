@@ -1047,6 +1047,9 @@ mod adjoint_tests {
         let mut worst: (f64, String) = (0.0, String::new());
         for entry in std::fs::read_dir("designs").unwrap() {
             let path = entry.unwrap().path();
+            if path.extension().is_none_or(|e| e != "yaml") {
+                continue; // designs/house: read under its project file, tested in the suite
+            }
             let d = crate::design::load(&std::fs::read_to_string(&path).unwrap()).design.unwrap();
             let all = levers(&d);
             let figs = figures(&metrics(&d).unwrap());

@@ -118,7 +118,7 @@ pub fn at(design: &Design, varied: &Varied, value: f64) -> Option<Design> {
     match varied {
         Varied::Param(name) => {
             let overrides = BTreeMap::from([(name.clone(), value)]);
-            crate::design::load_with(&design.source, &overrides).design
+            crate::design::load_with(&design.source, &overrides, design.project.as_ref()).design
         }
         Varied::Part(name) => {
             let mut d = design.clone();

@@ -111,12 +111,14 @@ pub struct BuildOptions {
     pub format: Format,
     /// Monte Carlo runs (default: the design's own).
     pub runs: Option<u32>,
-    /// Paper of the PDF packet.
-    pub paper: PaperSize,
+    /// Paper of the PDF packet (default: the project file's, else A4).
+    pub paper: Option<PaperSize>,
     /// The typst program, when named on the command line.
     pub typst: Option<PathBuf>,
     /// Where the design's schematic drawing is read from.
     pub drawings: Drawings,
+    /// Whether a long analysis shows its progress (false in a batch, which shows its own).
+    pub progress: bool,
 }
 
 /// Where a design's schematic drawing is read from.
@@ -155,6 +157,25 @@ fn read_schematic(
     Ok(Some(Supplied { path, mime, bytes }))
 }
 
+/// The project's logo, read from beside the project file or from the rendered folder.
+fn read_logo(file: &LoadedFile, drawings: &Drawings) -> Result<Option<Supplied>, Failure> {
+    let Some(p) = &file.project else { return Ok(None) };
+    let Some(name) = &p.project.logo else { return Ok(None) };
+    let path = manifest::logo_copy(name);
+    let from = match drawings {
+        Drawings::BesideDesign(_) => p.dir.join(name),
+        Drawings::Archived(folder) => folder.join(&path),
+    };
+    let bytes = std::fs::read(&from).map_err(|e| {
+        Failure::input(
+            format_args!("cannot read the logo `{}`: {e}", from.display()),
+            Some("put the logo where the project file's `logo` says (relative to the project file), or remove the key"),
+        )
+    })?;
+    let mime = if path.ends_with(".png") { "image/png" } else { "image/svg+xml" };
+    Ok(Some(Supplied { path, mime, bytes }))
+}
+
 /// A render in memory.
 pub struct Built {
     /// The design id.
@@ -182,24 +203,31 @@ pub fn build(
     let design = file.design()?;
     let mut notes = file.report();
     let runs = options.runs.unwrap_or(design.analysis.monte_carlo_runs);
-    let review = progress::review(design, runs)
+    let review = progress::review_shown(design, runs, options.progress)
         .map_err(|e| Failure::Input(format!("{notes}{}", analysis_failure(file, &e))))?;
     let schematic = read_schematic(design, &options.drawings)?;
+    let logo = read_logo(file, &options.drawings)?;
+    let house_paper = file.project.as_ref().and_then(|p| p.project.paper.as_deref());
+    let paper = options
+        .paper
+        .or_else(|| house_paper.and_then(PaperSize::from_name))
+        .unwrap_or(PaperSize::A4);
     let inputs = Inputs {
         design_name: &file.name,
         design_text: &file.text,
         template,
         built_in_template: built_in,
         schematic: schematic.as_ref(),
+        logo: logo.as_ref(),
     };
-    let exporters = options.format.exporters(options.paper.paper());
+    let exporters = options.format.exporters(paper.paper());
     let exporters: Vec<&dyn Exporter> = exporters.iter().map(Box::as_ref).collect();
     let mut files = report::render(design, &review, &inputs, &exporters)
         .map_err(|e| Failure::Input(format!("{notes}{}nothing was written\n", e.message)))?;
     let mut pdf_problem = None;
     let mut typst_version = None;
     if options.format.has_pdf() {
-        match make_pdf(&files, schematic.as_ref(), options, &design.meta.date) {
+        match make_pdf(&files, [&schematic, &logo], options, &design.meta.date) {
             Ok((version, pdf)) => {
                 if !pdf.warnings.is_empty() {
                     notes.push_str(&format!(
@@ -220,10 +248,15 @@ pub fn build(
             .then(|| report::shown_name(&template.name, manifest::TEMPLATE_COPY)),
         format: options.format.name().into(),
         runs,
-        paper: options.paper.name().into(),
+        paper: paper.name().into(),
         typst: typst_version.clone(),
+        project_name: file.project.as_ref().map(|_| crate::design::project::FILE.to_string()),
     };
-    let extra: Vec<(String, Vec<u8>)> = schematic.into_iter().map(|s| (s.path, s.bytes)).collect();
+    let mut extra: Vec<(String, Vec<u8>)> =
+        schematic.into_iter().chain(logo).map(|s| (s.path, s.bytes)).collect();
+    if let Some(p) = &file.project {
+        extra.push((manifest::PROJECT_COPY.into(), p.text.as_bytes().to_vec()));
+    }
     let files =
         manifest::seal(files, recipe, &file.text, (!built_in).then_some(&*template.text), &extra);
     let failing = review.failing_names();
@@ -234,7 +267,7 @@ pub fn build(
 /// made it.
 fn make_pdf(
     files: &[OutputFile],
-    schematic: Option<&Supplied>,
+    images: [&Option<Supplied>; 2],
     options: &BuildOptions,
     date: &str,
 ) -> Result<(String, pdf::Compiled), PdfProblem> {
@@ -244,8 +277,14 @@ fn make_pdf(
         .filter(|f| f.path == report::TYPST_FILE || f.path.starts_with("plots/"))
         .cloned()
         .collect();
-    // The schematic is referenced by its archived path, so typst reads the same bytes.
-    sources.extend(schematic.map(|s| OutputFile { path: s.path.clone(), bytes: s.bytes.clone() }));
+    // The schematic and the logo are referenced by their archived paths, so typst reads the
+    // same bytes.
+    sources.extend(
+        images
+            .into_iter()
+            .flatten()
+            .map(|s| OutputFile { path: s.path.clone(), bytes: s.bytes.clone() }),
+    );
     let pdf = pdf::compile(&typst, &sources, date)?;
     Ok((typst.version, pdf))
 }
@@ -301,10 +340,28 @@ impl Written {
 /// One render: reads the design and the template as they are now, builds the review and
 /// writes every file into the output folder. Nothing is written when the build fails.
 pub fn render_and_write(job: &RenderJob) -> Result<Written, Failure> {
+    let built = prepare(job)?;
+    let dir = job.out.clone().unwrap_or_else(|| default_folder(&built.id));
+    write_built(job, built, dir)
+}
+
+/// Where a review is written when no folder is named: out/<design id>/.
+pub fn default_folder(id: &str) -> PathBuf {
+    PathBuf::from("out").join(id)
+}
+
+/// A render in memory: reads the design and the template as they are now and builds.
+pub fn prepare(job: &RenderJob) -> Result<Built, Failure> {
     let file = load_file(&job.design)?;
-    let (template, built_in) = template_source(&job.template)?;
-    let built = build(&file, &template, built_in, &job.options)?;
-    let dir = job.out.clone().unwrap_or_else(|| PathBuf::from("out").join(&built.id));
+    // No template named: the project file's, when it names one.
+    let house =
+        file.project.as_ref().and_then(|p| p.project.template.as_ref().map(|t| p.dir.join(t)));
+    let (template, built_in) = template_source(&job.template.clone().or(house))?;
+    build(&file, &template, built_in, &job.options)
+}
+
+/// Writes a render built by [`prepare`] into `dir`, replacing the folder whole.
+pub fn write_built(job: &RenderJob, built: Built, dir: PathBuf) -> Result<Written, Failure> {
     // A render replaces its whole folder, so its own inputs cannot live there.
     let inside = |input: &Path| {
         let (Ok(a), Ok(d)) = (input.canonicalize(), std::path::absolute(&dir)) else {

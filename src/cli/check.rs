@@ -6,48 +6,226 @@
 //! (warnings allowed) and its analysis succeeds, 2 when it has errors.
 
 use std::fmt::Write as _;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 use clap::Args;
 
 use crate::analysis::{Analysis, RootHz};
 use crate::circuit::operating_point::DeviceState;
+use crate::cli::batch::{self, Status};
 use crate::cli::progress;
 use crate::cli::source::{analysis_failure, load_file, plural};
 use crate::cli::table::{Align, render};
 use crate::cli::{Failure, Outcome, out};
 use crate::design::{Design, DeviceModel, PartKind};
 use crate::notation::{absent, plain, scientific, si};
+use crate::report::ci::{self, CheckedDesign};
 
 /// Flags of `tauweave check`.
 #[derive(Debug, Args)]
 pub struct CheckArgs {
-    /// The design file (YAML).
-    pub design: PathBuf,
+    /// Design files (YAML), folders holding them, or patterns such as `designs/*.yaml`. One
+    /// file prints its whole analysis; several print one line each.
+    #[arg(required = true, value_name = "DESIGN")]
+    pub designs: Vec<PathBuf>,
     /// Monte Carlo runs (overrides the design's `analysis.monte_carlo.runs`; 0 skips it).
     #[arg(long)]
     pub runs: Option<u32>,
+    /// Also write the requirement verdicts for CI: `junit FILE` (JUnit XML) or `json FILE`;
+    /// `-` as FILE writes to standard output instead of the usual text.
+    #[arg(long, num_args = 2, value_names = ["FORMAT", "FILE"])]
+    pub report: Option<Vec<String>>,
 }
 
-/// Runs the check.
+/// The machine-readable reports `--report` writes.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum ReportFormat {
+    Junit,
+    Json,
+}
+
+/// `--report FORMAT FILE`, read: the format and the file (None for standard output).
+fn report_flag(args: &CheckArgs) -> Result<Option<(ReportFormat, Option<PathBuf>)>, Failure> {
+    let Some(values) = &args.report else { return Ok(None) };
+    let format = match values[0].as_str() {
+        "junit" => ReportFormat::Junit,
+        "json" => ReportFormat::Json,
+        other => {
+            return Err(Failure::input(
+                format_args!("`--report {other}` is not a report tauweave writes"),
+                Some("write `--report junit FILE` (JUnit XML) or `--report json FILE`"),
+            ));
+        }
+    };
+    let file = (values[1] != "-").then(|| PathBuf::from(&values[1]));
+    Ok(Some((format, file)))
+}
+
+/// Runs the check: one design in full, several as a batch; then the CI report if asked.
 pub fn run(args: &CheckArgs) -> Result<Outcome, Failure> {
-    let file = load_file(&args.design)?;
+    let report = report_flag(args)?;
+    let to_stdout = matches!(report, Some((_, None)));
+    let (checked, result) = if batch::is_batch(&args.designs) {
+        run_batch(args, to_stdout)?
+    } else {
+        let design = &args.designs[0];
+        let (checked, result) = check_one(design, args.runs, !to_stdout, true);
+        if report.is_none() {
+            return result;
+        }
+        // A design that cannot be checked is a test case in error in the report, and its
+        // message is printed by `main` after the report is written.
+        (vec![checked], result)
+    };
+    if let Some((format, file)) = report {
+        let text = match format {
+            ReportFormat::Junit => ci::junit(&checked),
+            ReportFormat::Json => ci::json(&checked),
+        };
+        match file {
+            None => out(&text)?,
+            Some(path) => std::fs::write(&path, text).map_err(|e| {
+                Failure::input(
+                    format_args!("cannot write the report `{}`: {e}", path.display()),
+                    Some("check that the folder exists and can be written"),
+                )
+            })?,
+        }
+    }
+    result
+}
+
+/// Checks one design: its full text on standard output when `verbose`, and what the CI
+/// reports need. The result is the command's as for this design alone.
+fn check_one(
+    path: &Path,
+    runs: Option<u32>,
+    verbose: bool,
+    shown: bool,
+) -> (CheckedDesign, Result<Outcome, Failure>) {
+    let mut checked = CheckedDesign {
+        path: path.display().to_string(),
+        id: None,
+        error: None,
+        requirements: Vec::new(),
+        monte_carlo_runs: 0,
+        min_yield: None,
+    };
+    let result = check_into(path, runs, verbose, shown, &mut checked);
+    if let Err(f) = &result {
+        checked.error = Some((batch::gist(f, &path.display().to_string()), batch::full_message(f)));
+    }
+    (checked, result)
+}
+
+fn check_into(
+    path: &Path,
+    runs: Option<u32>,
+    verbose: bool,
+    shown: bool,
+    checked: &mut CheckedDesign,
+) -> Result<Outcome, Failure> {
+    let file = load_file(path)?;
     let design = file.design()?;
-    eprint!("{}", file.report());
-    out(&summary(design, file.loaded.warnings()))?;
-    let runs = args.runs.unwrap_or(design.analysis.monte_carlo_runs);
-    let review =
-        progress::review(design, runs).map_err(|e| Failure::Input(analysis_failure(&file, &e)))?;
-    out(&analysis_text(&review.analysis))?;
-    out(&requirements_text(&review.requirements, &review.study))?;
-    out(&what_if_text(&review.what_if))?;
-    out(&suggestions_text(&review.what_if))?;
+    checked.id = Some(design.meta.id.clone());
+    checked.min_yield = design.analysis.min_yield;
+    if verbose {
+        eprint!("{}", file.report());
+        out(&summary(design, file.loaded.warnings()))?;
+        if let Some(p) = &file.project {
+            let sets: Vec<&str> = p.project.requirement_sets.keys().map(String::as_str).collect();
+            out(&format!(
+                "  read under the project file {}{}\n",
+                p.name,
+                if sets.is_empty() {
+                    String::new()
+                } else {
+                    format!(" (requirement sets: {})", sets.join(", "))
+                }
+            ))?;
+        }
+    }
+    let runs = runs.unwrap_or(design.analysis.monte_carlo_runs);
+    let review = progress::review_shown(design, runs, shown)
+        .map_err(|e| Failure::Input(analysis_failure(&file, &e)))?;
+    checked.requirements = review.requirements.clone();
+    checked.monte_carlo_runs = review.study.monte_carlo.as_ref().map_or(0, |mc| mc.runs as usize);
+    if verbose {
+        out(&analysis_text(&review.analysis))?;
+        out(&requirements_text(&review.requirements, &review.study))?;
+        out(&what_if_text(&review.what_if))?;
+        out(&suggestions_text(&review.what_if))?;
+    }
     if review.failing() {
-        let failing = review.failing_names();
-        eprintln!("{}: fails {} at nominal values", file.name, failing.join(", "));
+        if verbose {
+            let failing = review.failing_names();
+            eprintln!("{}: fails {} at nominal values", file.name, failing.join(", "));
+        }
         return Ok(Outcome::Failing);
     }
     Ok(Outcome::Done)
+}
+
+/// Checks every design named, in parallel: one line each and a total (on standard error
+/// when the report takes standard output), the messages of those that could not be checked,
+/// and the worst status.
+fn run_batch(
+    args: &CheckArgs,
+    to_stdout: bool,
+) -> Result<(Vec<CheckedDesign>, Result<Outcome, Failure>), Failure> {
+    let designs = batch::designs(&args.designs)?;
+    let results = batch::run_all(&designs, "checking", |d| check_one(d, args.runs, false, false));
+    let mut lines = String::new();
+    let mut messages = String::new();
+    let mut statuses = Vec::new();
+    let mut checked = Vec::new();
+    for (c, result) in results {
+        let status = Status::of(&result);
+        let line = match &result {
+            Ok(_) => {
+                let failing: Vec<&str> =
+                    c.requirements.iter().filter(|r| !r.pass).map(|r| r.name).collect();
+                let corner = c.requirements.iter().filter(|r| r.corner_pass == Some(false)).count();
+                let mut line = format!("{}  {} requirements", c.path, c.requirements.len());
+                if !failing.is_empty() {
+                    line.push_str(&format!(", failing at nominal values: {}", failing.join(", ")));
+                }
+                if corner > 0 {
+                    line.push_str(&format!(", {corner} failing at a tolerance corner"));
+                }
+                line
+            }
+            Err(f) => {
+                messages.push_str(&batch::full_message(f));
+                format!("{}  not checked: {}", c.path, batch::gist(f, &c.path))
+            }
+        };
+        let label = match status {
+            Status::Pass => "pass",
+            Status::Fails => "fails",
+            Status::Error | Status::Internal => "error",
+        };
+        lines.push_str(&format!("{label:<8}{line}\n"));
+        statuses.push(status);
+        checked.push(c);
+    }
+    let count = |s: Status| statuses.iter().filter(|x| **x == s).count();
+    let errors = count(Status::Error) + count(Status::Internal);
+    lines.push_str(&format!(
+        "{} design{} checked: {} pass, {} fail a requirement at nominal values, {} not checked\n",
+        statuses.len(),
+        plural(statuses.len()),
+        count(Status::Pass),
+        count(Status::Fails),
+        errors
+    ));
+    eprint!("{messages}");
+    if to_stdout {
+        eprint!("{lines}");
+    } else {
+        out(&lines)?;
+    }
+    Ok((checked, batch::outcome(statuses.iter().copied().max(), errors, "design")))
 }
 
 /// The suggested part changes, when a requirement fails at nominal values.

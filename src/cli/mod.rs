@@ -4,6 +4,7 @@
 //! for `main` to turn into an exit code. One file per subcommand. This is the only layer
 //! that reads files given by the user and prints to the terminal.
 
+pub mod batch;
 pub mod build;
 pub mod check;
 pub mod completions;
@@ -125,7 +126,13 @@ pub fn run() -> Result<Outcome, Failure> {
     let cli = Cli::try_parse().map_err(Failure::Usage)?;
     match cli.command {
         Command::Check(args) => check::run(&args),
-        Command::Render(args) if args.watch => watch::run(&args.job(), args.format),
+        Command::Render(args) if args.watch => match args.single() {
+            Some(design) => watch::run(&args.job(design, args.out.clone()), args.format),
+            None => Err(Failure::input(
+                "--watch follows one design file, and several (or a folder) were named",
+                Some("name one design file with --watch, or render the batch without it"),
+            )),
+        },
         Command::Render(args) => render::run(&args),
         Command::Schema(args) => schema::run(&args),
         Command::Diff(args) => diff::run(&args),

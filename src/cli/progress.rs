@@ -18,6 +18,12 @@ const QUIET: Duration = Duration::from_secs(1);
 /// Reviews `design` with `runs` Monte Carlo runs, showing its progress on a terminal when it
 /// takes longer than [`QUIET`].
 pub fn review(design: &Design, runs: u32) -> Result<Review, AnalysisError> {
+    review_shown(design, runs, true)
+}
+
+/// [`review`], showing no progress when `shown` is false (one of many designs, whose
+/// progress the batch shows).
+pub fn review_shown(design: &Design, runs: u32, shown: bool) -> Result<Review, AnalysisError> {
     let bar = ProgressBar::with_draw_target(None, ProgressDrawTarget::hidden());
     let counted = ProgressStyle::with_template("{msg:>14} {wide_bar} {pos}/{len} {elapsed}")
         .unwrap_or_else(|_| ProgressStyle::default_bar());
@@ -26,7 +32,7 @@ pub fn review(design: &Design, runs: u32) -> Result<Review, AnalysisError> {
     // Finished before the second is up: the display never appears. The lock keeps the
     // showing and the clearing from crossing.
     let finished = Arc::new(Mutex::new(false));
-    if std::io::stderr().is_terminal() {
+    if shown && std::io::stderr().is_terminal() {
         let (bar, finished) = (bar.clone(), Arc::clone(&finished));
         std::thread::spawn(move || {
             std::thread::sleep(QUIET);

@@ -4,11 +4,13 @@
 //! start here, so every command reports design problems the same way.
 
 use std::io::IsTerminal;
-use std::path::Path;
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
 
 use crate::analysis::AnalysisError;
 use crate::cli::{Failure, Level, problem};
 use crate::design::Diagnostic;
+use crate::design::project::{self, Project};
 use crate::design::{self, Design, Loaded};
 use crate::report::template::{BUILT_IN, BUILT_IN_NAME, TemplateSource};
 
@@ -20,10 +22,34 @@ pub struct LoadedFile {
     pub text: String,
     /// The design and its diagnostics.
     pub loaded: Loaded,
+    /// The project file the design was read under, when one was found above it.
+    pub project: Option<ProjectFile>,
 }
 
-/// Reads `path` and checks it. A file that cannot be read is a [`Failure::Input`].
+/// A project file, read.
+pub struct ProjectFile {
+    /// Its path as found (or its archived copy's).
+    pub name: String,
+    /// The folder its paths (template, logo) are relative to.
+    pub dir: PathBuf,
+    /// Its text.
+    pub text: String,
+    /// The house style.
+    pub project: Arc<Project>,
+}
+
+/// Reads `path` and checks it, under the project file found above it. A file that cannot
+/// be read, or a project file with errors, is a [`Failure::Input`].
 pub fn load_file(path: &Path) -> Result<LoadedFile, Failure> {
+    let project = match find_project(path) {
+        Some(found) => Some(read_project(&found)?),
+        None => None,
+    };
+    load_under(path, project)
+}
+
+/// Reads `path` and checks it under `project`.
+pub fn load_under(path: &Path, project: Option<ProjectFile>) -> Result<LoadedFile, Failure> {
     let name = path.display().to_string();
     let text = std::fs::read_to_string(path).map_err(|e| {
         let hint = match e.kind() {
@@ -33,8 +59,46 @@ pub fn load_file(path: &Path) -> Result<LoadedFile, Failure> {
         };
         Failure::input(format_args!("cannot read `{name}`: {e}"), Some(hint))
     })?;
-    let loaded = design::load(&text);
-    Ok(LoadedFile { name, text, loaded })
+    let loaded = design::load_in(&text, project.as_ref().map(|p| &p.project));
+    Ok(LoadedFile { name, text, loaded, project })
+}
+
+/// The project file nearest above the design: in its folder, else the folder above, up to
+/// the root of the file system.
+pub fn find_project(design: &Path) -> Option<PathBuf> {
+    let absolute = std::path::absolute(design).ok()?;
+    absolute.ancestors().skip(1).map(|dir| dir.join(project::FILE)).find(|p| p.is_file())
+}
+
+/// Reads a project file; its errors, located in it, are a [`Failure::Input`].
+pub fn read_project(path: &Path) -> Result<ProjectFile, Failure> {
+    let name = path.display().to_string();
+    let text = std::fs::read_to_string(path).map_err(|e| {
+        Failure::input(
+            format_args!("cannot read the project file `{name}`: {e}"),
+            Some("the project file must be readable UTF-8 text"),
+        )
+    })?;
+    let loaded = project::load(&text);
+    let color = std::io::stderr().is_terminal() && std::env::var_os("NO_COLOR").is_none();
+    let mut report = String::new();
+    for d in &loaded.diagnostics {
+        report.push_str(&d.render(&name, &text, color));
+        report.push('\n');
+    }
+    let Some(p) = loaded.project else {
+        let e = loaded.diagnostics.iter().filter(|d| d.is_error()).count();
+        report.push_str(&format!(
+            "{name}: {e} error{} in the project file; nothing was written\n",
+            plural(e)
+        ));
+        return Err(Failure::Input(report));
+    };
+    if !report.is_empty() {
+        eprint!("{report}");
+    }
+    let dir = path.parent().map_or_else(|| PathBuf::from("."), Path::to_path_buf);
+    Ok(ProjectFile { name, dir, text, project: Arc::new(p) })
 }
 
 impl LoadedFile {

@@ -25,24 +25,122 @@ use crate::report::write;
 /// Flags of `tauweave verify`.
 #[derive(Debug, Args)]
 pub struct VerifyArgs {
-    /// A folder written by `tauweave render`.
-    pub dir: PathBuf,
+    /// Folders written by `tauweave render`, or folders holding them (searched through, so a
+    /// whole archive is one command), or patterns.
+    #[arg(required = true, value_name = "DIR")]
+    pub dirs: Vec<PathBuf>,
     /// The typst program, to rebuild a report.pdf (default: $TAUWEAVE_TYPST, else PATH).
     #[arg(long, value_name = "PATH")]
     pub typst: Option<PathBuf>,
 }
 
-/// Runs the verification.
+/// Runs the verification: one rendered folder as before, or every one the paths name.
 pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
+    let one = &args.dirs[0];
+    // One rendered folder, or one path that is none (its verification says why): verified
+    // alone. A folder without a manifest is searched through, as several paths are.
+    let rendered = one.join(manifest::FILE).is_file();
+    if args.dirs.len() == 1 && (rendered || !(one.is_dir() || crate::cli::batch::is_pattern(one))) {
+        return print(verify_folder(one, args.typst.as_ref(), true));
+    }
+    if args.dirs.len() == 1 && one.is_dir() && crate::cli::batch::rendered_folders(&args.dirs).is_err() {
+        // A folder that is no render and holds none: say why it cannot be verified.
+        return print(verify_folder(one, args.typst.as_ref(), true));
+    }
+    run_batch(args)
+}
+
+/// Prints one verification's report and returns its result.
+fn print(v: Verified) -> Result<Outcome, Failure> {
+    eprint!("{}", v.notes);
+    out(&v.report)?;
+    v.result
+}
+
+/// What one verification found.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord)]
+enum Finding {
+    Identical,
+    Changed,
+    Incomplete,
+    Unverifiable,
+}
+
+/// One verification: its report (standard output), its notes (standard error), the
+/// finding, and the result the command would end with for this folder alone.
+struct Verified {
+    report: String,
+    notes: String,
+    finding: Finding,
+    result: Result<Outcome, Failure>,
+}
+
+/// Verifies every rendered folder the paths name, in parallel: each folder's report, then a
+/// total of identical / changed / incomplete / not verifiable; the worst status decides.
+fn run_batch(args: &VerifyArgs) -> Result<Outcome, Failure> {
+    use crate::cli::batch::{self, Status};
+    let folders = batch::rendered_folders(&args.dirs)?;
+    let all =
+        batch::run_all(&folders, "verifying", |d| verify_folder(d, args.typst.as_ref(), false));
+    let mut statuses = Vec::new();
+    let mut counts = [0usize; 4];
+    let mut report = String::new();
+    for v in all {
+        eprint!("{}", v.notes);
+        report.push_str(&v.report);
+        if let Err(f) = &v.result {
+            let message = crate::cli::batch::full_message(f);
+            if v.finding == Finding::Unverifiable {
+                report
+                    .push_str(&format!("unverifiable: {}", message.trim_start_matches("error: ")));
+            } else {
+                eprint!("{message}");
+            }
+        }
+        counts[v.finding as usize] += 1;
+        statuses.push(Status::of(&v.result));
+    }
+    report.push_str(&format!(
+        "{} folder{} verified: {} identical, {} changed, {} incomplete, {} not verifiable\n",
+        folders.len(),
+        crate::cli::source::plural(folders.len()),
+        counts[0],
+        counts[1],
+        counts[2],
+        counts[3]
+    ));
+    out(&report)?;
+    let problems = counts[2] + counts[3];
+    batch::outcome(statuses.iter().copied().max(), problems, "folder")
+}
+
+/// Verifies one rendered folder.
+fn verify_folder(dir: &std::path::Path, typst: Option<&PathBuf>, progress: bool) -> Verified {
+    let mut report = String::new();
+    let mut notes = String::new();
+    let result = verify_into(dir, typst, progress, &mut report, &mut notes);
+    let finding = match &result {
+        Ok(Outcome::Done) => Finding::Identical,
+        Ok(Outcome::Failing) => Finding::Changed,
+        Err(_) if report.starts_with("incomplete") => Finding::Incomplete,
+        Err(_) => Finding::Unverifiable,
+    };
+    Verified { report, notes, finding, result }
+}
+
+fn verify_into(
+    dir: &std::path::Path,
+    typst: Option<&PathBuf>,
+    progress: bool,
+    report: &mut String,
+    notes: &mut String,
+) -> Result<Outcome, Failure> {
     let help =
         format!("verify a folder written by `tauweave render` (it holds {})", manifest::FILE);
     let unusable = |why: String| {
-        Failure::input(
-            format_args!("`{}` cannot be verified: {why}", args.dir.display()),
-            Some(&help),
-        )
+        Failure::input(format_args!("`{}` cannot be verified: {why}", dir.display()), Some(&help))
     };
-    let text = std::fs::read_to_string(args.dir.join(manifest::FILE))
+    let text = std::fs::read_to_string(dir.join(manifest::FILE))
         .map_err(|e| unusable(format!("no readable {}: {e}", manifest::FILE)))?;
     let m: Manifest = serde_json::from_str(&text)
         .map_err(|e| unusable(format!("{} does not read: {e}", manifest::FILE)))?;
@@ -62,19 +160,19 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
     let mut problems = Vec::new();
     // The inputs must be the ones recorded.
     for (path, hash) in &m.inputs {
-        match std::fs::read(args.dir.join(path)) {
+        match std::fs::read(dir.join(path)) {
             Ok(bytes) if sha256(&bytes) == *hash => {}
             Ok(_) => problems.push(format!("input {path} was changed after the render")),
             Err(e) => problems.push(format!("input {path} cannot be read: {e}")),
         }
     }
-    let design_text = std::fs::read_to_string(args.dir.join(manifest::DESIGN_COPY))
+    let design_text = std::fs::read_to_string(dir.join(manifest::DESIGN_COPY))
         .map_err(|e| unusable(format!("no design copy: {e}")))?;
     let recipe = &m.recipe;
     let template = match &recipe.template_name {
         None => (TemplateSource { name: BUILT_IN_NAME.into(), text: BUILT_IN.into() }, true),
         Some(name) => {
-            let text = std::fs::read_to_string(args.dir.join(manifest::TEMPLATE_COPY))
+            let text = std::fs::read_to_string(dir.join(manifest::TEMPLATE_COPY))
                 .map_err(|e| unusable(format!("no template copy: {e}")))?;
             (TemplateSource { name: name.clone(), text }, false)
         }
@@ -84,44 +182,52 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
             unusable(format!("unknown format `{}` in the manifest", recipe.format))
         })?,
         runs: Some(recipe.runs),
-        paper: PaperSize::from_name(&recipe.paper)
-            .ok_or_else(|| unusable(format!("unknown paper `{}` in the manifest", recipe.paper)))?,
-        typst: args.typst.clone(),
-        drawings: Drawings::Archived(args.dir.clone()),
+        paper: Some(PaperSize::from_name(&recipe.paper).ok_or_else(|| {
+            unusable(format!("unknown paper `{}` in the manifest", recipe.paper))
+        })?),
+        typst: typst.cloned(),
+        drawings: Drawings::Archived(dir.to_path_buf()),
+        progress,
     };
     if m.version != env!("CARGO_PKG_VERSION") {
-        eprintln!(
-            "note: rendered by tauweave {}, verifying with {}",
+        notes.push_str(&format!(
+            "note: rendered by tauweave {}, verifying with {}\n",
             m.version,
             env!("CARGO_PKG_VERSION")
-        );
+        ));
     }
+    // The project file as archived, never one found around the folder now.
+    let project = match &recipe.project_name {
+        Some(_) => Some(crate::cli::source::read_project(&dir.join(manifest::PROJECT_COPY))?),
+        None => None,
+    };
     let file = LoadedFile {
         name: recipe.design_name.clone(),
-        loaded: crate::design::load(&design_text),
+        loaded: crate::design::load_in(&design_text, project.as_ref().map(|p| &p.project)),
         text: design_text,
+        project,
     };
     let built = build(&file, &template.0, template.1, &options)?;
-    eprint!("{}", built.notes);
+    notes.push_str(&built.notes);
     // A report.pdf that cannot be rebuilt here (no typst, or it fails) is checked against
     // its SHA-256 only, and the verification is incomplete.
     let mut unverified = None;
     if m.outputs.contains_key(crate::report::PDF_FILE) {
         match built.pdf_problem {
             Some(problem) => unverified = Some(problem),
-            None if built.typst_version != recipe.typst => eprintln!(
-                "note: report.pdf was made by {}, rebuilt by {}",
+            None if built.typst_version != recipe.typst => notes.push_str(&format!(
+                "note: report.pdf was made by {}, rebuilt by {}\n",
                 recipe.typst.as_deref().unwrap_or("an unknown typst"),
                 built.typst_version.as_deref().unwrap_or(ABSENT)
-            ),
+            )),
             None => {}
         }
     }
     let rebuilt = built.files;
     // The whole folder against the rebuild, both ways: every file there must be one the
     // rebuild makes, with the same bytes, and every file the rebuild makes must be there.
-    let found = write::entries(&args.dir)
-        .map_err(|e| unusable(format!("the folder cannot be read: {e}")))?;
+    let found =
+        write::entries(dir).map_err(|e| unusable(format!("the folder cannot be read: {e}")))?;
     for (path, kind) in &found {
         if kind.is_symlink() {
             problems.push(format!("{path}: a symbolic link (a render never makes one)"));
@@ -140,7 +246,7 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
             problems.push(format!("{path}: missing from the folder"));
             continue;
         }
-        let old = match std::fs::read(args.dir.join(path)) {
+        let old = match std::fs::read(dir.join(path)) {
             Ok(b) => b,
             Err(e) => {
                 problems.push(format!("{path}: cannot be read: {e}"));
@@ -171,7 +277,7 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
     if unverified.is_some() {
         // The PDF that could not be rebuilt: checked against its recorded SHA-256 only.
         let pdf = crate::report::PDF_FILE;
-        match (std::fs::read(args.dir.join(pdf)), m.outputs.get(pdf)) {
+        match (std::fs::read(dir.join(pdf)), m.outputs.get(pdf)) {
             (Ok(b), Some(hash)) if sha256(&b) == *hash => {}
             (Ok(_), _) => problems.push(format!(
                 "{pdf}: changed after the render (its SHA-256 no longer matches the manifest)"
@@ -179,20 +285,20 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
             (Err(e), _) => problems.push(format!("{pdf}: cannot be read: {e}")),
         }
     }
-    let dir = args.dir.display();
+    let dir = dir.display();
     let compared = rebuilt.len();
     if !problems.is_empty() {
         let s = if problems.len() == 1 { "" } else { "s" };
-        out(&format!("differs: {} problem{s} in {dir}\n", problems.len()))?;
+        report.push_str(&format!("differs: {} problem{s} in {dir}\n", problems.len()));
         for p in &problems {
-            out(&format!("  {p}\n"))?;
+            report.push_str(&format!("  {p}\n"));
         }
     } else if unverified.is_some() {
-        out(&format!(
+        report.push_str(&format!(
             "incomplete: report.pdf not verified, the other {compared} files identical in {dir}\n"
-        ))?;
+        ));
     } else {
-        out(&format!("identical: {compared} files rebuilt from {dir} byte for byte\n"))?;
+        report.push_str(&format!("identical: {compared} files rebuilt from {dir} byte for byte\n"));
         return Ok(Outcome::Done);
     }
     let Some(pdf_problem) = unverified else { return Ok(Outcome::Failing) };
@@ -209,7 +315,7 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
     if fatal {
         return Err(Failure::Input(message));
     }
-    eprint!("{message}");
+    notes.push_str(&message);
     Ok(Outcome::Failing)
 }
 

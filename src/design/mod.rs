@@ -7,6 +7,7 @@
 
 pub mod diagnostic;
 pub mod fields;
+pub mod project;
 pub mod quantity;
 pub mod reader;
 pub mod schema;
@@ -43,16 +44,26 @@ impl Loaded {
 
 /// Reads and checks a design from its text.
 pub fn load(text: &str) -> Loaded {
-    load_with(text, &std::collections::BTreeMap::new())
+    load_with(text, &std::collections::BTreeMap::new(), None)
 }
 
-/// [`load`] with some params replaced by SI values, their units kept (a what-if point).
-pub fn load_with(text: &str, overrides: &std::collections::BTreeMap<String, f64>) -> Loaded {
+/// [`load`] under a project file's house style.
+pub fn load_in(text: &str, project: Option<&std::sync::Arc<project::Project>>) -> Loaded {
+    load_with(text, &std::collections::BTreeMap::new(), project)
+}
+
+/// [`load_in`] with some params replaced by SI values, their units kept (a what-if point).
+pub fn load_with(
+    text: &str,
+    overrides: &std::collections::BTreeMap<String, f64>,
+    project: Option<&std::sync::Arc<project::Project>>,
+) -> Loaded {
     let root = match yaml::parse(text) {
         Ok(root) => root,
         Err(d) => return Loaded { design: None, diagnostics: vec![*d] },
     };
-    let reader::Read { design, mut diagnostics } = reader::read_with(text, &root, overrides);
+    let reader::Read { design, mut diagnostics } =
+        reader::read_with(text, &root, overrides, project);
     if let Some(d) = &design {
         diagnostics.extend(topology::check(d));
     }

@@ -224,7 +224,12 @@ pub fn design_schema() -> Value {
                 "settling_band" => {
                     quantity("band the step response settles within, e.g. 1 % (default 1 %)")
                 }
-                _ => object(MONTE_CARLO_KEYS, &[], |_| json!({"type": "integer", "minimum": 0})),
+                _ => object(MONTE_CARLO_KEYS, &[], |k| match k {
+                    "min_yield" => quantity(
+                        "the Monte Carlo yield each requirement must reach, e.g. 99 % (CI reports fail below it)",
+                    ),
+                    _ => json!({"type": "integer", "minimum": 0}),
+                }),
             }),
             "what_if" => object(WHAT_IF_KEYS, &[], |k| match k {
                 "tolerance_corners" => {

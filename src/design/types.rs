@@ -46,6 +46,9 @@ pub struct Design {
     /// again (shared, not copied).
     #[serde(skip)]
     pub source: std::sync::Arc<str>,
+    /// The project file's house style the design was read under, if any (shared).
+    #[serde(skip)]
+    pub project: Option<std::sync::Arc<crate::design::project::Project>>,
     /// Where each key was written, by dotted path (`parts.R1.value`), for later messages.
     /// Shared, not copied, by the perturbed copies tolerance work makes of a design.
     #[serde(skip)]
@@ -552,6 +555,34 @@ impl Requirements {
         ]
     }
 
+    /// Sets the requirement named `name` (a name of [`Requirements::items`]).
+    pub fn set(&mut self, name: &str, limits: Option<Limits>) {
+        let slot = match name {
+            "midband_gain" => &mut self.midband_gain,
+            "gain_flatness" => &mut self.gain_flatness,
+            "upper_cutoff" => &mut self.upper_cutoff,
+            "lower_cutoff" => &mut self.lower_cutoff,
+            "input_resistance" => &mut self.input_resistance,
+            "output_resistance" => &mut self.output_resistance,
+            "noise_figure" => &mut self.noise_figure,
+            "input_noise_density" => &mut self.input_noise_density,
+            "output_noise" => &mut self.output_noise,
+            "snr" => &mut self.snr,
+            "supply_current" => &mut self.supply_current,
+            "output_swing" => &mut self.output_swing,
+            "thd" => &mut self.thd,
+            "input_compression" => &mut self.input_compression,
+            "input_return_loss" => &mut self.input_return_loss,
+            "output_return_loss" => &mut self.output_return_loss,
+            "stability" => &mut self.stability,
+            "rise_time" => &mut self.rise_time,
+            "overshoot" => &mut self.overshoot,
+            "group_delay_variation" => &mut self.group_delay_variation,
+            _ => panic!("no requirement is named `{name}`"),
+        };
+        *slot = limits;
+    }
+
     /// How many limits are set.
     pub fn count(&self) -> usize {
         self.items().iter().filter(|(_, l)| l.is_some()).count()
@@ -644,6 +675,9 @@ pub struct AnalysisSettings {
     pub monte_carlo_runs: u32,
     /// Monte Carlo seed.
     pub seed: u64,
+    /// The Monte Carlo yield each requirement must reach, a fraction, when the design sets
+    /// one (a CI report fails a requirement's yield case below it).
+    pub min_yield: Option<f64>,
     /// The fraction of a resistor's power rating it should stay under.
     pub resistor_power_derating: f64,
     /// The fraction of a capacitor's voltage rating it should stay under.
@@ -663,6 +697,7 @@ impl AnalysisSettings {
             points_per_decade: 40,
             monte_carlo_runs: 1000,
             seed: 1,
+            min_yield: None,
             resistor_power_derating: crate::analysis::stress::RESISTOR_POWER_DERATING,
             capacitor_voltage_derating: crate::analysis::stress::CAPACITOR_VOLTAGE_DERATING,
             reference_impedance_ohm: None,

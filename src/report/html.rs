@@ -283,11 +283,15 @@ pub fn page(title: &str, markdown: &str, plots: &[Plot]) -> String {
             Some(px) => format!("<div style=\"max-width: {}px\">{drawing}</div>", px.ceil()),
             None => drawing,
         };
-        let figure = format!(
-            "<figure class=\"plot\" id=\"plot-{}\">{drawing}<figcaption>{}</figcaption></figure>",
-            p.name,
-            subscripted(&p.caption)
-        );
+        let figure = if p.caption.is_empty() {
+            format!("<figure class=\"plot\" id=\"plot-{}\">{drawing}</figure>", p.name)
+        } else {
+            format!(
+                "<figure class=\"plot\" id=\"plot-{}\">{drawing}<figcaption>{}</figcaption></figure>",
+                p.name,
+                subscripted(&p.caption)
+            )
+        };
         // Only the `plot()` directive makes this paragraph: escaped text never holds the
         // marker character, which pulldown-cmark and ammonia pass through unchanged.
         main = main.replace(&format!("<p>{}</p>", plot_marker(p.name)), &figure);

@@ -15,6 +15,14 @@ pub const FILE: &str = "manifest.json";
 pub const DESIGN_COPY: &str = "inputs/design.yaml";
 /// Where a user template is copied.
 pub const TEMPLATE_COPY: &str = "inputs/template.md";
+/// Where the project file is archived.
+pub const PROJECT_COPY: &str = "inputs/project.yaml";
+
+/// Where a project's logo named `name` is archived.
+pub fn logo_copy(name: &str) -> String {
+    let png = name.to_ascii_lowercase().ends_with(".png");
+    format!("inputs/logo.{}", if png { "png" } else { "svg" })
+}
 
 /// How a folder was rendered: everything besides the inputs that a rebuild must repeat.
 #[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
@@ -33,6 +41,10 @@ pub struct Recipe {
     /// What the typst program said of its version, when it made report.pdf.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub typst: Option<String>,
+    /// The project file's name as found, when the design had one above it (archived as
+    /// [`PROJECT_COPY`], its logo beside it).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub project_name: Option<String>,
 }
 
 fn default_paper() -> String {

@@ -10,6 +10,7 @@
 
 pub mod cautions;
 pub mod change;
+pub mod ci;
 pub mod decimal;
 pub mod explain;
 pub mod export;
@@ -57,6 +58,8 @@ pub struct Inputs<'a> {
     pub built_in_template: bool,
     /// The design's schematic drawing, when it names one (as archived in the folder).
     pub schematic: Option<&'a plots::Supplied>,
+    /// The project's logo, when its project file names one (as archived in the folder).
+    pub logo: Option<&'a plots::Supplied>,
 }
 
 /// The typst document of a render, compiled into [`PDF_FILE`] beside it.
@@ -104,7 +107,7 @@ pub fn render(
     let design_name = shown_name(inputs.design_name, manifest::DESIGN_COPY);
     let results = results::document(design, review, hashes, &design_name);
     let page = if exporters.iter().any(|e| e.needs_page()) {
-        Some(page(design, review, &results, inputs.template, inputs.schematic)?)
+        Some(page(design, review, &results, inputs)?)
     } else {
         None
     };
@@ -120,9 +123,9 @@ fn page(
     design: &Design,
     review: &Review,
     results: &results::ResultsDocument,
-    template: &TemplateSource,
-    schematic: Option<&plots::Supplied>,
+    inputs: &Inputs,
 ) -> Result<Page, TemplateError> {
+    let (template, schematic) = (inputs.template, inputs.schematic);
     let (a, checks, study) = (&review.analysis, &review.requirements, Some(&review.study));
     let mut plots = plots::all(a, checks, study);
     let drawn = match schematic {
@@ -147,6 +150,19 @@ fn page(
     };
     if let Some(drawn) = drawn {
         plots.insert(0, drawn);
+    }
+    if let Some(logo) = inputs.logo {
+        // The title block names the organisation beside it: the logo takes no caption.
+        plots.insert(
+            0,
+            plots::Plot {
+                name: "logo",
+                caption: String::new(),
+                svg: String::new(),
+                file: Some(logo.clone()),
+                max_width: Some(160.0),
+            },
+        );
     }
     for (name, s) in crate::report::what_if::SWEEP_PLOTS.iter().zip(&review.what_if.sweeps) {
         if let Some(svg) =

@@ -131,6 +131,7 @@ pub(super) fn style(size: u32) -> TextStyle<'static> {
 /// The names of every plot a review can hold (`plot(name=…)` accepts these).
 pub const PLOTS: &[&str] = &[
     "schematic",
+    "logo",
     "bode",
     "pole_zero",
     "shares",

@@ -1366,7 +1366,8 @@ fn operating_point(op: &OperatingPointReport) -> OperatingPointResults {
     }
 }
 
-fn requirement(c: &RequirementCheck) -> RequirementResults {
+/// A requirement check as the results contract writes it.
+pub fn requirement(c: &RequirementCheck) -> RequirementResults {
     RequirementResults {
         name: c.name.into(),
         unit: c.unit.into(),

@@ -379,7 +379,12 @@ impl<'p> Writer<'p> {
                 }
             })
             .collect();
-        self.out.push_str(&format!("#figure(\n  {image},\n  caption: [{caption}],\n);"));
+        if caption.is_empty() {
+            // An uncaptioned image (the project's logo) is no numbered figure.
+            self.out.push_str(&format!("#align(left, {image})"));
+        } else {
+            self.out.push_str(&format!("#figure(\n  {image},\n  caption: [{caption}],\n);"));
+        }
     }
 
     /// Separates a new block from what its container already holds.

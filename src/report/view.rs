@@ -121,6 +121,30 @@ pub struct DesignView {
     pub has_schematic: bool,
     /// Parts up to which tauweave draws the connectivity itself.
     pub drawn_up_to: usize,
+    /// The title block of the project file, when the design has one above it.
+    pub title_block: Option<TitleBlockView>,
+}
+
+/// The project file's title block as the template sees it (escaped).
+#[derive(Clone, Debug, Serialize)]
+pub struct TitleBlockView {
+    /// The organisation.
+    pub organisation: Option<String>,
+    /// The document number, its pattern filled in for this design.
+    pub document_number: Option<String>,
+    /// The approval lines: role and name (empty: signed by hand).
+    pub approvals: Vec<ApprovalView>,
+    /// Whether the project names a logo (placed by `plot(name="logo")`).
+    pub has_logo: bool,
+}
+
+/// One approval line.
+#[derive(Clone, Debug, Serialize)]
+pub struct ApprovalView {
+    /// The role (escaped).
+    pub role: String,
+    /// The name (escaped), or empty.
+    pub name: String,
 }
 
 /// The template API: the keys of results.json, with `design` extended and escaped and the
@@ -247,6 +271,16 @@ pub fn design_view(design: &Design) -> DesignView {
         parts: design.parts.len(),
         has_schematic: design.meta.schematic.is_some() || crate::report::schematic::drawn(design),
         drawn_up_to: crate::report::schematic::DRAWN_UP_TO,
+        title_block: design.project.as_ref().map(|p| TitleBlockView {
+            organisation: p.organisation.as_deref().map(escape),
+            document_number: p.number(&m.id, &m.revision, &m.date).as_deref().map(escape),
+            approvals: p
+                .approvals
+                .iter()
+                .map(|a| ApprovalView { role: escape(&a.role), name: escape(&a.name) })
+                .collect(),
+            has_logo: p.logo.is_some(),
+        }),
     }
 }
 

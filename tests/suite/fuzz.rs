@@ -200,6 +200,7 @@ fn mutated_templates_render_or_name_themselves_never_a_panic() {
             template: &template,
             built_in_template: false,
             schematic: None,
+            logo: None,
         };
         let outcome = catch_unwind(AssertUnwindSafe(|| render(&d, &r, &inputs, &[&Markdown])));
         match outcome {

@@ -141,6 +141,46 @@ pub const REQUIREMENT_KEYS: &[&str] = &[
     "overshoot",
     "group_delay_variation",
 ];
+/// Keys of the `requirements` section: every requirement, and `include` (project sets).
+pub const REQUIREMENT_SECTION_KEYS: &[&str] = &[
+    "midband_gain",
+    "gain_flatness",
+    "upper_cutoff",
+    "lower_cutoff",
+    "input_resistance",
+    "output_resistance",
+    "noise_figure",
+    "input_noise_density",
+    "output_noise",
+    "snr",
+    "supply_current",
+    "output_swing",
+    "thd",
+    "input_compression",
+    "input_return_loss",
+    "output_return_loss",
+    "stability",
+    "rise_time",
+    "overshoot",
+    "group_delay_variation",
+    "include",
+];
+/// Keys of the project file (`tauweave-project.yaml`).
+pub const PROJECT_KEYS: &[&str] = &[
+    "tauweave",
+    "organisation",
+    "document_number",
+    "approvals",
+    "logo",
+    "template",
+    "paper",
+    "tolerances",
+    "requirement_sets",
+];
+/// Keys of one approval in the project file.
+pub const APPROVAL_KEYS: &[&str] = &["role", "name"];
+/// Papers a project file may name (typst's names, as `render --paper` takes them).
+pub const PAPERS: &[&str] = &["a4", "us-letter"];
 /// Keys of one requirement.
 pub const LIMIT_KEYS: &[&str] = &["min", "max"];
 /// Keys of `analysis`.
@@ -151,6 +191,6 @@ pub const DERATING_KEYS: &[&str] = &["resistor_power", "capacitor_voltage"];
 /// Keys of `analysis.sweep`.
 pub const SWEEP_KEYS: &[&str] = &["start", "stop", "points_per_decade"];
 /// Keys of `analysis.monte_carlo`.
-pub const MONTE_CARLO_KEYS: &[&str] = &["runs", "seed"];
+pub const MONTE_CARLO_KEYS: &[&str] = &["runs", "seed", "min_yield"];
 /// Distributions.
 pub const DISTRIBUTIONS: &[&str] = &["uniform", "gaussian"];

@@ -14,6 +14,7 @@ mod circuit;
 mod keys;
 mod models;
 mod params;
+mod project;
 mod settings;
 #[cfg(test)]
 mod unit_tests;
@@ -21,6 +22,7 @@ mod values;
 mod what_if;
 
 pub use keys::*;
+pub use project::read_project;
 
 use std::collections::{BTreeMap, BTreeSet};
 
@@ -177,26 +179,47 @@ pub struct Read {
 /// even when, say, the date is malformed; it is usable only when `diagnostics` holds no
 /// error.
 pub fn read(text: &str, root: &Node) -> Read {
-    read_with(text, root, &BTreeMap::new())
+    read_with(text, root, &BTreeMap::new(), None)
 }
 
 /// [`read`] with some params replaced by SI values (their units kept): what a param sweep
 /// reads at each point.
-pub fn read_with(text: &str, root: &Node, overrides: &BTreeMap<String, f64>) -> Read {
-    let mut r = Reader {
-        overrides,
-        text,
-        diagnostics: Vec::new(),
-        params: BTreeMap::new(),
-        params_used: BTreeSet::new(),
-        failed_names: BTreeSet::new(),
-        places: BTreeMap::new(),
-    };
+pub fn read_with(
+    text: &str,
+    root: &Node,
+    overrides: &BTreeMap<String, f64>,
+    project: Option<&std::sync::Arc<crate::design::project::Project>>,
+) -> Read {
+    let mut r = Reader::new(text, overrides, project);
     let design = r.document(root);
     Read { design, diagnostics: r.diagnostics }
 }
 
+impl<'t> Reader<'t> {
+    fn new(
+        text: &'t str,
+        overrides: &'t BTreeMap<String, f64>,
+        project: Option<&'t std::sync::Arc<crate::design::project::Project>>,
+    ) -> Reader<'t> {
+        Reader {
+            overrides,
+            project,
+            in_project: false,
+            text,
+            diagnostics: Vec::new(),
+            params: BTreeMap::new(),
+            params_used: BTreeSet::new(),
+            failed_names: BTreeSet::new(),
+            places: BTreeMap::new(),
+        }
+    }
+}
+
 struct Reader<'t> {
+    /// True while reading a project file (whose requirement sets cannot include others).
+    in_project: bool,
+    /// The project file's house style, when the design has one above it.
+    project: Option<&'t std::sync::Arc<crate::design::project::Project>>,
     /// Params replaced by SI values.
     overrides: &'t BTreeMap<String, f64>,
     text: &'t str,
@@ -334,6 +357,7 @@ impl Reader<'_> {
             analysis: analysis.unwrap_or_else(AnalysisSettings::defaults),
             what_if,
             source: std::sync::Arc::from(self.text),
+            project: self.project.cloned(),
             places: std::sync::Arc::new(std::mem::take(&mut self.places)),
         })
     }

@@ -21,7 +21,7 @@ impl Reader<'_> {
         let Some(mut f) = Fields::open(
             node,
             "the `requirements` section",
-            REQUIREMENT_KEYS,
+            REQUIREMENT_SECTION_KEYS,
             key.span,
             &mut self.diagnostics,
         ) else {
@@ -87,31 +87,118 @@ impl Reader<'_> {
                     .help("add `amplitude: 10 mV` (peak, at the source EMF) under `signal:`"),
                 );
             }
-            match name {
-                "midband_gain" => out.midband_gain = limits,
-                "gain_flatness" => out.gain_flatness = limits,
-                "upper_cutoff" => out.upper_cutoff = limits,
-                "lower_cutoff" => out.lower_cutoff = limits,
-                "input_resistance" => out.input_resistance = limits,
-                "noise_figure" => out.noise_figure = limits,
-                "input_noise_density" => out.input_noise_density = limits,
-                "output_noise" => out.output_noise = limits,
-                "snr" => out.snr = limits,
-                "supply_current" => out.supply_current = limits,
-                "output_swing" => out.output_swing = limits,
-                "thd" => out.thd = limits,
-                "input_compression" => out.input_compression = limits,
-                "input_return_loss" => out.input_return_loss = limits,
-                "output_return_loss" => out.output_return_loss = limits,
-                "stability" => out.stability = limits,
-                "rise_time" => out.rise_time = limits,
-                "overshoot" => out.overshoot = limits,
-                "group_delay_variation" => out.group_delay_variation = limits,
-                _ => out.output_resistance = limits,
-            }
+            out.set(name, limits);
+        }
+        if let Some((k, n)) = f.get_entry("include") {
+            self.include_sets(k, n, &mut out, has_band, has_amplitude);
         }
         f.finish(&mut self.diagnostics);
         out
+    }
+
+    /// `include: [rf-input]`: the project file's requirement sets, each requirement taken
+    /// unless the design states its own (the design's own wins).
+    fn include_sets(
+        &mut self,
+        key: &Key,
+        node: &Node,
+        out: &mut Requirements,
+        has_band: Option<bool>,
+        has_amplitude: Option<bool>,
+    ) {
+        if self.in_project {
+            self.push(
+                Diagnostic::error("include", "a requirement set cannot include another")
+                    .at(key.span, "here")
+                    .help("write the requirements of the set out in full"),
+            );
+            return;
+        }
+        let names: Vec<&Node> = match &node.kind {
+            NodeKind::Seq(items) => items.iter().collect(),
+            NodeKind::Scalar(_) => vec![node],
+            _ => {
+                self.push(
+                    Diagnostic::error("wrong_type", "`include` must name requirement sets")
+                        .at(node.span, format!("found {}", node.shape()))
+                        .help(
+                            "write `include: [rf-input]` with the names of the project file's sets",
+                        ),
+                );
+                return;
+            }
+        };
+        let Some(project) = self.project else {
+            self.push(
+                Diagnostic::error(
+                    "include",
+                    format!(
+                        "`include` names requirement sets of a project file, and none was found \
+                         above the design ({})",
+                        crate::design::project::FILE
+                    ),
+                )
+                .at(key.span, "no project file")
+                .help(format!(
+                    "put a {} with `requirement_sets:` in the design's folder or above it, or \
+                     write the requirements here",
+                    crate::design::project::FILE
+                )),
+            );
+            return;
+        };
+        let own: Vec<&str> =
+            out.items().iter().filter(|(_, l)| l.is_some()).map(|(r, _)| *r).collect();
+        for n in names {
+            let name = n.scalar().unwrap_or("").trim().to_string();
+            let Some(set) = project.requirement_sets.get(&name) else {
+                let known: Vec<&str> =
+                    project.requirement_sets.keys().map(String::as_str).collect();
+                let help = match nearest(&name, &known) {
+                    Some(k) => format!("did you mean `{k}`?"),
+                    None if known.is_empty() => {
+                        "the project file defines no requirement sets".into()
+                    }
+                    None => format!("the project file's sets are {}", list(&known)),
+                };
+                self.push(
+                    Diagnostic::error(
+                        "include",
+                        format!("the project file has no requirement set `{name}`"),
+                    )
+                    .at(n.span, "unknown set")
+                    .help(help),
+                );
+                continue;
+            };
+            for (requirement, limits) in set.items() {
+                let Some(limits) = limits else { continue };
+                if own.contains(&requirement) {
+                    continue;
+                }
+                let needs = match requirement {
+                    "gain_flatness" if has_band == Some(false) => {
+                        Some("an operating band (`band:` under `signal:`)")
+                    }
+                    "thd" | "snr" if has_amplitude == Some(false) => {
+                        Some("a signal amplitude (`amplitude:` under `signal:`)")
+                    }
+                    _ => None,
+                };
+                if let Some(needs) = needs {
+                    self.push(
+                        Diagnostic::error(
+                            "include",
+                            format!("the set `{name}` limits `{requirement}`, which needs {needs}, and the design states none"),
+                        )
+                        .at(n.span, "included here")
+                        .help(format!("state {needs} in the design, or leave the set out")),
+                    );
+                    continue;
+                }
+                out.set(requirement, Some(limits));
+            }
+        }
     }
 
     pub(super) fn limits(
@@ -255,6 +342,12 @@ impl Reader<'_> {
                         None => ok = false,
                     }
                 }
+                if let Some(n) = m.get("min_yield") {
+                    match self.min_yield(n) {
+                        Some(v) => out.min_yield = Some(v),
+                        None => ok = false,
+                    }
+                }
                 m.finish(&mut self.diagnostics);
             }
         }
@@ -291,6 +384,21 @@ impl Reader<'_> {
         }
         f.finish(&mut self.diagnostics);
         ok.then_some(out)
+    }
+
+    /// The least Monte Carlo yield: a fraction in (0, 1], written as a percentage (`99 %`)
+    /// or a plain number (`0.99`).
+    fn min_yield(&mut self, node: &Node) -> Option<f64> {
+        let value = self.unitless(node)?;
+        if value > 0.0 && value <= 1.0 {
+            return Some(value);
+        }
+        self.push(
+            Diagnostic::error("out_of_range", "`min_yield` must be a fraction of the runs")
+                .at(node.span, "not above 0 and up to 100 %")
+                .help("give the share of Monte Carlo runs that must pass, e.g. `99 %`"),
+        );
+        None
     }
 
     /// The settling band of the step response: a fraction of the final value in (0, 50 %],

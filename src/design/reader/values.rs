@@ -282,6 +282,10 @@ impl Reader<'_> {
         out.insert("resistor", builtin(0.01));
         out.insert("capacitor", builtin(0.10));
         out.insert("inductor", builtin(0.10));
+        // A project's house defaults come under the design's own.
+        if let Some(p) = self.project {
+            out.extend(p.tolerances.iter().map(|(k, t)| (*k, *t)));
+        }
         let Some((key, node)) = entry else { return out };
         let Some(mut f) = Fields::open(
             node,
