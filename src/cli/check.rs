@@ -14,6 +14,7 @@ use crate::analysis::{Analysis, RootHz};
 use crate::circuit::operating_point::DeviceState;
 use crate::cli::batch::{self, Status};
 use crate::cli::progress;
+use crate::cli::report_flag;
 use crate::cli::source::{analysis_failure, load_file, plural};
 use crate::cli::table::{Align, render};
 use crate::cli::{Failure, Outcome, out};
@@ -37,34 +38,10 @@ pub struct CheckArgs {
     pub report: Option<Vec<String>>,
 }
 
-/// The machine-readable reports `--report` writes.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-enum ReportFormat {
-    Junit,
-    Json,
-}
-
-/// `--report FORMAT FILE`, read: the format and the file (None for standard output).
-fn report_flag(args: &CheckArgs) -> Result<Option<(ReportFormat, Option<PathBuf>)>, Failure> {
-    let Some(values) = &args.report else { return Ok(None) };
-    let format = match values[0].as_str() {
-        "junit" => ReportFormat::Junit,
-        "json" => ReportFormat::Json,
-        other => {
-            return Err(Failure::input(
-                format_args!("`--report {other}` is not a report tauweave writes"),
-                Some("write `--report junit FILE` (JUnit XML) or `--report json FILE`"),
-            ));
-        }
-    };
-    let file = (values[1] != "-").then(|| PathBuf::from(&values[1]));
-    Ok(Some((format, file)))
-}
-
 /// Runs the check: one design in full, several as a batch; then the CI report if asked.
 pub fn run(args: &CheckArgs) -> Result<Outcome, Failure> {
-    let report = report_flag(args)?;
-    let to_stdout = matches!(report, Some((_, None)));
+    let report = report_flag::parse(&args.report, &["junit", "json"])?;
+    let to_stdout = report.as_ref().is_some_and(|r| r.to_stdout());
     let (checked, result) = if batch::is_batch(&args.designs) {
         run_batch(args, to_stdout)?
     } else {
@@ -77,20 +54,9 @@ pub fn run(args: &CheckArgs) -> Result<Outcome, Failure> {
         // message is printed by `main` after the report is written.
         (vec![checked], result)
     };
-    if let Some((format, file)) = report {
-        let text = match format {
-            ReportFormat::Junit => ci::junit(&checked),
-            ReportFormat::Json => ci::json(&checked),
-        };
-        match file {
-            None => out(&text)?,
-            Some(path) => std::fs::write(&path, text).map_err(|e| {
-                Failure::input(
-                    format_args!("cannot write the report `{}`: {e}", path.display()),
-                    Some("check that the folder exists and can be written"),
-                )
-            })?,
-        }
+    if let Some(report) = report {
+        let text = if report.format == "junit" { ci::junit(&checked) } else { ci::json(&checked) };
+        report.write(&text)?;
     }
     result
 }

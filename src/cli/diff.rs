@@ -43,6 +43,10 @@ pub struct DiffArgs {
     /// Print on the terminal only; write no files.
     #[arg(long)]
     pub no_write: bool,
+    /// Also write the comparison as JSON for scripts: `json FILE`; `-` as FILE writes it to
+    /// standard output instead of the usual text.
+    #[arg(long, num_args = 2, value_names = ["FORMAT", "FILE"])]
+    pub report: Option<Vec<String>>,
 }
 
 /// One side, read and (for a design file) analysed.
@@ -203,11 +207,23 @@ pub fn run(args: &DiffArgs) -> Result<Outcome, Failure> {
         }
         Some(_) => template_source(&args.template)?.0,
     };
+    let report = crate::cli::report_flag::parse(&args.report, &["json"])?;
     let old = side(&args.old, args.runs)?;
     let new = side(&args.new, args.runs)?;
     let (old_name, new_name) = (args.old.display().to_string(), args.new.display().to_string());
     let c = change::compare(&old.revision(&old_name), &new.revision(&new_name));
-    out(&terminal(&c))?;
+    match &report {
+        Some(r) => {
+            let mut text = serde_json::to_string_pretty(&c)
+                .map_err(|e| Failure::Internal(format!("the change did not serialise: {e}")))?;
+            text.push('\n');
+            if !r.to_stdout() {
+                out(&terminal(&c))?;
+            }
+            r.write(&text)?;
+        }
+        None => out(&terminal(&c))?,
+    }
     // Rendered even with --no-write, so a broken change template is reported either way.
     let files = change::render(&c, &template)
         .map_err(|e| Failure::Input(format!("{}nothing was written\n", e.message)))?;

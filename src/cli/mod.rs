@@ -13,6 +13,7 @@ pub mod new;
 pub mod pdf;
 pub mod progress;
 pub mod render;
+pub mod report_flag;
 pub mod schema;
 pub mod source;
 pub mod table;

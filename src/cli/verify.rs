@@ -43,7 +43,10 @@ pub fn run(args: &VerifyArgs) -> Result<Outcome, Failure> {
     if args.dirs.len() == 1 && (rendered || !(one.is_dir() || crate::cli::batch::is_pattern(one))) {
         return print(verify_folder(one, args.typst.as_ref(), true));
     }
-    if args.dirs.len() == 1 && one.is_dir() && crate::cli::batch::rendered_folders(&args.dirs).is_err() {
+    if args.dirs.len() == 1
+        && one.is_dir()
+        && crate::cli::batch::rendered_folders(&args.dirs).is_err()
+    {
         // A folder that is no render and holds none: say why it cannot be verified.
         return print(verify_folder(one, args.typst.as_ref(), true));
     }

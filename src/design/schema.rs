@@ -138,15 +138,61 @@ fn limits(description: &str) -> Value {
     v
 }
 
-/// The schema as a JSON value.
-pub fn design_schema() -> Value {
-    let tolerance_default = json!({"anyOf": [
+/// The `requirements` section; `include` (project requirement sets) only in a design.
+fn requirements(with_include: bool) -> Value {
+    let keys = if with_include { REQUIREMENT_SECTION_KEYS } else { REQUIREMENT_KEYS };
+    object(keys, &[], |k| match k {
+        "include" => json!({"type": "array", "items": {"type": "string"},
+            "description": "requirement sets of the project file, by name (the design's own requirements win)"}),
+        _ => limits(k),
+    })
+}
+
+fn tolerance_default() -> Value {
+    json!({"anyOf": [
         quantity("a percentage, e.g. 5 %"),
         object(DEFAULT_TOLERANCE_KEYS, &["tolerance"], |k| match k {
             "tolerance" => quantity("a percentage"),
             _ => enumeration("uniform, or gaussian with σ = tolerance/3", DISTRIBUTIONS),
         })
-    ]});
+    ]})
+}
+
+/// The schema of the project file (`tauweave-project.yaml`) as a JSON value.
+pub fn project_schema() -> Value {
+    let mut schema = object(PROJECT_KEYS, &["tauweave"], |k| match k {
+        "tauweave" => json!({"const": 1, "description": "format version"}),
+        "organisation" => text("the organisation named in every review's title block"),
+        "document_number" => {
+            json!({"type": "string", "description": "document number pattern; {id}, {revision}, {date} and {year} are filled in",
+                "pattern": "^([^{}]|\\{(id|revision|date|year)\\})*$"})
+        }
+        "approvals" => json!({"type": "array", "items": object(APPROVAL_KEYS, &["role"], |k| {
+            text(if k == "role" { "Designed, Checked, Approved…" } else { "the person; leave out to sign by hand" })
+        })}),
+        "logo" => {
+            json!({"type": "string", "pattern": "^[^/].*\\.([sS][vV][gG]|[pP][nN][gG])$", "description": "a logo (.svg or .png) relative to the project file"})
+        }
+        "template" => {
+            json!({"type": "string", "pattern": "^[^/].*\\.md$", "description": "the default review template, relative to the project file"})
+        }
+        "paper" => enumeration("the default paper of the PDF", PAPERS),
+        "tolerances" => object(TOLERANCE_KINDS, &[], |_| tolerance_default()),
+        _ => {
+            json!({"type": "object", "description": "requirement sets by name, included by designs",
+            "additionalProperties": requirements(false)})
+        }
+    });
+    let obj = schema.as_object_mut().expect("object");
+    obj.insert("$schema".into(), json!("https://json-schema.org/draft/2020-12/schema"));
+    obj.insert("$id".into(), json!("https://tauweave.invalid/project-file-1.json"));
+    obj.insert("title".into(), json!("tauweave project file, format 1"));
+    schema
+}
+
+/// The schema as a JSON value.
+pub fn design_schema() -> Value {
+    let tolerance_default = tolerance_default();
     let supply = json!({"anyOf": [
         quantity("DC voltage to gnd"),
         object(SUPPLY_KEYS, &["voltage"], |k| match k {
@@ -207,7 +253,7 @@ pub fn design_schema() -> Value {
             "tolerances" => object(TOLERANCE_KINDS, &[], |_| tolerance_default.clone()),
             "parts" => parts.clone(),
             "models" => models.clone(),
-            "requirements" => object(REQUIREMENT_KEYS, &[], limits),
+            "requirements" => requirements(true),
             "analysis" => object(ANALYSIS_KEYS, &[], |k| match k {
                 "sweep" => object(SWEEP_KEYS, &[], |k| match k {
                     "points_per_decade" => {

@@ -1,6 +1,7 @@
 """Validates design files against `tauweave schema` with the jsonschema package (PyPI).
 
-Usage: validate.py TAUWEAVE_BINARY GOOD_FILE... -- BAD_FILE...
+Usage: validate.py TAUWEAVE_BINARY [--project] GOOD_FILE... -- BAD_FILE...
+With --project the files are project files, checked against `tauweave schema --project`.
 Every GOOD file must validate; every BAD file must be rejected by the schema. Exit 0 when
 both hold, 1 otherwise. The schema is an independent check: this script shares no code with
 tauweave and reads YAML with PyYAML.
@@ -25,9 +26,13 @@ Loader.add_constructor(
 
 def main() -> int:
     binary, *files = sys.argv[1:]
+    command = [binary, "schema"]
+    if files and files[0] == "--project":
+        command.append("--project")
+        files = files[1:]
     split = files.index("--") if "--" in files else len(files)
     good, bad = files[:split], files[split + 1 :]
-    schema = json.loads(subprocess.run([binary, "schema"], check=True, capture_output=True, text=True).stdout)
+    schema = json.loads(subprocess.run(command, check=True, capture_output=True, text=True).stdout)
     jsonschema.Draft202012Validator.check_schema(schema)
     validator = jsonschema.Draft202012Validator(schema)
     failures = 0

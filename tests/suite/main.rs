@@ -24,3 +24,4 @@ mod support;
 mod tolerance;
 mod watch;
 mod what_if;
+mod workflow;

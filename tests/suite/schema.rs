@@ -39,3 +39,31 @@ fn schema_accepts_examples_and_rejects_bad_structure() {
     );
     assert!(stdout.contains("0 failure(s)"), "{stdout}");
 }
+
+/// The project file's schema (`tauweave schema --project`) accepts the example project and
+/// refuses a misspelt one, checked with the jsonschema package; the house example design,
+/// with its `include`, is a valid design file.
+#[test]
+fn project_schema_accepts_the_example_project_and_rejects_a_misspelt_one() {
+    let run = |extra: &[String]| {
+        let mut args = vec![
+            root().join("tests/schema/validate.py").display().to_string(),
+            binary().display().to_string(),
+        ];
+        args.extend_from_slice(extra);
+        Command::new("python3").args(&args).output().expect("python3 runs (scripts/test)")
+    };
+    let project = vec![
+        "--project".to_string(),
+        root().join("designs/house/tauweave-project.yaml").display().to_string(),
+        "--".into(),
+        root().join("tests/schema/bad-project.yaml").display().to_string(),
+    ];
+    let design = vec![root().join("designs/house/post-amp-cs-house.yaml").display().to_string()];
+    for args in [project, design] {
+        let out = run(&args);
+        let stdout = String::from_utf8_lossy(&out.stdout);
+        assert!(out.status.success(), "{stdout}{}", String::from_utf8_lossy(&out.stderr));
+        assert!(stdout.contains("0 failure(s)"), "{stdout}");
+    }
+}
