@@ -32,7 +32,7 @@ use notify_debouncer_full::{DebounceEventResult, new_debouncer};
 use crate::cli::build::{Format, RenderJob, Written, pdf_fatal, render_and_write, schematic_copy};
 use crate::cli::{Failure, Level, Outcome, problem};
 use crate::notation::{absent, plain, si};
-use crate::report::manifest::{DESIGN_COPY, TEMPLATE_COPY};
+use crate::report::manifest::{DESIGN_COPY, PROJECT_COPY, TEMPLATE_COPY};
 use crate::report::results;
 
 /// How long the inputs must stay quiet before a rebuild: one save is often several writes.
@@ -128,9 +128,10 @@ struct Input {
     copy: String,
 }
 
-/// The files a render of `job` reads: the design, the template when the job has one, and the
+/// The files a render of `job` reads: the design, the template when the job has one, the
 /// schematic drawing the design names (read from the design as it is now: a design that does
-/// not load, or a drawing whose folder is missing, adds none — the render says why).
+/// not load, or a drawing whose folder is missing, adds none — the render says why), and
+/// the project file above the design with the logo and template it names.
 fn inputs_of(job: &RenderJob) -> Result<Vec<Input>, Failure> {
     let key = |p: &Path| {
         watch_key(p).map_err(|e| {
@@ -145,9 +146,31 @@ fn inputs_of(job: &RenderJob) -> Result<Vec<Input>, Failure> {
     if let Some(t) = &job.template {
         out.push(Input { path: t.clone(), key: key(t)?, copy: TEMPLATE_COPY.into() });
     }
-    let named = std::fs::read_to_string(&job.design)
+    if let Some(found) = crate::cli::source::find_project(&job.design) {
+        let project = std::fs::read_to_string(&found)
+            .ok()
+            .and_then(|text| crate::design::project::load(&text).project);
+        let dir = found.parent().unwrap_or(Path::new("")).to_path_buf();
+        out.push(Input { key: key(&found)?, path: found, copy: PROJECT_COPY.into() });
+        if let Some(p) = project {
+            let mut named: Vec<(PathBuf, String)> = Vec::new();
+            if let Some(logo) = &p.logo {
+                named.push((dir.join(logo), crate::report::manifest::logo_copy(logo)));
+            }
+            if let (None, Some(t)) = (&job.template, &p.template) {
+                named.push((dir.join(t), TEMPLATE_COPY.into()));
+            }
+            for (path, copy) in named {
+                if let Ok(k) = watch_key(&path) {
+                    out.push(Input { path, key: k, copy });
+                }
+            }
+        }
+    }
+    // Read under its project file, as the render reads it.
+    let named = crate::cli::source::load_file(&job.design)
         .ok()
-        .and_then(|text| crate::design::load(&text).design)
+        .and_then(|f| f.loaded.design)
         .and_then(|d| d.meta.schematic);
     if let Some(name) = named {
         let path = job.design.parent().unwrap_or(Path::new("")).join(&name);
