@@ -119,6 +119,7 @@ fn check_into(
     if verbose {
         out(&analysis_text(&review.analysis))?;
         out(&requirements_text(&review.requirements, &review.study))?;
+        out(&yield_target_text(&review.requirements, design.analysis.min_yield))?;
         out(&what_if_text(&review.what_if))?;
         out(&suggestions_text(&review.what_if))?;
     }
@@ -158,6 +159,10 @@ fn run_batch(
                 }
                 if corner > 0 {
                     line.push_str(&format!(", {corner} failing at a tolerance corner"));
+                }
+                let under = c.min_yield.map_or(0, |m| under_target(&c.requirements, m).len());
+                if under > 0 {
+                    line.push_str(&format!(", {under} under the yield target"));
                 }
                 line
             }
@@ -289,6 +294,30 @@ pub fn requirements_text(
         );
     }
     out
+}
+
+/// The requirements whose Monte Carlo yield is under the design's `min_yield`.
+fn under_target(
+    checks: &[crate::analysis::requirements::RequirementCheck],
+    min: f64,
+) -> Vec<&'static str> {
+    checks.iter().filter(|r| r.yield_fraction.is_some_and(|y| y < min)).map(|r| r.name).collect()
+}
+
+/// One line on the yield target, when the design sets one and a Monte Carlo ran.
+fn yield_target_text(
+    checks: &[crate::analysis::requirements::RequirementCheck],
+    min_yield: Option<f64>,
+) -> String {
+    let Some(min) = min_yield else { return String::new() };
+    if checks.iter().all(|r| r.yield_fraction.is_none()) {
+        return String::new();
+    }
+    let target = format!("{} %", plain(min * 100.0, 4));
+    match under_target(checks, min).as_slice() {
+        [] => format!("  yield target {target}: every requirement reaches it\n"),
+        under => format!("  yield target {target}: not reached by {}\n", under.join(", ")),
+    }
 }
 
 fn opt_si(v: Option<f64>, unit: &str) -> String {
