@@ -364,7 +364,7 @@ impl Parser<'_> {
     }
 
     fn product(&mut self) -> Result<Value, QuantityError> {
-        let mut left = self.unary()?;
+        let mut left = self.parallel()?;
         loop {
             self.skip_spaces();
             let op = match self.peek() {
@@ -373,7 +373,7 @@ impl Parser<'_> {
             };
             let at = self.pos;
             self.pos += 1;
-            let right = self.unary()?;
+            let right = self.parallel()?;
             reject_marks(&left, at)?;
             reject_marks(&right, at)?;
             let dim = match (left.dim, right.dim) {
@@ -394,6 +394,44 @@ impl Parser<'_> {
             }
             let si = if op == '/' { left.si / right.si } else { left.si * right.si };
             left = Value::plain(si, dim);
+        }
+    }
+
+    /// Impedances in parallel, `a ∥ b` (or `a || b`): ab/(a + b), binding tighter than `*`
+    /// and `/`, both sides in the same unit.
+    fn parallel(&mut self) -> Result<Value, QuantityError> {
+        let mut left = self.unary()?;
+        loop {
+            self.skip_spaces();
+            let at = self.pos;
+            match (self.peek(), self.chars.get(self.pos + 1)) {
+                (Some('∥'), _) => self.pos += 1,
+                (Some('|'), Some('|')) => self.pos += 2,
+                _ => return Ok(left),
+            }
+            let right = self.unary()?;
+            left = parallel_of(&[(left, at), (right, at)])?;
+        }
+    }
+
+    /// `name(a, b, …)`: the arguments of a function, after its name.
+    fn arguments(&mut self) -> Result<Vec<(Value, usize)>, QuantityError> {
+        let open = self.pos;
+        self.pos += 1;
+        let mut args = Vec::new();
+        loop {
+            self.skip_spaces();
+            let at = self.pos;
+            args.push((self.sum()?, at));
+            self.skip_spaces();
+            match self.peek() {
+                Some(',') => self.pos += 1,
+                Some(')') => {
+                    self.pos += 1;
+                    return Ok(args);
+                }
+                _ => return Err(err(open, 1, "this parenthesis is never closed", None)),
+            }
         }
     }
 
@@ -452,9 +490,31 @@ impl Parser<'_> {
             }
             Some(c) if c.is_ascii_digit() || c == '.' => self.number(),
             Some(c) if c.is_alphabetic() || c == '_' => {
-                let word = self.take_while(|c| c.is_alphanumeric() || c == '_');
+                let mut word = self.take_while(|c| c.is_alphanumeric() || c == '_');
                 if let Some(v) = self.code_number(&word, start) {
                     return Ok(v);
+                }
+                // A dotted name (`Q1.gm`, `high.f3db_hz`): one name, never a param's.
+                while self.peek() == Some('.')
+                    && matches!(self.chars.get(self.pos + 1), Some(c) if c.is_alphanumeric() || *c == '_')
+                {
+                    self.pos += 1;
+                    word.push('.');
+                    word.push_str(&self.take_while(|c| c.is_alphanumeric() || c == '_'));
+                }
+                if self.peek() == Some('(') && FUNCTIONS.contains(&word.as_str()) {
+                    self.descend()?;
+                    let args = self.arguments();
+                    self.depth -= 1;
+                    return apply_function(&word, args?, start);
+                }
+                if !self.params.contains_key(&word) && self.names.is_none() {
+                    if let Some(v) = constant(&word) {
+                        return Ok(v);
+                    }
+                }
+                if self.names.is_some() && constant(&word).is_some() {
+                    return Ok(Value::plain(1.0, None));
                 }
                 self.name(word, start)
             }
@@ -804,6 +864,119 @@ fn apply_unit(value: f64, unit: UnitSuffix, at: usize) -> Result<Value, Quantity
         return Err(err(at, 1, "the value is not a finite number", None));
     }
     Ok(v)
+}
+
+/// The functions an expression may call: `sqrt`, `log10`, `ln`, `abs`, `db` (20·log10 of a
+/// ratio's magnitude), `min`, `max` and `par` (impedances in parallel, as `∥`).
+pub const FUNCTIONS: &[&str] = &["sqrt", "log10", "ln", "abs", "db", "min", "max", "par"];
+
+/// A named constant: `pi` or `π`.
+fn constant(word: &str) -> Option<Value> {
+    matches!(word, "pi" | "π").then(|| Value { si: std::f64::consts::PI, dim: Some(Dim::NONE), mark: Mark::Plain })
+}
+
+/// Values in parallel: 1/Σ(1/x), all in one unit.
+fn parallel_of(args: &[(Value, usize)]) -> Result<Value, QuantityError> {
+    let mut dim: Option<Dim> = None;
+    let mut sum = 0.0;
+    for (v, at) in args {
+        reject_marks(v, *at)?;
+        match (dim, v.dim) {
+            (Some(a), Some(b)) if a != b => {
+                return Err(err(
+                    *at,
+                    1,
+                    format!("cannot put {} in parallel with {}", b.symbol(), a.symbol()),
+                    Some("values in parallel need the same unit (Ω with Ω)".into()),
+                ));
+            }
+            (None, Some(b)) => dim = Some(b),
+            _ => {}
+        }
+        if v.si == 0.0 {
+            return Ok(Value::plain(0.0, dim.or(v.dim)));
+        }
+        sum += 1.0 / v.si;
+    }
+    if sum == 0.0 {
+        return Err(err(args[0].1, 1, "these values in parallel cancel to an infinite one", None));
+    }
+    Ok(Value::plain(1.0 / sum, dim))
+}
+
+/// Applies a function of [`FUNCTIONS`] to its arguments (`at`: where its name starts).
+fn apply_function(name: &str, args: Vec<(Value, usize)>, at: usize) -> Result<Value, QuantityError> {
+    let len = name.chars().count();
+    let one = |args: &[(Value, usize)]| -> Result<(Value, usize), QuantityError> {
+        match args {
+            [a] => Ok(*a),
+            _ => Err(err(at, len, format!("`{name}` takes one value, not {}", args.len()), None)),
+        }
+    };
+    let unitless = |(v, p): (Value, usize)| -> Result<f64, QuantityError> {
+        reject_marks(&v, p)?;
+        match v.dim {
+            Some(d) if d != Dim::NONE => Err(err(
+                p,
+                1,
+                format!("`{name}` takes a pure number, and this is in {}", d.symbol()),
+                Some("divide by a value in the same unit to make a ratio".into()),
+            )),
+            _ => Ok(v.si),
+        }
+    };
+    let positive = |x: f64, p: usize| -> Result<f64, QuantityError> {
+        if x > 0.0 {
+            Ok(x)
+        } else {
+            Err(err(p, 1, format!("`{name}` of a value that is not positive ({x})"), None))
+        }
+    };
+    match name {
+        "sqrt" => {
+            let (v, p) = one(&args)?;
+            reject_marks(&v, p)?;
+            if v.si < 0.0 {
+                return Err(err(p, 1, "the square root of a negative value", None));
+            }
+            let dim = match v.dim {
+                Some(d) => Some(d.sqrt().ok_or_else(|| {
+                    err(p, 1, format!("{} has no square root among the units", d.symbol()), None)
+                })?),
+                None => None,
+            };
+            Ok(Value::plain(v.si.sqrt(), dim))
+        }
+        "log10" | "ln" => {
+            let a = one(&args)?;
+            let x = positive(unitless(a)?, a.1)?;
+            Ok(Value::plain(if name == "ln" { x.ln() } else { x.log10() }, Some(Dim::NONE)))
+        }
+        "db" => {
+            let a = one(&args)?;
+            let x = unitless(a)?.abs();
+            let x = positive(x, a.1)?;
+            Ok(Value { si: 20.0 * x.log10(), dim: Some(Dim::NONE), mark: Mark::Decibel })
+        }
+        "abs" => {
+            let (v, p) = one(&args)?;
+            reject_marks(&v, p)?;
+            Ok(Value { si: v.si.abs(), ..v })
+        }
+        "par" => parallel_of(&args),
+        _ => {
+            // min and max: every argument in one unit.
+            let mut best = args[0];
+            for a in &args[1..] {
+                combine_add(best.0, a.0, false, a.1)?;
+                let better = if name == "min" { a.0.si < best.0.si } else { a.0.si > best.0.si };
+                if better {
+                    best = *a;
+                }
+            }
+            Ok(best.0)
+        }
+    }
 }
 
 fn reject_marks(v: &Value, at: usize) -> Result<(), QuantityError> {

@@ -132,7 +132,7 @@ impl Exporter for Markdown {
             md = md.replace(&plot_marker(p.name), &format!("![{}]({path})", p.caption));
         }
         let mut files = plot_files(page);
-        files.push(file("report.md", md));
+        files.push(file("report.md", crate::report::worked::plain_subscripts(&md)));
         files
     }
 }

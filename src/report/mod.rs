@@ -28,6 +28,7 @@ pub mod template;
 pub mod typst;
 pub mod view;
 pub mod what_if;
+pub mod worked;
 pub mod write;
 
 use sha2::{Digest, Sha256};
@@ -105,9 +106,12 @@ pub fn render(
             .then(|| shown_name(&inputs.template.name, manifest::TEMPLATE_COPY)),
     };
     let design_name = shown_name(inputs.design_name, manifest::DESIGN_COPY);
-    let results = results::document(design, review, hashes, &design_name);
+    let mut results = results::document(design, review, hashes, &design_name);
+    let worked =
+        worked::evaluate(&inputs.template.name, &inputs.template.text, design, &results)?;
+    results.worked = worked.steps.clone();
     let page = if exporters.iter().any(|e| e.needs_page()) {
-        Some(page(design, review, &results, inputs)?)
+        Some(page(design, review, &results, inputs, &worked)?)
     } else {
         None
     };
@@ -124,6 +128,7 @@ fn page(
     review: &Review,
     results: &results::ResultsDocument,
     inputs: &Inputs,
+    worked: &worked::Worked,
 ) -> Result<Page, TemplateError> {
     let (template, schematic) = (inputs.template, inputs.schematic);
     let (a, checks, study) = (&review.analysis, &review.requirements, Some(&review.study));
@@ -202,7 +207,7 @@ fn page(
         cautions: review.cautions.iter().map(|c| view::escape(&c.text)).collect(),
     };
     let view = view::View::new(design, results, &review.explanation);
-    let markdown = tidy_blank_lines(&template::render(template, &view, blocks)?);
+    let markdown = tidy_blank_lines(&worked.place(&template::render(template, &view, blocks)?));
     Ok(Page { markdown, plots })
 }
 
@@ -221,6 +226,32 @@ pub fn tidy_blank_lines(text: &str) -> String {
         }
         out.push_str(line.trim_end());
         out.push('\n');
+    }
+    out
+}
+
+/// Text whose subscripts are marked (a worked step's names): the word before each
+/// [`worked::SUB_START`] is the base, the text up to [`worked::SUB_END`] its subscript.
+fn marked_segments(text: &str) -> Vec<Segment<'_>> {
+    let mut out = Vec::new();
+    let mut rest = text;
+    while let Some(open) = rest.find(worked::SUB_START) {
+        let Some(close) = rest[open..].find(worked::SUB_END).map(|c| open + c) else { break };
+        let base_start = rest[..open]
+            .char_indices()
+            .rev()
+            .take_while(|(_, c)| c.is_alphanumeric())
+            .last()
+            .map_or(open, |(i, _)| i);
+        if base_start > 0 {
+            out.push(Segment::Plain(&rest[..base_start]));
+        }
+        let sub = &rest[open + worked::SUB_START.len_utf8()..close];
+        out.push(Segment::Subscripted(&rest[base_start..open], sub));
+        rest = &rest[close + worked::SUB_END.len_utf8()..];
+    }
+    if !rest.is_empty() {
+        out.push(Segment::Plain(rest));
     }
     out
 }
@@ -246,6 +277,9 @@ pub const SUBSCRIPTED: &[&str] = &[
 /// own, so the exporters can set the part after `_` as a subscript. Names that merely hold
 /// an underscore (`early_voltage`, `midband_gain`, `Q1.bias_current`) stay plain.
 pub fn symbol_segments(text: &str) -> Vec<Segment<'_>> {
+    if text.contains(worked::SUB_START) {
+        return marked_segments(text);
+    }
     let chars: Vec<(usize, char)> = text.char_indices().collect();
     let word = |c: char| c.is_alphanumeric() || c == '_' || c == '.';
     let sub_char = |c: char| c.is_alphanumeric() || c == '\'';

@@ -1104,6 +1104,11 @@ pub struct ResultsDocument {
     pub tolerance: Option<ToleranceSummary>,
     /// The cautions that apply.
     pub cautions: Vec<CautionResults>,
+    /// The template's worked calculations, each step with its value and, where it estimates
+    /// a result, the exact value, the error and whether it lies within the stated tolerance
+    /// (empty when the template works none).
+    #[serde(default)]
+    pub worked: Vec<crate::report::worked::WorkedStep>,
 }
 
 fn noise(n: &crate::analysis::noise::NoiseReport) -> NoiseResults {
@@ -1329,6 +1334,7 @@ pub fn document(
                 text: c.text.clone(),
             })
             .collect(),
+        worked: Vec::new(),
     }
 }
 

@@ -202,6 +202,8 @@ pub struct View<'a> {
     pub tolerance: &'a Option<ToleranceSummary>,
     /// Cautions.
     pub cautions: &'a [CautionResults],
+    /// The template's worked steps by name (`worked.f_H.value`).
+    pub worked: std::collections::BTreeMap<&'a str, &'a crate::report::worked::WorkedStep>,
     /// Explanation paragraphs (Markdown).
     pub explanation: &'a Explanation,
 }
@@ -239,6 +241,7 @@ impl<'a> View<'a> {
             sensitivity: &doc.sensitivity,
             tolerance: &doc.tolerance,
             cautions: &doc.cautions,
+            worked: doc.worked.iter().map(|s| (s.name.as_str(), s)).collect(),
             explanation,
         }
     }
