@@ -40,14 +40,16 @@ pub fn designs(paths: &[PathBuf]) -> Result<Vec<PathBuf>, Failure> {
 /// The rendered folders the paths name: a folder holding a manifest as given; any other
 /// folder searched through for them (a rendered folder is not searched inside).
 pub fn rendered_folders(paths: &[PathBuf]) -> Result<Vec<PathBuf>, Failure> {
-    collect(paths, "rendered folders", &|dir, out| {
+    let folders = collect(paths, "rendered folders", &|dir, out| {
         if dir.join(manifest::FILE).is_file() {
             out.push(dir.to_path_buf());
             Ok(())
         } else {
             folders_with_manifest(dir, out)
         }
-    })
+    })?;
+    // A pattern's matches that are files (`out/*` meeting a stray file) are no folders.
+    Ok(folders.into_iter().filter(|f| f.is_dir() || !paths.iter().any(|p| is_pattern(p))).collect())
 }
 
 type Search = dyn Fn(&Path, &mut Vec<PathBuf>) -> std::io::Result<()>;
@@ -57,7 +59,11 @@ fn collect(paths: &[PathBuf], what: &str, search: &Search) -> Result<Vec<PathBuf
     for path in paths {
         let matches = if is_pattern(path) { expand(path)? } else { vec![path.clone()] };
         let mut found = Vec::new();
+        let pattern = is_pattern(path);
         for m in matches {
+            if pattern && m.file_name().is_some_and(|n| n == PROJECT_FILE) {
+                continue; // a pattern's match is a design, never the project file
+            }
             if m.is_dir() {
                 search(&m, &mut found).map_err(|e| {
                     Failure::input(format_args!("cannot search `{}`: {e}", m.display()), None)
@@ -76,7 +82,12 @@ fn collect(paths: &[PathBuf], what: &str, search: &Search) -> Result<Vec<PathBuf
         }
         found.sort();
         for f in found {
-            if !out.contains(&f) {
+            // Each file once, however its path was written (`./x.yaml` and `x.yaml`).
+            let same = |g: &PathBuf| match (g.canonicalize(), f.canonicalize()) {
+                (Ok(a), Ok(b)) => a == b,
+                _ => *g == f,
+            };
+            if !out.iter().any(same) {
                 out.push(f);
             }
         }

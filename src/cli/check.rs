@@ -36,6 +36,10 @@ pub struct CheckArgs {
     /// `-` as FILE writes to standard output instead of the usual text.
     #[arg(long, num_args = 2, value_names = ["FORMAT", "FILE"])]
     pub report: Option<Vec<String>>,
+    /// The template whose worked hand estimates are held against the exact values (default:
+    /// the project file's, else the built-in one).
+    #[arg(long)]
+    pub template: Option<PathBuf>,
 }
 
 /// Runs the check: one design in full, several as a batch; then the CI report if asked.
@@ -46,7 +50,8 @@ pub fn run(args: &CheckArgs) -> Result<Outcome, Failure> {
         run_batch(args, to_stdout)?
     } else {
         let design = &args.designs[0];
-        let (checked, result) = check_one(design, args.runs, !to_stdout, true);
+        let (checked, result) =
+            check_one(design, args.runs, !to_stdout, true, args.template.as_ref());
         if report.is_none() {
             return result;
         }
@@ -68,6 +73,7 @@ fn check_one(
     runs: Option<u32>,
     verbose: bool,
     shown: bool,
+    template: Option<&PathBuf>,
 ) -> (CheckedDesign, Result<Outcome, Failure>) {
     let mut checked = CheckedDesign {
         path: path.display().to_string(),
@@ -77,9 +83,12 @@ fn check_one(
         monte_carlo_runs: 0,
         min_yield: None,
     };
-    let result = check_into(path, runs, verbose, shown, &mut checked);
+    let result = check_into(path, runs, verbose, shown, &mut checked, template);
     if let Err(f) = &result {
-        checked.error = Some((batch::gist(f, &path.display().to_string()), batch::full_message(f)));
+        checked.error = Some((
+            ci::without_colour(&batch::gist(f, &path.display().to_string())),
+            ci::without_colour(&batch::full_message(f)),
+        ));
     }
     (checked, result)
 }
@@ -90,6 +99,7 @@ fn check_into(
     verbose: bool,
     shown: bool,
     checked: &mut CheckedDesign,
+    template: Option<&PathBuf>,
 ) -> Result<Outcome, Failure> {
     let file = load_file(path)?;
     let design = file.design()?;
@@ -122,6 +132,7 @@ fn check_into(
         out(&yield_target_text(&review.requirements, design.analysis.min_yield))?;
         out(&what_if_text(&review.what_if))?;
         out(&suggestions_text(&review.what_if))?;
+        out(&worked_text(&file, design, &review, template)?)?;
     }
     if review.failing() {
         if verbose {
@@ -141,7 +152,8 @@ fn run_batch(
     to_stdout: bool,
 ) -> Result<(Vec<CheckedDesign>, Result<Outcome, Failure>), Failure> {
     let designs = batch::designs(&args.designs)?;
-    let results = batch::run_all(&designs, "checking", |d| check_one(d, args.runs, false, false));
+    let results =
+        batch::run_all(&designs, "checking", |d| check_one(d, args.runs, false, false, None));
     let mut lines = String::new();
     let mut messages = String::new();
     let mut statuses = Vec::new();
@@ -296,12 +308,49 @@ pub fn requirements_text(
     out
 }
 
+/// The template's worked hand estimates held against the exact values: each step that
+/// estimates a result, and a flag on those outside their stated tolerance. The template is
+/// `--template`, else the project file's, else the built-in one.
+fn worked_text(
+    file: &crate::cli::source::LoadedFile,
+    design: &crate::design::Design,
+    review: &crate::review::Review,
+    template: Option<&PathBuf>,
+) -> Result<String, Failure> {
+    let house =
+        file.project.as_ref().and_then(|p| p.project.template.as_ref().map(|t| p.dir.join(t)));
+    let (source, _) = crate::cli::source::template_source(&template.cloned().or(house))?;
+    let hashes = crate::report::results::Hashes {
+        design: String::new(),
+        template: None,
+        template_name: None,
+    };
+    let results = crate::report::results::document(design, review, hashes, &file.name);
+    let worked = crate::report::worked::evaluate(&source.name, &source.text, design, &results)
+        .map_err(|e| Failure::Input(e.message))?;
+    let estimates: Vec<_> = worked.steps.iter().filter(|s| s.estimates.is_some()).collect();
+    if estimates.is_empty() {
+        return Ok(String::new());
+    }
+    let mut out = String::from("\nhand estimates (worked in the template)\n");
+    for s in estimates {
+        let line = crate::report::worked::verdict_line(s);
+        let flag = if s.within == Some(false) { "  ← flagged" } else { "" };
+        out.push_str(&format!("  {line}{flag}\n"));
+    }
+    Ok(out)
+}
+
 /// The requirements whose Monte Carlo yield is under the design's `min_yield`.
 fn under_target(
     checks: &[crate::analysis::requirements::RequirementCheck],
     min: f64,
 ) -> Vec<&'static str> {
-    checks.iter().filter(|r| r.yield_fraction.is_some_and(|y| y < min)).map(|r| r.name).collect()
+    checks
+        .iter()
+        .filter(|r| r.yield_fraction.is_some_and(|y| !ci::meets(y, min)))
+        .map(|r| r.name)
+        .collect()
 }
 
 /// One line on the yield target, when the design sets one and a Monte Carlo ran.

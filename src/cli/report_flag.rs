@@ -20,6 +20,12 @@ pub fn parse(
     formats: &[&str],
 ) -> Result<Option<ReportTarget>, Failure> {
     let Some(values) = values else { return Ok(None) };
+    if values.len() != 2 {
+        return Err(Failure::input(
+            "`--report` is given more than once",
+            Some("ask for one report per run: `--report FORMAT FILE`"),
+        ));
+    }
     let (format, file) = (&values[0], &values[1]);
     if !formats.contains(&format.as_str()) {
         let shown: Vec<String> = formats.iter().map(|f| format!("`--report {f} FILE`")).collect();

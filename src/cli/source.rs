@@ -41,11 +41,27 @@ pub struct ProjectFile {
 /// Reads `path` and checks it, under the project file found above it. A file that cannot
 /// be read, or a project file with errors, is a [`Failure::Input`].
 pub fn load_file(path: &Path) -> Result<LoadedFile, Failure> {
-    let project = match find_project(path) {
+    // A rendered folder's design copy is read under the project file archived beside it.
+    let found = archived_project(path).or_else(|| find_project(path));
+    let project = match found {
         Some(found) => Some(read_project(&found)?),
         None => None,
     };
     load_under(path, project)
+}
+
+/// `DIR/inputs/project.yaml` when `path` is `DIR/inputs/design.yaml` of a rendered folder
+/// whose manifest says a project file applied.
+fn archived_project(path: &Path) -> Option<PathBuf> {
+    let inputs = path.parent()?;
+    let folder = inputs.parent()?;
+    if inputs.file_name()? != "inputs" || path.file_name()? != "design.yaml" {
+        return None;
+    }
+    let manifest = std::fs::read_to_string(folder.join(crate::report::manifest::FILE)).ok()?;
+    let m: crate::report::manifest::Manifest = serde_json::from_str(&manifest).ok()?;
+    m.recipe.project_name.as_ref()?;
+    Some(folder.join(crate::report::manifest::PROJECT_COPY))
 }
 
 /// Reads `path` and checks it under `project`.
@@ -66,7 +82,8 @@ pub fn load_under(path: &Path, project: Option<ProjectFile>) -> Result<LoadedFil
 /// The project file nearest above the design: in its folder, else the folder above, up to
 /// the root of the file system.
 pub fn find_project(design: &Path) -> Option<PathBuf> {
-    let absolute = std::path::absolute(design).ok()?;
+    // Resolved, so `../other/d.yaml` walks up from `other`, not from the current folder.
+    let absolute = design.canonicalize().or_else(|_| std::path::absolute(design)).ok()?;
     absolute.ancestors().skip(1).map(|dir| dir.join(project::FILE)).find(|p| p.is_file())
 }
 

@@ -166,6 +166,13 @@ fn verify_into(
         match std::fs::read(dir.join(path)) {
             Ok(bytes) if sha256(&bytes) == *hash => {}
             Ok(_) => problems.push(format!("input {path} was changed after the render")),
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+                // Without its inputs the folder cannot be rebuilt at all.
+                return Err(unusable(format!(
+                    "its archived input {path} is missing, so the review cannot be rebuilt \
+                     (render the design again to archive it anew)"
+                )));
+            }
             Err(e) => problems.push(format!("input {path} cannot be read: {e}")),
         }
     }

@@ -872,7 +872,11 @@ pub const FUNCTIONS: &[&str] = &["sqrt", "log10", "ln", "abs", "db", "min", "max
 
 /// A named constant: `pi` or `π`.
 fn constant(word: &str) -> Option<Value> {
-    matches!(word, "pi" | "π").then(|| Value { si: std::f64::consts::PI, dim: Some(Dim::NONE), mark: Mark::Plain })
+    matches!(word, "pi" | "π").then(|| Value {
+        si: std::f64::consts::PI,
+        dim: Some(Dim::NONE),
+        mark: Mark::Plain,
+    })
 }
 
 /// Values in parallel: 1/Σ(1/x), all in one unit.
@@ -905,7 +909,11 @@ fn parallel_of(args: &[(Value, usize)]) -> Result<Value, QuantityError> {
 }
 
 /// Applies a function of [`FUNCTIONS`] to its arguments (`at`: where its name starts).
-fn apply_function(name: &str, args: Vec<(Value, usize)>, at: usize) -> Result<Value, QuantityError> {
+fn apply_function(
+    name: &str,
+    args: Vec<(Value, usize)>,
+    at: usize,
+) -> Result<Value, QuantityError> {
     let len = name.chars().count();
     let one = |args: &[(Value, usize)]| -> Result<(Value, usize), QuantityError> {
         match args {
@@ -1150,6 +1158,22 @@ mod tests {
             referenced_names("2 * a_b + (c / 3)"),
             vec![("a_b".to_string(), 4), ("c".to_string(), 11)]
         );
+    }
+
+    #[test]
+    fn parallel_functions_and_pi() {
+        // Two resistors in parallel: R1 R2 / (R1 + R2) (common practice).
+        assert!(close(q("1k ∥ 1k").si, 500.0));
+        assert!(close(q("3k || 6k").si, 2000.0));
+        assert!(close(q("par(1k, 1k, 1k)").si, 1000.0 / 3.0));
+        // ∥ binds tighter than *: (1k ∥ 1k) · 2 pF.
+        assert!(close(q("1k ∥ 1k * 2 pF").si, 1e-9));
+        assert!(close(q("sqrt(4 Hz * 1 Hz)").si, 2.0));
+        assert!(close(q("db(10)").si, 20.0));
+        assert!(close(q("1 / (2 * pi * 1 s)").si, 1.0 / (2.0 * std::f64::consts::PI)));
+        assert!(close(q("max(1k, 2k) + min(1, 2) * 1 Ω").si, 2001.0));
+        assert!(evaluate("1 kΩ ∥ 2 pF", &BTreeMap::new()).is_err());
+        assert!(evaluate("log10(2 Ω)", &BTreeMap::new()).is_err());
     }
 
     #[test]

@@ -107,8 +107,7 @@ pub fn render(
     };
     let design_name = shown_name(inputs.design_name, manifest::DESIGN_COPY);
     let mut results = results::document(design, review, hashes, &design_name);
-    let worked =
-        worked::evaluate(&inputs.template.name, &inputs.template.text, design, &results)?;
+    let worked = worked::evaluate(&inputs.template.name, &inputs.template.text, design, &results)?;
     results.worked = worked.steps.clone();
     let page = if exporters.iter().any(|e| e.needs_page()) {
         Some(page(design, review, &results, inputs, &worked)?)

@@ -73,8 +73,9 @@ pub struct WorkedStep {
 pub struct Worked {
     /// Every step of every block, in the order written.
     pub steps: Vec<WorkedStep>,
-    /// Each block's body as written (between the fences) and the Markdown that replaces it.
-    pub blocks: Vec<(String, String)>,
+    /// Each block's opening line and body as written (between the fences), and the
+    /// Markdown that replaces it (nothing for a block whose guard the design does not meet).
+    pub blocks: Vec<(String, String, String)>,
 }
 
 impl Worked {
@@ -82,8 +83,8 @@ impl Worked {
     /// replaced by its table.
     pub fn place(&self, markdown: &str) -> String {
         let mut out = markdown.to_string();
-        for (body, table) in &self.blocks {
-            let fenced = format!("{FENCE}\n{body}```");
+        for (open, body, table) in &self.blocks {
+            let fenced = format!("{open}\n{body}```");
             out = out.replacen(&fenced, table, 1);
         }
         out
@@ -119,19 +120,22 @@ pub fn evaluate(
     let mut parsed = Vec::new();
     let mut bodies = Vec::new();
     let mut k = 0;
+    let names = known_names(design, results);
     while k < lines.len() {
-        if lines[k].trim_end() != FENCE {
+        let Some(guard) = opening(lines[k]) else {
             k += 1;
             continue;
-        }
+        };
         let open = k;
+        // `if NAME, …`: the block is worked only for a design that has every name.
+        let skipped = guard.iter().any(|g| !names.contains_key(g.as_str()));
         let mut body = String::new();
         k += 1;
         while k < lines.len() && lines[k].trim_end() != "```" {
             body.push_str(lines[k]);
             body.push('\n');
             let text = lines[k];
-            if !(text.trim().is_empty() || text.trim_start().starts_with('#')) {
+            if !(skipped || text.trim().is_empty() || text.trim_start().starts_with('#')) {
                 parsed.push(parse_line(name, text, k + 1, bodies.len(), &lines)?);
             }
             k += 1;
@@ -147,22 +151,42 @@ pub fn evaluate(
                 "end the block with a line of three backticks",
             ));
         }
-        bodies.push(body);
+        bodies.push((lines[open].trim_end().to_string(), body, skipped));
         k += 1;
     }
     if parsed.is_empty() {
-        return Ok(Worked::default());
+        let blocks = bodies.into_iter().map(|(o, b, _)| (o, b, String::new())).collect();
+        return Ok(Worked { steps: Vec::new(), blocks });
     }
-    let names = known_names(design, results);
     // Step names are new names: not a param, part, device value or result.
     let mut seen: BTreeMap<&str, usize> = BTreeMap::new();
     for p in &parsed {
         if names.contains_key(&p.name) || quantity::reads_as_unit(&p.name) {
-            let what = if quantity::reads_as_unit(&p.name) { "reads as a unit" } else { "is already a name of the design or its results" };
-            return Err(located(name, &lines, p.line, p.name_col, p.name.chars().count(), &format!("the step name `{}` {what}", p.name), "give the step a name of its own, e.g. `f_H_est`"));
+            let what = if quantity::reads_as_unit(&p.name) {
+                "reads as a unit"
+            } else {
+                "is already a name of the design or its results"
+            };
+            return Err(located(
+                name,
+                &lines,
+                p.line,
+                p.name_col,
+                p.name.chars().count(),
+                &format!("the step name `{}` {what}", p.name),
+                "give the step a name of its own, e.g. `f_H_est`",
+            ));
         }
         if let Some(first) = seen.insert(&p.name, p.line) {
-            return Err(located(name, &lines, p.line, p.name_col, p.name.chars().count(), &format!("the step `{}` is worked twice (first on line {first})", p.name), "give each step its own name"));
+            return Err(located(
+                name,
+                &lines,
+                p.line,
+                p.name_col,
+                p.name.chars().count(),
+                &format!("the step `{}` is worked twice (first on line {first})", p.name),
+                "give each step its own name",
+            ));
         }
     }
     let order = order(name, &lines, &parsed)?;
@@ -187,11 +211,32 @@ pub fn evaluate(
         let v = Value { dim: Some(v.dim.unwrap_or(Dim::NONE)), ..v };
         if let Some((unit, col)) = &p.unit {
             let declared = declared_unit(unit).ok_or_else(|| {
-                located(name, &lines, p.line, *col, unit.chars().count(), &format!("`{unit}` is not a unit tauweave reads"), "write a unit symbol such as `Hz`, `Ω`, `s`, `F`, `V/V` or `dB`")
+                located(
+                    name,
+                    &lines,
+                    p.line,
+                    *col,
+                    unit.chars().count(),
+                    &format!("`{unit}` is not a unit tauweave reads"),
+                    "write a unit symbol such as `Hz`, `Ω`, `s`, `F`, `V/V` or `dB`",
+                )
             })?;
-            let same = declared == v.dim.unwrap_or(Dim::NONE) && (declared_decibel(unit) == (v.mark == Mark::Decibel));
+            let same = declared == v.dim.unwrap_or(Dim::NONE)
+                && (declared_decibel(unit) == (v.mark == Mark::Decibel));
             if !same {
-                return Err(located(name, &lines, p.line, p.expr_col, p.expression.chars().count(), &format!("the step `{}` comes out in {}, and it says `in {unit}`", p.name, unit_of(&v)), "fix the expression, or the unit it declares"));
+                return Err(located(
+                    name,
+                    &lines,
+                    p.line,
+                    p.expr_col,
+                    p.expression.chars().count(),
+                    &format!(
+                        "the step `{}` comes out in {}, and it says `in {unit}`",
+                        p.name,
+                        unit_of(&v)
+                    ),
+                    "fix the expression, or the unit it declares",
+                ));
             }
         }
         env.insert(p.name.clone(), v);
@@ -217,20 +262,67 @@ pub fn evaluate(
         if let Some((key, tolerance, col)) = &p.estimates {
             let exact = names.get(key).copied().ok_or_else(|| {
                 let known: Vec<&str> = names.keys().map(String::as_str).collect();
-                let help = crate::design::suggest::nearest(key, &known).map_or_else(|| "name a number of results.json by its path, e.g. `high.f3db_hz`".into(), |b| format!("did you mean `{b}`?"));
-                located(name, &lines, p.line, *col, key.chars().count(), &format!("`{key}` is not a result of the review"), &help)
+                let help = crate::design::suggest::nearest(key, &known).map_or_else(
+                    || "name a number of results.json by its path, e.g. `high.f3db_hz`".into(),
+                    |b| format!("did you mean `{b}`?"),
+                );
+                located(
+                    name,
+                    &lines,
+                    p.line,
+                    *col,
+                    key.chars().count(),
+                    &format!("`{key}` is not a result of the review"),
+                    &help,
+                )
             })?;
             let exact_dim = exact.dim.unwrap_or(Dim::NONE);
-            if exact_dim != v.dim.unwrap_or(Dim::NONE) || (exact.mark == Mark::Decibel) != (v.mark == Mark::Decibel) {
-                return Err(located(name, &lines, p.line, *col, key.chars().count(), &format!("the step `{}` is in {}, and `{key}` in {}", p.name, unit_of(&v), unit_of(&exact)), "an estimate must come out in the unit of the result it estimates"));
+            if exact_dim != v.dim.unwrap_or(Dim::NONE)
+                || (exact.mark == Mark::Decibel) != (v.mark == Mark::Decibel)
+            {
+                return Err(located(
+                    name,
+                    &lines,
+                    p.line,
+                    *col,
+                    key.chars().count(),
+                    &format!(
+                        "the step `{}` is in {}, and `{key}` in {}",
+                        p.name,
+                        unit_of(&v),
+                        unit_of(&exact)
+                    ),
+                    "an estimate must come out in the unit of the result it estimates",
+                ));
             }
-            let t = quantity::evaluate(tolerance, &BTreeMap::new()).ok().filter(|t| t.si.is_finite() && t.si > 0.0);
+            let t = quantity::evaluate(tolerance, &BTreeMap::new())
+                .ok()
+                .filter(|t| t.si.is_finite() && t.si > 0.0);
             let Some(t) = t else {
-                return Err(located(name, &lines, p.line, *col, key.chars().count(), &format!("`within {tolerance}` is not a tolerance"), "write a percentage (`within 10 %`) or an amount in the result's unit (`within 1 dB`)"));
+                return Err(located(
+                    name,
+                    &lines,
+                    p.line,
+                    *col,
+                    key.chars().count(),
+                    &format!("`within {tolerance}` is not a tolerance"),
+                    "write a percentage (`within 10 %`) or an amount in the result's unit (`within 1 dB`)",
+                ));
             };
             let relative = t.mark == Mark::Percent;
-            if !relative && t.dim.is_some_and(|d| d != exact_dim) && !(t.mark == Mark::Decibel && exact.mark == Mark::Decibel) {
-                return Err(located(name, &lines, p.line, *col, key.chars().count(), &format!("`within {tolerance}` is not in the unit of `{key}`"), "write a percentage, or an amount in the result's unit"));
+            if !relative
+                && t.dim.is_some_and(|d| d != exact_dim)
+                && !(t.mark == Mark::Decibel && exact.mark == Mark::Decibel)
+            {
+                return Err(located(
+                    name,
+                    &lines,
+                    p.line,
+                    *col,
+                    key.chars().count(),
+                    &format!("`within {tolerance}` is not in the unit of `{key}`"),
+                    "write a percentage, or an amount in the result's unit",
+                ));
             }
             let error = if relative { v.si / exact.si - 1.0 } else { v.si - exact.si };
             step.estimates = Some(key.clone());
@@ -245,25 +337,62 @@ pub fn evaluate(
     let blocks = bodies
         .into_iter()
         .enumerate()
-        .map(|(b, body)| {
-            let in_block: Vec<&WorkedStep> = parsed.iter().zip(&steps).filter(|(p, _)| p.block == b).map(|(_, s)| s).collect();
-            (body, table(&in_block))
+        .map(|(b, (open, body, skipped))| {
+            let in_block: Vec<&WorkedStep> =
+                parsed.iter().zip(&steps).filter(|(p, _)| p.block == b).map(|(_, s)| s).collect();
+            let shown =
+                if skipped || in_block.is_empty() { String::new() } else { table(&in_block) };
+            (open, body, shown)
         })
         .collect();
     Ok(Worked { steps, blocks })
 }
 
+/// The guard names of a worked block's opening line (`\`\`\`worked` or `\`\`\`worked if a, b`),
+/// None for any other line.
+fn opening(line: &str) -> Option<Vec<String>> {
+    let rest = line.trim_end().strip_prefix(FENCE)?;
+    if rest.is_empty() {
+        return Some(Vec::new());
+    }
+    let names = rest.strip_prefix(" if ")?;
+    Some(names.split(',').map(|n| n.trim().to_string()).filter(|n| !n.is_empty()).collect())
+}
+
 /// Splits one step line: `NAME = EXPRESSION [in UNIT] [estimates KEY within TOLERANCE]`.
-fn parse_line(name: &str, text: &str, line: usize, block: usize, lines: &[&str]) -> Result<Parsed, TemplateError> {
+fn parse_line(
+    name: &str,
+    text: &str,
+    line: usize,
+    block: usize,
+    lines: &[&str],
+) -> Result<Parsed, TemplateError> {
     let chars: Vec<char> = text.chars().collect();
     let Some(eq) = chars.iter().position(|c| *c == '=') else {
-        return Err(located(name, lines, line, 0, chars.len(), "a worked step is `NAME = EXPRESSION`", "write e.g. `f_H = 1 / (2 * π * τ_H)   in Hz`, or start a note with `#`"));
+        return Err(located(
+            name,
+            lines,
+            line,
+            0,
+            chars.len(),
+            "a worked step is `NAME = EXPRESSION`",
+            "write e.g. `f_H = 1 / (2 * π * τ_H)   in Hz`, or start a note with `#`",
+        ));
     };
     let lead = chars[..eq].iter().take_while(|c| c.is_whitespace()).count();
     let step: String = chars[..eq].iter().collect::<String>().trim().to_string();
-    let identifier = step.chars().next().is_some_and(|c| c.is_alphabetic()) && step.chars().all(|c| c.is_alphanumeric() || c == '_');
+    let identifier = step.chars().next().is_some_and(|c| c.is_alphabetic())
+        && step.chars().all(|c| c.is_alphanumeric() || c == '_');
     if !identifier {
-        return Err(located(name, lines, line, lead, step.chars().count().max(1), &format!("`{step}` cannot name a step"), "a step's name is letters, digits and `_`, starting with a letter (`τ_H`, `R_out`)"));
+        return Err(located(
+            name,
+            lines,
+            line,
+            lead,
+            step.chars().count().max(1),
+            &format!("`{step}` cannot name a step"),
+            "a step's name is letters, digits and `_`, starting with a letter (`τ_H`, `R_out`)",
+        ));
     }
     let rest: String = chars[eq + 1..].iter().collect();
     let offset = eq + 1;
@@ -273,11 +402,21 @@ fn parse_line(name: &str, text: &str, line: usize, block: usize, lines: &[&str])
             let tail = &rest[at + "estimates".len()..];
             let Some(w) = find_word(tail, "within") else {
                 let col = offset + rest[..at].chars().count();
-                return Err(located(name, lines, line, col, 9, "`estimates` needs `within` and a tolerance", "write `estimates high.f3db_hz within 10 %`"));
+                return Err(located(
+                    name,
+                    lines,
+                    line,
+                    col,
+                    9,
+                    "`estimates` needs `within` and a tolerance",
+                    "write `estimates high.f3db_hz within 10 %`",
+                ));
             };
             let key = tail[..w].trim().to_string();
             let tolerance = tail[w + "within".len()..].trim().to_string();
-            let key_col = offset + rest[..at + "estimates".len()].chars().count() + tail[..w].chars().take_while(|c| c.is_whitespace()).count();
+            let key_col = offset
+                + rest[..at + "estimates".len()].chars().count()
+                + tail[..w].chars().take_while(|c| c.is_whitespace()).count();
             (&rest[..at], Some((key, tolerance, key_col)))
         }
         None => (rest.as_str(), None),
@@ -285,13 +424,24 @@ fn parse_line(name: &str, text: &str, line: usize, block: usize, lines: &[&str])
     let (expression, unit) = match find_word(before, "in") {
         Some(at) => {
             let unit_text = &before[at + 2..];
-            let col = offset + before[..at + 2].chars().count() + unit_text.chars().take_while(|c| c.is_whitespace()).count();
+            let col = offset
+                + before[..at + 2].chars().count()
+                + unit_text.chars().take_while(|c| c.is_whitespace()).count();
             (&before[..at], Some((unit_text.trim().to_string(), col)))
         }
         None => (before, None),
     };
     let expr_col = offset + expression.chars().take_while(|c| c.is_whitespace()).count();
-    Ok(Parsed { name: step, expression: expression.trim().to_string(), unit, estimates, line, name_col: lead, expr_col, block })
+    Ok(Parsed {
+        name: step,
+        expression: expression.trim().to_string(),
+        unit,
+        estimates,
+        line,
+        name_col: lead,
+        expr_col,
+        block,
+    })
 }
 
 /// The byte offset of `word` standing alone (spaces around it) in `text`, the last one.
@@ -305,14 +455,26 @@ fn find_word(text: &str, word: &str) -> Option<usize> {
 
 /// The steps in an order that evaluates each after those it names; a cycle is an error.
 fn order(name: &str, lines: &[&str], parsed: &[Parsed]) -> Result<Vec<usize>, TemplateError> {
-    let index: BTreeMap<&str, usize> = parsed.iter().enumerate().map(|(i, p)| (p.name.as_str(), i)).collect();
+    let index: BTreeMap<&str, usize> =
+        parsed.iter().enumerate().map(|(i, p)| (p.name.as_str(), i)).collect();
     let deps: Vec<Vec<usize>> = parsed
         .iter()
-        .map(|p| quantity::referenced_names(&p.expression).iter().filter_map(|(n, _)| index.get(n.as_str()).copied()).collect())
+        .map(|p| {
+            quantity::referenced_names(&p.expression)
+                .iter()
+                .filter_map(|(n, _)| index.get(n.as_str()).copied())
+                .collect()
+        })
         .collect();
     let mut out = Vec::new();
     let mut state = vec![0u8; parsed.len()]; // 0 new, 1 on the path, 2 done
-    fn visit(i: usize, deps: &[Vec<usize>], state: &mut [u8], path: &mut Vec<usize>, out: &mut Vec<usize>) -> Result<(), Vec<usize>> {
+    fn visit(
+        i: usize,
+        deps: &[Vec<usize>],
+        state: &mut [u8],
+        path: &mut Vec<usize>,
+        out: &mut Vec<usize>,
+    ) -> Result<(), Vec<usize>> {
         match state[i] {
             2 => return Ok(()),
             1 => {
@@ -338,7 +500,15 @@ fn order(name: &str, lines: &[&str], parsed: &[Parsed]) -> Result<Vec<usize>, Te
         if let Err(cycle) = visit(i, &deps, &mut state, &mut path, &mut out) {
             let names: Vec<&str> = cycle.iter().map(|&c| parsed[c].name.as_str()).collect();
             let p = &parsed[cycle[0]];
-            return Err(located(name, lines, p.line, p.name_col, p.name.chars().count(), &format!("the steps depend on each other in a loop: {}", names.join(" → ")), "work one of them out from the design's values instead"));
+            return Err(located(
+                name,
+                lines,
+                p.line,
+                p.name_col,
+                p.name.chars().count(),
+                &format!("the steps depend on each other in a loop: {}", names.join(" → ")),
+                "work one of them out from the design's values instead",
+            ));
         }
     }
     Ok(out)
@@ -349,7 +519,10 @@ fn known_names(design: &Design, results: &ResultsDocument) -> BTreeMap<String, V
     let mut out = BTreeMap::new();
     let with = |si: f64, dim: Dim| Value { si, dim: Some(dim), mark: Mark::Plain };
     for p in &design.params {
-        let dim = quantity::evaluate(&format!("1 {}", p.unit), &BTreeMap::new()).ok().and_then(|v| v.dim).unwrap_or(Dim::NONE);
+        let dim = quantity::evaluate(&format!("1 {}", p.unit), &BTreeMap::new())
+            .ok()
+            .and_then(|v| v.dim)
+            .unwrap_or(Dim::NONE);
         out.insert(p.name.clone(), with(p.value, dim));
     }
     for part in &design.parts {
@@ -364,6 +537,7 @@ fn known_names(design: &Design, results: &ResultsDocument) -> BTreeMap<String, V
         };
         out.insert(part.name.clone(), with(value, dim));
     }
+    out.insert("signal.resistance".into(), with(design.signal.resistance.nominal, Dim::OHM));
     let json = serde_json::to_value(results).unwrap_or_default();
     flatten(&json, "", &mut out);
     // Devices by part: `Q1.gm`, `Q1.ic`.
@@ -373,7 +547,9 @@ fn known_names(design: &Design, results: &ResultsDocument) -> BTreeMap<String, V
             for source in [Some(d), d.get("small_signal")].into_iter().flatten() {
                 let Some(map) = source.as_object() else { continue };
                 for (k, v) in map {
-                    if let (Some(x), Some((stem, value))) = (v.as_f64(), unit_suffix(k).map(|(s, _)| s).zip(leaf(k, v))) {
+                    if let (Some(x), Some((stem, value))) =
+                        (v.as_f64(), unit_suffix(k).map(|(s, _)| s).zip(leaf(k, v)))
+                    {
                         let _ = x;
                         out.insert(format!("{part}.{stem}"), value);
                     }
@@ -381,14 +557,29 @@ fn known_names(design: &Design, results: &ResultsDocument) -> BTreeMap<String, V
             }
         }
     }
-    // Time constants by capacitor: `open.C3.tau`, `short.CE.r`.
-    for (side, pointer) in [("open", "/high/octc/caps"), ("short", "/low/sctc/caps")] {
+    // Time constants by capacitor: `open.C3.tau`, `short.CE.r`; and the capacitor with the
+    // largest share of each set as `dominant.…` (open-circuit) and `lowest.…` (short-circuit).
+    for (side, pointer, largest) in
+        [("open", "/high/octc/caps", "dominant"), ("short", "/low/sctc/caps", "lowest")]
+    {
         let Some(caps) = json.pointer(pointer).and_then(|c| c.as_array()) else { continue };
+        let share = |c: &serde_json::Value| c.get("share").and_then(|s| s.as_f64()).unwrap_or(0.0);
+        let top = caps.iter().max_by(|a, b| share(a).total_cmp(&share(b)));
         for c in caps {
             let Some(part) = c.get("part").and_then(|p| p.as_str()) else { continue };
-            for (key, stem) in [("tau_s", "tau"), ("r_ohm", "r"), ("c_f", "c"), ("share", "share"), ("miller_factor", "miller")] {
+            let first = top.is_some_and(|t| std::ptr::eq(t, c));
+            for (key, stem) in [
+                ("tau_s", "tau"),
+                ("r_ohm", "r"),
+                ("c_f", "c"),
+                ("share", "share"),
+                ("miller_factor", "miller"),
+            ] {
                 if let Some(v) = c.get(key).and_then(|v| leaf(key, v)) {
                     out.insert(format!("{side}.{part}.{stem}"), v);
+                    if first {
+                        out.insert(format!("{largest}.{stem}"), v);
+                    }
                 }
             }
         }
@@ -443,7 +634,9 @@ fn unit_suffix(key: &str) -> Option<(&str, (Dim, Mark))> {
     if let Some(stem) = key.strip_suffix("_db") {
         return Some((stem, (Dim::NONE, Mark::Decibel)));
     }
-    SUFFIXES.iter().find_map(|(suffix, dim)| key.strip_suffix(suffix).map(|stem| (stem, (*dim, Mark::Plain))))
+    SUFFIXES
+        .iter()
+        .find_map(|(suffix, dim)| key.strip_suffix(suffix).map(|stem| (stem, (*dim, Mark::Plain))))
 }
 
 /// The dimension a declared unit names, None when it does not read.
@@ -481,9 +674,21 @@ fn shown(v: f64, unit: &str) -> String {
 
 /// Greek letters written out, as the formula shows them.
 const GREEK: &[(&str, &str)] = &[
-    ("alpha", "α"), ("beta", "β"), ("gamma", "γ"), ("delta", "δ"), ("Delta", "Δ"), ("omega", "ω"),
-    ("Omega", "Ω"), ("tau", "τ"), ("mu", "μ"), ("phi", "φ"), ("theta", "θ"), ("lambda", "λ"),
-    ("sigma", "σ"), ("pi", "π"), ("zeta", "ζ"),
+    ("alpha", "α"),
+    ("beta", "β"),
+    ("gamma", "γ"),
+    ("delta", "δ"),
+    ("Delta", "Δ"),
+    ("omega", "ω"),
+    ("Omega", "Ω"),
+    ("tau", "τ"),
+    ("mu", "μ"),
+    ("phi", "φ"),
+    ("theta", "θ"),
+    ("lambda", "λ"),
+    ("sigma", "σ"),
+    ("pi", "π"),
+    ("zeta", "ζ"),
 ];
 
 /// A name as typeset: a Greek word as its letter, the part after the first `_` as a
@@ -530,7 +735,9 @@ fn rewrite(expression: &str, name: &mut dyn FnMut(&str) -> Option<String>) -> St
         let c = chars[k];
         if c.is_ascii_digit() || (c == '.' && chars.get(k + 1).is_some_and(char::is_ascii_digit)) {
             // A number with its prefix, unit or IEC code: as written.
-            while k < chars.len() && (chars[k].is_alphanumeric() || matches!(chars[k], '.' | 'µ' | 'Ω' | '°' | '%')) {
+            while k < chars.len()
+                && (chars[k].is_alphanumeric() || matches!(chars[k], '.' | 'µ' | 'Ω' | '°' | '%'))
+            {
                 out.push(chars[k]);
                 k += 1;
             }
@@ -539,7 +746,12 @@ fn rewrite(expression: &str, name: &mut dyn FnMut(&str) -> Option<String>) -> St
         }
         if c.is_alphabetic() || c == '_' {
             let start = k;
-            while k < chars.len() && (chars[k].is_alphanumeric() || chars[k] == '_' || (chars[k] == '.' && chars.get(k + 1).is_some_and(|n| n.is_alphanumeric() || *n == '_'))) {
+            while k < chars.len()
+                && (chars[k].is_alphanumeric()
+                    || chars[k] == '_'
+                    || (chars[k] == '.'
+                        && chars.get(k + 1).is_some_and(|n| n.is_alphanumeric() || *n == '_')))
+            {
                 k += 1;
             }
             let word: String = chars[start..k].iter().collect();
@@ -578,7 +790,11 @@ fn rewrite(expression: &str, name: &mut dyn FnMut(&str) -> Option<String>) -> St
 fn table(steps: &[&WorkedStep]) -> String {
     let checked = steps.iter().any(|s| s.estimates.is_some());
     let mut out = String::from("| step | worked | result |");
-    out.push_str(if checked { " against the exact |\n|:---|:---|---:|:---|\n" } else { "\n|:---|:---|---:|\n" });
+    out.push_str(if checked {
+        " against the exact |\n|:---|:---|---:|:---|\n"
+    } else {
+        "\n|:---|:---|---:|\n"
+    });
     for s in steps {
         let result = shown(s.value, &s.unit);
         let worked = format!("{} = {}", typeset(&s.expression), s.substituted);
@@ -589,6 +805,14 @@ fn table(steps: &[&WorkedStep]) -> String {
         out.push('\n');
     }
     out
+}
+
+/// One line for the terminal: `f_H1 = 11.35 MHz estimates high.f3db_hz = 14.71 MHz: …`.
+pub fn verdict_line(s: &WorkedStep) -> String {
+    let text = format!("{} = {}, {}", s.name, shown(s.value, &s.unit), verdict(s))
+        .replace("**", "")
+        .replace('`', "");
+    plain_subscripts(&text)
 }
 
 /// What a step's estimate says against the exact value.
@@ -617,7 +841,15 @@ fn cell(text: &str) -> String {
 }
 
 /// A template error at `line` (1-based), `col` (0-based, characters), `len` characters long.
-fn located(name: &str, lines: &[&str], line: usize, col: usize, len: usize, what: &str, help: &str) -> TemplateError {
+fn located(
+    name: &str,
+    lines: &[&str],
+    line: usize,
+    col: usize,
+    len: usize,
+    what: &str,
+    help: &str,
+) -> TemplateError {
     let text = lines.get(line.saturating_sub(1)).copied().unwrap_or("");
     let width = line.to_string().len();
     let pad = " ".repeat(width);

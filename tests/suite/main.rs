@@ -24,4 +24,5 @@ mod support;
 mod tolerance;
 mod watch;
 mod what_if;
+mod worked;
 mod workflow;
