@@ -491,8 +491,13 @@ impl Parser<'_> {
             Some(c) if c.is_ascii_digit() || c == '.' => self.number(),
             Some(c) if c.is_alphabetic() || c == '_' => {
                 let mut word = self.take_while(|c| c.is_alphanumeric() || c == '_');
-                if let Some(v) = self.code_number(&word, start) {
-                    return Ok(v);
+                let dotted = self.peek() == Some('.')
+                    && matches!(self.chars.get(self.pos + 1), Some(c) if c.is_alphabetic() || *c == '_');
+                // `M1.gm` is a device's value, not the IEC code M1 (0.1 M).
+                if !dotted {
+                    if let Some(v) = self.code_number(&word, start) {
+                        return Ok(v);
+                    }
                 }
                 // A dotted name (`Q1.gm`, `high.f3db_hz`): one name, never a param's.
                 while self.peek() == Some('.')

@@ -822,8 +822,10 @@ fn verdict(s: &WorkedStep) -> String {
     else {
         return String::new();
     };
+    // An error below a part in 10⁹ is the floating point's, not the estimate's.
+    let error = if error.abs() < 1e-9 * exact.abs().max(1.0) { 0.0 } else { error };
     let (err, tol) = if relative {
-        (format!("{:+} %", plain(error * 100.0, 3)), format!("{} %", plain(tolerance * 100.0, 3)))
+        (format!("{} %", plain(error * 100.0, 3)), format!("{} %", plain(tolerance * 100.0, 3)))
     } else {
         (shown(error, &s.unit), shown(tolerance, &s.unit))
     };

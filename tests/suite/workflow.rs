@@ -459,3 +459,21 @@ fn project_file_mistakes_are_located_in_the_project_file_with_a_hint() {
         }
     }
 }
+
+/// The house example's template is the built-in review with one section added (its hand
+/// analysis of a common-source stage): kept in step with the built-in one.
+#[test]
+fn the_house_template_is_the_built_in_review_plus_its_hand_analysis() {
+    let house = std::fs::read_to_string(root().join("designs/house/review-house.md")).unwrap();
+    let built_in = std::fs::read_to_string(root().join("templates/review.md")).unwrap();
+    let start = house.find("## Hand analysis").expect("the section");
+    let end =
+        start + house[start..].find("## Upper cut-off").expect("followed by the upper cut-off");
+    let body = house.split_once("#}\n").expect("the header comment").1;
+    let without = body.replace(&house[start..end], "");
+    assert_eq!(without, built_in, "update designs/house/review-house.md from templates/review.md");
+    // And it works: the house stage's gain by the usual formula agrees with the engine.
+    let o = run_in(&root(), &["check", "designs/house/post-amp-cs-house.yaml", "--runs", "0"]);
+    let stdout = text(&o.stdout);
+    assert!(stdout.contains("A_v = ") && stdout.contains("midband.gain"), "{stdout}");
+}
