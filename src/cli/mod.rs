@@ -102,9 +102,9 @@ pub struct Cli {
 /// The subcommands.
 #[derive(Debug, Subcommand)]
 pub enum Command {
-    /// Validate a design file and print a summary of it.
+    /// Validate designs and print their analysis (one line each when several are named).
     Check(check::CheckArgs),
-    /// Analyse a design and write its review (HTML, Markdown, PDF, plots, JSON) into a folder.
+    /// Analyse designs and write each review (HTML, Markdown, PDF, plots, JSON) into a folder.
     Render(render::RenderArgs),
     /// Show what changed between two revisions of a design: parts, models and results.
     Diff(diff::DiffArgs),
@@ -112,7 +112,7 @@ pub enum Command {
     New(new::NewArgs),
     /// Work with report templates.
     Template(template::TemplateArgs),
-    /// Rebuild a rendered folder from its own inputs and compare every file byte for byte.
+    /// Rebuild rendered folders from their own inputs and compare every file byte for byte.
     Verify(verify::VerifyArgs),
     /// Print the JSON Schema of the design format (for editors).
     Schema(schema::SchemaArgs),
