@@ -125,121 +125,226 @@ fn level_stages_design(n: usize) -> String {
 }
 
 fn main() {
-    println!(
-        "whole analysis of each example design (operating point, sweep, cut-offs, QZ, time constants)"
-    );
+    // `cargo bench --bench analysis -- NAME` runs the sections whose name contains NAME:
+    // analysis, noise, signal, render, what-if, monte-carlo, sensitivities, scale, ladder.
+    let only: Option<String> = std::env::args().skip(1).find(|a| !a.starts_with('-'));
+    let wanted = |section: &str| only.as_deref().is_none_or(|o| section.contains(o));
     let root = env!("CARGO_MANIFEST_DIR");
-    let mut names: Vec<_> = std::fs::read_dir(format!("{root}/designs"))
-        .unwrap()
-        .map(|e| e.unwrap().path())
-        .filter(|p| p.extension().is_some_and(|e| e == "yaml"))
-        .collect();
-    names.sort();
-    for path in names {
-        let text = std::fs::read_to_string(&path).unwrap();
-        let d = design::load(&text).design.expect("valid design");
-        let (t, runs) = median(
-            || drop(black_box(analysis::analyze(&d).unwrap())),
-            Duration::from_secs(2),
-            2000,
-        );
-        println!(
-            "  {:<28} {:>10.3} ms  ({runs} runs)",
-            path.file_name().unwrap().to_string_lossy(),
-            t.as_secs_f64() * 1e3
-        );
-    }
-    println!(
-        "\nnoise review of each example design (sources, spot spectrum, input generators, band integral, the sweep's noise; bias and network built beforehand)"
-    );
-    let mut names: Vec<_> = std::fs::read_dir(format!("{root}/designs"))
-        .unwrap()
-        .map(|e| e.unwrap().path())
-        .filter(|p| p.extension().is_some_and(|e| e == "yaml"))
-        .collect();
-    names.sort();
-    for path in &names {
-        use tauweave::circuit::{netlist::Netlist, operating_point, small_signal};
-        let text = std::fs::read_to_string(path).unwrap();
-        let d = design::load(&text).design.expect("valid design");
-        let a = analysis::analyze(&d).unwrap();
-        let net = Netlist::from_design(&d);
-        let op = net.has_devices().then(|| operating_point::solve(&net).unwrap());
-        let (lin, _) = small_signal::linearize(&net, op.as_ref());
-        let full = mna::assemble(&lin, |_| CapState::Present, Assembly::default());
-        let n = a.noise.as_ref().expect("noise");
-        let band = n.band.as_ref().map(|b| (b.start_hz, b.stop_hz, b.basis));
-        let frequencies: Vec<f64> = a.sweep.iter().map(|p| p.frequency_hz).collect();
-        let corners = vec![0.0; op.as_ref().map_or(0, |o| o.devices.len())];
-        let request = analysis::noise::Request {
-            lin: &lin,
-            op: op.as_ref(),
-            mna: &full,
-            kelvin: net.temperature_k,
-            corners: &corners,
-            amplitude_v: d.signal.amplitude_v,
-            spot_hz: n.spot_frequency_hz,
-            band,
-            frequencies: &frequencies,
-        };
-        let (t, runs) = median(
-            || drop(black_box(analysis::noise::review(&request))),
-            Duration::from_secs(2),
-            2000,
-        );
-        println!(
-            "  {:<28} {:>10.3} ms  ({runs} runs, {} sweep points)",
-            path.file_name().unwrap().to_string_lossy(),
-            t.as_secs_f64() * 1e3,
-            frequencies.len()
-        );
-    }
-    println!(
-        "\nsignal-handling review of each example design (swing limits, distortion at the stated amplitude, power series, compression, transfer curve; bias solved beforehand)"
-    );
-    for path in &names {
-        use tauweave::circuit::{netlist::Netlist, operating_point};
-        let text = std::fs::read_to_string(path).unwrap();
-        let d = design::load(&text).design.expect("valid design");
-        let a = analysis::analyze(&d).unwrap();
-        let net = Netlist::from_design(&d);
-        let op = operating_point::solve(&net).unwrap();
-        let request = analysis::large_signal::Request {
-            net: &net,
-            op: &op,
-            gain: a.midband.gain,
-            amplitude_v: d.signal.amplitude_v,
-            frequency_hz: a.midband.frequency_hz,
-            cutoffs: (a.low.f3db_hz, a.high.f3db_hz),
-            input_noise_rms_v: None,
-        };
-        let (t, runs) = median(
-            || drop(black_box(analysis::large_signal::review(&request))),
-            Duration::from_secs(2),
-            2000,
-        );
-        println!(
-            "  {:<28} {:>10.3} ms  ({runs} runs)",
-            path.file_name().unwrap().to_string_lossy(),
-            t.as_secs_f64() * 1e3
-        );
-    }
-    println!(
-        "\nrender of each example design (analysis, requirement checks, cautions, explanation, tables, plots, HTML, Markdown, JSON; tolerance study done once beforehand; no disk)"
-    );
-    let mut names: Vec<_> = std::fs::read_dir(format!("{root}/designs"))
-        .unwrap()
-        .map(|e| e.unwrap().path())
-        .filter(|p| p.extension().is_some_and(|e| e == "yaml"))
-        .collect();
-    names.sort();
     let tpl = template::TemplateSource {
         name: template::BUILT_IN_NAME.into(),
         text: template::BUILT_IN.into(),
     };
-    for path in names {
-        let text = std::fs::read_to_string(&path).unwrap();
-        let d = design::load(&text).design.expect("valid design");
+    let mut names: Vec<_> = std::fs::read_dir(format!("{root}/designs"))
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().is_some_and(|e| e == "yaml"))
+        .collect();
+    names.sort();
+    if wanted("analysis") {
+        println!(
+            "whole analysis of each example design (operating point, sweep, cut-offs, QZ, time constants)"
+        );
+        for path in &names {
+            let text = std::fs::read_to_string(&path).unwrap();
+            let d = design::load(&text).design.expect("valid design");
+            let (t, runs) = median(
+                || drop(black_box(analysis::analyze(&d).unwrap())),
+                Duration::from_secs(2),
+                2000,
+            );
+            println!(
+                "  {:<28} {:>10.3} ms  ({runs} runs)",
+                path.file_name().unwrap().to_string_lossy(),
+                t.as_secs_f64() * 1e3
+            );
+        }
+    }
+    if wanted("noise") {
+        println!(
+            "\nnoise review of each example design (sources, spot spectrum, input generators, band integral, the sweep's noise; bias and network built beforehand)"
+        );
+        for path in &names {
+            use tauweave::circuit::{netlist::Netlist, operating_point, small_signal};
+            let text = std::fs::read_to_string(path).unwrap();
+            let d = design::load(&text).design.expect("valid design");
+            let a = analysis::analyze(&d).unwrap();
+            let net = Netlist::from_design(&d);
+            let op = net.has_devices().then(|| operating_point::solve(&net).unwrap());
+            let (lin, _) = small_signal::linearize(&net, op.as_ref());
+            let full = mna::assemble(&lin, |_| CapState::Present, Assembly::default());
+            let n = a.noise.as_ref().expect("noise");
+            let band = n.band.as_ref().map(|b| (b.start_hz, b.stop_hz, b.basis));
+            let frequencies: Vec<f64> = a.sweep.iter().map(|p| p.frequency_hz).collect();
+            let corners = vec![0.0; op.as_ref().map_or(0, |o| o.devices.len())];
+            let request = analysis::noise::Request {
+                lin: &lin,
+                op: op.as_ref(),
+                mna: &full,
+                kelvin: net.temperature_k,
+                corners: &corners,
+                amplitude_v: d.signal.amplitude_v,
+                spot_hz: n.spot_frequency_hz,
+                band,
+                frequencies: &frequencies,
+            };
+            let (t, runs) = median(
+                || drop(black_box(analysis::noise::review(&request))),
+                Duration::from_secs(2),
+                2000,
+            );
+            println!(
+                "  {:<28} {:>10.3} ms  ({runs} runs, {} sweep points)",
+                path.file_name().unwrap().to_string_lossy(),
+                t.as_secs_f64() * 1e3,
+                frequencies.len()
+            );
+        }
+    }
+    if wanted("signal") {
+        println!(
+            "\nsignal-handling review of each example design (swing limits, distortion at the stated amplitude, power series, compression, transfer curve; bias solved beforehand)"
+        );
+        for path in &names {
+            use tauweave::circuit::{netlist::Netlist, operating_point};
+            let text = std::fs::read_to_string(path).unwrap();
+            let d = design::load(&text).design.expect("valid design");
+            let a = analysis::analyze(&d).unwrap();
+            let net = Netlist::from_design(&d);
+            let op = operating_point::solve(&net).unwrap();
+            let request = analysis::large_signal::Request {
+                net: &net,
+                op: &op,
+                gain: a.midband.gain,
+                amplitude_v: d.signal.amplitude_v,
+                frequency_hz: a.midband.frequency_hz,
+                cutoffs: (a.low.f3db_hz, a.high.f3db_hz),
+                input_noise_rms_v: None,
+            };
+            let (t, runs) = median(
+                || drop(black_box(analysis::large_signal::review(&request))),
+                Duration::from_secs(2),
+                2000,
+            );
+            println!(
+                "  {:<28} {:>10.3} ms  ({runs} runs)",
+                path.file_name().unwrap().to_string_lossy(),
+                t.as_secs_f64() * 1e3
+            );
+        }
+    }
+    if wanted("render") {
+        println!(
+            "\nrender of each example design (analysis, requirement checks, cautions, explanation, tables, plots, HTML, Markdown, JSON; tolerance study done once beforehand; no disk)"
+        );
+        for path in &names {
+            let text = std::fs::read_to_string(&path).unwrap();
+            let d = design::load(&text).design.expect("valid design");
+            let inputs = Inputs {
+                design_name: "d.yaml",
+                design_text: &text,
+                template: &tpl,
+                built_in_template: true,
+                schematic: None,
+                logo: None,
+            };
+            let study =
+                review::review(&d, &ReviewOptions { runs: 0, progress: &|_| {} }).unwrap().study;
+            let fixed: Vec<String> =
+                d.parts.iter().filter(|p| p.is_fixed()).map(|p| p.name.clone()).collect();
+            // `with_signal` false: the same render with the signal-handling section dropped
+            // after the analysis (its computation is still in the time; the bench above gives it).
+            let render = |with_signal: bool| {
+                let mut analysis = analysis::analyze(&d).unwrap();
+                if !with_signal {
+                    analysis.large_signal = None;
+                }
+                let mut requirements = analysis::requirements::check(&d.requirements, &analysis);
+                analysis::requirements::with_study(&mut requirements, &study);
+                let review = Review {
+                    cautions: report::cautions::cautions(&d, &analysis),
+                    explanation: report::explain::explain(
+                        &analysis,
+                        Some(&study),
+                        &fixed,
+                        report::port_words::Asked::of(&d.requirements),
+                    ),
+                    what_if: analysis::what_if::review(&d),
+                    analysis,
+                    study: study.clone(),
+                    requirements,
+                };
+                drop(black_box(report::render(&d, &review, &inputs, &FORMATS).unwrap()))
+            };
+            let (t, runs) = median(|| render(true), Duration::from_secs(2), 500);
+            let (t_without, _) = median(|| render(false), Duration::from_secs(2), 500);
+            println!(
+                "  {:<28} {:>10.3} ms  ({runs} runs; {:.3} ms without the signal-handling section's tables, plots and text)",
+                path.file_name().unwrap().to_string_lossy(),
+                t.as_secs_f64() * 1e3,
+                t_without.as_secs_f64() * 1e3
+            );
+        }
+    }
+    if wanted("what-if") {
+        println!(
+            "\nwhat-if on the demo, one core: a 20-point sweep and a limit solve of cable_length"
+        );
+        {
+            let text =
+                std::fs::read_to_string(format!("{root}/designs/rx-preamp-ce.yaml")).unwrap();
+            let base = design::load(&text).design.expect("valid design");
+            let spec = |sweeps: bool, limits: bool| {
+                let mut d = base.clone();
+                if !sweeps {
+                    d.what_if.sweeps.clear();
+                } else {
+                    let s = &mut d.what_if.sweeps[0];
+                    s.values = (0..20).map(|k| 1.0 * 20f64.powf(k as f64 / 19.0)).collect();
+                }
+                if !limits {
+                    d.what_if.limits.clear();
+                }
+                d
+            };
+            let one = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap();
+            for (label, d) in
+                [("20-point sweep", spec(true, false)), ("limit solve", spec(false, true))]
+            {
+                let (t, runs) = median(
+                    || one.install(|| drop(black_box(analysis::what_if::review(&d)))),
+                    Duration::from_secs(2),
+                    200,
+                );
+                println!("  {label:<28} {:>10.3} ms  ({runs} runs)", t.as_secs_f64() * 1e3);
+            }
+        }
+    }
+    if wanted("monte-carlo") {
+        println!(
+            "\nMonte Carlo: full evaluations (bias, mid-band, time constants, exact cut-offs) per second, all cores"
+        );
+        for path in &names {
+            let text = std::fs::read_to_string(path).unwrap();
+            let d = design::load(&text).design.expect("valid design");
+            let levers = tolerance::levers(&d);
+            let nominal = analysis::metrics(&d).unwrap();
+            let figs = tolerance::figures(&nominal);
+            let runs = 4000;
+            let t = Instant::now();
+            let mc = tolerance::monte_carlo(&d, &levers, &figs, &[], runs, &|_| {});
+            let dt = t.elapsed().as_secs_f64();
+            println!(
+                "  {:<28} {:>10.0} runs/s  ({runs} runs, {} failed)",
+                path.file_name().unwrap().to_string_lossy(),
+                runs as f64 / dt,
+                mc.failed_runs.len()
+            );
+        }
+        let text = std::fs::read_to_string(format!("{root}/designs/rx-preamp-ce.yaml")).unwrap();
+        let d = design::load(&text).design.unwrap();
+        let t = Instant::now();
+        let review =
+            review::review(&d, &ReviewOptions { runs: 10_000, progress: &|_| {} }).unwrap();
         let inputs = Inputs {
             design_name: "d.yaml",
             design_text: &text,
@@ -248,212 +353,119 @@ fn main() {
             schematic: None,
             logo: None,
         };
-        let study =
-            review::review(&d, &ReviewOptions { runs: 0, progress: &|_| {} }).unwrap().study;
-        let fixed: Vec<String> =
-            d.parts.iter().filter(|p| p.is_fixed()).map(|p| p.name.clone()).collect();
-        // `with_signal` false: the same render with the signal-handling section dropped
-        // after the analysis (its computation is still in the time; the bench above gives it).
-        let render = |with_signal: bool| {
-            let mut analysis = analysis::analyze(&d).unwrap();
-            if !with_signal {
-                analysis.large_signal = None;
-            }
-            let mut requirements = analysis::requirements::check(&d.requirements, &analysis);
-            analysis::requirements::with_study(&mut requirements, &study);
-            let review = Review {
-                cautions: report::cautions::cautions(&d, &analysis),
-                explanation: report::explain::explain(
-                    &analysis,
-                    Some(&study),
-                    &fixed,
-                    report::port_words::Asked::of(&d.requirements),
-                ),
-                what_if: analysis::what_if::review(&d),
-                analysis,
-                study: study.clone(),
-                requirements,
-            };
-            drop(black_box(report::render(&d, &review, &inputs, &FORMATS).unwrap()))
-        };
-        let (t, runs) = median(|| render(true), Duration::from_secs(2), 500);
-        let (t_without, _) = median(|| render(false), Duration::from_secs(2), 500);
+        let files = report::render(&d, &review, &inputs, &FORMATS).unwrap();
         println!(
-            "  {:<28} {:>10.3} ms  ({runs} runs; {:.3} ms without the signal-handling section's tables, plots and text)",
-            path.file_name().unwrap().to_string_lossy(),
-            t.as_secs_f64() * 1e3,
-            t_without.as_secs_f64() * 1e3
+            "\n  10,000-run render of rx-preamp-ce (analysis, sensitivities, worst case, Monte Carlo, all outputs): {:.3} s, {} files",
+            t.elapsed().as_secs_f64(),
+            files.len()
         );
     }
-    println!("\nwhat-if on the demo, one core: a 20-point sweep and a limit solve of cable_length");
-    {
-        let text = std::fs::read_to_string(format!("{root}/designs/rx-preamp-ce.yaml")).unwrap();
-        let base = design::load(&text).design.expect("valid design");
-        let spec = |sweeps: bool, limits: bool| {
-            let mut d = base.clone();
-            if !sweeps {
-                d.what_if.sweeps.clear();
-            } else {
-                let s = &mut d.what_if.sweeps[0];
-                s.values = (0..20).map(|k| 1.0 * 20f64.powf(k as f64 / 19.0)).collect();
-            }
-            if !limits {
-                d.what_if.limits.clear();
-            }
-            d
-        };
-        let one = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap();
-        for (label, d) in
-            [("20-point sweep", spec(true, false)), ("limit solve", spec(false, true))]
-        {
-            let (t, runs) = median(
-                || one.install(|| drop(black_box(analysis::what_if::review(&d)))),
+    if wanted("sensitivities") {
+        println!(
+            "\nsensitivities of every figure to every lever: adjoint method against central differences of whole evaluations"
+        );
+        for (what, text) in [
+            ("RC ladder, 10 sections", ladder_design(10)),
+            ("RC ladder, 30 sections", ladder_design(30)),
+            ("RC ladder, 100 sections", ladder_design(100)),
+            ("common-emitter stages, 3", stages_design(3)),
+            ("common-emitter stages, 6", stages_design(6)),
+        ] {
+            let d = design::load(&text).design.expect("valid generated design");
+            let levers = tolerance::levers(&d);
+            let figs = tolerance::figures(&analysis::metrics(&d).unwrap());
+            let (t_adjoint, _) = median(
+                || drop(black_box(tolerance::sensitivities(&d, &levers, &figs))),
                 Duration::from_secs(2),
-                200,
+                20,
             );
-            println!("  {label:<28} {:>10.3} ms  ({runs} runs)", t.as_secs_f64() * 1e3);
+            let (t_diff, _) = median(
+                || drop(black_box(tolerance::sensitivities_by_differences(&d, &levers, &figs))),
+                Duration::from_secs(2),
+                5,
+            );
+            println!(
+                "  {what:<28} {:>4} levers: adjoint {:>9.2} ms, differences {:>9.2} ms ({:.1}×)",
+                levers.len(),
+                t_adjoint.as_secs_f64() * 1e3,
+                t_diff.as_secs_f64() * 1e3,
+                t_diff.as_secs_f64() / t_adjoint.as_secs_f64()
+            );
         }
     }
-    println!(
-        "\nMonte Carlo: full evaluations (bias, mid-band, time constants, exact cut-offs) per second, all cores"
-    );
-    let mut names: Vec<_> = std::fs::read_dir(format!("{root}/designs"))
-        .unwrap()
-        .map(|e| e.unwrap().path())
-        .filter(|p| p.extension().is_some_and(|e| e == "yaml"))
-        .collect();
-    names.sort();
-    for path in &names {
-        let text = std::fs::read_to_string(path).unwrap();
-        let d = design::load(&text).design.expect("valid design");
-        let levers = tolerance::levers(&d);
-        let nominal = analysis::metrics(&d).unwrap();
-        let figs = tolerance::figures(&nominal);
-        let runs = 4000;
-        let t = Instant::now();
-        let mc = tolerance::monte_carlo(&d, &levers, &figs, &[], runs, &|_| {});
-        let dt = t.elapsed().as_secs_f64();
+    if wanted("scale") {
         println!(
-            "  {:<28} {:>10.0} runs/s  ({runs} runs, {} failed)",
-            path.file_name().unwrap().to_string_lossy(),
-            runs as f64 / dt,
-            mc.failed_runs.len()
+            "\nscale: the whole review without Monte Carlo (what `check --runs 0` does: analysis, sensitivities, worst case) of generated networks"
         );
+        for (what, nodes, text) in [
+            ("RC ladder", 100, ladder_design(100)),
+            ("RC ladder", 300, ladder_design(300)),
+            ("RC ladder", 1000, ladder_design(1000)),
+            ("RC ladder", 3000, ladder_design(3000)),
+            ("common-emitter stages", 100, level_stages_design(25)),
+            ("common-emitter stages", 300, level_stages_design(75)),
+            ("common-emitter stages", 1000, level_stages_design(250)),
+            ("common-emitter stages", 3000, level_stages_design(750)),
+        ] {
+            let d = design::load(&text).design.expect("valid generated design");
+            let (t, runs) = median(
+                || {
+                    drop(black_box(review::review(
+                        &d,
+                        &ReviewOptions { runs: 0, progress: &|_| {} },
+                    )))
+                },
+                Duration::from_secs(4),
+                5,
+            );
+            println!("  {what:<24} {nodes:>5} nodes {:>10.3} s  ({runs} runs)", t.as_secs_f64());
+        }
     }
-    let text = std::fs::read_to_string(format!("{root}/designs/rx-preamp-ce.yaml")).unwrap();
-    let d = design::load(&text).design.unwrap();
-    let t = Instant::now();
-    let review = review::review(&d, &ReviewOptions { runs: 10_000, progress: &|_| {} }).unwrap();
-    let inputs = Inputs {
-        design_name: "d.yaml",
-        design_text: &text,
-        template: &tpl,
-        built_in_template: true,
-        schematic: None,
-        logo: None,
-    };
-    let files = report::render(&d, &review, &inputs, &FORMATS).unwrap();
-    println!(
-        "\n  10,000-run render of rx-preamp-ce (analysis, sensitivities, worst case, Monte Carlo, all outputs): {:.3} s, {} files",
-        t.elapsed().as_secs_f64(),
-        files.len()
-    );
-
-    println!(
-        "\nsensitivities of every figure to every lever: adjoint method against central differences of whole evaluations"
-    );
-    for (what, text) in [
-        ("RC ladder, 10 sections", ladder_design(10)),
-        ("RC ladder, 30 sections", ladder_design(30)),
-        ("RC ladder, 100 sections", ladder_design(100)),
-        ("common-emitter stages, 3", stages_design(3)),
-        ("common-emitter stages, 6", stages_design(6)),
-    ] {
-        let d = design::load(&text).design.expect("valid generated design");
-        let levers = tolerance::levers(&d);
-        let figs = tolerance::figures(&analysis::metrics(&d).unwrap());
-        let (t_adjoint, _) = median(
-            || drop(black_box(tolerance::sensitivities(&d, &levers, &figs))),
-            Duration::from_secs(2),
-            20,
-        );
-        let (t_diff, _) = median(
-            || drop(black_box(tolerance::sensitivities_by_differences(&d, &levers, &figs))),
-            Duration::from_secs(2),
-            5,
-        );
+    if wanted("ladder") {
         println!(
-            "  {what:<28} {:>4} levers: adjoint {:>9.2} ms, differences {:>9.2} ms ({:.1}×)",
-            levers.len(),
-            t_adjoint.as_secs_f64() * 1e3,
-            t_diff.as_secs_f64() * 1e3,
-            t_diff.as_secs_f64() / t_adjoint.as_secs_f64()
+            "\nRC ladder: factorise the mid-band G once, then every open-circuit time constant"
         );
-    }
-
-    println!(
-        "\nscale: the whole review without Monte Carlo (what `check --runs 0` does: analysis, sensitivities, worst case) of generated networks"
-    );
-    for (what, nodes, text) in [
-        ("RC ladder", 100, ladder_design(100)),
-        ("RC ladder", 300, ladder_design(300)),
-        ("RC ladder", 1000, ladder_design(1000)),
-        ("RC ladder", 3000, ladder_design(3000)),
-        ("common-emitter stages", 100, level_stages_design(25)),
-        ("common-emitter stages", 300, level_stages_design(75)),
-        ("common-emitter stages", 1000, level_stages_design(250)),
-        ("common-emitter stages", 3000, level_stages_design(750)),
-    ] {
-        let d = design::load(&text).design.expect("valid generated design");
-        let (t, runs) = median(
-            || drop(black_box(review::review(&d, &ReviewOptions { runs: 0, progress: &|_| {} }))),
-            Duration::from_secs(4),
-            5,
-        );
-        println!("  {what:<24} {nodes:>5} nodes {:>10.3} s  ({runs} runs)", t.as_secs_f64());
-    }
-
-    println!("\nRC ladder: factorise the mid-band G once, then every open-circuit time constant");
-    for n in [100usize, 1000, 3000] {
-        let net = ladder(n);
-        let m = mna::assemble(&net, |_| CapState::Open, Assembly::default());
-        let (t_lu, _) =
-            median(|| drop(black_box(Factor::new(&m.g).unwrap())), Duration::from_secs(3), 50);
-        let caps: Vec<time_constants::CapRef> = (1..=n)
-            .map(|i| time_constants::CapRef {
-                name: format!("C{i}"),
-                c: 1e-12,
-                a: i,
-                b: 0,
-                branch: None,
-            })
-            .collect();
-        let g = Factor::new(&m.g).unwrap();
-        let (t_tc, _) = median(
-            || drop(black_box(time_constants::open_circuit(&m, &g, &caps))),
-            Duration::from_secs(3),
-            50,
-        );
-        println!(
-            "  {n:>5} nodes: factorisation {:>10.3} ms, time constants (all {n}) {:>10.3} ms",
-            t_lu.as_secs_f64() * 1e3,
-            t_tc.as_secs_f64() * 1e3
-        );
-        // The review's window for a network with no lower cut-off, about the estimate.
-        let f_est =
-            1.0 / (2.0 * std::f64::consts::PI * time_constants::open_circuit_sum(&m, &g, &caps));
-        let window = poles::Window { from_hz: f_est / 1e3, to_hz: f_est * 100.0 };
-        let full = mna::assemble(&net, |_| CapState::Present, Assembly::default());
-        let (t_roots, _) = median(
-            || drop(black_box(poles::poles(&full, window).unwrap())),
-            Duration::from_secs(3),
-            10,
-        );
-        let method = if poles::finds_all(&full.c) {
-            "all, by QZ"
-        } else {
-            "near the band, by shift-and-invert"
-        };
-        println!("  {n:>5} nodes: poles ({method}) {:>10.3} ms", t_roots.as_secs_f64() * 1e3);
+        for n in [100usize, 1000, 3000] {
+            let net = ladder(n);
+            let m = mna::assemble(&net, |_| CapState::Open, Assembly::default());
+            let (t_lu, _) =
+                median(|| drop(black_box(Factor::new(&m.g).unwrap())), Duration::from_secs(3), 50);
+            let caps: Vec<time_constants::CapRef> = (1..=n)
+                .map(|i| time_constants::CapRef {
+                    name: format!("C{i}"),
+                    c: 1e-12,
+                    a: i,
+                    b: 0,
+                    branch: None,
+                })
+                .collect();
+            let g = Factor::new(&m.g).unwrap();
+            let (t_tc, _) = median(
+                || drop(black_box(time_constants::open_circuit(&m, &g, &caps))),
+                Duration::from_secs(3),
+                50,
+            );
+            println!(
+                "  {n:>5} nodes: factorisation {:>10.3} ms, time constants (all {n}) {:>10.3} ms",
+                t_lu.as_secs_f64() * 1e3,
+                t_tc.as_secs_f64() * 1e3
+            );
+            // The review's window for a network with no lower cut-off, about the estimate.
+            let f_est = 1.0
+                / (2.0 * std::f64::consts::PI * time_constants::open_circuit_sum(&m, &g, &caps));
+            let window = poles::Window { from_hz: f_est / 1e3, to_hz: f_est * 100.0 };
+            let full = mna::assemble(&net, |_| CapState::Present, Assembly::default());
+            let (t_roots, _) = median(
+                || drop(black_box(poles::poles(&full, window).unwrap())),
+                Duration::from_secs(3),
+                10,
+            );
+            let method = if poles::finds_all(&full.c) {
+                "all, by QZ"
+            } else {
+                "near the band, by shift-and-invert"
+            };
+            println!("  {n:>5} nodes: poles ({method}) {:>10.3} ms", t_roots.as_secs_f64() * 1e3);
+        }
     }
 }

@@ -1,6 +1,7 @@
 //! The factorisations used by the analysis: real LU of G (one per network, reused for every
 //! solve; dense for the small systems of amplifier stages, sparse for large mostly-zero ones)
-//! and complex LU of G + sC for the frequency response.
+//! and the sparse complex LU of G + sC for the frequency response of large networks (small
+//! ones go through `pencil.rs`).
 //!
 //! In: faer matrices or [`Matrix`]. Out: solutions, or [`Singular`] when a pivot vanishes.
 //! No netlist.
@@ -132,107 +133,10 @@ impl Factor {
     }
 }
 
-/// y = outᵀ (G + sC)⁻¹ b at complex frequency `s`, or None when singular there.
-pub fn transfer(g: &Mat<f64>, c: &Mat<f64>, b: &[f64], out: &[f64], s: c64) -> Option<c64> {
-    let n = g.nrows();
-    if n <= SMALL {
-        return transfer_small(g, c, b, out, s);
-    }
-    let a = Mat::<c64>::from_fn(n, n, |i, j| c64::new(g[(i, j)], 0.0) + s * c[(i, j)]);
-    let scale = (0..n)
-        .flat_map(|i| (0..n).map(move |j| (i, j)))
-        .fold(0.0f64, |m, (i, j)| m.max(a[(i, j)].norm()));
-    let lu = a.partial_piv_lu();
-    let u = lu.U();
-    if (0..n).any(|i| {
-        u[(i, i)].norm().partial_cmp(&(PIVOT_TOLERANCE * scale))
-            != Some(std::cmp::Ordering::Greater)
-    }) {
-        return None;
-    }
-    let rhs = Mat::<c64>::from_fn(n, 1, |i, _| c64::new(b[i], 0.0));
-    let x = lu.solve(&rhs);
-    let y = (0..n).map(|i| x[(i, 0)] * out[i]).fold(c64::new(0.0, 0.0), |acc, v| acc + v);
-    y.is_finite().then_some(y)
-}
-
-/// Size up to which [`transfer`] uses a plain in-place elimination (no allocation per
-/// matrix beyond one buffer): the reduced dynamic systems of amplifier stages are this
-/// small, and a sweep or a cut-off search solves them hundreds of times.
+/// Size up to which the port analysis (`ports.rs`) uses a plain in-place elimination (no
+/// allocation per matrix): the two-port solves of amplifier stages are this small, and a
+/// stability sweep solves them hundreds of times.
 pub const SMALL: usize = 24;
-
-thread_local! {
-    /// The working rows of [`transfer_small`], one buffer per thread, reused from call to
-    /// call: a cut-off search or a band scan solves the same small system a hundred times.
-    static WORK: std::cell::RefCell<Vec<c64>> = const { std::cell::RefCell::new(Vec::new()) };
-}
-
-fn transfer_small(g: &Mat<f64>, c: &Mat<f64>, b: &[f64], out: &[f64], s: c64) -> Option<c64> {
-    WORK.with(|work| {
-        let mut work = work.borrow_mut();
-        let n = g.nrows();
-        work.clear();
-        work.resize(n * (n + 2), c64::new(0.0, 0.0));
-        let (a, x) = work.split_at_mut(n * (n + 1));
-        eliminate(g, c, b, out, s, a, x)
-    })
-}
-
-/// Gaussian elimination with partial pivoting on [G + sC | b] in `a` (n × (n + 1), row
-/// major), back substitution into `x`, and y = outᵀx.
-fn eliminate(
-    g: &Mat<f64>,
-    c: &Mat<f64>,
-    b: &[f64],
-    out: &[f64],
-    s: c64,
-    a: &mut [c64],
-    x: &mut [c64],
-) -> Option<c64> {
-    let n = g.nrows();
-    let w = n + 1;
-    // Magnitudes are compared squared throughout: the same order as |z|, without a square
-    // root (hypot) per entry.
-    let mut scale_sq = 0.0f64;
-    for i in 0..n {
-        for j in 0..n {
-            let v = c64::new(g[(i, j)], 0.0) + s * c[(i, j)];
-            scale_sq = scale_sq.max(v.re * v.re + v.im * v.im);
-            a[i * w + j] = v;
-        }
-        a[i * w + n] = c64::new(b[i], 0.0);
-    }
-    let floor_sq = PIVOT_TOLERANCE * PIVOT_TOLERANCE * scale_sq;
-    // Gaussian elimination with partial pivoting on [A | b].
-    for k in 0..n {
-        let p = pivot(a, w, n, k, floor_sq)?;
-        if p != k {
-            for j in 0..w {
-                a.swap(k * w + j, p * w + j);
-            }
-        }
-        let inv = c64::new(1.0, 0.0) / a[k * w + k];
-        for i in k + 1..n {
-            let f = a[i * w + k] * inv;
-            if f == c64::new(0.0, 0.0) {
-                continue;
-            }
-            for j in k..w {
-                let t = a[k * w + j];
-                a[i * w + j] -= f * t;
-            }
-        }
-    }
-    for i in (0..n).rev() {
-        let mut acc = a[i * w + n];
-        for j in i + 1..n {
-            acc -= a[i * w + j] * x[j];
-        }
-        x[i] = acc / a[i * w + i];
-    }
-    let y = x.iter().zip(out).fold(c64::new(0.0, 0.0), |acc, (v, o)| acc + v * *o);
-    y.is_finite().then_some(y)
-}
 
 /// The row at or below `k` with the largest entry in column `k` of the n-row matrix `a`
 /// (row major, `w` entries a row), magnitudes compared squared; None when even that is at or
@@ -248,91 +152,6 @@ pub(crate) fn pivot(a: &[c64], w: usize, n: usize, k: usize, floor_sq: f64) -> O
         }
     }
     (best.partial_cmp(&floor_sq) == Some(std::cmp::Ordering::Greater)).then_some(p)
-}
-
-/// x = A⁻¹b and λ = A⁻ᵀc for A = G + sC, from one LU factorisation with partial pivoting
-/// (PA = LU, so Aᵀ = UᵀLᵀP: λ = Pᵀ L⁻ᵀ U⁻ᵀ c), in place, without a library call: what the
-/// noise analysis needs at each frequency of a small network. Pivots are chosen and refused
-/// as in [`transfer`]. None when A is singular at `s` or a result is not finite.
-pub fn pair_small(
-    g: &Mat<f64>,
-    c: &Mat<f64>,
-    b: &[f64],
-    out: &[f64],
-    s: c64,
-) -> Option<(Vec<c64>, Vec<c64>)> {
-    let n = g.nrows();
-    let zero = c64::new(0.0, 0.0);
-    let mut a = vec![zero; n * n];
-    let mut scale_sq = 0.0f64;
-    for i in 0..n {
-        for j in 0..n {
-            let v = c64::new(g[(i, j)], 0.0) + s * c[(i, j)];
-            scale_sq = scale_sq.max(v.re * v.re + v.im * v.im);
-            a[i * n + j] = v;
-        }
-    }
-    let floor_sq = PIVOT_TOLERANCE * PIVOT_TOLERANCE * scale_sq;
-    // perm[k]: the original row now in row k.
-    let mut perm: Vec<usize> = (0..n).collect();
-    for k in 0..n {
-        let p = pivot(&a, n, n, k, floor_sq)?;
-        if p != k {
-            for j in 0..n {
-                a.swap(k * n + j, p * n + j);
-            }
-            perm.swap(k, p);
-        }
-        let inv = c64::new(1.0, 0.0) / a[k * n + k];
-        for i in k + 1..n {
-            let f = a[i * n + k] * inv;
-            a[i * n + k] = f;
-            if f == zero {
-                continue;
-            }
-            for j in k + 1..n {
-                let t = a[k * n + j];
-                a[i * n + j] -= f * t;
-            }
-        }
-    }
-    // Ly = Pb, Ux = y.
-    let mut x: Vec<c64> = perm.iter().map(|&r| c64::new(b[r], 0.0)).collect();
-    for i in 0..n {
-        let mut acc = x[i];
-        for j in 0..i {
-            acc -= a[i * n + j] * x[j];
-        }
-        x[i] = acc;
-    }
-    for i in (0..n).rev() {
-        let mut acc = x[i];
-        for j in i + 1..n {
-            acc -= a[i * n + j] * x[j];
-        }
-        x[i] = acc / a[i * n + i];
-    }
-    // Uᵀz = c, Lᵀw = z, λ = Pᵀw.
-    let mut z: Vec<c64> = out.iter().map(|&v| c64::new(v, 0.0)).collect();
-    for i in 0..n {
-        let mut acc = z[i];
-        for j in 0..i {
-            acc -= a[j * n + i] * z[j];
-        }
-        z[i] = acc / a[i * n + i];
-    }
-    for i in (0..n).rev() {
-        let mut acc = z[i];
-        for j in i + 1..n {
-            acc -= a[j * n + i] * z[j];
-        }
-        z[i] = acc;
-    }
-    let mut lambda = vec![zero; n];
-    for (k, &r) in perm.iter().enumerate() {
-        lambda[r] = z[k];
-    }
-    x.iter().chain(&lambda).all(|v| v.is_finite()).then_some((x, lambda))
 }
 
 /// Brent's method for a root of `f` in [a, b] with f(a), f(b) of opposite sign
@@ -595,35 +414,6 @@ mod tests {
         assert!((r - 0.739_085_133_215_160_6).abs() < 1e-14); // Dottie number (common knowledge)
     }
 
-    /// The in-place pair solve against faer's own LU (a general-purpose library, used here
-    /// as the reference): A x = b and Aᵀλ = c on a pseudo-random 9 × 9 pencil whose pivots
-    /// need row exchanges, to 1e-12.
-    #[test]
-    fn pair_small_agrees_with_a_library_lu() {
-        use faer::linalg::solvers::Solve;
-        let n = 9;
-        let mut seed = 12345u64;
-        let mut next = || {
-            seed = seed.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
-            ((seed >> 11) as f64 / (1u64 << 53) as f64) - 0.5
-        };
-        // A zero diagonal forces row exchanges.
-        let g = Mat::<f64>::from_fn(n, n, |i, j| if i == j { 0.0 } else { next() });
-        let c = Mat::<f64>::from_fn(n, n, |_, _| next() * 1e-9);
-        let b: Vec<f64> = (0..n).map(|_| next()).collect();
-        let out: Vec<f64> = (0..n).map(|_| next()).collect();
-        let s = c64::new(0.0, 2.0 * std::f64::consts::PI * 3e7);
-        let (x, lambda) = pair_small(&g, &c, &b, &out, s).unwrap();
-        let a = Mat::<c64>::from_fn(n, n, |i, j| c64::new(g[(i, j)], 0.0) + s * c[(i, j)]);
-        let lu = a.partial_piv_lu();
-        let x_ref = lu.solve(Mat::<c64>::from_fn(n, 1, |i, _| c64::new(b[i], 0.0)));
-        let l_ref = lu.solve_transpose(Mat::<c64>::from_fn(n, 1, |i, _| c64::new(out[i], 0.0)));
-        for i in 0..n {
-            assert!((x[i] - x_ref[(i, 0)]).norm() <= 1e-12 * x_ref[(i, 0)].norm().max(1.0));
-            assert!((lambda[i] - l_ref[(i, 0)]).norm() <= 1e-12 * l_ref[(i, 0)].norm().max(1.0));
-        }
-    }
-
     #[test]
     fn singular_is_refused() {
         let a = Mat::<f64>::from_fn(2, 2, |i, j| [[1.0, 2.0], [2.0, 4.0]][i][j]);
@@ -661,7 +451,7 @@ mod tests {
         assert!(Factor::new(&chain(false)).is_err());
     }
 
-    /// The sparse solve gives the dense one's answer (an RC ladder of 150 sections, the
+    /// The sparse solve gives a dense LU's answer (an RC ladder of 150 sections, the
     /// response at three frequencies across its roll-off) to rounding.
     #[test]
     fn sparse_and_dense_transfers_agree() {
@@ -688,8 +478,14 @@ mod tests {
         let sparse = SparseSystem::new(&Matrix::from_dense(&g), &Matrix::from_dense(&c)).unwrap();
         for f in [1e3, 1e5, 1e6] {
             let s = c64::new(0.0, 2.0 * std::f64::consts::PI * f);
-            let (a, d) =
-                (sparse.transfer(&b, &out, s).unwrap(), transfer(&g, &c, &b, &out, s).unwrap());
+            // The reference: faer's dense complex LU.
+            let a_dense =
+                Mat::<c64>::from_fn(n, n, |i, j| c64::new(g[(i, j)], 0.0) + s * c[(i, j)]);
+            let x = a_dense
+                .partial_piv_lu()
+                .solve(Mat::<c64>::from_fn(n, 1, |i, _| c64::new(b[i], 0.0)));
+            let d = x[(n - 1, 0)];
+            let a = sparse.transfer(&b, &out, s).unwrap();
             assert!((a - d).norm() <= 1e-9 * d.norm(), "{f} Hz: sparse {a} dense {d}");
         }
     }

@@ -15,6 +15,7 @@ pub mod matrix;
 pub mod mna;
 pub mod noise;
 pub mod part_changes;
+pub mod pencil;
 pub mod poles;
 pub mod ports;
 pub mod requirements;

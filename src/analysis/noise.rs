@@ -33,8 +33,12 @@
 
 use faer::{Mat, c64};
 
-use crate::analysis::linear::{SMALL, SparseSystem, pair_small, sparse_pays};
+use crate::analysis::linear::{SparseSystem, sparse_pays};
 use crate::analysis::mna::Mna;
+use std::cell::RefCell;
+
+use crate::analysis::pencil::Pencil;
+use crate::analysis::schur;
 use crate::circuit::devices::{BOLTZMANN, ELEMENTARY_CHARGE};
 use crate::circuit::operating_point::{DeviceState, OperatingPoint};
 use crate::circuit::small_signal::{Linear, LinearNetwork};
@@ -255,69 +259,109 @@ impl Spectrum {
     }
 }
 
-/// The network solved for noise at any frequency: one factorisation and two solves each.
+/// The network solved for noise at any frequency, for the sources it was built with: the
+/// signal's transfer and every source's, all from one transposed solve.
 pub struct Solver<'a> {
     mna: &'a Mna,
+    /// Each source's terminals, in the order its spectrum lists them.
+    terminals: Vec<(usize, usize)>,
     form: Form,
 }
 
-/// How the solver holds the network: sparse above the size where that pays, else dense.
+/// How the solver holds the network: sparse above the size where that pays; else its
+/// static unknowns eliminated (`schur.rs`) and the rest in Hessenberg–triangular form
+/// (`pencil.rs`: one O(n³) reduction, then O(n²) a frequency), the signal and each source
+/// an input of it.
 enum Form {
     Sparse(SparseSystem),
-    Dense { g: Mat<f64>, c: Mat<f64> },
+    Dense { pencil: Pencil, direct: Vec<f64>, transfers: RefCell<Vec<c64>> },
 }
 
 impl<'a> Solver<'a> {
-    /// A solver for the full network `mna` (every capacitor present).
-    pub fn new(mna: &'a Mna) -> Solver<'a> {
+    /// A solver for the full network `mna` (every capacitor present) and `sources`.
+    pub fn new(mna: &'a Mna, sources: &[Source]) -> Solver<'a> {
+        Solver::injecting(mna, sources.iter().map(|s| (s.a, s.b)).collect())
+    }
+
+    /// A solver for a unit current into node `node` from ground: [`Solver::transimpedance`].
+    pub fn into_node(mna: &'a Mna, node: usize) -> Solver<'a> {
+        Solver::injecting(mna, vec![(0, node)])
+    }
+
+    fn injecting(mna: &'a Mna, terminals: Vec<(usize, usize)>) -> Solver<'a> {
         let n = mna.size();
         let sparse = sparse_pays(n, mna.g.nonzeros() + mna.c.nonzeros())
             .then(|| SparseSystem::new(&mna.g, &mna.c))
             .flatten();
         let form = match sparse {
             Some(s) => Form::Sparse(s),
-            None => Form::Dense { g: mna.g.dense(), c: mna.c.dense() },
+            None => {
+                // Column 0 the signal, column k + 1 source k's incidence (e_b − e_a).
+                let mut inputs = Mat::<f64>::zeros(n, terminals.len() + 1);
+                for (i, v) in mna.b.iter().enumerate() {
+                    inputs[(i, 0)] = *v;
+                }
+                for (k, &(a, b)) in terminals.iter().enumerate() {
+                    if let Some(r) = Mna::row(b) {
+                        inputs[(r, k + 1)] += 1.0;
+                    }
+                    if let Some(r) = Mna::row(a) {
+                        inputs[(r, k + 1)] -= 1.0;
+                    }
+                }
+                let (pencil, direct) = match schur::reduce_inputs(&mna.g, &mna.c, &inputs, &mna.out)
+                {
+                    Some(r) => (Pencil::new(&r.g, &r.c, &r.b, &r.out), r.direct),
+                    None => (
+                        Pencil::new(&mna.g.dense(), &mna.c.dense(), &inputs, &mna.out),
+                        vec![0.0; terminals.len() + 1],
+                    ),
+                };
+                Form::Dense { pencil, direct, transfers: RefCell::new(Vec::new()) }
+            }
         };
-        Solver { mna, form }
+        Solver { mna, terminals, form }
     }
 
-    /// x = A⁻¹b and λ = A⁻ᵀc at s = j2πf, or None where A is singular.
-    fn pair(&self, f: f64) -> Option<(Vec<c64>, Vec<c64>)> {
+    /// The signal's transfer H and each source's (output volts per ampere from its a to
+    /// its b terminal) at s = j2πf, handed to `read`; None where the network is singular.
+    fn transfers<T>(
+        &self,
+        f: f64,
+        read: impl FnOnce(c64, &mut dyn Iterator<Item = c64>) -> T,
+    ) -> Option<T> {
         let s = c64::new(0.0, 2.0 * std::f64::consts::PI * f);
-        let (g, c) = match &self.form {
-            Form::Sparse(sparse) => return sparse.solve_pair(s, &self.mna.b, &self.mna.out),
-            Form::Dense { g, c } => (g, c),
-        };
-        let n = self.mna.size();
-        if n <= SMALL {
-            return pair_small(g, c, &self.mna.b, &self.mna.out, s);
+        match &self.form {
+            Form::Sparse(sparse) => {
+                let (x, lambda) = sparse.solve_pair(s, &self.mna.b, &self.mna.out)?;
+                let h = self.mna.out.iter().zip(&x).map(|(c, v)| v * *c).sum::<c64>();
+                let at = |node: usize| Mna::row(node).map_or(c64::new(0.0, 0.0), |r| lambda[r]);
+                Some(read(h, &mut self.terminals.iter().map(|&(a, b)| at(b) - at(a))))
+            }
+            Form::Dense { pencil, direct, transfers } => {
+                let t = &mut *transfers.borrow_mut();
+                pencil.transfers(s, t)?;
+                let mut each = t.iter().zip(direct).map(|(t, d)| t + d);
+                let h = each.next()?;
+                Some(read(h, &mut each))
+            }
         }
-        let a = Mat::<c64>::from_fn(n, n, |i, j| c64::new(g[(i, j)], 0.0) + s * c[(i, j)]);
-        let lu = a.partial_piv_lu();
-        let column = |v: &[f64]| Mat::<c64>::from_fn(n, 1, |i, _| c64::new(v[i], 0.0));
-        use faer::linalg::solvers::Solve;
-        let x = lu.solve(column(&self.mna.b));
-        let lambda = lu.solve_transpose(column(&self.mna.out));
-        let x: Vec<c64> = (0..n).map(|i| x[(i, 0)]).collect();
-        let lambda: Vec<c64> = (0..n).map(|i| lambda[(i, 0)]).collect();
-        x.iter().chain(&lambda).all(|v| v.is_finite()).then_some((x, lambda))
     }
 
-    /// Each source's output density and the signal gain at `f`.
+    /// Each source's output density and the signal gain at `f` (`sources` those the solver
+    /// was built with).
     pub fn spectrum(&self, sources: &[Source], f: f64) -> Option<Spectrum> {
-        let (x, lambda) = self.pair(f)?;
-        let h = self.mna.out.iter().zip(&x).map(|(c, v)| v * *c).sum::<c64>();
-        let gain = h.norm();
-        let at = |node: usize| Mna::row(node).map_or(c64::new(0.0, 0.0), |r| lambda[r]);
-        let each =
-            sources.iter().map(|s| (at(s.b) - at(s.a)).norm_sqr() * s.density_at(f)).collect();
-        Some(Spectrum { frequency_hz: f, gain, h, each })
+        debug_assert_eq!(sources.len(), self.terminals.len());
+        self.transfers(f, |h, each| {
+            let each = each.zip(sources).map(|(t, s)| t.norm_sqr() * s.density_at(f)).collect();
+            Spectrum { frequency_hz: f, gain: h.norm(), h, each }
+        })
     }
 
-    /// |Z|: the output voltage per ampere injected into node `node` from ground, at `f`.
-    pub fn transimpedance(&self, node: usize, f: f64) -> Option<f64> {
-        let (_, lambda) = self.pair(f)?;
-        Some(Mna::row(node).map_or(0.0, |r| lambda[r].norm()))
+    /// |Z|: the output voltage per ampere injected into the node the solver was built for
+    /// ([`Solver::into_node`]), at `f`.
+    pub fn transimpedance(&self, f: f64) -> Option<f64> {
+        self.transfers(f, |_, each| each.next().map(|z| z.norm())).flatten()
     }
 }
 
@@ -356,13 +400,13 @@ pub fn input_generators(
             |_| crate::analysis::mna::CapState::Present,
             crate::analysis::mna::Assembly::default(),
         );
-        let spectrum = Solver::new(&mna).spectrum(&srcs, f)?;
+        let spectrum = Solver::new(&mna, &srcs).spectrum(&srcs, f)?;
         Some((spectrum, mna))
     };
     let (shorted, _) = added(&with_source(1e6))?;
     let open = with_source(0.0);
     let (opened, mna) = added(&open)?;
-    let z = Solver::new(&mna).transimpedance(lin.source_terminal.0, f)?;
+    let z = Solver::into_node(&mna, lin.source_terminal.0).transimpedance(f)?;
     (shorted.gain > 0.0 && z > 0.0)
         .then(|| (shorted.output() / (shorted.gain * shorted.gain), opened.output() / (z * z)))
 }
@@ -639,7 +683,7 @@ pub fn figures(r: &Request, wanted: Wanted) -> Figures {
         return out;
     }
     let srcs = sources(r.lin, r.op, r.kelvin, r.corners);
-    let solver = Solver::new(r.mna);
+    let solver = Solver::new(r.mna, &srcs);
     let spot = (wanted.spot || wanted.snr).then(|| solver.spectrum(&srcs, r.spot_hz)).flatten();
     if let Some(spot) = &spot {
         out.noise_figure_db = spot.factor(&srcs).map(|f| 10.0 * f.log10());
@@ -666,7 +710,7 @@ fn snr_db(amplitude: Option<f64>, gain: Option<f64>, noise_rms: Option<f64>) -> 
 /// The noise review; None when the network cannot be solved at the spot frequency.
 pub fn review(r: &Request) -> Option<NoiseReport> {
     let srcs = sources(r.lin, r.op, r.kelvin, r.corners);
-    let solver = Solver::new(r.mna);
+    let solver = Solver::new(r.mna, &srcs);
     let spot = solver.spectrum(&srcs, r.spot_hz)?;
     let total = spot.output();
     let figure = |s: &Spectrum| s.factor(&srcs).map(|f| 10.0 * f.log10());
@@ -785,7 +829,7 @@ mod tests {
         );
         let srcs = sources(&c.lin, None, c.kelvin, &[]);
         assert_eq!(srcs.len(), 2, "{srcs:?}");
-        let solver = Solver::new(&c.mna);
+        let solver = Solver::new(&c.mna, &srcs);
         let fc = 1.0 / (2.0 * std::f64::consts::PI * 10e3 * 1e-9);
         let total =
             integrate(|f| Some(vec![solver.spectrum(&srcs, f)?.output()]), fc * 1e-9, fc * 1e9)
@@ -875,7 +919,7 @@ mod tests {
             .into_iter()
             .filter(|s| s.is_source || s.part == "Q1")
             .collect();
-        let s = Solver::new(&c.mna).spectrum(&srcs, 1e6).unwrap();
+        let s = Solver::new(&c.mna, &srcs).spectrum(&srcs, 1e6).unwrap();
         // RB (1 MΩ to AC ground) at the base: the source sees a Thévenin R_th = R_s ∥ RB
         // behind a divider RB/(R_s + RB).
         let (q, rs, rb) = (ELEMENTARY_CHARGE, 1e3, 1e6);
@@ -936,7 +980,7 @@ mod tests {
         let srcs = sources(&c.lin, c.op.as_ref(), c.kelvin, &[corner]);
         let find = |m: Mechanism| srcs.iter().position(|s| s.mechanism == m).unwrap();
         let (white, flicker) = (find(Mechanism::Channel), find(Mechanism::Flicker));
-        let solver = Solver::new(&c.mna);
+        let solver = Solver::new(&c.mna, &srcs);
         for (f, ratio) in [(corner, 1.0), (corner / 10.0, 10.0), (corner * 100.0, 0.01)] {
             let s = solver.spectrum(&srcs, f).unwrap();
             close(s.each[flicker] / s.each[white], ratio, 1e-12, "flicker to white");
@@ -971,7 +1015,7 @@ mod tests {
              \x20 R2: {kind: resistor, value: 1k, between: [out, gnd]}\n",
         );
         let srcs = sources(&c.lin, None, c.kelvin, &[]);
-        let s = Solver::new(&c.mna).spectrum(&srcs, 1e3).unwrap();
+        let s = Solver::new(&c.mna, &srcs).spectrum(&srcs, 1e3).unwrap();
         let z = 1e3 * 2e3 / 3e3;
         let want = 4.0 * K * (350.0 / 1e3 * z * z + (350.0 * 1e3 + T0 * 1e3) / 9.0);
         close(s.output(), want, 1e-9, "output density");

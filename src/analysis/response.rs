@@ -11,9 +11,10 @@ use serde::Serialize;
 
 use faer::Mat;
 
-use crate::analysis::linear::{SPARSE_FROM, SparseSystem, brent, sparse_pays, transfer};
+use crate::analysis::linear::{SPARSE_FROM, SparseSystem, brent, sparse_pays};
 use crate::analysis::matrix::Matrix;
 use crate::analysis::mna::Mna;
+use crate::analysis::pencil::Pencil;
 use crate::analysis::schur;
 use crate::design::Band;
 
@@ -36,8 +37,16 @@ pub struct SweepPoint {
 pub struct Transfer(Form);
 
 enum Form {
-    Dense { g: Mat<f64>, c: Mat<f64>, b: Vec<f64>, out: Vec<f64>, direct: f64 },
-    Sparse { system: SparseSystem, b: Vec<f64>, out: Vec<f64> },
+    /// The (reduced) pencil in Hessenberg–triangular form (`pencil.rs`): O(n²) a frequency.
+    Dense {
+        pencil: Pencil,
+        direct: f64,
+    },
+    Sparse {
+        system: SparseSystem,
+        b: Vec<f64>,
+        out: Vec<f64>,
+    },
 }
 
 /// The sparse form of (g, c) when it pays ([`sparse_pays`]).
@@ -53,15 +62,15 @@ impl Transfer {
         if dynamic <= SPARSE_FROM
             && let Some(r) = schur::reduce(&m.g, &m.c, &m.b, &m.out)
         {
-            return Transfer(Form::Dense { g: r.g, c: r.c, b: r.b, out: r.out, direct: r.direct });
+            return Transfer(Form::Dense {
+                pencil: Pencil::new(&r.g, &r.c, &column(&r.b), &r.out),
+                direct: r.direct,
+            });
         }
         Transfer(match sparse_form(&m.g, &m.c) {
             Some(system) => Form::Sparse { system, b: m.b.clone(), out: m.out.clone() },
             None => Form::Dense {
-                g: m.g.dense(),
-                c: m.c.dense(),
-                b: m.b.clone(),
-                out: m.out.clone(),
+                pencil: Pencil::new(&m.g.dense(), &m.c.dense(), &column(&m.b), &m.out),
                 direct: 0.0,
             },
         })
@@ -72,9 +81,14 @@ impl Transfer {
         let s = c64::new(0.0, 2.0 * PI * f);
         match &self.0 {
             Form::Sparse { system, b, out } => system.transfer(b, out, s),
-            Form::Dense { g, c, b, out, direct } => transfer(g, c, b, out, s).map(|h| h + direct),
+            Form::Dense { pencil, direct } => pencil.transfer(s).map(|h| h + direct),
         }
     }
+}
+
+/// `v` as a one-column matrix.
+fn column(v: &[f64]) -> Mat<f64> {
+    Mat::from_fn(v.len(), 1, |i, _| v[i])
 }
 
 /// Log-spaced frequencies from `start` to `stop`, `per_decade` a decade, both ends included.
