@@ -10,8 +10,8 @@
 //! In: dense real G and C, the input columns b_k and an output row c. Out: each input's
 //! transfer cᵀ(G + sC)⁻¹b_k, all from one transposed solve, μ = (H + sT)⁻ᵀZᵀc, and one dot
 //! product (Qᵀb_k)ᵀμ an input — what the cut-off searches and the noise integral ask for a
-//! few hundred times per network. Pivots are refused as the dense elimination refuses them:
-//! below a fixed fraction of the matrix's largest entry.
+//! few hundred times per network. A pivot is refused (the network called singular at s)
+//! below a fixed fraction of max|H| + |s|·max|T|, a bound on the largest entry of H + sT.
 
 use std::cell::RefCell;
 
@@ -32,6 +32,10 @@ pub struct Pencil {
     inputs: Vec<f64>,
     /// Zᵀc.
     out: Vec<f64>,
+    /// The largest |entry| of H and of T: |H + sT|'s entries are at most
+    /// `h_max + |s|·t_max`, the scale pivots are judged against.
+    h_max: f64,
+    t_max: f64,
 }
 
 /// A plane rotation [c s; −s c].
@@ -130,7 +134,9 @@ impl Pencil {
                 t[i * n + i - 1] = 0.0;
             }
         }
-        Pencil { n, h, t, inputs, out }
+        let largest = |m: &[f64]| m.iter().fold(0.0f64, |a, v| a.max(v.abs()));
+        let (h_max, t_max) = (largest(&h), largest(&t));
+        Pencil { n, h, t, inputs, out, h_max, t_max }
     }
 
     /// Unknowns.
@@ -168,16 +174,14 @@ impl Pencil {
         let a = &mut work.a;
         a.clear();
         a.resize(n * n, c64::new(0.0, 0.0));
-        let mut scale_sq = 0.0f64;
         for i in 0..n {
             for j in i.saturating_sub(1)..n {
-                let v = c64::new(self.h[i * n + j], self.t[i * n + j] * s.im)
-                    + self.t[i * n + j] * s.re;
-                scale_sq = scale_sq.max(v.norm_sqr());
-                a[i * n + j] = v;
+                let (h, t) = (self.h[i * n + j], self.t[i * n + j]);
+                a[i * n + j] = c64::new(h + t * s.re, t * s.im);
             }
         }
-        let floor_sq = PIVOT_TOLERANCE * PIVOT_TOLERANCE * scale_sq;
+        let floor = PIVOT_TOLERANCE * (self.h_max + s.norm() * self.t_max);
+        let floor_sq = floor * floor;
         let (multipliers, swapped) = (&mut work.multipliers, &mut work.swapped);
         multipliers.clear();
         swapped.clear();
