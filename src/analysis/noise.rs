@@ -353,8 +353,10 @@ impl<'a> Solver<'a> {
     pub fn spectrum(&self, sources: &[Source], f: f64) -> Option<Spectrum> {
         debug_assert_eq!(sources.len(), self.terminals.len());
         self.transfers(f, |h, each| {
-            let each = each.zip(sources).map(|(t, s)| t.norm_sqr() * s.density_at(f)).collect();
-            Spectrum { frequency_hz: f, gain: h.norm(), h, each }
+            // Room for one more: the band integral appends the input-referred total.
+            let mut v = Vec::with_capacity(sources.len() + 1);
+            v.extend(each.zip(sources).map(|(t, s)| t.norm_sqr() * s.density_at(f)));
+            Spectrum { frequency_hz: f, gain: h.norm(), h, each: v }
         })
     }
 
@@ -444,7 +446,8 @@ pub fn integrate(
     let mut h = |u: f64| -> Option<Vec<f64>> {
         let f = u.exp();
         evaluations.set(evaluations.get() + 1);
-        let v: Vec<f64> = g(f)?.into_iter().map(|v| v * f).collect();
+        let mut v = g(f)?;
+        v.iter_mut().for_each(|x| *x *= f);
         v.iter().all(|x| x.is_finite()).then_some(v)
     };
     let (a, b) = (from.ln(), to.ln());
@@ -498,24 +501,34 @@ fn simpson(
     depth: u32,
     evaluations: &std::cell::Cell<usize>,
 ) -> Option<Vec<f64>> {
-    let rule = |fa: &Vec<f64>, fm: &Vec<f64>, fb: &Vec<f64>, w: f64| -> Vec<f64> {
-        fa.iter().zip(fm).zip(fb).map(|((x, y), z)| w / 6.0 * (x + 4.0 * y + z)).collect()
-    };
-    let whole = rule(fa, fm, fb, b - a);
+    let rule = |x: f64, y: f64, z: f64, w: f64| w / 6.0 * (x + 4.0 * y + z);
     let (lm, rm) = (0.5 * (a + m), 0.5 * (m + b));
     let (flm, frm) = (h(lm)?, h(rm)?);
-    let left = rule(fa, &flm, fm, m - a);
-    let right = rule(fm, &frm, fb, b - m);
-    let halves: Vec<f64> = left.iter().zip(&right).map(|(x, y)| x + y).collect();
-    let settled =
-        halves.iter().zip(&whole).zip(allowed).all(|((h2, h1), e)| (h2 - h1).abs() <= 15.0 * e);
+    // Component by component: the whole panel's rule, its two halves', and their sum.
+    let parts = |c: usize| {
+        let whole = rule(fa[c], fm[c], fb[c], b - a);
+        let halves = rule(fa[c], flm[c], fm[c], m - a) + rule(fm[c], frm[c], fb[c], b - m);
+        (whole, halves)
+    };
+    let settled = (0..allowed.len()).all(|c| {
+        let (whole, halves) = parts(c);
+        (halves - whole).abs() <= 15.0 * allowed[c]
+    });
     if depth == 0 || settled || evaluations.get() >= MOST_EVALUATIONS {
-        return Some(halves.iter().zip(&whole).map(|(h2, h1)| h2 + (h2 - h1) / 15.0).collect());
+        return Some(
+            (0..allowed.len())
+                .map(|c| {
+                    let (whole, halves) = parts(c);
+                    halves + (halves - whole) / 15.0
+                })
+                .collect(),
+        );
     }
     let half: Vec<f64> = allowed.iter().map(|e| 0.5 * e).collect();
-    let l = simpson(h, [(a, fa), (lm, &flm), (m, fm)], &half, depth - 1, evaluations)?;
+    let mut l = simpson(h, [(a, fa), (lm, &flm), (m, fm)], &half, depth - 1, evaluations)?;
     let r = simpson(h, [(m, fm), (rm, &frm), (b, fb)], &half, depth - 1, evaluations)?;
-    Some(l.iter().zip(&r).map(|(x, y)| x + y).collect())
+    l.iter_mut().zip(&r).for_each(|(x, y)| *x += y);
+    Some(l)
 }
 
 /// One part's noise by one mechanism.
