@@ -145,7 +145,7 @@ fn main() {
             "whole analysis of each example design (operating point, sweep, cut-offs, QZ, time constants)"
         );
         for path in &names {
-            let text = std::fs::read_to_string(&path).unwrap();
+            let text = std::fs::read_to_string(path).unwrap();
             let d = design::load(&text).design.expect("valid design");
             let (t, runs) = median(
                 || drop(black_box(analysis::analyze(&d).unwrap())),
@@ -237,7 +237,7 @@ fn main() {
             "\nrender of each example design (analysis, requirement checks, cautions, explanation, tables, plots, HTML, Markdown, JSON; tolerance study done once beforehand; no disk)"
         );
         for path in &names {
-            let text = std::fs::read_to_string(&path).unwrap();
+            let text = std::fs::read_to_string(path).unwrap();
             let d = design::load(&text).design.expect("valid design");
             let inputs = Inputs {
                 design_name: "d.yaml",
