@@ -31,12 +31,12 @@
 //! output as λ_b − λ_a (Rohrer, Nagel, Meyer & Weber, IEEE JSSC 6(4), 1971, from memory;
 //! it is the adjoint identity used for the sensitivities, `adjoint.rs`).
 
+use std::cell::RefCell;
+
 use faer::{Mat, c64};
 
 use crate::analysis::linear::{SparseSystem, sparse_pays};
 use crate::analysis::mna::Mna;
-use std::cell::RefCell;
-
 use crate::analysis::pencil::Pencil;
 use crate::analysis::schur;
 use crate::circuit::devices::{BOLTZMANN, ELEMENTARY_CHARGE};
