@@ -37,6 +37,8 @@ pub struct Factor {
 }
 
 enum Kind {
+    /// Up to [`SMALL`] unknowns: [`SmallLu`], without allocation per solve.
+    Small(SmallLu),
     Dense(PartialPivLu<f64>),
     Sparse(Lu<usize, f64>),
 }
@@ -48,6 +50,13 @@ impl Factor {
     /// Factorises `a`, refusing a singular one: sparse when that pays ([`sparse_pays`]).
     pub fn new(a: &Matrix) -> Result<Factor, Singular> {
         let n = a.size();
+        if n <= SMALL {
+            let mut rows = vec![0.0; n * n];
+            for (i, j, v) in a.entries() {
+                rows[i * n + j] = v;
+            }
+            return SmallLu::new(rows, n).map(|lu| Factor { lu: Kind::Small(lu), n });
+        }
         if !sparse_pays(n, a.nonzeros()) {
             return Factor::dense(&a.dense());
         }
@@ -89,6 +98,10 @@ impl Factor {
     /// Factorises a dense matrix, refusing a singular one.
     pub fn dense(a: &Mat<f64>) -> Result<Factor, Singular> {
         let n = a.nrows();
+        if n <= SMALL {
+            let rows = (0..n * n).map(|k| a[(k / n, k % n)]).collect();
+            return SmallLu::new(rows, n).map(|lu| Factor { lu: Kind::Small(lu), n });
+        }
         let scale = (0..n)
             .flat_map(|i| (0..n).map(move |j| (i, j)))
             .fold(0.0f64, |m, (i, j)| m.max(a[(i, j)].abs()));
@@ -106,6 +119,11 @@ impl Factor {
 
     /// Solves a x = rhs.
     pub fn solve(&self, rhs: &[f64]) -> Vec<f64> {
+        if let Kind::Small(lu) = &self.lu {
+            let mut x = rhs.to_vec();
+            lu.solve_in_place(&mut x);
+            return x;
+        }
         let r = Mat::<f64>::from_fn(self.n, 1, |i, _| rhs[i]);
         let x = self.solve_columns(&r);
         (0..self.n).map(|i| x[(i, 0)]).collect()
@@ -114,6 +132,7 @@ impl Factor {
     /// Solves a X = R for every column of R at once.
     pub fn solve_columns(&self, rhs: &Mat<f64>) -> Mat<f64> {
         match &self.lu {
+            Kind::Small(lu) => lu.solve_columns(rhs, false),
             Kind::Dense(lu) => lu.solve(rhs),
             Kind::Sparse(lu) => lu.solve(rhs),
         }
@@ -122,6 +141,7 @@ impl Factor {
     /// Solves aᵀ X = R for every column of R at once.
     pub fn solve_transpose_columns(&self, rhs: &Mat<f64>) -> Mat<f64> {
         match &self.lu {
+            Kind::Small(lu) => lu.solve_columns(rhs, true),
             Kind::Dense(lu) => lu.solve_transpose(rhs),
             Kind::Sparse(lu) => lu.solve_transpose(rhs),
         }
@@ -133,10 +153,127 @@ impl Factor {
     }
 }
 
-/// Size up to which the port analysis (`ports.rs`) uses a plain in-place elimination (no
-/// allocation per matrix): the two-port solves of amplifier stages are this small, and a
-/// stability sweep solves them hundreds of times.
+/// Size up to which systems are solved by a plain in-place elimination ([`SmallLu`] and,
+/// in the port analysis, `ports.rs`'s complex one): the systems of amplifier stages are this
+/// small and are solved thousands of times in a tolerance study, where a general blocked LU
+/// spends more on setting up and allocating than on arithmetic.
 pub const SMALL: usize = 24;
+
+/// LU with partial pivoting (the largest magnitude in the column; the first on a tie) of a
+/// small dense matrix, row major, factorised in place: P·A = L·U with L unit lower
+/// triangular (Golub & Van Loan, *Matrix Computations*, Gaussian elimination with partial
+/// pivoting, from memory). A pivot at or under [`PIVOT_TOLERANCE`] of the largest entry of
+/// A refuses the matrix as singular, naming that unknown.
+pub struct SmallLu {
+    n: usize,
+    /// L below the diagonal (multipliers), U on and above it.
+    lu: Vec<f64>,
+    /// `row[k]`: the row of A that became row k.
+    row: Vec<usize>,
+}
+
+impl SmallLu {
+    /// Factorises the row-major n × n matrix `a`.
+    pub fn new(mut a: Vec<f64>, n: usize) -> Result<SmallLu, Singular> {
+        let scale = a.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        let mut row: Vec<usize> = (0..n).collect();
+        for k in 0..n {
+            let mut p = k;
+            for i in k + 1..n {
+                if a[i * n + k].abs() > a[p * n + k].abs() {
+                    p = i;
+                }
+            }
+            if a[p * n + k].abs().partial_cmp(&(PIVOT_TOLERANCE * scale))
+                != Some(std::cmp::Ordering::Greater)
+            {
+                return Err(Singular { unknown: Some(k) });
+            }
+            if p != k {
+                let (upper, lower) = a.split_at_mut(p * n);
+                upper[k * n..(k + 1) * n].swap_with_slice(&mut lower[..n]);
+                row.swap(k, p);
+            }
+            let (done, rest) = a.split_at_mut((k + 1) * n);
+            let pivot_row = &done[k * n..];
+            for r in rest.chunks_exact_mut(n) {
+                let f = r[k] / pivot_row[k];
+                r[k] = f;
+                if f != 0.0 {
+                    for (x, u) in r[k + 1..].iter_mut().zip(&pivot_row[k + 1..]) {
+                        *x -= f * u;
+                    }
+                }
+            }
+        }
+        Ok(SmallLu { n, lu: a, row })
+    }
+
+    /// Solves A x = b in place.
+    pub fn solve_in_place(&self, b: &mut [f64]) {
+        let n = self.n;
+        let mut x = [0.0f64; SMALL];
+        for (k, &r) in self.row.iter().enumerate() {
+            x[k] = b[r];
+        }
+        let (lu, x) = (&self.lu, &mut x[..n]);
+        for i in 1..n {
+            let l = &lu[i * n..i * n + i];
+            x[i] -= l.iter().zip(&x[..i]).map(|(a, b)| a * b).sum::<f64>();
+        }
+        for i in (0..n).rev() {
+            let u = &lu[i * n + i + 1..(i + 1) * n];
+            let sum = u.iter().zip(&x[i + 1..]).map(|(a, b)| a * b).sum::<f64>();
+            x[i] = (x[i] - sum) / lu[i * n + i];
+        }
+        b.copy_from_slice(x);
+    }
+
+    /// Solves Aᵀ x = b in place: Uᵀ w = b, Lᵀ v = w, x = Pᵀ v.
+    pub fn solve_transpose_in_place(&self, b: &mut [f64]) {
+        let n = self.n;
+        let lu = &self.lu;
+        let mut w = [0.0f64; SMALL];
+        for i in 0..n {
+            let mut acc = b[i];
+            for k in 0..i {
+                acc -= lu[k * n + i] * w[k];
+            }
+            w[i] = acc / lu[i * n + i];
+        }
+        for i in (0..n).rev() {
+            let mut acc = w[i];
+            for k in i + 1..n {
+                acc -= lu[k * n + i] * w[k];
+            }
+            w[i] = acc;
+        }
+        for (k, &r) in self.row.iter().enumerate() {
+            b[r] = w[k];
+        }
+    }
+
+    /// Solves A X = R (or Aᵀ X = R) column by column.
+    fn solve_columns(&self, rhs: &Mat<f64>, transposed: bool) -> Mat<f64> {
+        let mut out = rhs.clone();
+        let mut b = [0.0f64; SMALL];
+        for j in 0..rhs.ncols() {
+            let b = &mut b[..self.n];
+            for (i, v) in b.iter_mut().enumerate() {
+                *v = rhs[(i, j)];
+            }
+            if transposed {
+                self.solve_transpose_in_place(b);
+            } else {
+                self.solve_in_place(b);
+            }
+            for (i, v) in b.iter().enumerate() {
+                out[(i, j)] = *v;
+            }
+        }
+        out
+    }
+}
 
 /// The row at or below `k` with the largest entry in column `k` of the n-row matrix `a`
 /// (row major, `w` entries a row), magnitudes compared squared; None when even that is at or
@@ -402,6 +539,48 @@ impl SparseSystem {
     }
 }
 
+/// Solves the dense row-major n × n system `a`·x = `b` in place (x left in `b`) by LU with
+/// partial pivoting; false when a pivot is exactly zero (a near-singular system gives
+/// non-finite or huge entries, which the caller judges). For the Newton steps of a bias
+/// point, solved thousands of times in a tolerance study.
+pub(crate) fn solve_in_place(a: &mut [f64], b: &mut [f64], n: usize) -> bool {
+    for k in 0..n {
+        let mut p = k;
+        for i in k + 1..n {
+            if a[i * n + k].abs() > a[p * n + k].abs() {
+                p = i;
+            }
+        }
+        if a[p * n + k] == 0.0 {
+            return false;
+        }
+        if p != k {
+            for c in 0..n {
+                a.swap(k * n + c, p * n + c);
+            }
+            b.swap(k, p);
+        }
+        let pivot = a[k * n + k];
+        for i in k + 1..n {
+            let f = a[i * n + k] / pivot;
+            if f != 0.0 {
+                for c in k + 1..n {
+                    a[i * n + c] -= f * a[k * n + c];
+                }
+                b[i] -= f * b[k];
+            }
+        }
+    }
+    for k in (0..n).rev() {
+        let mut sum = b[k];
+        for c in k + 1..n {
+            sum -= a[k * n + c] * b[c];
+        }
+        b[k] = sum / a[k * n + k];
+    }
+    true
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -421,6 +600,54 @@ mod tests {
         let a = Mat::<f64>::from_fn(2, 2, |i, j| [[2.0, 1.0], [1.0, 3.0]][i][j]);
         let x = Factor::dense(&a).unwrap().solve(&[3.0, 4.0]);
         assert!((x[0] - 1.0).abs() < 1e-15 && (x[1] - 1.0).abs() < 1e-15);
+    }
+
+    /// The in-place LU of small systems against faer's blocked partial-pivoting LU (a
+    /// reference library): non-symmetric matrices of 1–24 unknowns with entries twelve
+    /// decades apart and zero diagonals, solved plain and transposed with three right-hand
+    /// sides, to 1e-10 of the solution's size; and `solve_in_place`, the Newton steps' solver,
+    /// alike.
+    #[test]
+    fn the_small_lu_solves_as_faer_does() {
+        let mut seed = 0x2545_f491_4f6c_dd1du64;
+        let mut next = move || {
+            seed ^= seed << 13;
+            seed ^= seed >> 7;
+            seed ^= seed << 17;
+            (seed >> 11) as f64 / (1u64 << 53) as f64
+        };
+        for n in 1..=SMALL {
+            let a = Mat::<f64>::from_fn(n, n, |i, j| {
+                let v = if i == j && n > 1 && i % 3 == 1 { 0.0 } else { next() - 0.3 };
+                v * 10f64.powi(((i + 2 * j) % 13) as i32 - 6)
+            });
+            let rhs = Mat::<f64>::from_fn(n, 3, |_, _| next() - 0.5);
+            let lu = a.partial_piv_lu();
+            let small = Factor::dense(&a).unwrap();
+            for (got, want) in [
+                (small.solve_columns(&rhs), lu.solve(&rhs)),
+                (small.solve_transpose_columns(&rhs), lu.solve_transpose(&rhs)),
+            ] {
+                for j in 0..3 {
+                    let size = (0..n).fold(0.0f64, |m, i| m.max(want[(i, j)].abs()));
+                    for i in 0..n {
+                        let gap = (got[(i, j)] - want[(i, j)]).abs();
+                        assert!(
+                            gap <= 1e-10 * size,
+                            "n = {n}: {} vs {}",
+                            got[(i, j)],
+                            want[(i, j)]
+                        );
+                    }
+                }
+            }
+            let mut rows: Vec<f64> = (0..n * n).map(|k| a[(k / n, k % n)]).collect();
+            let mut x: Vec<f64> = (0..n).map(|i| rhs[(i, 0)]).collect();
+            assert!(solve_in_place(&mut rows, &mut x, n));
+            let want = lu.solve(&rhs);
+            let size = (0..n).fold(0.0f64, |m, i| m.max(want[(i, 0)].abs()));
+            assert!((0..n).all(|i| (x[i] - want[(i, 0)]).abs() <= 1e-10 * size), "n = {n}");
+        }
     }
 
     /// The sparse real LU (above 60 unknowns) solves as the dense one does, and refuses a

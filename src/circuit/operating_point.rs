@@ -7,10 +7,7 @@
 //! Capacitors are open and inductors short at DC; the signal source is 0 V behind its
 //! resistance.
 
-use faer::Mat;
-use faer::linalg::solvers::Solve;
-
-use crate::analysis::linear::{Restamped, SPARSE_FROM, sparse_pays};
+use crate::analysis::linear::{Restamped, SPARSE_FROM, solve_in_place, sparse_pays};
 
 use crate::circuit::devices::{self, BjtEval, BjtRegion, MosEval, MosRegion};
 use crate::circuit::netlist::{Element, Netlist};
@@ -400,12 +397,15 @@ fn solve_step(a: &System, sparse: Option<&Restamped>) -> Vec<f64> {
     if let Some(lu) = sparse {
         return lu.solve(a.stamps.iter().map(|s| s.2), &a.rhs).unwrap_or_else(|| vec![f64::NAN; n]);
     }
-    let mut dense = Mat::<f64>::zeros(n, n);
+    let mut dense = vec![0.0; n * n];
     for &(r, c, v) in &a.stamps {
-        dense[(r, c)] += v;
+        dense[r * n + c] += v;
     }
-    let sol = dense.partial_piv_lu().solve(&Mat::<f64>::from_fn(n, 1, |r, _| a.rhs[r]));
-    (0..n).map(|r| sol[(r, 0)]).collect()
+    let mut x = a.rhs.clone();
+    if !solve_in_place(&mut dense, &mut x, n) {
+        x.fill(f64::NAN);
+    }
+    x
 }
 
 /// The symbolic sparse LU of a Newton step's system, when the network is large and mostly

@@ -9,7 +9,7 @@
 //! zero EMF is the small-signal mid-band gain. Valid for a signal slow against every
 //! high-frequency time constant and fast against every coupling one.
 
-use crate::analysis::linear::{Restamped, sparse_pays};
+use crate::analysis::linear::{Restamped, solve_in_place, sparse_pays};
 use crate::circuit::devices::JUNCTION_ON_V;
 use crate::circuit::netlist::{CapSet, Element, Netlist};
 use crate::circuit::operating_point::{
@@ -309,7 +309,7 @@ impl<'a> Held<'a> {
                     for &(r, c, v) in &self.step.stamps {
                         a[r * n + c] += v;
                     }
-                    if !lu_solve(a, b, n) {
+                    if !solve_in_place(a, b, n) {
                         return None;
                     }
                     b.clone()
@@ -388,44 +388,4 @@ pub fn limit_node(el: &Element) -> usize {
         Element::Mosfet { d, .. } => d,
         _ => 0,
     }
-}
-
-/// Solves the dense row-major n × n system `a`·x = `b` in place (x left in `b`) by LU with
-/// partial pivoting; false when a pivot is exactly zero.
-fn lu_solve(a: &mut [f64], b: &mut [f64], n: usize) -> bool {
-    for k in 0..n {
-        let mut p = k;
-        for i in k + 1..n {
-            if a[i * n + k].abs() > a[p * n + k].abs() {
-                p = i;
-            }
-        }
-        if a[p * n + k] == 0.0 {
-            return false;
-        }
-        if p != k {
-            for c in 0..n {
-                a.swap(k * n + c, p * n + c);
-            }
-            b.swap(k, p);
-        }
-        let pivot = a[k * n + k];
-        for i in k + 1..n {
-            let f = a[i * n + k] / pivot;
-            if f != 0.0 {
-                for c in k + 1..n {
-                    a[i * n + c] -= f * a[k * n + c];
-                }
-                b[i] -= f * b[k];
-            }
-        }
-    }
-    for k in (0..n).rev() {
-        let mut sum = b[k];
-        for c in k + 1..n {
-            sum -= a[k * n + c] * b[c];
-        }
-        b[k] = sum / a[k * n + k];
-    }
-    true
 }

@@ -650,7 +650,15 @@ def poles_zeros(net):
     M[:n, :n], M[:n, n], M[n, :n], M[n, n] = Gr, -br, cr, dr
     N = np.zeros((n + 1, n + 1))
     N[:n, :n] = Cr
-    zeros = _finite_eigs(M, N)
+    # A real pencil's complex zeros come in conjugate pairs, which QZ returns a rounding
+    # apart; as with the poles, the upper member is kept and mirrored, so a pair sorts the
+    # same way (lower member first) however the rounding fell.
+    zeros = []
+    for z in _finite_eigs(M, N):
+        if abs(z.imag) <= 1e-9 * abs(z):
+            zeros.append(z)
+        elif z.imag > 0:
+            zeros += [z, z.conjugate()]
     return poles, zeros
 
 
