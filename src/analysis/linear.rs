@@ -293,8 +293,18 @@ pub(crate) fn pivot(a: &[c64], w: usize, n: usize, k: usize, floor_sq: f64) -> O
 
 /// Brent's method for a root of `f` in [a, b] with f(a), f(b) of opposite sign
 /// (Brent, Algorithms for Minimization without Derivatives, 1973, ch. 4).
-pub fn brent(mut f: impl FnMut(f64) -> f64, mut a: f64, mut b: f64, tol: f64) -> f64 {
-    let (mut fa, mut fb) = (f(a), f(b));
+pub fn brent(mut f: impl FnMut(f64) -> f64, a: f64, b: f64, tol: f64) -> f64 {
+    let (fa, fb) = (f(a), f(b));
+    brent_bracketed(f, (a, fa), (b, fb), tol)
+}
+
+/// [`brent`] on a bracket whose ends are already evaluated: (a, f(a)) and (b, f(b)).
+pub fn brent_bracketed(
+    mut f: impl FnMut(f64) -> f64,
+    (mut a, mut fa): (f64, f64),
+    (mut b, mut fb): (f64, f64),
+    tol: f64,
+) -> f64 {
     if fa == 0.0 {
         return a;
     }

@@ -24,7 +24,8 @@ impl Matrix {
     pub fn from_stamps(n: usize, mut stamps: Vec<(usize, usize, f64)>) -> Matrix {
         stamps.sort_by_key(|s| (s.1, s.0));
         let mut col_ptr = Vec::with_capacity(n + 1);
-        let (mut rows, mut values) = (Vec::new(), Vec::new());
+        let (mut rows, mut values) =
+            (Vec::with_capacity(stamps.len()), Vec::with_capacity(stamps.len()));
         let mut k = 0;
         col_ptr.push(0);
         for j in 0..n {

@@ -113,8 +113,9 @@ pub fn assemble(net: &LinearNetwork, state: impl Fn(usize) -> CapState, opts: As
         }
     }
     let size = next;
-    let mut g: Vec<(usize, usize, f64)> = Vec::new();
-    let mut c: Vec<(usize, usize, f64)> = Vec::new();
+    // At most six stamps a part (a voltage amplifier), and four for the source's branch.
+    let mut g: Vec<(usize, usize, f64)> = Vec::with_capacity(6 * net.elements.len() + 4);
+    let mut c: Vec<(usize, usize, f64)> = Vec::with_capacity(4 * net.elements.len());
     let mut b = vec![0.0; size];
     let row = |n: usize| if rail[n] { None } else { Mna::row(n) };
     let put = |m: &mut Vec<(usize, usize, f64)>, r: Option<usize>, k: Option<usize>, v: f64| {

@@ -11,7 +11,7 @@ use serde::Serialize;
 
 use faer::Mat;
 
-use crate::analysis::linear::{SPARSE_FROM, SparseSystem, brent, sparse_pays};
+use crate::analysis::linear::{SPARSE_FROM, SparseSystem, brent_bracketed, sparse_pays};
 use crate::analysis::matrix::Matrix;
 use crate::analysis::mna::Mna;
 use crate::analysis::pencil::Pencil;
@@ -137,9 +137,14 @@ pub fn points(values: impl Iterator<Item = (f64, c64)>) -> Vec<SweepPoint> {
     out
 }
 
-/// Searches from `from` in steps of 10^(±1/`per_decade`) until |H| drops below `level`,
-/// then refines the crossing by Brent's method in log frequency. `up` picks the direction;
-/// the search ends at `limit`.
+/// Searches from `from` in steps of at most 10^(±1/`per_decade`) until |H| drops below
+/// `level`, then refines the crossing by Brent's method in log frequency. `up` picks the
+/// direction; the search ends at `limit`.
+///
+/// With a time-constant `estimate` the walk starts near it: from the estimate itself when
+/// |H| is still above the level there — in steps of an eighth of the grid's, doubling up to
+/// the grid's, so a close estimate gives a tight bracket — else from within 20 % (or a
+/// factor of two) of it, in the grid's steps. No step is longer than the grid's.
 pub fn crossing(
     m: &Transfer,
     from: f64,
@@ -149,37 +154,43 @@ pub fn crossing(
     limit: f64,
     estimate: Option<f64>,
 ) -> Option<f64> {
-    let ratio = 10f64.powf(1.0 / per_decade.max(10) as f64);
+    let grid = 1.0 / per_decade.max(10) as f64;
     let below = |f: f64| m.at(f).map(|h| h.norm() - level);
     let mut f_prev = from;
-    if below(from)? < 0.0 {
+    let mut g_prev = below(from)?;
+    if g_prev < 0.0 {
         return None;
     }
-    // Jump toward the time-constant estimate when the response is still above the level
-    // there — first to within 20 % of it (where a dominant pole's estimate usually lands),
-    // else to within a factor of two: the grid walk then starts close to the edge.
+    let beyond = |target: f64, start: f64| if up { target > start } else { target < start };
+    let mut step = grid;
     if let Some(e) = estimate {
         let targets = if up { [e / 1.25, e / 2.0] } else { [e * 1.25, e * 2.0] };
         for target in targets {
-            let beyond_start = if up { target > from } else { target < from };
-            if beyond_start && below(target).is_some_and(|g| g >= 0.0) {
-                f_prev = target;
+            let Some(g) = beyond(target, from).then(|| below(target)).flatten() else { continue };
+            if g >= 0.0 {
+                (f_prev, g_prev) = (target, g);
+                if let Some(g) = beyond(e, target).then(|| below(e)).flatten().filter(|g| *g >= 0.0)
+                {
+                    (f_prev, g_prev) = (e, g);
+                    step = grid / 8.0;
+                }
                 break;
             }
         }
     }
     loop {
-        let f = if up { f_prev * ratio } else { f_prev / ratio };
-        if (up && f > limit) || (!up && f < limit) {
+        let f = f_prev * 10f64.powf(if up { step } else { -step });
+        if beyond(f, limit) {
             return None;
         }
         let g = below(f)?;
         if g < 0.0 {
-            let (a, b) = (f_prev.log10(), f.log10());
-            let x = brent(|x| below(10f64.powf(x)).unwrap_or(-level), a, b, 1e-14);
+            let (a, b) = ((f_prev.log10(), g_prev), (f.log10(), g));
+            let x = brent_bracketed(|x| below(10f64.powf(x)).unwrap_or(-level), a, b, 1e-14);
             return Some(10f64.powf(x));
         }
-        f_prev = f;
+        (f_prev, g_prev) = (f, g);
+        step = (2.0 * step).min(grid);
     }
 }
 

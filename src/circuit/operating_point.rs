@@ -392,17 +392,18 @@ struct Diverged {
 /// on the network's one symbolic analysis (`sparse`, see [`sparse_steps`]) for a large
 /// mostly-zero one, where the dense one grows as n³. Non-finite entries in the answer mark
 /// a singular step; the caller reports divergence.
-fn solve_step(a: &System, sparse: Option<&Restamped>) -> Vec<f64> {
+fn solve_step(a: &System, sparse: Option<&Restamped>, dense: &mut Vec<f64>) -> Vec<f64> {
     let n = a.rhs.len();
     if let Some(lu) = sparse {
         return lu.solve(a.stamps.iter().map(|s| s.2), &a.rhs).unwrap_or_else(|| vec![f64::NAN; n]);
     }
-    let mut dense = vec![0.0; n * n];
+    dense.clear();
+    dense.resize(n * n, 0.0);
     for &(r, c, v) in &a.stamps {
         dense[r * n + c] += v;
     }
     let mut x = a.rhs.clone();
-    if !solve_in_place(&mut dense, &mut x, n) {
+    if !solve_in_place(dense, &mut x, n) {
         x.fill(f64::NAN);
     }
     x
@@ -442,8 +443,14 @@ fn newton(steps: &Steps, ramp: f64, gmin: f64, start: &Attempt) -> Result<Attemp
     let mut state = start.controls.clone();
     let base = linear_system(net, layout, ramp, gmin);
     let mut worst = (0usize, None);
+    // One system reused by every iteration: the linear stamps copied in, the devices' added.
+    let mut a = base.clone();
+    a.stamps.reserve(base.stamps.len() + 16 * net.elements.len());
+    let mut dense = Vec::new();
     for it in 0..MAX_ITERATIONS {
-        let mut a = base.clone();
+        a.stamps.clear();
+        a.stamps.extend_from_slice(&base.stamps);
+        a.rhs.copy_from_slice(&base.rhs);
         let mut limited = false;
         let mut biggest_device_step = 0.0;
         for (i, el) in net.elements.iter().enumerate() {
@@ -458,7 +465,7 @@ fn newton(steps: &Steps, ramp: f64, gmin: f64, start: &Attempt) -> Result<Attemp
             state[i] = v;
             stamp_device(&mut a, el, v, vt);
         }
-        let new = solve_step(&a, sparse);
+        let new = solve_step(&a, sparse, &mut dense);
         if new.iter().any(|v| !v.is_finite()) {
             return Err(Diverged { node: worst.0, device: worst.1, iterations: it + 1 });
         }
@@ -603,6 +610,7 @@ fn fresh_clone(a: &Attempt) -> Attempt {
 fn finish(steps: &Steps, mut attempt: Attempt, method: Method) -> OperatingPoint {
     let Steps { net, layout, vt, sparse } = *steps;
     let base = linear_system(net, layout, 1.0, 0.0);
+    let mut dense = Vec::new();
     for _ in 0..2 {
         let mut a = base.clone();
         for el in &net.elements {
@@ -610,7 +618,7 @@ fn finish(steps: &Steps, mut attempt: Attempt, method: Method) -> OperatingPoint
                 stamp_device(&mut a, el, v, vt);
             }
         }
-        let new = solve_step(&a, sparse);
+        let new = solve_step(&a, sparse, &mut dense);
         if new.iter().all(|v| v.is_finite()) {
             attempt.x = new;
         }

@@ -708,12 +708,11 @@ impl AnalysisSettings {
 
 impl Design {
     /// Every node name, ground first, then in order of first use.
-    pub fn nodes(&self) -> Vec<String> {
+    pub fn nodes<'a>(&'a self) -> Vec<String> {
         let mut seen: Vec<String> = vec![GROUND.to_string()];
-        let mut known: std::collections::HashSet<String> = seen.iter().cloned().collect();
-        let mut add = |n: &str| {
-            if !known.contains(n) {
-                known.insert(n.to_string());
+        let mut known = std::collections::HashSet::from([GROUND]);
+        let mut add = |n: &'a str| {
+            if known.insert(n) {
                 seen.push(n.to_string());
             }
         };
