@@ -180,7 +180,9 @@ impl Pencil {
                 a[i * n + j] = c64::new(h + t * s.re, t * s.im);
             }
         }
-        let floor = PIVOT_TOLERANCE * (self.h_max + s.norm() * self.t_max);
+        // |s| without `hypot` (a library call, and exact alike for the s = jω asked here).
+        let size = (s.re * s.re + s.im * s.im).sqrt();
+        let floor = PIVOT_TOLERANCE * (self.h_max + size * self.t_max);
         let floor_sq = floor * floor;
         let (multipliers, swapped) = (&mut work.multipliers, &mut work.swapped);
         multipliers.clear();
